@@ -62,16 +62,24 @@ absl::StatusOr<SearchDistribution> SearchDistribution::Create(Space space, const
   }
   const double learning_rate =
       options.discrete_learning_rate == 0 ? kDefaultDiscreteLearningRate : options.discrete_learning_rate;
-  Eigen::VectorXd start = options.start.value_or(space.Center());
-  if (start.size() != space.size()) {
-    return absl::InvalidArgumentError(absl::StrCat("start: has ", start.size(), " coordinates, the space has ",
-                                                   space.size(), " parameters"));
+  if (!options.start.empty() && static_cast<int>(options.start.size()) != space.size()) {
+    return absl::InvalidArgumentError(absl::StrCat("start: has ", options.start.size(),
+                                                   " coordinates, the space has ", space.size(), " parameters"));
   }
-  for (int i : space.gaussian_indices()) {
-    if (!(start[i] >= 0.0 && start[i] <= 1.0)) {
-      return absl::InvalidArgumentError(
-          absl::StrCat("start: parameter '", space.parameter(i).name, "' lies outside its bounds"));
+  Eigen::VectorXd start = space.Center();
+  std::vector<bool> given(space.size(), false);
+  for (size_t i = 0; i < options.start.size(); ++i) {
+    if (!options.start[i].has_value()) continue;
+    const double u = *options.start[i];
+    const ParameterSpec& p = space.parameter(static_cast<int>(i));
+    const bool valid = p.kind == ParameterKind::kCategorical
+                           ? (u == std::floor(u) && u >= 0 && u < static_cast<double>(p.options.size()))
+                           : p.kind == ParameterKind::kFlag ? (u == 0.0 || u == 1.0) : (u >= 0.0 && u <= 1.0);
+    if (!valid) {
+      return absl::InvalidArgumentError(absl::StrCat("start: parameter '", p.name, "' lies outside its bounds"));
     }
+    start[i] = u;
+    given[i] = true;
   }
   const int lambda = options.population_size != 0
                          ? std::max(options.population_size, options.expected_workers)
@@ -92,9 +100,10 @@ absl::StatusOr<SearchDistribution> SearchDistribution::Create(Space space, const
   const double n_margin = MarginDimension(s);
   if (!s.flag_indices().empty()) {
     const double margin = 1.0 / n_margin;
-    // A start flag value of 0/1 becomes a probability leaning that way; the default start is 1/2.
-    Eigen::VectorXd p = Gather(start, s.flag_indices()).cwiseMax(margin).cwiseMin(1.0 - margin);
-    if (!options.start.has_value()) p.setConstant(0.5);
+    Eigen::VectorXd p = Eigen::VectorXd::Constant(s.flag_indices().size(), 0.5);
+    for (size_t k = 0; k < s.flag_indices().size(); ++k) {
+      if (given[s.flag_indices()[k]]) p[k] = 0.25 + 0.5 * start[s.flag_indices()[k]];
+    }
     absl::StatusOr<BernoulliFamily> b = BernoulliFamily::Create(p, learning_rate, margin);
     if (!b.ok()) return b.status();
     d.bernoulli_ = *std::move(b);
@@ -103,8 +112,14 @@ absl::StatusOr<SearchDistribution> SearchDistribution::Create(Space space, const
     const std::vector<int> counts = OptionCounts(s);
     const int k_max = *std::max_element(counts.begin(), counts.end());
     const double margin = 1.0 / (n_margin * (k_max - 1));
-    absl::StatusOr<CategoricalFamily> c =
-        CategoricalFamily::Create(CategoricalFamily::Uniform(counts), learning_rate, margin);
+    std::vector<Eigen::VectorXd> theta = CategoricalFamily::Uniform(counts);
+    for (size_t k = 0; k < theta.size(); ++k) {
+      const int i = s.categorical_indices()[k];
+      if (!given[i]) continue;
+      theta[k] *= 0.5;
+      theta[k][static_cast<int>(start[i])] += 0.5;
+    }
+    absl::StatusOr<CategoricalFamily> c = CategoricalFamily::Create(std::move(theta), learning_rate, margin);
     if (!c.ok()) return c.status();
     d.categorical_ = *std::move(c);
   }

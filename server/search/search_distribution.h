@@ -40,7 +40,11 @@ struct DistributionOptions {
   int expected_workers = 1;    // λ is raised to at least this
   double initial_spread = 0;   // σ0 as a fraction of each range; 0 = kDefaultInitialSpread
   GaussianModel gaussian_model = GaussianModel::kAuto;
-  std::optional<Eigen::VectorXd> start;  // internal start point; default Space::Center()
+  // Start point: empty, or one internal coordinate per parameter where nullopt takes the default. Real
+  // and integer coordinates set the initial mean (default: the middle of the range). A flag or option
+  // given here starts with half of the probability mass on it and half spread uniformly (P = 3/4 for a
+  // flag); by default all values are equally likely.
+  std::vector<std::optional<double>> start;
   double discrete_learning_rate = 0;     // δt of the Bernoulli and categorical blocks; 0 = default
 };
 
@@ -74,7 +78,7 @@ struct DistributionSummary {
 class SearchDistribution {
  public:
   // INVALID_ARGUMENT if an option is out of range (population_size < 2 when given, initial_spread not in
-  // (0, 1], start of the wrong size or outside the bounds).
+  // (0, 1], start of the wrong size, outside the bounds, or not a valid flag or option index).
   static absl::StatusOr<SearchDistribution> Create(Space space, const DistributionOptions& options);
   static absl::StatusOr<SearchDistribution> FromState(Space space, DistributionState state);
 

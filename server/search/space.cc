@@ -132,49 +132,52 @@ absl::StatusOr<Eigen::VectorXd> Space::Encode(const Candidate& candidate) const 
   }
   Eigen::VectorXd u(size());
   for (int i = 0; i < size(); ++i) {
-    const ParameterSpec& p = parameters_[i];
-    const Value& v = candidate[i];
-    auto wrong_kind = [&] {
-      return ParameterError(p, "value has the wrong kind for this parameter");
-    };
-    switch (p.kind) {
-      case ParameterKind::kReal: {
-        if (!std::holds_alternative<double>(v)) return wrong_kind();
-        const double x = std::get<double>(v);
-        if (!(x >= p.low && x <= p.high)) {
-          return ParameterError(p, absl::StrCat("value ", x, " is outside [", p.low, ", ", p.high, "]"));
-        }
-        u[i] = p.log ? (std::log(x) - std::log(p.low)) / (std::log(p.high) - std::log(p.low))
-                     : (x - p.low) / (p.high - p.low);
-        break;
-      }
-      case ParameterKind::kInteger: {
-        if (!std::holds_alternative<int64_t>(v)) return wrong_kind();
-        const int64_t k = std::get<int64_t>(v);
-        if (k < p.integer_low || k > p.integer_high) {
-          return ParameterError(
-              p, absl::StrCat("value ", k, " is outside [", p.integer_low, ", ", p.integer_high, "]"));
-        }
-        u[i] = (static_cast<double>(k - p.integer_low) + 0.5) / static_cast<double>(integer_levels(i));
-        break;
-      }
-      case ParameterKind::kFlag:
-        if (!std::holds_alternative<bool>(v)) return wrong_kind();
-        u[i] = std::get<bool>(v) ? 1.0 : 0.0;
-        break;
-      case ParameterKind::kCategorical: {
-        if (!std::holds_alternative<std::string>(v)) return wrong_kind();
-        const auto it = std::find(p.options.begin(), p.options.end(), std::get<std::string>(v));
-        if (it == p.options.end()) {
-          return ParameterError(p, absl::StrCat("unknown option '", std::get<std::string>(v),
-                                                "'; allowed: ", absl::StrJoin(p.options, ", ")));
-        }
-        u[i] = static_cast<double>(it - p.options.begin());
-        break;
-      }
-    }
+    absl::StatusOr<double> coordinate = EncodeValue(i, candidate[i]);
+    if (!coordinate.ok()) return coordinate.status();
+    u[i] = *coordinate;
   }
   return u;
+}
+
+absl::StatusOr<double> Space::EncodeValue(int i, const Value& v) const {
+  OGIVE_CHECK(i >= 0 && i < size());
+  const ParameterSpec& p = parameters_[i];
+  auto wrong_kind = [&] {
+    return ParameterError(p, absl::StrCat("value has the wrong kind; expected a ", KindName(p.kind), " value"));
+  };
+  switch (p.kind) {
+    case ParameterKind::kReal: {
+      if (!std::holds_alternative<double>(v)) return wrong_kind();
+      const double x = std::get<double>(v);
+      if (!(x >= p.low && x <= p.high)) {
+        return ParameterError(p, absl::StrCat("value ", x, " is outside [", p.low, ", ", p.high, "]"));
+      }
+      return p.log ? (std::log(x) - std::log(p.low)) / (std::log(p.high) - std::log(p.low))
+                   : (x - p.low) / (p.high - p.low);
+    }
+    case ParameterKind::kInteger: {
+      if (!std::holds_alternative<int64_t>(v)) return wrong_kind();
+      const int64_t k = std::get<int64_t>(v);
+      if (k < p.integer_low || k > p.integer_high) {
+        return ParameterError(
+            p, absl::StrCat("value ", k, " is outside [", p.integer_low, ", ", p.integer_high, "]"));
+      }
+      return (static_cast<double>(k - p.integer_low) + 0.5) / static_cast<double>(integer_levels(i));
+    }
+    case ParameterKind::kFlag:
+      if (!std::holds_alternative<bool>(v)) return wrong_kind();
+      return std::get<bool>(v) ? 1.0 : 0.0;
+    case ParameterKind::kCategorical: {
+      if (!std::holds_alternative<std::string>(v)) return wrong_kind();
+      const auto it = std::find(p.options.begin(), p.options.end(), std::get<std::string>(v));
+      if (it == p.options.end()) {
+        return ParameterError(p, absl::StrCat("unknown option '", std::get<std::string>(v),
+                                              "'; allowed: ", absl::StrJoin(p.options, ", ")));
+      }
+      return static_cast<double>(it - p.options.begin());
+    }
+  }
+  return ParameterError(p, "unknown kind");
 }
 
 Eigen::VectorXd Space::Repair(const Eigen::VectorXd& internal) const {

@@ -70,6 +70,8 @@ class Space {
   // Internal coordinates of a candidate. INVALID_ARGUMENT if a value has the wrong kind, lies outside
   // its bounds, or names an unknown option.
   absl::StatusOr<Eigen::VectorXd> Encode(const Candidate& candidate) const;
+  // The internal coordinate of one value of parameter i; errors as for Encode().
+  absl::StatusOr<double> EncodeValue(int i, const Value& value) const;
 
   // Folds the Gaussian coordinates of `internal` back into [0, 1] by reflection; leaves the discrete
   // coordinates as they are. Points already inside are returned unchanged.

@@ -1,0 +1,207 @@
+#include <cmath>
+#include <cstring>
+#include <string>
+#include <vector>
+
+#include "gmock/gmock.h"
+#include "google/protobuf/text_format.h"
+#include "gtest/gtest.h"
+#include "server/codec/design_codec.h"
+#include "server/codec/state_codec.h"
+#include "server/search/random_stream.h"
+
+namespace ogive::codec {
+namespace {
+
+using ::testing::HasSubstr;
+
+v1::StudyDesign ParseDesign(const std::string& text) {
+  v1::StudyDesign design;
+  EXPECT_TRUE(google::protobuf::TextFormat::ParseFromString(text, &design)) << text;
+  return design;
+}
+
+// A kiln-firing style mixed design: every parameter kind.
+constexpr char kMixedDesign[] = R"pb(
+  name: "kiln-glaze"
+  parameters { name: "peak_temp" unit: "degC" real { low: 1180 high: 1300 } }
+  parameters { name: "cooling_rate" unit: "degC/h" real { low: 10 high: 1000 log: true } }
+  parameters { name: "hold_minutes" integer { low: 0 high: 60 } }
+  parameters { name: "reduction" flag {} }
+  parameters { name: "glaze" categorical { options: "celadon" options: "tenmoku" options: "shino" } }
+  objective { direction: LOWER_IS_BETTER }
+)pb";
+
+TEST(DesignCodec, ConvertsEveryParameterKind) {
+  const v1::StudyDesign design = ParseDesign(kMixedDesign);
+  absl::StatusOr<search::Space> space = SpaceFromDesign(design);
+  ASSERT_TRUE(space.ok()) << space.status();
+  ASSERT_EQ(space->size(), 5);
+  EXPECT_EQ(space->parameter(1).kind, search::ParameterKind::kReal);
+  EXPECT_TRUE(space->parameter(1).log);
+  EXPECT_EQ(space->parameter(2).integer_high, 60);
+  EXPECT_EQ(space->parameter(4).options.size(), 3u);
+  EXPECT_EQ(space->gaussian_indices().size(), 3u);
+}
+
+struct BadDesign {
+  std::string text;
+  std::string message;
+};
+
+class BadDesignTest : public ::testing::TestWithParam<BadDesign> {};
+
+TEST_P(BadDesignTest, IsRefusedWithAMessageNamingTheField) {
+  const v1::StudyDesign design = ParseDesign(GetParam().text);
+  absl::Status status = SpaceFromDesign(design).status();
+  if (status.ok()) status = OrderFromObjective(design.objective()).status();
+  if (status.ok()) status = DistributionOptionsFromDesign(design, *SpaceFromDesign(design)).status();
+  EXPECT_EQ(status.code(), absl::StatusCode::kInvalidArgument);
+  EXPECT_THAT(std::string(status.message()), HasSubstr(GetParam().message));
+}
+
+INSTANTIATE_TEST_SUITE_P(
+    Cases, BadDesignTest,
+    ::testing::Values(
+        BadDesign{R"pb(parameters { name: "t" real { low: 5 high: 5 } } objective { direction: LOWER_IS_BETTER })pb",
+                  "parameter 't' (real): low must be < high"},
+        BadDesign{R"pb(parameters { name: "r" real { low: 0 high: 5 log: true } }
+                       objective { direction: LOWER_IS_BETTER })pb",
+                  "log scale needs low > 0"},
+        BadDesign{R"pb(parameters { name: "a" flag {} } parameters { name: "a" flag {} }
+                       objective { direction: LOWER_IS_BETTER })pb",
+                  "parameter 'a': the name appears twice"},
+        BadDesign{R"pb(parameters { name: "c" categorical {} } objective { direction: LOWER_IS_BETTER })pb",
+                  "needs at least two options"},
+        BadDesign{R"pb(parameters { name: "k" } objective { direction: LOWER_IS_BETTER })pb",
+                  "parameters[0] 'k': kind must be set to one of real, integer, categorical, flag"},
+        BadDesign{R"pb(parameters { name: "f" flag {} } objective { grade_scale { labels: "good" } })pb",
+                  "objective.grade_scale.labels: needs at least two labels"},
+        BadDesign{R"pb(parameters { name: "f" flag {} } objective { direction: DIRECTION_UNSPECIFIED })pb",
+                  "objective.direction: must be LOWER_IS_BETTER or HIGHER_IS_BETTER"},
+        BadDesign{R"pb(parameters { name: "f" flag {} })pb", "objective: set either direction"},
+        BadDesign{R"pb(parameters { name: "f" flag {} } objective { direction: LOWER_IS_BETTER }
+                       initial_spread: 2)pb",
+                  "initial_spread: must be 0 (default) or in (0, 1]"},
+        BadDesign{R"pb(parameters { name: "f" flag {} } objective { direction: LOWER_IS_BETTER }
+                       population_size: 1)pb",
+                  "population_size: must be 0 (default) or at least 2"},
+        BadDesign{R"pb(parameters { name: "x" real { low: 0 high: 1 } } objective { direction: LOWER_IS_BETTER }
+                       start { values { key: "x" value { real: 3 } } })pb",
+                  "start: parameter 'x' (real): value 3 is outside [0, 1]"},
+        BadDesign{R"pb(parameters { name: "x" real { low: 0 high: 1 } } objective { direction: LOWER_IS_BETTER }
+                       start { values { key: "y" value { real: 0.5 } } })pb",
+                  "start: unknown parameter 'y'"}));
+
+TEST(DesignCodec, GradesAreLookedUpInTheScale) {
+  v1::Objective objective;
+  for (const char* label : {"cracked", "poor", "good"}) objective.mutable_grade_scale()->add_labels(label);
+  v1::Outcome outcome;
+  outcome.set_grade("good");
+  absl::StatusOr<search::Outcome> o = OutcomeFromProto(outcome, objective);
+  ASSERT_TRUE(o.ok()) << o.status();
+  EXPECT_EQ(o->grade, 2);
+  outcome.set_grade("excellent");
+  EXPECT_THAT(std::string(OutcomeFromProto(outcome, objective).status().message()),
+              HasSubstr("allowed: cracked, poor, good"));
+  outcome.set_score(1.0);
+  EXPECT_EQ(OutcomeFromProto(outcome, objective).status().code(), absl::StatusCode::kInvalidArgument);
+}
+
+TEST(DesignCodec, NonFiniteScoresAreRefused) {
+  v1::Objective objective;
+  objective.set_direction(v1::HIGHER_IS_BETTER);
+  v1::Outcome outcome;
+  outcome.set_score(std::nan(""));
+  EXPECT_THAT(std::string(OutcomeFromProto(outcome, objective).status().message()), HasSubstr("outcome.score"));
+  outcome.set_score(INFINITY);
+  EXPECT_EQ(OutcomeFromProto(outcome, objective).status().code(), absl::StatusCode::kInvalidArgument);
+}
+
+TEST(DesignCodec, CandidateRoundTrip) {
+  const search::Space space = *SpaceFromDesign(ParseDesign(kMixedDesign));
+  const search::Candidate c = {1234.5, 31.6, int64_t{17}, true, std::string("shino")};
+  const v1::Candidate proto = CandidateToProto(c, space);
+  absl::StatusOr<search::Candidate> back = CandidateFromProto(proto, space);
+  ASSERT_TRUE(back.ok()) << back.status();
+  EXPECT_EQ(*back, c);
+  v1::Candidate missing = proto;
+  missing.mutable_values()->erase("glaze");
+  EXPECT_THAT(std::string(CandidateFromProto(missing, space).status().message()),
+              HasSubstr("parameter 'glaze' is missing"));
+}
+
+TEST(DesignCodec, PartialStartSetsOnlyTheGivenParameters) {
+  v1::StudyDesign design = ParseDesign(kMixedDesign);
+  (*design.mutable_start()->mutable_values())["peak_temp"].set_real(1270);
+  (*design.mutable_start()->mutable_values())["glaze"].set_categorical("tenmoku");
+  const search::Space space = *SpaceFromDesign(design);
+  absl::StatusOr<search::DistributionOptions> options = DistributionOptionsFromDesign(design, space);
+  ASSERT_TRUE(options.ok()) << options.status();
+  ASSERT_EQ(options->start.size(), 5u);
+  EXPECT_DOUBLE_EQ(*options->start[0], (1270.0 - 1180.0) / 120.0);
+  EXPECT_FALSE(options->start[1].has_value());
+  EXPECT_EQ(*options->start[4], 1.0);
+  absl::StatusOr<search::SearchDistribution> d = search::SearchDistribution::Create(space, *options);
+  ASSERT_TRUE(d.ok()) << d.status();
+  // The given option starts with half the mass plus its uniform share: 1/2 + 1/6.
+  EXPECT_NEAR(d->Summary().option_probabilities[0][1], 0.5 + 0.5 / 3, 1e-15);
+}
+
+bool BitIdentical(const search::DistributionState& a, const search::DistributionState& b) {
+  const v1::DistributionState pa = DistributionStateToProto(a);
+  const v1::DistributionState pb = DistributionStateToProto(b);
+  return pa.SerializeAsString() == pb.SerializeAsString();
+}
+
+// Runs a few updates on a sphere-like objective so every field of the state has moved.
+search::SearchDistribution RunSome(search::SearchDistribution d, search::RandomStream& random, int generations) {
+  for (int g = 0; g < generations; ++g) {
+    std::vector<search::CohortMember> cohort;
+    std::vector<search::Outcome> outcomes;
+    for (int i = 0; i < d.population_size(); ++i) {
+      search::Draw draw = d.Sample(random);
+      double f = (draw.x.head(3).array() - 0.3).square().sum() + draw.x[3] + (draw.x[4] == 2 ? 0 : 1);
+      cohort.push_back({draw.x, draw.repaired});
+      outcomes.push_back(search::Outcome::Score(f));
+    }
+    EXPECT_TRUE(d.Update(cohort, *search::RankCohort(outcomes, search::OutcomeOrder{})).ok());
+  }
+  return d;
+}
+
+TEST(StateCodec, RoundTripIsBitExactAndContinuesIdentically) {
+  for (search::GaussianModel model : {search::GaussianModel::kFull, search::GaussianModel::kDiagonal}) {
+    const search::Space space = *SpaceFromDesign(ParseDesign(kMixedDesign));
+    search::DistributionOptions options;
+    options.gaussian_model = model;
+    search::RandomStream random(7);
+    search::SearchDistribution d = RunSome(*search::SearchDistribution::Create(space, options), random, 12);
+
+    // Through the wire format, as storage will keep it.
+    const std::string bytes = DistributionStateToProto(d.state()).SerializeAsString();
+    v1::DistributionState parsed;
+    ASSERT_TRUE(parsed.ParseFromString(bytes));
+    absl::StatusOr<search::DistributionState> state = DistributionStateFromProto(parsed);
+    ASSERT_TRUE(state.ok()) << state.status();
+    absl::StatusOr<search::SearchDistribution> restored = search::SearchDistribution::FromState(space, *state);
+    ASSERT_TRUE(restored.ok()) << restored.status();
+    EXPECT_TRUE(BitIdentical(d.state(), restored->state()));
+
+    search::RandomStream random_copy = search::RandomStream::FromState(random.state());
+    const search::SearchDistribution a = RunSome(d, random, 5);
+    const search::SearchDistribution b = RunSome(*restored, random_copy, 5);
+    EXPECT_TRUE(BitIdentical(a.state(), b.state()));
+  }
+}
+
+TEST(StateCodec, InconsistentSizesAreRefused) {
+  const search::Space space = *SpaceFromDesign(ParseDesign(kMixedDesign));
+  search::SearchDistribution d = *search::SearchDistribution::Create(space, {});
+  v1::DistributionState proto = DistributionStateToProto(d.state());
+  proto.mutable_gaussian()->mutable_covariance()->RemoveLast();
+  EXPECT_THAT(std::string(DistributionStateFromProto(proto).status().message()), HasSubstr("covariance"));
+}
+
+}  // namespace
+}  // namespace ogive::codec
