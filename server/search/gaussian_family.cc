@@ -28,6 +28,20 @@ double UpperNormalQuantile(double alpha) {
 
 bool AllFinite(const Eigen::VectorXd& v) { return v.allFinite(); }
 
+// Beyond this marginal standard deviation (internal units, where a range is 1 wide) a distribution has
+// stopped meaning anything, and squares of its samples would overflow; the study restarts it.
+constexpr double kMaxSpread = 1e100;
+
+// True if the state can no longer be sampled: non-finite numbers, σ = 0, or a runaway spread.
+bool Degenerate(const GaussianState& st) {
+  if (!st.mean.allFinite() || !st.covariance.allFinite() || !std::isfinite(st.sigma) || !(st.sigma > 0.0)) {
+    return true;
+  }
+  const double max_variance = st.diagonal ? st.covariance.col(0).maxCoeff() : st.covariance.diagonal().maxCoeff();
+  const double spread = st.sigma * std::sqrt(std::max(max_variance, 0.0));
+  return !(spread > 0.0 && spread < kMaxSpread);
+}
+
 }  // namespace
 
 GaussianFamily::GaussianFamily(GaussianState state, CmaParameters params)
@@ -90,7 +104,8 @@ Eigen::VectorXd GaussianFamily::Sample(RandomStream& random) const {
   } else {
     y = state_.eigenvectors * state_.eigenvalues.cwiseSqrt().cwiseProduct(z);
   }
-  return state_.mean + state_.sigma * state_.margin_scale.cwiseProduct(y);
+  // (σ A) first: when σ is tiny the margin's A is large, and their product is the finite quantity.
+  return state_.mean + (state_.sigma * state_.margin_scale).cwiseProduct(y);
 }
 
 Eigen::VectorXd GaussianFamily::InverseSqrtTimes(const Eigen::VectorXd& v) const {
@@ -127,6 +142,7 @@ absl::Status GaussianFamily::Update(absl::Span<const GaussianSample> cohort, abs
       return absl::InvalidArgumentError("gaussian update: every sample needs n finite coordinates");
     }
   }
+  const GaussianState before = state_;
   GaussianState& st = state_;
   const CmaParameters& p = params_;
 
@@ -158,11 +174,16 @@ absl::Status GaussianFamily::Update(absl::Span<const GaussianSample> cohort, abs
   // p_c ← (1 − c_c) p_c + h_σ √(c_c (2 − c_c) μ_eff) ⟨y⟩_w
   st.p_c = (1.0 - p.c_c) * st.p_c + h_sigma * std::sqrt(p.c_c * (2.0 - p.c_c) * p.mu_eff) * y_w;
 
-  // w°_i = w_i for w_i ≥ 0, else w_i · n / ‖C^{-1/2} y_i‖²
+  // w°_i = w_i for w_i ≥ 0, else w_i · n / ‖C^{-1/2} y_i‖². External members get no negative weight:
+  // the active update's scaling assumes y_i ~ N(0, C), which a repaired or re-expressed step is not;
+  // with it, repaired samples near the bounds collapsed C on the rotated ellipsoid (our choice, see
+  // docs/math.md).
   std::vector<double> w_circ(lambda);
   for (int i = 0; i < lambda; ++i) {
     if (w_cov[i] >= 0) {
       w_circ[i] = w_cov[i];
+    } else if (cohort[i].external) {
+      w_circ[i] = 0.0;
     } else {
       const double norm_sq = InverseSqrtTimes(Y.col(i)).squaredNorm();
       w_circ[i] = norm_sq > 0 ? w_cov[i] * n / norm_sq : 0.0;
@@ -187,6 +208,11 @@ absl::Status GaussianFamily::Update(absl::Span<const GaussianSample> cohort, abs
   st.sigma *= std::exp((p.c_sigma / p.d_sigma) * (p_sigma_norm / p.chi_n - 1.0));
 
   ++st.generation;
+  if (Degenerate(st)) {
+    state_ = before;
+    return absl::FailedPreconditionError(
+        "gaussian update: the distribution degenerated (non-finite, zero or runaway spread); restart the search");
+  }
   if (st.diagonal || st.generation - st.eigen_generation >= p.eigen_gap) Decompose();
   UpdateMargin();
   return absl::OkStatus();
@@ -210,9 +236,10 @@ void GaussianFamily::Decompose() {
 }
 
 void GaussianFamily::UpdateMargin() {
-  // α = 1/(n λ): the least probability of sampling across the nearest integer threshold. With the
-  // marginal N(m_j, (σ A_jj)² C_jj), that needs σ A_jj √C_jj z_α ≥ d_j, d_j the distance from m_j to the
-  // nearest threshold between two integers of the range.
+  // α = 1/(n λ): the least probability of sampling across each threshold that bounds the integer cell
+  // of the mean. With the marginal N(m_j, (σ A_jj)² C_jj) that needs σ A_jj √C_jj z_α ≥ d_j, d_j the
+  // distance from m_j to the farther of the two thresholds (only one at the ends of the range). Both
+  // sides count so that a mean near one edge of its cell can still reach the neighbour on the far side.
   GaussianState& st = state_;
   const int n = dimension();
   const double alpha = 1.0 / (static_cast<double>(n) * params_.lambda);
@@ -224,11 +251,14 @@ void GaussianFamily::UpdateMargin() {
       continue;
     }
     const double w = static_cast<double>(levels);
-    const double k = std::clamp(std::round(st.mean[j] * w), 1.0, w - 1.0);
-    const double distance = std::abs(st.mean[j] - k / w);
+    const double cell = std::clamp(std::floor(st.mean[j] * w), 0.0, w - 1.0);
+    double distance = 0.0;
+    if (cell > 0) distance = std::max(distance, std::abs(st.mean[j] - cell / w));
+    if (cell < w - 1) distance = std::max(distance, std::abs((cell + 1) / w - st.mean[j]));
     const double c_jj = st.diagonal ? st.covariance(j, 0) : st.covariance(j, j);
-    const double spread = st.sigma * std::sqrt(c_jj);
-    st.margin_scale[j] = std::max(1.0, distance / (z_alpha * spread));
+    const double spread = st.sigma * std::sqrt(std::max(c_jj, 0.0));
+    // With no spread at all (σ underflowed) no finite scale helps; such a study is converged.
+    st.margin_scale[j] = spread > 0.0 ? std::max(1.0, distance / (z_alpha * spread)) : 1.0;
   }
 }
 

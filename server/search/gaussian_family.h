@@ -11,10 +11,12 @@
 //   into the bounds) are re-expressed against the current m and σ, y = (x − m)/σ, and clipped in
 //   Mahalanobis norm, y ← y · min(1, c_y / ‖C^{-1/2} y‖), c_y = √n + 2n/(n + 2), before they enter the
 //   mean, the paths and C (Hansen, "Injecting external solutions into CMA-ES", arXiv:1110.4181).
-// * Integer coordinates carry the margin of CMA-ES with Margin (Hamano, Saito, Nomura, Shirakawa,
-//   GECCO 2022, arXiv:2205.13482): a diagonal scale A ≥ 1 keeps the probability of sampling across the
-//   nearest integer threshold at least α = 1/(n λ), so the search never freezes on one integer. Steps
-//   are measured in the unscaled space, y = A⁻¹ (x − m)/σ, so A never feeds back into C.
+//   They receive only non-negative weights in the covariance update.
+// * Integer coordinates carry a margin after CMA-ES with Margin (Hamano, Saito, Nomura, Shirakawa,
+//   GECCO 2022, arXiv:2205.13482): a diagonal scale A ≥ 1 keeps the probability of sampling across each
+//   threshold of the mean's integer cell at least α = 1/(n λ), so the search never freezes on one
+//   integer. (The paper also moves the mean; we only scale, on both sides of the cell: our variant.)
+//   Steps are measured in the unscaled space, y = A⁻¹ (x − m)/σ, so A never feeds back into C.
 // The diagonal model (sep-CMA-ES, Ros and Hansen, PPSN 2008) keeps C diagonal.
 //
 // A GaussianFamily is a value type; it is not thread-safe.
@@ -83,7 +85,9 @@ class GaussianFamily {
   Eigen::VectorXd Sample(RandomStream& random) const;
 
   // One CMA-ES generation from a ranked cohort. REQUIRES: cohort.size() == spans.size() ==
-  // population_size; spans from RankCohort. INVALID_ARGUMENT on a size mismatch or a non-finite sample.
+  // population_size; spans from RankCohort. INVALID_ARGUMENT on a size mismatch or a non-finite sample;
+  // FAILED_PRECONDITION if the update would leave a non-finite state (a degenerate distribution that
+  // needs a restart). On error the state is unchanged.
   absl::Status Update(absl::Span<const GaussianSample> cohort, absl::Span<const TieSpan> spans);
 
   // Changes λ (and the strategy parameters that depend on it) for the next update; m, σ, C and the

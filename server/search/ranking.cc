@@ -111,4 +111,14 @@ std::vector<double> TruncationQuantileWeights(int n) {
   return w;
 }
 
+std::vector<double> LogQuantileWeights(int n) {
+  OGIVE_CHECK(n > 0);
+  std::vector<double> w(n);
+  for (int k = 0; k < n; ++k) {
+    const double q = (k + 0.5) / n;
+    w[k] = q < 0.5 ? -2.0 * std::log(2.0 * q) / n : 0.0;
+  }
+  return w;
+}
+
 }  // namespace ogive::search

@@ -71,6 +71,13 @@ std::vector<double> TieAveragedWeights(absl::Span<const TieSpan> spans, absl::Sp
 // weights the Bernoulli IGO update is PBIL.
 std::vector<double> TruncationQuantileWeights(int n);
 
+// IGO quantile weights for N ranks with the logarithmic selection function w(q) = max(0, −2 ln(2q)),
+// which integrates to 1 over [0, 1] and gives weight to the better half only:
+// ŵ_k = (1/N) w((k + 1/2)/N). Its shape is that of CMA-ES's recombination weights
+// ln((λ+1)/2) − ln i (Hansen's tutorial, arXiv:1604.00772), which put more weight on the best ranks than
+// truncation does. The discrete families use these by default.
+std::vector<double> LogQuantileWeights(int n);
+
 }  // namespace ogive::search
 
 #endif  // OGIVE_SERVER_SEARCH_RANKING_H_

@@ -2,6 +2,9 @@
 // cohort drives every block: a GaussianFamily over the real and integer parameters (CMA-ES, full or
 // diagonal), a BernoulliFamily over the flags and a CategoricalFamily over the categorical parameters.
 //
+// The Gaussian block weighs the cohort with CMA-ES's recombination weights, the discrete blocks with
+// the logarithmic IGO quantile weights (ranking.h), both tie-averaged over the same tie spans.
+//
 // Samples are full internal vectors in the space's parameter order (see space.h). Draw() returns them
 // repaired into the bounds; Update() takes the cohort as it was evaluated.
 //

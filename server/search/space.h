@@ -19,6 +19,7 @@
 
 #include <cstdint>
 #include <string>
+#include <utility>
 #include <variant>
 #include <vector>
 
@@ -40,6 +41,37 @@ struct ParameterSpec {
   int64_t integer_low = 0;  // kInteger: inclusive bounds
   int64_t integer_high = 0;
   std::vector<std::string> options;  // kCategorical
+
+  static ParameterSpec Real(std::string name, double low, double high, bool log = false) {
+    ParameterSpec p;
+    p.name = std::move(name);
+    p.kind = ParameterKind::kReal;
+    p.low = low;
+    p.high = high;
+    p.log = log;
+    return p;
+  }
+  static ParameterSpec Integer(std::string name, int64_t low, int64_t high) {
+    ParameterSpec p;
+    p.name = std::move(name);
+    p.kind = ParameterKind::kInteger;
+    p.integer_low = low;
+    p.integer_high = high;
+    return p;
+  }
+  static ParameterSpec Flag(std::string name) {
+    ParameterSpec p;
+    p.name = std::move(name);
+    p.kind = ParameterKind::kFlag;
+    return p;
+  }
+  static ParameterSpec Categorical(std::string name, std::vector<std::string> options) {
+    ParameterSpec p;
+    p.name = std::move(name);
+    p.kind = ParameterKind::kCategorical;
+    p.options = std::move(options);
+    return p;
+  }
 };
 
 // A value of one parameter: real, integer, categorical option name, or flag.

@@ -1,0 +1,276 @@
+// ogive-bench-search: sequential ask/tell on the search core, printed as one JSON object.
+//
+// Protocol: real parameters bounded in [-5, 5]^n, start point uniform in [-4, 4]^n, σ0 = 2 (an
+// initial_spread of 0.2 of the range), x_opt uniform in [-4, 4]^n, default population, budget 2·10^5
+// evaluations. A run succeeds when f − f_opt ≤ 1e-8 (BBOB functions) or the optimum is sampled (OneMax,
+// LeadingOnes, the mixed problem). `update_cost` times one update at n = 10, 100 (full covariance) and
+// 1000 (diagonal) against one Eigen eigendecomposition of an n×n matrix in the same run.
+//
+// Usage: ogive-bench-search [--seeds N] [--quick]
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <cstring>
+#include <functional>
+#include <random>
+#include <string>
+#include <vector>
+
+#include "Eigen/Eigenvalues"
+#include "server/search/random_stream.h"
+#include "server/search/ranking.h"
+#include "server/search/search_distribution.h"
+#include "server/search/space.h"
+#include "tests/support/bbob.h"
+#include "tests/support/discrete_problems.h"
+
+namespace {
+
+using ogive::search::Candidate;
+using ogive::search::CohortMember;
+using ogive::search::DistributionOptions;
+using ogive::search::Draw;
+using ogive::search::Outcome;
+using ogive::search::OutcomeOrder;
+using ogive::search::ParameterKind;
+using ogive::search::ParameterSpec;
+using ogive::search::RandomStream;
+using ogive::search::SearchDistribution;
+using ogive::search::Space;
+
+constexpr long kBudget = 200000;
+constexpr double kTarget = 1e-8;
+
+// f − f_opt of a candidate (0 at the optimum).
+using Objective = std::function<double(const Candidate&)>;
+
+// Evaluations until f − f_opt ≤ kTarget, or -1 if the budget ran out.
+long RunToTarget(const Space& space, const DistributionOptions& options, const Objective& objective,
+                 uint64_t seed) {
+  SearchDistribution d = *SearchDistribution::Create(space, options);
+  RandomStream random(seed);
+  long evaluations = 0;
+  while (evaluations < kBudget) {
+    std::vector<CohortMember> cohort;
+    std::vector<Outcome> outcomes;
+    for (int i = 0; i < d.population_size(); ++i) {
+      const Draw draw = d.Sample(random);
+      const double f = objective(space.Decode(draw.x));
+      ++evaluations;
+      if (f <= kTarget) return evaluations;
+      cohort.push_back({draw.x, draw.repaired});
+      outcomes.push_back(Outcome::Score(f));
+    }
+    // A degenerate distribution (FAILED_PRECONDITION) ends the run unsolved; a restart is the study
+    // engine's business, not the sequential core's.
+    if (!d.Update(cohort, *ogive::search::RankCohort(outcomes, OutcomeOrder{})).ok()) return -1;
+  }
+  return -1;
+}
+
+std::vector<double> Reals(const Candidate& c) {
+  std::vector<double> x;
+  for (const auto& v : c) x.push_back(std::get<double>(v));
+  return x;
+}
+
+Space BoxSpace(int n) {
+  std::vector<ParameterSpec> specs;
+  for (int j = 0; j < n; ++j) specs.push_back(ParameterSpec::Real("x" + std::to_string(j), -5, 5));
+  return *Space::Create(specs);
+}
+
+Space FlagSpace(int n) {
+  std::vector<ParameterSpec> specs;
+  for (int j = 0; j < n; ++j) specs.push_back(ParameterSpec::Flag("b" + std::to_string(j)));
+  return *Space::Create(specs);
+}
+
+std::vector<int> Bits(const Candidate& c) {
+  std::vector<int> bits;
+  for (const auto& v : c) bits.push_back(std::get<bool>(v) ? 1 : 0);
+  return bits;
+}
+
+// The mixed problem: a simulated solver farm's settings tuned for run time. Four reals (relaxation
+// factor, tolerance exponent, two load-balance weights) with a quadratic bowl, a mesh level (1..8) and
+// a thread count (1..32), three on/off options and a preconditioner among four. Its minimum 0 is at
+// one point; every wrong integer, flag or preconditioner costs at least 0.1.
+struct MixedProblem {
+  Space space;
+  std::vector<double> real_opt;
+  static MixedProblem Make(uint64_t seed) {
+    std::mt19937_64 rng(seed);
+    std::uniform_real_distribution<double> u(-4, 4);
+    std::vector<ParameterSpec> specs;
+    for (const char* name : {"relaxation", "tolerance_exp", "balance_a", "balance_b"}) {
+      specs.push_back(ParameterSpec::Real(name, -5, 5));
+    }
+    specs.push_back(ParameterSpec::Integer("mesh_level", 1, 8));
+    specs.push_back(ParameterSpec::Integer("threads", 1, 32));
+    for (const char* name : {"multigrid", "reorder", "warm_start"}) specs.push_back(ParameterSpec::Flag(name));
+    specs.push_back(ParameterSpec::Categorical("preconditioner", {"jacobi", "ilu", "amg", "none"}));
+    MixedProblem m{*Space::Create(specs), {}};
+    for (int j = 0; j < 4; ++j) m.real_opt.push_back(u(rng));
+    return m;
+  }
+  double operator()(const Candidate& c) const {
+    double f = 0;
+    for (int j = 0; j < 4; ++j) f += std::pow(std::get<double>(c[j]) - real_opt[j], 2);
+    f += 0.1 * std::abs(std::get<int64_t>(c[4]) - 6) + 0.1 * std::abs(std::get<int64_t>(c[5]) - 12) / 2.0;
+    f += (std::get<bool>(c[6]) ? 0 : 0.5) + (std::get<bool>(c[7]) ? 0.3 : 0) + (std::get<bool>(c[8]) ? 0 : 0.2);
+    const std::string& pre = std::get<std::string>(c[9]);
+    f += pre == "amg" ? 0 : pre == "ilu" ? 0.4 : 1.0;
+    return f;
+  }
+};
+
+struct Row {
+  std::string problem;
+  int n;
+  std::vector<long> evals;  // -1 = failure
+};
+
+void PrintRow(const Row& row, bool first) {
+  std::vector<long> ok;
+  for (long e : row.evals) {
+    if (e >= 0) ok.push_back(e);
+  }
+  std::sort(ok.begin(), ok.end());
+  const double rate = static_cast<double>(ok.size()) / row.evals.size();
+  double median = -1;
+  if (!ok.empty()) {
+    median = ok.size() % 2 ? ok[ok.size() / 2] : 0.5 * (ok[ok.size() / 2 - 1] + ok[ok.size() / 2]);
+  }
+  std::printf("%s\n    {\"problem\": \"%s\", \"n\": %d, \"seeds\": %zu, \"median_evals\": %.1f, \"min_evals\": %ld, "
+              "\"max_evals\": %ld, \"success_rate\": %.3f}",
+              first ? "" : ",", row.problem.c_str(), row.n, row.evals.size(), median, ok.empty() ? -1 : ok.front(),
+              ok.empty() ? -1 : ok.back(), rate);
+}
+
+double SecondsOf(const std::function<void()>& work, int repetitions) {
+  const auto start = std::chrono::steady_clock::now();
+  for (int r = 0; r < repetitions; ++r) work();
+  return std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count() / repetitions;
+}
+
+// Mean wall time of one update (amortizing the lazy eigendecomposition) over one eigendecomposition.
+double UpdateCostRatio(int n, bool diagonal) {
+  DistributionOptions options;
+  options.gaussian_model = diagonal ? ogive::search::GaussianModel::kDiagonal : ogive::search::GaussianModel::kFull;
+  const Space space = BoxSpace(n);
+  SearchDistribution d = *SearchDistribution::Create(space, options);
+  RandomStream random(99);
+  const int generations = n >= 1000 ? 60 : 200;
+  std::vector<std::vector<CohortMember>> cohorts;
+  std::vector<std::vector<ogive::search::TieSpan>> spans;
+  // Pre-draw the cohorts so only the update is timed.
+  for (int g = 0; g < generations; ++g) {
+    std::vector<CohortMember> cohort;
+    std::vector<Outcome> outcomes;
+    for (int i = 0; i < d.population_size(); ++i) {
+      const Draw draw = d.Sample(random);
+      cohort.push_back({draw.x, false});
+      outcomes.push_back(Outcome::Score(draw.x.squaredNorm()));
+    }
+    cohorts.push_back(cohort);
+    spans.push_back(*ogive::search::RankCohort(outcomes, OutcomeOrder{}));
+  }
+  int g = 0;
+  const double update = SecondsOf([&] { (void)d.Update(cohorts[g], spans[g]); ++g; }, generations);
+  Eigen::MatrixXd a = Eigen::MatrixXd::Random(n, n);
+  const Eigen::MatrixXd c = a * a.transpose() + Eigen::MatrixXd::Identity(n, n);
+  double sink = 0;
+  const double eigen = SecondsOf(
+      [&] {
+        Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> solver(c);
+        sink += solver.eigenvalues()[0];
+      },
+      n >= 1000 ? 2 : 50);
+  if (sink == 12345.678) std::printf(" ");
+  return update / eigen;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  int seeds = 15;
+  bool quick = false;
+  double discrete_rate = 0;  // 0 = the library default
+  std::string only;          // run only problems whose name starts with this
+  for (int i = 1; i < argc; ++i) {
+    if (std::strcmp(argv[i], "--seeds") == 0 && i + 1 < argc) seeds = std::atoi(argv[++i]);
+    if (std::strcmp(argv[i], "--quick") == 0) quick = true;
+    if (std::strcmp(argv[i], "--discrete-rate") == 0 && i + 1 < argc) discrete_rate = std::atof(argv[++i]);
+    if (std::strcmp(argv[i], "--only") == 0 && i + 1 < argc) only = argv[++i];
+  }
+  std::vector<Row> rows;
+  const std::vector<int> dims = quick ? std::vector<int>{10} : std::vector<int>{10, 20};
+  auto wanted = [&only](const std::string& name) { return name.rfind(only, 0) == 0; };
+  for (int id : {1, 2, 8, 10}) {
+    if (!wanted("f" + std::to_string(id))) continue;
+    for (int n : dims) {
+      Row row{"f" + std::to_string(id), n, {}};
+      for (int s = 0; s < seeds; ++s) {
+        const auto f = ogive::testing::BbobFunction::Create(id, n, 1000 + s);
+        std::mt19937_64 rng(5000 + s);
+        std::uniform_real_distribution<double> start_value(-4, 4);
+        const Space space = BoxSpace(n);
+        DistributionOptions options;
+        options.initial_spread = 0.2;
+        options.start.assign(n, std::nullopt);
+        for (int j = 0; j < n; ++j) options.start[j] = (start_value(rng) + 5) / 10;
+        const Objective objective = [&f](const Candidate& c) {
+          const std::vector<double> x = Reals(c);
+          return f(Eigen::Map<const Eigen::VectorXd>(x.data(), x.size())) - f.f_opt();
+        };
+        row.evals.push_back(RunToTarget(space, options, objective, 7000 + s));
+      }
+      rows.push_back(row);
+    }
+  }
+  const int flags = 100;
+  for (const std::string& name : {std::string("onemax"), std::string("leadingones")}) {
+    if (!wanted(name)) continue;
+    Row row{name, flags, {}};
+    for (int s = 0; s < seeds; ++s) {
+      const Objective objective = [&name](const Candidate& c) {
+        const std::vector<int> bits = Bits(c);
+        const int value = name == "onemax" ? ogive::testing::OneMax(bits) : ogive::testing::LeadingOnes(bits);
+        return static_cast<double>(flags - value);
+      };
+      DistributionOptions options;
+      options.discrete_learning_rate = discrete_rate;
+      row.evals.push_back(RunToTarget(FlagSpace(flags), options, objective, 8000 + s));
+    }
+    rows.push_back(row);
+  }
+  if (wanted("mixed")) {
+    Row row{"mixed", 10, {}};
+    for (int s = 0; s < seeds; ++s) {
+      const MixedProblem problem = MixedProblem::Make(3000 + s);
+      const Objective objective = [&problem](const Candidate& c) { return problem(c); };
+      DistributionOptions options;
+      options.discrete_learning_rate = discrete_rate;
+      row.evals.push_back(RunToTarget(problem.space, options, objective, 9000 + s));
+    }
+    rows.push_back(row);
+  }
+
+  std::printf("{\n  \"benchmark\": \"ogive-bench-search\",\n  \"budget\": %ld,\n  \"target\": %g,\n  \"results\": [",
+              kBudget, kTarget);
+  for (size_t k = 0; k < rows.size(); ++k) PrintRow(rows[k], k == 0);
+  std::printf("\n  ],\n  \"update_cost\": [");
+  struct Cost {
+    int n;
+    bool diagonal;
+  };
+  const std::vector<Cost> costs = quick ? std::vector<Cost>{{10, false}} : std::vector<Cost>{{10, false}, {100, false}, {1000, true}};
+  for (size_t k = 0; k < costs.size(); ++k) {
+    std::printf("%s\n    {\"n\": %d, \"family\": \"%s\", \"ratio\": %.4g}", k ? "," : "", costs[k].n,
+                costs[k].diagonal ? "diagonal" : "gaussian", UpdateCostRatio(costs[k].n, costs[k].diagonal));
+  }
+  std::printf("\n  ]\n}\n");
+  return 0;
+}
