@@ -13,7 +13,6 @@
 #include <cstdio>
 #include <cstring>
 #include <functional>
-#include <random>
 #include <string>
 #include <vector>
 
@@ -22,8 +21,7 @@
 #include "server/search/ranking.h"
 #include "server/search/search_distribution.h"
 #include "server/search/space.h"
-#include "tests/support/bbob.h"
-#include "tests/support/discrete_problems.h"
+#include "tests/support/problems.h"
 
 namespace {
 
@@ -69,62 +67,11 @@ long RunToTarget(const Space& space, const DistributionOptions& options, const O
   return -1;
 }
 
-std::vector<double> Reals(const Candidate& c) {
-  std::vector<double> x;
-  for (const auto& v : c) x.push_back(std::get<double>(v));
-  return x;
-}
-
 Space BoxSpace(int n) {
   std::vector<ParameterSpec> specs;
   for (int j = 0; j < n; ++j) specs.push_back(ParameterSpec::Real("x" + std::to_string(j), -5, 5));
   return *Space::Create(specs);
 }
-
-Space FlagSpace(int n) {
-  std::vector<ParameterSpec> specs;
-  for (int j = 0; j < n; ++j) specs.push_back(ParameterSpec::Flag("b" + std::to_string(j)));
-  return *Space::Create(specs);
-}
-
-std::vector<int> Bits(const Candidate& c) {
-  std::vector<int> bits;
-  for (const auto& v : c) bits.push_back(std::get<bool>(v) ? 1 : 0);
-  return bits;
-}
-
-// The mixed problem: a simulated solver farm's settings tuned for run time. Four reals (relaxation
-// factor, tolerance exponent, two load-balance weights) with a quadratic bowl, a mesh level (1..8) and
-// a thread count (1..32), three on/off options and a preconditioner among four. Its minimum 0 is at
-// one point; every wrong integer, flag or preconditioner costs at least 0.1.
-struct MixedProblem {
-  Space space;
-  std::vector<double> real_opt;
-  static MixedProblem Make(uint64_t seed) {
-    std::mt19937_64 rng(seed);
-    std::uniform_real_distribution<double> u(-4, 4);
-    std::vector<ParameterSpec> specs;
-    for (const char* name : {"relaxation", "tolerance_exp", "balance_a", "balance_b"}) {
-      specs.push_back(ParameterSpec::Real(name, -5, 5));
-    }
-    specs.push_back(ParameterSpec::Integer("mesh_level", 1, 8));
-    specs.push_back(ParameterSpec::Integer("threads", 1, 32));
-    for (const char* name : {"multigrid", "reorder", "warm_start"}) specs.push_back(ParameterSpec::Flag(name));
-    specs.push_back(ParameterSpec::Categorical("preconditioner", {"jacobi", "ilu", "amg", "none"}));
-    MixedProblem m{*Space::Create(specs), {}};
-    for (int j = 0; j < 4; ++j) m.real_opt.push_back(u(rng));
-    return m;
-  }
-  double operator()(const Candidate& c) const {
-    double f = 0;
-    for (int j = 0; j < 4; ++j) f += std::pow(std::get<double>(c[j]) - real_opt[j], 2);
-    f += 0.1 * std::abs(std::get<int64_t>(c[4]) - 6) + 0.1 * std::abs(std::get<int64_t>(c[5]) - 12) / 2.0;
-    f += (std::get<bool>(c[6]) ? 0 : 0.5) + (std::get<bool>(c[7]) ? 0.3 : 0) + (std::get<bool>(c[8]) ? 0 : 0.2);
-    const std::string& pre = std::get<std::string>(c[9]);
-    f += pre == "amg" ? 0 : pre == "ilu" ? 0.4 : 1.0;
-    return f;
-  }
-};
 
 struct Row {
   std::string problem;
@@ -205,55 +152,27 @@ int main(int argc, char** argv) {
     if (std::strcmp(argv[i], "--discrete-rate") == 0 && i + 1 < argc) discrete_rate = std::atof(argv[++i]);
     if (std::strcmp(argv[i], "--only") == 0 && i + 1 < argc) only = argv[++i];
   }
-  std::vector<Row> rows;
   const std::vector<int> dims = quick ? std::vector<int>{10} : std::vector<int>{10, 20};
   auto wanted = [&only](const std::string& name) { return name.rfind(only, 0) == 0; };
-  for (int id : {1, 2, 8, 10}) {
-    if (!wanted("f" + std::to_string(id))) continue;
-    for (int n : dims) {
-      Row row{"f" + std::to_string(id), n, {}};
-      for (int s = 0; s < seeds; ++s) {
-        const auto f = ogive::testing::BbobFunction::Create(id, n, 1000 + s);
-        std::mt19937_64 rng(5000 + s);
-        std::uniform_real_distribution<double> start_value(-4, 4);
-        const Space space = BoxSpace(n);
-        DistributionOptions options;
-        options.initial_spread = 0.2;
-        options.start.assign(n, std::nullopt);
-        for (int j = 0; j < n; ++j) options.start[j] = (start_value(rng) + 5) / 10;
-        const Objective objective = [&f](const Candidate& c) {
-          const std::vector<double> x = Reals(c);
-          return f(Eigen::Map<const Eigen::VectorXd>(x.data(), x.size())) - f.f_opt();
-        };
-        row.evals.push_back(RunToTarget(space, options, objective, 7000 + s));
-      }
-      rows.push_back(row);
-    }
+  struct Case {
+    std::string problem;
+    int n;
+  };
+  std::vector<Case> cases;
+  for (const char* f : {"f1", "f2", "f8", "f10"}) {
+    for (int n : dims) cases.push_back({f, n});
   }
-  const int flags = 100;
-  for (const std::string& name : {std::string("onemax"), std::string("leadingones")}) {
-    if (!wanted(name)) continue;
-    Row row{name, flags, {}};
+  cases.push_back({"onemax", 100});
+  cases.push_back({"leadingones", 100});
+  cases.push_back({"mixed", 10});
+  std::vector<Row> rows;
+  for (const Case& c : cases) {
+    if (!wanted(c.problem)) continue;
+    Row row{c.problem, c.n, {}};
     for (int s = 0; s < seeds; ++s) {
-      const Objective objective = [&name](const Candidate& c) {
-        const std::vector<int> bits = Bits(c);
-        const int value = name == "onemax" ? ogive::testing::OneMax(bits) : ogive::testing::LeadingOnes(bits);
-        return static_cast<double>(flags - value);
-      };
-      DistributionOptions options;
-      options.discrete_learning_rate = discrete_rate;
-      row.evals.push_back(RunToTarget(FlagSpace(flags), options, objective, 8000 + s));
-    }
-    rows.push_back(row);
-  }
-  if (wanted("mixed")) {
-    Row row{"mixed", 10, {}};
-    for (int s = 0; s < seeds; ++s) {
-      const MixedProblem problem = MixedProblem::Make(3000 + s);
-      const Objective objective = [&problem](const Candidate& c) { return problem(c); };
-      DistributionOptions options;
-      options.discrete_learning_rate = discrete_rate;
-      row.evals.push_back(RunToTarget(problem.space, options, objective, 9000 + s));
+      ogive::testing::Problem problem = ogive::testing::MakeProblem(c.problem, c.n, 1000 + s);
+      problem.options.discrete_learning_rate = discrete_rate;
+      row.evals.push_back(RunToTarget(problem.space, problem.options, problem.gap, 7000 + s));
     }
     rows.push_back(row);
   }

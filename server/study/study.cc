@@ -1,0 +1,631 @@
+#include "server/study/study.h"
+
+#include <algorithm>
+#include <map>
+#include <utility>
+
+#include "absl/status/status.h"
+#include "absl/strings/str_cat.h"
+#include "server/base/check.h"
+#include "server/study/termination.h"
+
+namespace ogive::study {
+namespace {
+
+bool SameOutcome(const search::Outcome& a, const search::Outcome& b) {
+  if (a.kind != b.kind) return false;
+  switch (a.kind) {
+    case search::Outcome::Kind::kScore:
+      return a.score == b.score;
+    case search::Outcome::Kind::kGrade:
+      return a.grade == b.grade;
+    case search::Outcome::Kind::kInfeasible:
+    case search::Outcome::Kind::kVoid:
+      return true;
+  }
+  return false;
+}
+
+std::string Describe(const search::Outcome& o) {
+  switch (o.kind) {
+    case search::Outcome::Kind::kScore:
+      return absl::StrCat("score ", o.score);
+    case search::Outcome::Kind::kGrade:
+      return absl::StrCat("grade #", o.grade);
+    case search::Outcome::Kind::kInfeasible:
+      return "infeasible";
+    case search::Outcome::Kind::kVoid:
+      return "void";
+  }
+  return "?";
+}
+
+}  // namespace
+
+const char* TrialStateName(TrialState state) {
+  switch (state) {
+    case TrialState::kLeased:
+      return "leased";
+    case TrialState::kReported:
+      return "reported";
+    case TrialState::kLapsed:
+      return "lapsed";
+    case TrialState::kVoided:
+      return "voided";
+  }
+  return "unknown";
+}
+
+const char* UseName(Use use) {
+  switch (use) {
+    case Use::kNone:
+      return "none";
+    case Use::kPending:
+      return "pending";
+    case Use::kConsumed:
+      return "consumed";
+    case Use::kTooStale:
+      return "too_stale";
+  }
+  return "unknown";
+}
+
+const char* PhaseName(Phase phase) {
+  switch (phase) {
+    case Phase::kOpen:
+      return "open";
+    case Phase::kPaused:
+      return "paused";
+    case Phase::kDone:
+      return "done";
+  }
+  return "unknown";
+}
+
+const char* DoneReasonName(DoneReason reason) {
+  switch (reason) {
+    case DoneReason::kNone:
+      return "";
+    case DoneReason::kBudget:
+      return "budget";
+    case DoneReason::kTarget:
+      return "target";
+    case DoneReason::kConverged:
+      return "converged";
+    case DoneReason::kStopped:
+      return "stopped";
+  }
+  return "unknown";
+}
+
+// Computes one request's Change on top of the published state: changed trials live in an overlay,
+// the engine state and the index sets are copies. Nothing here touches the Study.
+class Study::Planner {
+ public:
+  Planner(const Study& study, absl::Time now)
+      : study_(study), now_(now), engine_(study.engine_), pending_(study.pending_), leased_(study.leased_) {}
+
+  const Trial* Get(int64_t number) const {
+    if (auto it = overlay_.find(number); it != overlay_.end()) return &it->second;
+    return study_.trial(number);
+  }
+  Trial& Mutable(int64_t number) {
+    auto it = overlay_.find(number);
+    if (it == overlay_.end()) it = overlay_.emplace(number, *study_.trial(number)).first;
+    return it->second;
+  }
+  EngineState& engine() { return engine_; }
+  int64_t outstanding() const { return static_cast<int64_t>(leased_.size()); }
+
+  // Lapses every lease that ran out by now.
+  void Sweep() {
+    std::vector<int64_t> expired;
+    for (int64_t number : leased_) {
+      if (Get(number)->lease_deadline <= now_) expired.push_back(number);
+    }
+    for (int64_t number : expired) {
+      Mutable(number).state = TrialState::kLapsed;
+      leased_.erase(number);
+    }
+  }
+
+  std::vector<int64_t> AddTrials(int count, const std::string& worker, absl::Duration lease) {
+    search::RandomStream random = search::RandomStream::FromState(engine_.random);
+    std::vector<int64_t> numbers;
+    for (int k = 0; k < count; ++k) {
+      const search::Draw draw = engine_.distribution->Sample(random);
+      Trial t;
+      t.number = engine_.next_trial++;
+      t.generation = engine_.generation;
+      t.epoch = engine_.epoch;
+      t.x = draw.x;
+      t.repaired = draw.repaired;
+      t.state = TrialState::kLeased;
+      t.worker = worker;
+      t.leased_at = now_;
+      t.lease_deadline = now_ + lease;
+      leased_.insert(t.number);
+      numbers.push_back(t.number);
+      overlay_.emplace(t.number, std::move(t));
+    }
+    engine_.random = random.state();
+    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(leased_.size()));
+    return numbers;
+  }
+
+  ReportResult Store(const Report& report) {
+    ReportResult result;
+    result.trial = report.trial;
+    const Trial* existing = Get(report.trial);
+    if (existing == nullptr) {
+      result.status = absl::NotFoundError(absl::StrCat("trial ", report.trial, ": no such trial in this study (trials are 1..",
+                                                       engine_.next_trial - 1, ")"));
+      return result;
+    }
+    if (absl::Status s = search::CheckOutcome(report.outcome, study_.order_); !s.ok()) {
+      result.status = absl::InvalidArgumentError(absl::StrCat("trial ", report.trial, ": ", s.message()));
+      return result;
+    }
+    if (existing->outcome.has_value()) {
+      if (SameOutcome(*existing->outcome, report.outcome)) {
+        result.duplicate = true;
+        result.late = existing->late;
+        return result;
+      }
+      result.status = absl::AlreadyExistsError(absl::StrCat("trial ", report.trial, ": already reported as ",
+                                                            Describe(*existing->outcome), "; a different outcome (",
+                                                            Describe(report.outcome), ") is refused"));
+      return result;
+    }
+    Trial& t = Mutable(report.trial);
+    t.late = t.state == TrialState::kLapsed;
+    result.late = t.late;
+    leased_.erase(t.number);
+    t.outcome = report.outcome;
+    t.note = report.note;
+    t.reported_at = now_;
+    t.report_sequence = ++engine_.report_sequence;
+    if (!report.outcome.informative()) {
+      t.state = TrialState::kVoided;
+      t.use = Use::kNone;
+      return result;
+    }
+    t.state = TrialState::kReported;
+    ++engine_.informative;
+    if (TooStale(t)) {
+      t.use = Use::kTooStale;
+    } else {
+      t.use = Use::kPending;
+      pending_.insert({t.report_sequence, t.number});
+    }
+    const Trial* best = Get(engine_.best_trial);
+    if (best == nullptr || search::CompareOutcomes(*t.outcome, *best->outcome, study_.order_) < 0) {
+      engine_.best_trial = t.number;
+    }
+    return result;
+  }
+
+  // Forms and consumes cohorts while λ pending outcomes are waiting; then applies the stopping rules.
+  void UpdateWhileReady() {
+    if (engine_.phase == Phase::kDone) return;
+    while (engine_.phase != Phase::kDone) {
+      DropStale();
+      const int lambda = engine_.distribution->population_size();
+      if (static_cast<int>(pending_.size()) < lambda) break;
+      std::vector<int64_t> cohort;
+      for (auto it = pending_.begin(); static_cast<int>(cohort.size()) < lambda; ++it) cohort.push_back(it->second);
+      Consume(cohort);
+    }
+    CheckTargetAndBudget();
+  }
+
+  void Lease(int64_t number, const std::string& worker, absl::Time deadline) {
+    Trial& t = Mutable(number);
+    t.state = TrialState::kLeased;
+    t.worker = worker;
+    t.lease_deadline = deadline;
+    leased_.insert(number);
+    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(leased_.size()));
+  }
+
+  void SetPhase(Phase phase, DoneReason reason, std::string message) {
+    engine_.phase = phase;
+    engine_.reason = reason;
+    engine_.phase_message = std::move(message);
+  }
+
+  Change Finish() {
+    Change change;
+    change.engine = std::move(engine_);
+    change.generations = std::move(generations_);
+    change.distribution_changed = distribution_changed_;
+    change.trials.reserve(overlay_.size());
+    for (auto& [number, t] : overlay_) change.trials.push_back(std::move(t));
+    return change;
+  }
+
+ private:
+  bool TooStale(const Trial& t) const {
+    return t.epoch != engine_.epoch || engine_.generation - t.generation > study_.options_.staleness_limit;
+  }
+
+  void DropStale() {
+    std::vector<std::pair<int64_t, int64_t>> stale;
+    for (const auto& entry : pending_) {
+      if (TooStale(*Get(entry.second))) stale.push_back(entry);
+    }
+    for (const auto& entry : stale) {
+      pending_.erase(entry);
+      Mutable(entry.second).use = Use::kTooStale;
+    }
+  }
+
+  void Consume(const std::vector<int64_t>& cohort) {
+    std::vector<search::CohortMember> members;
+    std::vector<search::Outcome> outcomes;
+    GenerationRecord record;
+    double staleness_sum = 0;
+    for (int64_t number : cohort) {
+      const Trial& t = *Get(number);
+      const int staleness = static_cast<int>(engine_.generation - t.generation);
+      members.push_back({t.x, t.repaired || staleness > 0});
+      outcomes.push_back(*t.outcome);
+      staleness_sum += staleness;
+      record.max_staleness = std::max(record.max_staleness, staleness);
+    }
+    absl::StatusOr<std::vector<search::TieSpan>> spans = search::RankCohort(outcomes, study_.order_);
+    OGIVE_CHECK(spans.ok());  // every pending outcome passed CheckOutcome when it was stored
+    const bool flat = std::all_of(spans->begin(), spans->end(), [&](const search::TieSpan& s) {
+      return s.better == 0 && s.better_or_equal == static_cast<int>(spans->size());
+    });
+
+    search::SearchDistribution next = *engine_.distribution;
+    const absl::Status updated = next.Update(members, *spans);
+    for (int64_t number : cohort) {
+      pending_.erase({Get(number)->report_sequence, number});
+      Trial& t = Mutable(number);
+      t.use = Use::kConsumed;
+      t.consumed_by = engine_.generation + 1;
+    }
+    ++engine_.generation;
+    engine_.flat_generations = flat ? engine_.flat_generations + 1 : 0;
+    record.generation = engine_.generation;
+    record.epoch = engine_.epoch;
+    record.population_size = static_cast<int>(cohort.size());
+    record.cohort = cohort;
+    record.mean_staleness = staleness_sum / cohort.size();
+    std::optional<std::string> converged;
+    if (updated.ok()) {
+      AdaptPopulation(next);
+      converged = ConvergenceReason(next, engine_.flat_generations, engine_.sigma0);
+      engine_.distribution = std::make_shared<const search::SearchDistribution>(std::move(next));
+    } else {
+      // A degenerate update (FAILED_PRECONDITION) leaves the distribution as it was; the search there
+      // is over.
+      converged = std::string(updated.message());
+    }
+    distribution_changed_ = true;
+    record.summary = engine_.distribution->Summary();
+    record.best_trial = engine_.best_trial;
+    generations_.push_back(std::move(record));
+    if (converged.has_value()) RestartOrStop(*converged);
+  }
+
+  // λ follows the observed concurrency: at least the base population, at least the most trials that
+  // were out at once since the last update (so a cohort is never mostly older than one generation),
+  // at most the configured cap.
+  void AdaptPopulation(search::SearchDistribution& next) {
+    int lambda = engine_.base_population;
+    if (study_.options_.adapt_population) lambda = std::max(lambda, engine_.peak_outstanding);
+    lambda = std::clamp(lambda, 2, std::max(2, study_.options_.max_population_size));
+    if (lambda != next.population_size()) next.SetPopulationSize(lambda);
+    engine_.peak_outstanding = static_cast<int>(leased_.size());
+  }
+
+  void RestartOrStop(const std::string& why) {
+    const int64_t budget = study_.options_.trial_budget;
+    const bool budget_left = budget == 0 || engine_.informative < budget;
+    if (!study_.options_.restarts || !budget_left) {
+      SetPhase(Phase::kDone, DoneReason::kConverged, why);
+      return;
+    }
+    // IPOP (Auger and Hansen, CEC 2005): double λ and start afresh from a uniform random point.
+    search::RandomStream random = search::RandomStream::FromState(engine_.random);
+    search::DistributionOptions options = study_.distribution_options_;
+    engine_.base_population = std::min(2 * engine_.base_population, study_.options_.max_population_size);
+    options.population_size = engine_.base_population;
+    options.expected_workers = 1;
+    options.start.assign(study_.space_.size(), std::nullopt);
+    for (int i : study_.space_.gaussian_indices()) options.start[i] = random.Uniform();
+    absl::StatusOr<search::SearchDistribution> fresh = search::SearchDistribution::Create(study_.space_, options);
+    OGIVE_CHECK(fresh.ok());  // the same options created the first distribution
+    engine_.random = random.state();
+    engine_.distribution = std::make_shared<const search::SearchDistribution>(*std::move(fresh));
+    ++engine_.epoch;
+    engine_.flat_generations = 0;
+    engine_.phase_message = absl::StrCat("restart ", engine_.epoch, " with population ", engine_.base_population,
+                                         " after: ", why);
+    // Outcomes waiting for the old distribution are kept but cannot inform the new one.
+    DropStale();
+  }
+
+  void CheckTargetAndBudget() {
+    if (engine_.phase == Phase::kDone) return;
+    const Trial* best = Get(engine_.best_trial);
+    if (study_.options_.target.has_value() && best != nullptr &&
+        search::CompareOutcomes(*best->outcome, *study_.options_.target, study_.order_) <= 0) {
+      SetPhase(Phase::kDone, DoneReason::kTarget, absl::StrCat("trial ", best->number, " reached the target"));
+      return;
+    }
+    const int64_t budget = study_.options_.trial_budget;
+    if (budget > 0 && engine_.informative >= budget) {
+      SetPhase(Phase::kDone, DoneReason::kBudget,
+               absl::StrCat(engine_.informative, " informative outcomes reached the trial budget of ", budget));
+    }
+  }
+
+  const Study& study_;
+  const absl::Time now_;
+  EngineState engine_;
+  std::set<std::pair<int64_t, int64_t>> pending_;
+  std::set<int64_t> leased_;
+  std::map<int64_t, Trial> overlay_;
+  std::vector<GenerationRecord> generations_;
+  bool distribution_changed_ = false;
+};
+
+Study::Study(search::Space space, search::OutcomeOrder order, search::DistributionOptions distribution_options,
+             StudyOptions options)
+    : space_(std::move(space)),
+      order_(order),
+      distribution_options_(std::move(distribution_options)),
+      options_(std::move(options)) {}
+
+absl::StatusOr<Study> Study::Create(search::Space space, search::OutcomeOrder order,
+                                    search::DistributionOptions distribution_options, StudyOptions options) {
+  if (absl::Status s = options.Validate(); !s.ok()) return s;
+  if (options.target.has_value()) {
+    if (absl::Status s = search::CheckOutcome(*options.target, order); !s.ok()) {
+      return absl::InvalidArgumentError(absl::StrCat("target: ", s.message()));
+    }
+  }
+  absl::StatusOr<search::SearchDistribution> d = search::SearchDistribution::Create(space, distribution_options);
+  if (!d.ok()) return d.status();
+  Study study(std::move(space), order, std::move(distribution_options), std::move(options));
+  EngineState& e = study.engine_;
+  e.random = search::RandomStream(study.options_.seed).state();
+  e.base_population = d->population_size();
+  e.sigma0 = d->gaussian() ? d->gaussian()->state().sigma : 0.0;
+  e.distribution = std::make_shared<const search::SearchDistribution>(*std::move(d));
+  return study;
+}
+
+absl::StatusOr<Study> Study::Restore(search::Space space, search::OutcomeOrder order,
+                                     search::DistributionOptions distribution_options, StudyOptions options,
+                                     StudySnapshot snapshot) {
+  if (absl::Status s = options.Validate(); !s.ok()) return s;
+  if (snapshot.engine.distribution == nullptr) return absl::InvalidArgumentError("snapshot: no distribution");
+  if (snapshot.engine.next_trial != static_cast<int64_t>(snapshot.trials.size()) + 1) {
+    return absl::DataLossError(absl::StrCat("snapshot: next trial is ", snapshot.engine.next_trial, " but ",
+                                            snapshot.trials.size(), " trials are stored"));
+  }
+  Study study(std::move(space), order, std::move(distribution_options), std::move(options));
+  study.engine_ = std::move(snapshot.engine);
+  study.trials_ = std::move(snapshot.trials);
+  for (size_t k = 0; k < study.trials_.size(); ++k) {
+    const Trial& t = study.trials_[k];
+    if (t.number != static_cast<int64_t>(k) + 1 || t.x.size() != study.space_.size()) {
+      return absl::DataLossError(absl::StrCat("snapshot: trial record ", k + 1, " is inconsistent"));
+    }
+    study.Count(t, +1);
+    study.Index(t);
+  }
+  return study;
+}
+
+absl::StatusOr<AskPlan> Study::PlanAsk(int count, const std::string& worker, std::optional<absl::Duration> lease,
+                                       absl::Time now) const {
+  if (count < 1 || count > kMaxAskCount) {
+    return absl::InvalidArgumentError(absl::StrCat("count: must be in 1..", kMaxAskCount, ", got ", count));
+  }
+  const absl::Duration lease_length = lease.value_or(options_.default_lease);
+  if (lease_length <= absl::ZeroDuration()) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("lease_seconds: must be positive, got ", absl::ToDoubleSeconds(lease_length)));
+  }
+  if (engine_.phase == Phase::kPaused) {
+    return absl::FailedPreconditionError("study is paused; resume it to get candidates");
+  }
+  if (engine_.phase == Phase::kDone) {
+    return absl::FailedPreconditionError(absl::StrCat("study is done (", DoneReasonName(engine_.reason), "): ",
+                                                      engine_.phase_message));
+  }
+  Planner planner(*this, now);
+  planner.Sweep();
+  if (options_.trial_budget > 0) {
+    const int64_t room = options_.trial_budget - engine_.informative - planner.outstanding();
+    if (room <= 0) {
+      return absl::FailedPreconditionError(absl::StrCat(
+          "the trial budget of ", options_.trial_budget, " is taken up by ", engine_.informative, " outcomes and ",
+          planner.outstanding(), " outstanding trials; ask again when they report or lapse"));
+    }
+    count = static_cast<int>(std::min<int64_t>(count, room));
+  }
+  AskPlan plan;
+  plan.trials = planner.AddTrials(count, worker, lease_length);
+  plan.change = planner.Finish();
+  return plan;
+}
+
+absl::StatusOr<TellPlan> Study::PlanTell(absl::Span<const Report> reports, absl::Time now) const {
+  if (reports.empty()) return absl::InvalidArgumentError("reports: at least one report is needed");
+  Planner planner(*this, now);
+  planner.Sweep();
+  TellPlan plan;
+  for (const Report& report : reports) plan.results.push_back(planner.Store(report));
+  planner.UpdateWhileReady();
+  plan.change = planner.Finish();
+  return plan;
+}
+
+absl::StatusOr<Change> Study::PlanRenew(absl::Span<const int64_t> trials, const std::string& worker,
+                                        std::optional<absl::Duration> lease, absl::Time now) const {
+  const absl::Duration lease_length = lease.value_or(options_.default_lease);
+  if (lease_length <= absl::ZeroDuration()) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("lease_seconds: must be positive, got ", absl::ToDoubleSeconds(lease_length)));
+  }
+  if (trials.empty()) return absl::InvalidArgumentError("trials: at least one trial number is needed");
+  Planner planner(*this, now);
+  planner.Sweep();
+  for (int64_t number : trials) {
+    const Trial* t = planner.Get(number);
+    if (t == nullptr) return absl::NotFoundError(absl::StrCat("trial ", number, ": no such trial in this study"));
+    if (t->outcome.has_value()) {
+      return absl::FailedPreconditionError(absl::StrCat("trial ", number, ": already reported; nothing to renew"));
+    }
+    if (!t->worker.empty() && t->worker != worker) {
+      return absl::FailedPreconditionError(
+          absl::StrCat("trial ", number, ": leased to worker '", t->worker, "', not '", worker, "'"));
+    }
+  }
+  for (int64_t number : trials) planner.Lease(number, worker, now + lease_length);
+  return planner.Finish();
+}
+
+Change Study::PlanSweep(absl::Time now) const {
+  Planner planner(*this, now);
+  planner.Sweep();
+  return planner.Finish();
+}
+
+absl::StatusOr<Change> Study::PlanSetPhase(PhaseCommand command, absl::Time now) const {
+  Planner planner(*this, now);
+  switch (command) {
+    case PhaseCommand::kPause:
+      if (engine_.phase == Phase::kDone) {
+        return absl::FailedPreconditionError("study is done; a done study cannot be paused");
+      }
+      planner.SetPhase(Phase::kPaused, DoneReason::kNone, "paused by request");
+      break;
+    case PhaseCommand::kResume:
+      if (engine_.phase == Phase::kDone) {
+        return absl::FailedPreconditionError(absl::StrCat("study is done (", DoneReasonName(engine_.reason),
+                                                          "); a done study cannot be resumed"));
+      }
+      planner.SetPhase(Phase::kOpen, DoneReason::kNone, "");
+      break;
+    case PhaseCommand::kFinish:
+      if (engine_.phase == Phase::kDone) return planner.Finish();
+      planner.SetPhase(Phase::kDone, DoneReason::kStopped, "finished by request");
+      break;
+  }
+  return planner.Finish();
+}
+
+void Study::Apply(Change change) {
+  for (Trial& t : change.trials) {
+    OGIVE_CHECK(t.number >= 1 && t.number <= static_cast<int64_t>(trials_.size()) + 1);
+    if (t.number == static_cast<int64_t>(trials_.size()) + 1) {
+      Count(t, +1);
+      Index(t);
+      trials_.push_back(std::move(t));
+      continue;
+    }
+    Trial& old = trials_[t.number - 1];
+    Count(old, -1);
+    Unindex(old);
+    old = std::move(t);
+    Count(old, +1);
+    Index(old);
+  }
+  engine_ = std::move(change.engine);
+}
+
+absl::StatusOr<std::vector<Trial>> Study::Ask(int count, const std::string& worker,
+                                              std::optional<absl::Duration> lease, absl::Time now) {
+  absl::StatusOr<AskPlan> plan = PlanAsk(count, worker, lease, now);
+  if (!plan.ok()) return plan.status();
+  Apply(std::move(plan->change));
+  std::vector<Trial> asked;
+  for (int64_t number : plan->trials) asked.push_back(*trial(number));
+  return asked;
+}
+
+absl::StatusOr<std::vector<ReportResult>> Study::Tell(absl::Span<const Report> reports, absl::Time now) {
+  absl::StatusOr<TellPlan> plan = PlanTell(reports, now);
+  if (!plan.ok()) return plan.status();
+  Apply(std::move(plan->change));
+  return std::move(plan->results);
+}
+
+absl::Status Study::Renew(absl::Span<const int64_t> trials, const std::string& worker,
+                          std::optional<absl::Duration> lease, absl::Time now) {
+  absl::StatusOr<Change> change = PlanRenew(trials, worker, lease, now);
+  if (!change.ok()) return change.status();
+  Apply(*std::move(change));
+  return absl::OkStatus();
+}
+
+int Study::Sweep(absl::Time now) {
+  const int64_t before = counts_.lapsed;
+  Apply(PlanSweep(now));
+  return static_cast<int>(counts_.lapsed - before);
+}
+
+absl::Status Study::SetPhase(PhaseCommand command, absl::Time now) {
+  absl::StatusOr<Change> change = PlanSetPhase(command, now);
+  if (!change.ok()) return change.status();
+  Apply(*std::move(change));
+  return absl::OkStatus();
+}
+
+const Trial* Study::trial(int64_t number) const {
+  if (number < 1 || number > static_cast<int64_t>(trials_.size())) return nullptr;
+  return &trials_[number - 1];
+}
+
+StudySnapshot Study::Snapshot() const { return StudySnapshot{engine_, trials_}; }
+
+void Study::Count(const Trial& t, int sign) {
+  switch (t.state) {
+    case TrialState::kLeased:
+      counts_.leased += sign;
+      break;
+    case TrialState::kReported:
+      counts_.reported += sign;
+      break;
+    case TrialState::kLapsed:
+      counts_.lapsed += sign;
+      break;
+    case TrialState::kVoided:
+      counts_.voided += sign;
+      break;
+  }
+  if (t.late) counts_.late += sign;
+  switch (t.use) {
+    case Use::kPending:
+      counts_.pending += sign;
+      break;
+    case Use::kConsumed:
+      counts_.consumed += sign;
+      break;
+    case Use::kTooStale:
+      counts_.too_stale += sign;
+      break;
+    case Use::kNone:
+      break;
+  }
+}
+
+void Study::Index(const Trial& t) {
+  if (t.state == TrialState::kLeased) leased_.insert(t.number);
+  if (t.use == Use::kPending) pending_.insert({t.report_sequence, t.number});
+}
+
+void Study::Unindex(const Trial& t) {
+  leased_.erase(t.number);
+  pending_.erase({t.report_sequence, t.number});
+}
+
+}  // namespace ogive::study

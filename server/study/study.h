@@ -1,0 +1,189 @@
+// Study: the asynchronous study engine. It holds a study's search distribution, its random-stream
+// position, its counters and its trials, and turns the stream of asks, reports, renewals and lapses
+// into sound distribution updates (see ../../docs/math.md, "Asynchrony").
+//
+// Pure and deterministic: no I/O, no clock (every operation takes `now`), randomness from the study's
+// own seeded stream. The same design, seed and sequence of calls give the same candidates and states.
+//
+// Every operation comes in two steps so that memory and storage never disagree: Plan*() computes the
+// Change a request makes without publishing it (const), the caller commits that change to storage,
+// and Apply() then makes it the study's state. A failed commit leaves the study as it was. The
+// one-step forms (Ask, Tell, ...) plan and apply at once, for tests and in-process use.
+//
+// Not thread-safe: the caller serializes operations on one study.
+#ifndef OGIVE_SERVER_STUDY_STUDY_H_
+#define OGIVE_SERVER_STUDY_STUDY_H_
+
+#include <cstdint>
+#include <memory>
+#include <optional>
+#include <set>
+#include <string>
+#include <utility>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "absl/time/time.h"
+#include "absl/types/span.h"
+#include "server/search/random_stream.h"
+#include "server/search/search_distribution.h"
+#include "server/study/study_options.h"
+#include "server/study/trial.h"
+
+namespace ogive::study {
+
+enum class Phase { kOpen, kPaused, kDone };
+enum class DoneReason { kNone, kBudget, kTarget, kConverged, kStopped };
+const char* PhaseName(Phase phase);             // "open", "paused", "done"
+const char* DoneReasonName(DoneReason reason);  // "", "budget", "target", "converged", "stopped"
+
+enum class PhaseCommand { kPause, kResume, kFinish };
+
+// Everything about a study besides its trials and its fixed design.
+struct EngineState {
+  Phase phase = Phase::kOpen;
+  DoneReason reason = DoneReason::kNone;
+  std::string phase_message;  // why the phase is what it is, for people
+  std::shared_ptr<const search::SearchDistribution> distribution;  // shared between plans; never mutated
+  search::RandomStream::State random{};
+  int64_t generation = 0;        // updates so far, over all restarts
+  int64_t epoch = 0;             // restarts so far
+  int64_t next_trial = 1;
+  int64_t report_sequence = 0;   // reports stored so far
+  int64_t informative = 0;       // informative outcomes stored so far (the budget counts these)
+  int base_population = 0;       // the design's λ, doubled at each restart
+  int64_t flat_generations = 0;  // consecutive updates whose cohort was all tied
+  int peak_outstanding = 0;      // most trials out at once since the last update
+  int64_t best_trial = 0;        // best informative outcome so far, 0 = none
+  double sigma0 = 0.0;           // initial step size (internal units)
+};
+
+// One update, for history and plots.
+struct GenerationRecord {
+  int64_t generation = 0;  // the generation this update produced (1, 2, ...)
+  int64_t epoch = 0;
+  int population_size = 0;
+  std::vector<int64_t> cohort;  // trial numbers consumed, oldest report first
+  double mean_staleness = 0.0;
+  int max_staleness = 0;
+  search::DistributionSummary summary;  // after the update
+  int64_t best_trial = 0;
+};
+
+// The effect of one request: trial records to write (new or changed, complete), the engine state
+// after it, and the updates it made. Apply() publishes it.
+struct Change {
+  std::vector<Trial> trials;
+  EngineState engine;
+  std::vector<GenerationRecord> generations;
+  bool distribution_changed = false;  // an update or restart replaced the distribution
+};
+
+struct AskPlan {
+  Change change;
+  std::vector<int64_t> trials;  // numbers of the new trials, in order
+};
+
+struct TellPlan {
+  Change change;
+  std::vector<ReportResult> results;  // one per report, in order
+};
+
+// Trials by state, and informative outcomes by use.
+struct TrialCounts {
+  int64_t leased = 0, reported = 0, lapsed = 0, voided = 0;
+  int64_t late = 0;     // reported after their lease lapsed (within `reported` or `voided`)
+  int64_t pending = 0, consumed = 0, too_stale = 0;
+  int64_t total() const { return leased + reported + lapsed + voided; }
+};
+
+// A study's full state: what Restore() needs to continue bit-identically.
+struct StudySnapshot {
+  EngineState engine;  // distribution is set
+  std::vector<Trial> trials;
+};
+
+class Study {
+ public:
+  // The largest count one Ask may request.
+  static constexpr int kMaxAskCount = 10000;
+
+  // A new study. INVALID_ARGUMENT naming the field for invalid options.
+  static absl::StatusOr<Study> Create(search::Space space, search::OutcomeOrder order,
+                                      search::DistributionOptions distribution_options, StudyOptions options);
+  // Continues from a snapshot taken by Snapshot() of a study created with the same arguments.
+  // INVALID_ARGUMENT (or DATA_LOSS for inconsistent trials) if the snapshot does not fit.
+  static absl::StatusOr<Study> Restore(search::Space space, search::OutcomeOrder order,
+                                       search::DistributionOptions distribution_options, StudyOptions options,
+                                       StudySnapshot snapshot);
+
+  // Samples `count` candidates leased to `worker` until now + lease (default: the study's lease).
+  // Leases that ran out by `now` lapse first. Never waits for results. INVALID_ARGUMENT for count < 1
+  // or > kMaxAskCount or a non-positive lease; FAILED_PRECONDITION when the study is paused or done,
+  // or its trial budget is taken up by outstanding trials. May return fewer than `count` trials when
+  // the budget has room for fewer.
+  absl::StatusOr<AskPlan> PlanAsk(int count, const std::string& worker, std::optional<absl::Duration> lease,
+                                  absl::Time now) const;
+  // Stores each report (see ReportResult); forms cohorts of λ pending outcomes (oldest reports first)
+  // and updates; checks target, budget and convergence. Reports are accepted in every phase; updates
+  // happen while open or paused. Fails as a whole only if `reports` is empty (INVALID_ARGUMENT).
+  absl::StatusOr<TellPlan> PlanTell(absl::Span<const Report> reports, absl::Time now) const;
+  // Extends the leases of `trials` held by `worker` to now + lease. A lapsed, unreported trial is leased
+  // again. All or nothing: NOT_FOUND for an unknown trial, FAILED_PRECONDITION for a reported one or
+  // one leased to another worker.
+  absl::StatusOr<Change> PlanRenew(absl::Span<const int64_t> trials, const std::string& worker,
+                                   std::optional<absl::Duration> lease, absl::Time now) const;
+  // Lapses every lease that ran out by `now`.
+  Change PlanSweep(absl::Time now) const;
+  // pause (open -> paused), resume (paused -> open), finish (-> done, reason stopped). Repeating the
+  // current phase is accepted and changes nothing; resuming a done study is FAILED_PRECONDITION.
+  absl::StatusOr<Change> PlanSetPhase(PhaseCommand command, absl::Time now) const;
+
+  // Publishes a change planned on the current state. REQUIRES: no other change was applied since.
+  void Apply(Change change);
+
+  // Plan and apply in one step.
+  absl::StatusOr<std::vector<Trial>> Ask(int count, const std::string& worker, std::optional<absl::Duration> lease,
+                                         absl::Time now);
+  absl::StatusOr<std::vector<ReportResult>> Tell(absl::Span<const Report> reports, absl::Time now);
+  absl::Status Renew(absl::Span<const int64_t> trials, const std::string& worker,
+                     std::optional<absl::Duration> lease, absl::Time now);
+  int Sweep(absl::Time now);  // returns the number of trials that lapsed
+  absl::Status SetPhase(PhaseCommand command, absl::Time now);
+
+  const search::Space& space() const { return space_; }
+  const search::OutcomeOrder& order() const { return order_; }
+  const StudyOptions& options() const { return options_; }
+  const EngineState& engine() const { return engine_; }
+  const search::SearchDistribution& distribution() const { return *engine_.distribution; }
+  const TrialCounts& counts() const { return counts_; }
+  // Trials 1..trial_count(); nullptr for an unknown number.
+  int64_t trial_count() const { return static_cast<int64_t>(trials_.size()); }
+  const Trial* trial(int64_t number) const;
+  const std::vector<Trial>& trials() const { return trials_; }
+  const Trial* best() const { return trial(engine_.best_trial); }
+
+  StudySnapshot Snapshot() const;
+
+ private:
+  class Planner;
+  Study(search::Space space, search::OutcomeOrder order, search::DistributionOptions distribution_options,
+        StudyOptions options);
+  void Count(const Trial& t, int sign);
+  void Index(const Trial& t);
+  void Unindex(const Trial& t);
+
+  search::Space space_;
+  search::OutcomeOrder order_;
+  search::DistributionOptions distribution_options_;
+  StudyOptions options_;
+  EngineState engine_;
+  std::vector<Trial> trials_;  // trials_[k] has number k + 1
+  TrialCounts counts_;
+  std::set<std::pair<int64_t, int64_t>> pending_;  // (report_sequence, number) of pending outcomes
+  std::set<int64_t> leased_;                        // numbers of leased trials
+};
+
+}  // namespace ogive::study
+
+#endif  // OGIVE_SERVER_STUDY_STUDY_H_

@@ -1,0 +1,28 @@
+#include "server/study/study_options.h"
+
+#include "absl/strings/str_cat.h"
+
+namespace ogive::study {
+
+absl::Status StudyOptions::Validate() const {
+  if (staleness_limit < 0) {
+    return absl::InvalidArgumentError(absl::StrCat("staleness_limit: must be >= 0, got ", staleness_limit));
+  }
+  if (trial_budget < 0) {
+    return absl::InvalidArgumentError(absl::StrCat("trial_budget: must be >= 0 (0 = none), got ", trial_budget));
+  }
+  if (default_lease <= absl::ZeroDuration()) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("lease_seconds: must be positive, got ", absl::ToDoubleSeconds(default_lease)));
+  }
+  if (max_population_size < 2) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("max_population_size: must be at least 2, got ", max_population_size));
+  }
+  if (target.has_value() && !target->informative()) {
+    return absl::InvalidArgumentError("target: must be a score or a grade");
+  }
+  return absl::OkStatus();
+}
+
+}  // namespace ogive::study

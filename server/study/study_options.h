@@ -1,0 +1,40 @@
+// StudyOptions: the engine settings of one study (everything in a design besides the search space and
+// the distribution's own options), with defaults and a validator whose messages name the field.
+#ifndef OGIVE_SERVER_STUDY_STUDY_OPTIONS_H_
+#define OGIVE_SERVER_STUDY_STUDY_OPTIONS_H_
+
+#include <cstdint>
+#include <optional>
+
+#include "absl/status/status.h"
+#include "absl/time/time.h"
+#include "server/search/ranking.h"
+
+namespace ogive::study {
+
+// Outcomes sampled more generations before the update that would consume them are kept but never used.
+// Ten generations: with as many workers as four populations, a typical outcome is about four generations
+// old when it arrives, and stragglers up to ten still help (our choice; docs/math.md).
+inline constexpr int kDefaultStalenessLimit = 10;
+inline constexpr absl::Duration kDefaultLease = absl::Hours(1);
+
+struct StudyOptions {
+  uint64_t seed = 0;
+  int staleness_limit = kDefaultStalenessLimit;  // generations; >= 0
+  int64_t trial_budget = 0;                      // informative outcomes before done; 0 = unlimited
+  std::optional<search::Outcome> target;         // done once an outcome at least this good arrives
+  absl::Duration default_lease = kDefaultLease;  // for asks that give no lease
+  bool restarts = false;                         // IPOP: restart with 2λ when converged
+  // The population adapts to the concurrency the engine observes: at each generation boundary λ is
+  // raised to the largest number of trials that were out at once since the previous one (never below
+  // the design's λ, never above max_population_size).
+  bool adapt_population = true;
+  int max_population_size = 4096;
+
+  // INVALID_ARGUMENT naming the field when a value is out of range.
+  absl::Status Validate() const;
+};
+
+}  // namespace ogive::study
+
+#endif  // OGIVE_SERVER_STUDY_STUDY_OPTIONS_H_

@@ -1,0 +1,323 @@
+// ogive-bench-async: a discrete-event simulation of W workers driving one Study, against a synchronous
+// barrier baseline on the same problems and random streams. Prints one JSON object.
+//
+// Workers: each evaluation takes a random duration (lognormal with σ = 1 and median 1 time unit, or a
+// heavy-tailed Pareto with shape 1.5 and median 1); with probability p = 0.1 the worker vanishes during
+// the trial (a fresh worker takes its place at once; the abandoned lease lapses after the lease length of
+// 5 time units); with probability q = 0.05 it reports void; 5% of reports are sent a second time a
+// little later (duplicates). Workers never renew, so evaluations longer than the lease arrive late.
+//
+// Modes:
+//   engine                  the Study with expected_workers = W (λ = max(default, W)), one ask per free
+//                           worker, reports as they come;
+//   engine-underestimated   the design says 1 worker while W = 4 λ_default work;
+//   barrier                 one generation of λ = max(W, λ_default) candidates at a time on the search
+//                           core, waiting for every result; lapsed (vanished or late) and void candidates
+//                           are re-issued.
+// Success: f − f_opt ≤ 1e-8 (or the optimum of a discrete problem) before 2·10^5 evaluations. Time is
+// simulated: the figures do not depend on the machine.
+//
+// Usage: ogive-bench-async [--seeds N] [--quick]
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <cstring>
+#include <queue>
+#include <random>
+#include <string>
+#include <vector>
+
+#include "absl/time/time.h"
+#include "server/search/cma_parameters.h"
+#include "server/search/random_stream.h"
+#include "server/search/search_distribution.h"
+#include "server/study/study.h"
+#include "tests/support/problems.h"
+
+namespace {
+
+using ogive::search::CohortMember;
+using ogive::search::Outcome;
+using ogive::search::RandomStream;
+using ogive::search::SearchDistribution;
+using ogive::testing::Problem;
+
+constexpr long kBudget = 200000;
+constexpr double kTarget = 1e-8;
+constexpr double kLease = 5.0;
+constexpr double kVanish = 0.1;
+constexpr double kVoid = 0.05;
+constexpr double kDuplicate = 0.05;
+
+enum class Durations { kLognormal, kPareto };
+
+// The workers' random behaviour, from its own stream (separate from the study's).
+struct WorkerModel {
+  Durations durations;
+  RandomStream random;
+  double Duration() {
+    if (durations == Durations::kLognormal) return std::exp(random.Normal());
+    // Pareto with shape 1.5 and median 1: x_m 2^(1/1.5) = 1.
+    const double x_m = std::pow(2.0, -1.0 / 1.5);
+    return x_m / std::pow(random.Uniform(), 1.0 / 1.5);
+  }
+  bool Happens(double probability) { return random.Uniform() < probability; }
+};
+
+struct Result {
+  bool solved = false;
+  double time = 0;
+  long evaluations = 0;  // completed evaluations (every report but duplicates), including voids
+};
+
+absl::Time At(double t) { return absl::UnixEpoch() + absl::Seconds(t); }
+
+struct Event {
+  double time;
+  long sequence;
+  enum Kind { kFree, kReport, kDuplicate } kind;
+  int64_t trial;
+  Outcome outcome;
+  bool operator>(const Event& o) const { return time != o.time ? time > o.time : sequence > o.sequence; }
+};
+
+Result RunEngine(const Problem& problem, int workers, int expected_workers, Durations durations, uint64_t seed) {
+  ogive::search::DistributionOptions options = problem.options;
+  options.expected_workers = expected_workers;
+  ogive::study::StudyOptions study_options;
+  study_options.seed = seed;
+  study_options.default_lease = absl::Seconds(kLease);
+  ogive::study::Study study =
+      *ogive::study::Study::Create(problem.space, ogive::search::OutcomeOrder{}, options, study_options);
+  WorkerModel model{durations, RandomStream(seed * 7919 + 1)};
+  std::priority_queue<Event, std::vector<Event>, std::greater<Event>> events;
+  long sequence = 0;
+  for (int w = 0; w < workers; ++w) events.push({0.0, sequence++, Event::kFree, 0, {}});
+  Result result;
+  while (!events.empty() && result.evaluations < kBudget) {
+    const Event e = events.top();
+    events.pop();
+    if (e.kind == Event::kFree) {
+      absl::StatusOr<std::vector<ogive::study::Trial>> asked = study.Ask(1, "w", std::nullopt, At(e.time));
+      if (!asked.ok()) break;  // done (converged) before reaching the target
+      const ogive::study::Trial& t = asked->front();
+      const double duration = model.Duration();
+      if (model.Happens(kVanish)) {
+        // Vanishes part-way; a fresh worker asks at once. The lease lapses on its own.
+        events.push({e.time + model.random.Uniform() * duration, sequence++, Event::kFree, 0, {}});
+        continue;
+      }
+      Outcome outcome = Outcome::Void();
+      if (!model.Happens(kVoid)) {
+        const double gap = problem.gap(study.space().Decode(t.x));
+        outcome = Outcome::Score(gap);
+      }
+      events.push({e.time + duration, sequence++, Event::kReport, t.number, outcome});
+      continue;
+    }
+    const ogive::study::Report report{e.trial, e.outcome, ""};
+    (void)study.Tell({&report, 1}, At(e.time));
+    if (e.kind == Event::kDuplicate) continue;
+    ++result.evaluations;
+    if (e.outcome.informative() && e.outcome.score <= kTarget) {
+      result.solved = true;
+      result.time = e.time;
+      return result;
+    }
+    if (model.Happens(kDuplicate)) {
+      events.push({e.time + model.random.Uniform() * 2.0, sequence++, Event::kDuplicate, e.trial, e.outcome});
+    }
+    events.push({e.time, sequence++, Event::kFree, 0, {}});
+  }
+  return result;
+}
+
+// The synchronous barrier baseline on the search core.
+Result RunBarrier(const Problem& problem, int workers, Durations durations, uint64_t seed) {
+  ogive::search::DistributionOptions options = problem.options;
+  const int lambda = std::max(workers, SearchDistribution::DefaultPopulationSize(problem.space, 1));
+  options.population_size = lambda;
+  SearchDistribution d = *SearchDistribution::Create(problem.space, options);
+  RandomStream random(seed);
+  WorkerModel model{durations, RandomStream(seed * 7919 + 1)};
+  Result result;
+  double now = 0;
+  while (result.evaluations < kBudget) {
+    std::vector<ogive::search::Draw> draws;
+    for (int i = 0; i < lambda; ++i) draws.push_back(d.Sample(random));
+    std::vector<double> gaps(lambda);
+    for (int i = 0; i < lambda; ++i) gaps[i] = problem.gap(problem.space.Decode(draws[i].x));
+    // Each candidate needs one informative result. Tasks queue for W workers; an attempt that
+    // vanishes or outlasts the lease is re-issued when the lease lapses, a void one at once; the
+    // first informative result of a candidate counts.
+    std::vector<double> done_at(lambda, INFINITY);
+    using Task = std::pair<double, int>;  // (ready time, candidate)
+    std::priority_queue<Task, std::vector<Task>, std::greater<Task>> ready;
+    for (int i = 0; i < lambda; ++i) ready.push({now, i});
+    std::priority_queue<double, std::vector<double>, std::greater<double>> worker_free;
+    for (int w = 0; w < workers; ++w) worker_free.push(now);
+    while (!ready.empty()) {
+      const auto [ready_time, i] = ready.top();
+      ready.pop();
+      if (done_at[i] <= ready_time) continue;  // an earlier attempt already delivered
+      const double start = std::max(ready_time, worker_free.top());
+      worker_free.pop();
+      const double duration = model.Duration();
+      if (model.Happens(kVanish)) {
+        worker_free.push(start + model.random.Uniform() * duration);
+        ready.push({start + kLease, i});
+        continue;
+      }
+      const double finish = start + duration;
+      worker_free.push(finish);
+      ++result.evaluations;
+      if (model.Happens(kVoid)) {
+        ready.push({finish, i});
+        continue;
+      }
+      if (finish > start + kLease) ready.push({start + kLease, i});  // lapsed: re-issued meanwhile
+      done_at[i] = std::min(done_at[i], finish);
+      if (gaps[i] <= kTarget && (!result.solved || finish < result.time)) {
+        result.solved = true;
+        result.time = finish;
+      }
+    }
+    if (result.solved) return result;
+    now = *std::max_element(done_at.begin(), done_at.end());
+    std::vector<CohortMember> cohort;
+    std::vector<Outcome> outcomes;
+    for (int i = 0; i < lambda; ++i) {
+      cohort.push_back({draws[i].x, draws[i].repaired});
+      outcomes.push_back(Outcome::Score(gaps[i]));
+    }
+    if (!d.Update(cohort, *ogive::search::RankCohort(outcomes, ogive::search::OutcomeOrder{})).ok()) break;
+  }
+  return result;
+}
+
+// Evaluations of the plain sequential core (one worker, no failures), for evals_ratio.
+long RunSequential(const Problem& problem, uint64_t seed) {
+  SearchDistribution d = *SearchDistribution::Create(problem.space, problem.options);
+  RandomStream random(seed);
+  long evaluations = 0;
+  while (evaluations < kBudget) {
+    std::vector<CohortMember> cohort;
+    std::vector<Outcome> outcomes;
+    for (int i = 0; i < d.population_size(); ++i) {
+      const ogive::search::Draw draw = d.Sample(random);
+      const double gap = problem.gap(problem.space.Decode(draw.x));
+      ++evaluations;
+      if (gap <= kTarget) return evaluations;
+      cohort.push_back({draw.x, draw.repaired});
+      outcomes.push_back(Outcome::Score(gap));
+    }
+    if (!d.Update(cohort, *ogive::search::RankCohort(outcomes, ogive::search::OutcomeOrder{})).ok()) return -1;
+  }
+  return -1;
+}
+
+double Median(std::vector<double> v) {
+  if (v.empty()) return -1;
+  std::sort(v.begin(), v.end());
+  return v.size() % 2 ? v[v.size() / 2] : 0.5 * (v[v.size() / 2 - 1] + v[v.size() / 2]);
+}
+
+struct Row {
+  std::string problem;
+  int n, workers;
+  std::string mode, durations;
+  int seeds;
+  double median_time, median_evals, success_rate;
+};
+
+Row Summarize(const std::string& problem, int n, int workers, const std::string& mode, const std::string& durations,
+              const std::vector<Result>& results) {
+  std::vector<double> times, evals;
+  for (const Result& r : results) {
+    if (!r.solved) continue;
+    times.push_back(r.time);
+    evals.push_back(static_cast<double>(r.evaluations));
+  }
+  return {problem, n, workers, mode, durations, static_cast<int>(results.size()), Median(times), Median(evals),
+          static_cast<double>(times.size()) / results.size()};
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  int seeds = 11;
+  bool quick = false;
+  std::string only;
+  for (int i = 1; i < argc; ++i) {
+    if (std::strcmp(argv[i], "--seeds") == 0 && i + 1 < argc) seeds = std::atoi(argv[++i]);
+    if (std::strcmp(argv[i], "--quick") == 0) quick = true;
+    if (std::strcmp(argv[i], "--only") == 0 && i + 1 < argc) only = argv[++i];
+  }
+  struct Case {
+    std::string problem;
+    int n;
+  };
+  std::vector<Case> cases = {{"f1", 10}, {"f10", 10}, {"f8", 10}, {"onemax", 100}, {"mixed", 10}};
+  if (quick) cases = {{"f1", 10}};
+  std::vector<Row> rows;
+  struct Ratio {
+    std::string problem;
+    int workers;
+    std::string durations;
+    double time_ratio, evals_ratio;
+  };
+  std::vector<Ratio> ratios;
+  for (const Case& c : cases) {
+    if (c.problem.rfind(only, 0) != 0) continue;
+    std::vector<double> sequential;
+    for (int s = 0; s < seeds; ++s) {
+      const long e = RunSequential(ogive::testing::MakeProblem(c.problem, c.n, 1000 + s), 7000 + s);
+      if (e > 0) sequential.push_back(static_cast<double>(e));
+    }
+    const double sequential_median = Median(sequential);
+    const int lambda_default = ogive::search::DefaultPopulationSize(
+        ogive::testing::MakeProblem(c.problem, c.n, 1).space.size());
+    std::vector<int> worker_counts = {1, lambda_default, 4 * lambda_default};
+    if (quick) worker_counts = {4 * lambda_default};
+    for (int workers : worker_counts) {
+      for (Durations durations : {Durations::kLognormal, Durations::kPareto}) {
+        // The heavy-tailed variant runs at the largest worker count only, to bound the run time.
+        if (durations == Durations::kPareto && workers != 4 * lambda_default) continue;
+        const std::string dname = durations == Durations::kLognormal ? "lognormal" : "pareto";
+        std::vector<Result> engine, barrier, under;
+        for (int s = 0; s < seeds; ++s) {
+          const Problem problem = ogive::testing::MakeProblem(c.problem, c.n, 1000 + s);
+          engine.push_back(RunEngine(problem, workers, workers, durations, 7000 + s));
+          barrier.push_back(RunBarrier(problem, workers, durations, 7000 + s));
+          if (workers == 4 * lambda_default) under.push_back(RunEngine(problem, workers, 1, durations, 7000 + s));
+        }
+        const Row e = Summarize(c.problem, c.n, workers, "engine", dname, engine);
+        const Row b = Summarize(c.problem, c.n, workers, "barrier", dname, barrier);
+        rows.push_back(e);
+        rows.push_back(b);
+        if (!under.empty()) rows.push_back(Summarize(c.problem, c.n, workers, "engine-underestimated", dname, under));
+        ratios.push_back({c.problem, workers, dname, e.median_time / b.median_time, e.median_evals / sequential_median});
+      }
+    }
+  }
+  std::printf("{\n  \"benchmark\": \"ogive-bench-async\",\n  \"budget\": %ld,\n  \"target\": %g,\n"
+              "  \"lease\": %g,\n  \"vanish_probability\": %g,\n  \"void_probability\": %g,\n"
+              "  \"duplicate_fraction\": %g,\n  \"results\": [",
+              kBudget, kTarget, kLease, kVanish, kVoid, kDuplicate);
+  for (size_t k = 0; k < rows.size(); ++k) {
+    const Row& r = rows[k];
+    std::printf("%s\n    {\"problem\": \"%s\", \"n\": %d, \"workers\": %d, \"mode\": \"%s\", \"durations\": \"%s\", "
+                "\"seeds\": %d, \"median_time\": %.2f, \"median_evals\": %.1f, \"success_rate\": %.3f}",
+                k ? "," : "", r.problem.c_str(), r.n, r.workers, r.mode.c_str(), r.durations.c_str(), r.seeds,
+                r.median_time, r.median_evals, r.success_rate);
+  }
+  std::printf("\n  ],\n  \"ratios\": [");
+  for (size_t k = 0; k < ratios.size(); ++k) {
+    const Ratio& r = ratios[k];
+    std::printf("%s\n    {\"problem\": \"%s\", \"workers\": %d, \"durations\": \"%s\", \"time_ratio\": %.3f, "
+                "\"evals_ratio\": %.3f}",
+                k ? "," : "", r.problem.c_str(), r.workers, r.durations.c_str(), r.time_ratio, r.evals_ratio);
+  }
+  std::printf("\n  ]\n}\n");
+  return 0;
+}
