@@ -8,6 +8,7 @@
 #include "gtest/gtest.h"
 #include "server/codec/design_codec.h"
 #include "server/codec/state_codec.h"
+#include "server/codec/study_codec.h"
 #include "server/search/random_stream.h"
 
 namespace ogive::codec {
@@ -201,6 +202,73 @@ TEST(StateCodec, InconsistentSizesAreRefused) {
   v1::DistributionState proto = DistributionStateToProto(d.state());
   proto.mutable_gaussian()->mutable_covariance()->RemoveLast();
   EXPECT_THAT(std::string(DistributionStateFromProto(proto).status().message()), HasSubstr("covariance"));
+}
+
+// Drives a study with three workers on the kiln design: asks, out-of-order reports, a void, a lapse.
+void Drive(study::Study& s, absl::Time& now, int steps) {
+  for (int k = 0; k < steps; ++k) {
+    now += absl::Minutes(7);
+    absl::StatusOr<std::vector<study::Trial>> asked = s.Ask(3, "node-" + std::to_string(k % 3), absl::Minutes(30), now);
+    ASSERT_TRUE(asked.ok()) << asked.status();
+    std::vector<study::Report> reports;
+    for (size_t i = 0; i < asked->size(); ++i) {
+      const study::Trial& t = (*asked)[asked->size() - 1 - i];
+      if ((t.number % 11) == 0) continue;  // never reported: lapses later
+      const double f = (t.x.head(3).array() - 0.4).square().sum() + t.x[3];
+      reports.push_back({t.number, (t.number % 7) == 0 ? search::Outcome::Void() : search::Outcome::Score(f), "n"});
+    }
+    if (!reports.empty()) {
+      ASSERT_TRUE(s.Tell(reports, now).ok());
+    }
+  }
+}
+
+TEST(StudyCodec, SnapshotThroughTheWireContinuesBitIdentically) {
+  const v1::StudyDesign design = ParseDesign(kMixedDesign);
+  const search::Space space = *SpaceFromDesign(design);
+  const search::OutcomeOrder order = *OrderFromObjective(design.objective());
+  const search::DistributionOptions options = *DistributionOptionsFromDesign(design, space);
+  study::StudyOptions study_options = *StudyOptionsFromDesign(design);
+  study_options.seed = 99;
+  study::Study original = *study::Study::Create(space, order, options, study_options);
+  absl::Time now = absl::FromUnixSeconds(1700000000);
+  Drive(original, now, 20);
+  ASSERT_GT(original.engine().generation, 3);
+
+  v1::StudySnapshot parsed;
+  ASSERT_TRUE(parsed.ParseFromString(SnapshotToProto(original.Snapshot()).SerializeAsString()));
+  absl::StatusOr<study::StudySnapshot> snapshot = SnapshotFromProto(parsed, space);
+  ASSERT_TRUE(snapshot.ok()) << snapshot.status();
+  absl::StatusOr<study::Study> restored = study::Study::Restore(space, order, options, study_options, *snapshot);
+  ASSERT_TRUE(restored.ok()) << restored.status();
+  EXPECT_EQ(restored->counts().total(), original.counts().total());
+  EXPECT_EQ(restored->counts().pending, original.counts().pending);
+
+  absl::Time now_copy = now;
+  Drive(original, now, 15);
+  Drive(*restored, now_copy, 15);
+  EXPECT_EQ(SnapshotToProto(original.Snapshot()).SerializeAsString(),
+            SnapshotToProto(restored->Snapshot()).SerializeAsString());
+}
+
+TEST(StudyCodec, DesignEngineSettings) {
+  v1::StudyDesign design = ParseDesign(kMixedDesign);
+  design.set_lease_seconds(90);
+  design.set_trial_budget(500);
+  design.set_target(12.5);
+  absl::StatusOr<study::StudyOptions> options = StudyOptionsFromDesign(design);
+  ASSERT_TRUE(options.ok()) << options.status();
+  EXPECT_EQ(options->default_lease, absl::Seconds(90));
+  EXPECT_EQ(options->trial_budget, 500);
+  EXPECT_EQ(options->target->score, 12.5);
+  design.set_target_grade("good");
+  EXPECT_THAT(std::string(StudyOptionsFromDesign(design).status().message()), HasSubstr("at most one"));
+  design.clear_target();
+  EXPECT_THAT(std::string(StudyOptionsFromDesign(design).status().message()),
+              HasSubstr("this study takes scores"));
+  design.clear_target_grade();
+  design.set_staleness_limit(-1);
+  EXPECT_THAT(std::string(StudyOptionsFromDesign(design).status().message()), HasSubstr("staleness_limit"));
 }
 
 }  // namespace

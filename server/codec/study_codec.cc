@@ -1,0 +1,324 @@
+#include "server/codec/study_codec.h"
+
+#include <cmath>
+#include <memory>
+
+#include "absl/status/status.h"
+#include "absl/strings/str_cat.h"
+#include "server/codec/design_codec.h"
+#include "server/codec/state_codec.h"
+
+namespace ogive::codec {
+namespace {
+
+int64_t Nanos(absl::Time t) { return absl::ToUnixNanos(t); }
+absl::Time FromNanos(int64_t ns) { return absl::FromUnixNanos(ns); }
+
+v1::TrialState StateToProto(study::TrialState s) {
+  switch (s) {
+    case study::TrialState::kLeased:
+      return v1::TRIAL_STATE_LEASED;
+    case study::TrialState::kReported:
+      return v1::TRIAL_STATE_REPORTED;
+    case study::TrialState::kLapsed:
+      return v1::TRIAL_STATE_LAPSED;
+    case study::TrialState::kVoided:
+      return v1::TRIAL_STATE_VOIDED;
+  }
+  return v1::TRIAL_STATE_UNSPECIFIED;
+}
+
+absl::StatusOr<study::TrialState> StateFromProto(v1::TrialState s) {
+  switch (s) {
+    case v1::TRIAL_STATE_LEASED:
+      return study::TrialState::kLeased;
+    case v1::TRIAL_STATE_REPORTED:
+      return study::TrialState::kReported;
+    case v1::TRIAL_STATE_LAPSED:
+      return study::TrialState::kLapsed;
+    case v1::TRIAL_STATE_VOIDED:
+      return study::TrialState::kVoided;
+    default:
+      return absl::DataLossError(absl::StrCat("trial record: unknown state ", static_cast<int>(s)));
+  }
+}
+
+v1::OutcomeUse UseToProto(study::Use u) {
+  switch (u) {
+    case study::Use::kNone:
+      return v1::OUTCOME_USE_UNSPECIFIED;
+    case study::Use::kPending:
+      return v1::OUTCOME_USE_PENDING;
+    case study::Use::kConsumed:
+      return v1::OUTCOME_USE_CONSUMED;
+    case study::Use::kTooStale:
+      return v1::OUTCOME_USE_TOO_STALE;
+  }
+  return v1::OUTCOME_USE_UNSPECIFIED;
+}
+
+study::Use UseFromProto(v1::OutcomeUse u) {
+  switch (u) {
+    case v1::OUTCOME_USE_PENDING:
+      return study::Use::kPending;
+    case v1::OUTCOME_USE_CONSUMED:
+      return study::Use::kConsumed;
+    case v1::OUTCOME_USE_TOO_STALE:
+      return study::Use::kTooStale;
+    default:
+      return study::Use::kNone;
+  }
+}
+
+}  // namespace
+
+absl::StatusOr<study::StudyOptions> StudyOptionsFromDesign(const v1::StudyDesign& design) {
+  absl::StatusOr<search::OutcomeOrder> order = OrderFromObjective(design.objective());
+  if (!order.ok()) return order.status();
+  study::StudyOptions options;
+  options.seed = design.seed();
+  if (design.staleness_limit() < 0) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("staleness_limit: must be >= 0 (0 = default ", study::kDefaultStalenessLimit, "), got ",
+                     design.staleness_limit()));
+  }
+  if (design.staleness_limit() > 0) options.staleness_limit = design.staleness_limit();
+  options.trial_budget = design.trial_budget();
+  if (!std::isfinite(design.lease_seconds()) || design.lease_seconds() < 0) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("lease_seconds: must be 0 (default) or positive, got ", design.lease_seconds()));
+  }
+  if (design.lease_seconds() > 0) options.default_lease = absl::Seconds(design.lease_seconds());
+  options.restarts = design.restarts();
+  if (design.has_target() && design.has_target_grade()) {
+    return absl::InvalidArgumentError("target, target_grade: set at most one of them");
+  }
+  if (design.has_target()) {
+    if (order->graded) return absl::InvalidArgumentError("target: a graded study takes target_grade, not target");
+    if (!std::isfinite(design.target())) {
+      return absl::InvalidArgumentError(absl::StrCat("target: must be finite, got ", design.target()));
+    }
+    options.target = search::Outcome::Score(design.target());
+  }
+  if (design.has_target_grade()) {
+    v1::Outcome grade;
+    grade.set_grade(design.target_grade());
+    absl::StatusOr<search::Outcome> o = OutcomeFromProto(grade, design.objective());
+    if (!o.ok()) return absl::InvalidArgumentError(absl::StrCat("target_grade: ", o.status().message()));
+    options.target = *o;
+  }
+  if (absl::Status s = options.Validate(); !s.ok()) return s;
+  return options;
+}
+
+v1::TrialRecord TrialToProto(const study::Trial& t) {
+  v1::TrialRecord r;
+  r.set_number(t.number);
+  r.set_generation(t.generation);
+  r.set_epoch(t.epoch);
+  for (int i = 0; i < t.x.size(); ++i) r.add_internal(t.x[i]);
+  r.set_repaired(t.repaired);
+  r.set_state(StateToProto(t.state));
+  r.set_worker(t.worker);
+  r.set_leased_at_ns(Nanos(t.leased_at));
+  r.set_lease_deadline_ns(Nanos(t.lease_deadline));
+  if (t.outcome.has_value()) {
+    switch (t.outcome->kind) {
+      case search::Outcome::Kind::kScore:
+        r.set_outcome_kind(v1::OUTCOME_KIND_SCORE);
+        r.set_score(t.outcome->score);
+        break;
+      case search::Outcome::Kind::kGrade:
+        r.set_outcome_kind(v1::OUTCOME_KIND_GRADE);
+        r.set_grade_index(t.outcome->grade);
+        break;
+      case search::Outcome::Kind::kInfeasible:
+        r.set_outcome_kind(v1::OUTCOME_KIND_INFEASIBLE);
+        break;
+      case search::Outcome::Kind::kVoid:
+        r.set_outcome_kind(v1::OUTCOME_KIND_VOID);
+        break;
+    }
+  }
+  r.set_note(t.note);
+  r.set_reported_at_ns(Nanos(t.reported_at));
+  r.set_report_sequence(t.report_sequence);
+  r.set_late(t.late);
+  r.set_use(UseToProto(t.use));
+  r.set_consumed_by(t.consumed_by);
+  return r;
+}
+
+absl::StatusOr<study::Trial> TrialFromProto(const v1::TrialRecord& r) {
+  study::Trial t;
+  t.number = r.number();
+  t.generation = r.generation();
+  t.epoch = r.epoch();
+  t.x.resize(r.internal_size());
+  for (int i = 0; i < r.internal_size(); ++i) t.x[i] = r.internal(i);
+  t.repaired = r.repaired();
+  absl::StatusOr<study::TrialState> state = StateFromProto(r.state());
+  if (!state.ok()) return state.status();
+  t.state = *state;
+  t.worker = r.worker();
+  t.leased_at = FromNanos(r.leased_at_ns());
+  t.lease_deadline = FromNanos(r.lease_deadline_ns());
+  switch (r.outcome_kind()) {
+    case v1::OUTCOME_KIND_UNSPECIFIED:
+      break;
+    case v1::OUTCOME_KIND_SCORE:
+      t.outcome = search::Outcome::Score(r.score());
+      break;
+    case v1::OUTCOME_KIND_GRADE:
+      t.outcome = search::Outcome::Grade(r.grade_index());
+      break;
+    case v1::OUTCOME_KIND_INFEASIBLE:
+      t.outcome = search::Outcome::Infeasible();
+      break;
+    case v1::OUTCOME_KIND_VOID:
+      t.outcome = search::Outcome::Void();
+      break;
+    default:
+      return absl::DataLossError(absl::StrCat("trial ", r.number(), ": unknown outcome kind"));
+  }
+  t.note = r.note();
+  t.reported_at = FromNanos(r.reported_at_ns());
+  t.report_sequence = r.report_sequence();
+  t.late = r.late();
+  t.use = UseFromProto(r.use());
+  t.consumed_by = r.consumed_by();
+  return t;
+}
+
+v1::EngineState EngineStateToProto(const study::EngineState& e) {
+  v1::EngineState p;
+  p.set_phase(e.phase == study::Phase::kOpen     ? v1::STUDY_PHASE_OPEN
+              : e.phase == study::Phase::kPaused ? v1::STUDY_PHASE_PAUSED
+                                                 : v1::STUDY_PHASE_DONE);
+  switch (e.reason) {
+    case study::DoneReason::kNone:
+      p.set_reason(v1::DONE_REASON_UNSPECIFIED);
+      break;
+    case study::DoneReason::kBudget:
+      p.set_reason(v1::DONE_REASON_BUDGET);
+      break;
+    case study::DoneReason::kTarget:
+      p.set_reason(v1::DONE_REASON_TARGET);
+      break;
+    case study::DoneReason::kConverged:
+      p.set_reason(v1::DONE_REASON_CONVERGED);
+      break;
+    case study::DoneReason::kStopped:
+      p.set_reason(v1::DONE_REASON_STOPPED);
+      break;
+  }
+  p.set_phase_message(e.phase_message);
+  if (e.distribution) *p.mutable_distribution() = DistributionStateToProto(e.distribution->state());
+  for (uint64_t word : e.random) p.add_random_state(word);
+  p.set_generation(e.generation);
+  p.set_epoch(e.epoch);
+  p.set_next_trial(e.next_trial);
+  p.set_report_sequence(e.report_sequence);
+  p.set_informative(e.informative);
+  p.set_base_population(e.base_population);
+  p.set_flat_generations(e.flat_generations);
+  p.set_peak_outstanding(e.peak_outstanding);
+  p.set_best_trial(e.best_trial);
+  p.set_sigma0(e.sigma0);
+  return p;
+}
+
+absl::StatusOr<study::EngineState> EngineStateFromProto(const v1::EngineState& p, const search::Space& space) {
+  study::EngineState e;
+  switch (p.phase()) {
+    case v1::STUDY_PHASE_OPEN:
+      e.phase = study::Phase::kOpen;
+      break;
+    case v1::STUDY_PHASE_PAUSED:
+      e.phase = study::Phase::kPaused;
+      break;
+    case v1::STUDY_PHASE_DONE:
+      e.phase = study::Phase::kDone;
+      break;
+    default:
+      return absl::DataLossError("engine state: unknown phase");
+  }
+  switch (p.reason()) {
+    case v1::DONE_REASON_BUDGET:
+      e.reason = study::DoneReason::kBudget;
+      break;
+    case v1::DONE_REASON_TARGET:
+      e.reason = study::DoneReason::kTarget;
+      break;
+    case v1::DONE_REASON_CONVERGED:
+      e.reason = study::DoneReason::kConverged;
+      break;
+    case v1::DONE_REASON_STOPPED:
+      e.reason = study::DoneReason::kStopped;
+      break;
+    default:
+      e.reason = study::DoneReason::kNone;
+  }
+  e.phase_message = p.phase_message();
+  if (p.random_state_size() != 4) return absl::DataLossError("engine state: the random state needs 4 words");
+  for (int i = 0; i < 4; ++i) e.random[i] = p.random_state(i);
+  absl::StatusOr<search::DistributionState> state = DistributionStateFromProto(p.distribution());
+  if (!state.ok()) return state.status();
+  absl::StatusOr<search::SearchDistribution> d = search::SearchDistribution::FromState(space, *std::move(state));
+  if (!d.ok()) return absl::DataLossError(absl::StrCat("engine state: ", d.status().message()));
+  e.distribution = std::make_shared<const search::SearchDistribution>(*std::move(d));
+  e.generation = p.generation();
+  e.epoch = p.epoch();
+  e.next_trial = p.next_trial();
+  e.report_sequence = p.report_sequence();
+  e.informative = p.informative();
+  e.base_population = p.base_population();
+  e.flat_generations = p.flat_generations();
+  e.peak_outstanding = p.peak_outstanding();
+  e.best_trial = p.best_trial();
+  e.sigma0 = p.sigma0();
+  return e;
+}
+
+v1::StudySnapshot SnapshotToProto(const study::StudySnapshot& snapshot) {
+  v1::StudySnapshot p;
+  *p.mutable_engine() = EngineStateToProto(snapshot.engine);
+  for (const study::Trial& t : snapshot.trials) *p.add_trials() = TrialToProto(t);
+  return p;
+}
+
+absl::StatusOr<study::StudySnapshot> SnapshotFromProto(const v1::StudySnapshot& p, const search::Space& space) {
+  study::StudySnapshot snapshot;
+  absl::StatusOr<study::EngineState> engine = EngineStateFromProto(p.engine(), space);
+  if (!engine.ok()) return engine.status();
+  snapshot.engine = *std::move(engine);
+  for (const v1::TrialRecord& r : p.trials()) {
+    absl::StatusOr<study::Trial> t = TrialFromProto(r);
+    if (!t.ok()) return t.status();
+    snapshot.trials.push_back(*std::move(t));
+  }
+  return snapshot;
+}
+
+v1::Outcome OutcomeToProto(const search::Outcome& o, const v1::Objective& objective) {
+  v1::Outcome p;
+  switch (o.kind) {
+    case search::Outcome::Kind::kScore:
+      p.set_score(o.score);
+      break;
+    case search::Outcome::Kind::kGrade:
+      if (o.grade >= 0 && o.grade < objective.grade_scale().labels_size()) {
+        p.set_grade(objective.grade_scale().labels(o.grade));
+      }
+      break;
+    case search::Outcome::Kind::kInfeasible:
+      p.mutable_infeasible();
+      break;
+    case search::Outcome::Kind::kVoid:
+      p.mutable_void_();
+      break;
+  }
+  return p;
+}
+
+}  // namespace ogive::codec

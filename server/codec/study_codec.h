@@ -1,0 +1,33 @@
+// Conversion of the study engine's state (EngineState, trials, StudySnapshot) to the messages of
+// study.proto and back, and of a StudyDesign's engine settings to StudyOptions. Round trips are exact:
+// a restored study continues bit-identically.
+#ifndef OGIVE_SERVER_CODEC_STUDY_CODEC_H_
+#define OGIVE_SERVER_CODEC_STUDY_CODEC_H_
+
+#include "absl/status/statusor.h"
+#include "ogive/v1/study.pb.h"
+#include "server/search/space.h"
+#include "server/study/study.h"
+
+namespace ogive::codec {
+
+// The engine settings of a design: seed, staleness limit (0 = default), trial budget, target (a score,
+// or a grade label on the scale), lease length (0 = default), restarts. INVALID_ARGUMENT naming the
+// field.
+absl::StatusOr<study::StudyOptions> StudyOptionsFromDesign(const v1::StudyDesign& design);
+
+v1::TrialRecord TrialToProto(const study::Trial& trial);
+absl::StatusOr<study::Trial> TrialFromProto(const v1::TrialRecord& record);
+
+v1::EngineState EngineStateToProto(const study::EngineState& engine);
+absl::StatusOr<study::EngineState> EngineStateFromProto(const v1::EngineState& proto, const search::Space& space);
+
+v1::StudySnapshot SnapshotToProto(const study::StudySnapshot& snapshot);
+absl::StatusOr<study::StudySnapshot> SnapshotFromProto(const v1::StudySnapshot& proto, const search::Space& space);
+
+// A search outcome as a message; grades take their label from the objective's scale.
+v1::Outcome OutcomeToProto(const search::Outcome& outcome, const v1::Objective& objective);
+
+}  // namespace ogive::codec
+
+#endif  // OGIVE_SERVER_CODEC_STUDY_CODEC_H_
