@@ -42,8 +42,9 @@ uint64_t RandomStream::NextBits() {
 }
 
 double RandomStream::Uniform() {
-  // 53 random bits centred in their cell: (k + 0.5) / 2^53 lies strictly inside (0, 1).
-  return (static_cast<double>(NextBits() >> 11) + 0.5) * 0x1.0p-53;
+  // 52 random bits centred in their cell: (k + 1/2) / 2^52 lies strictly inside (0, 1) and is exact
+  // in a double (with 53 bits, k + 1/2 for k = 2^53 − 1 would round up to 2^53 and give 1).
+  return (static_cast<double>(NextBits() >> 12) + 0.5) * 0x1.0p-52;
 }
 
 uint64_t RandomStream::UniformBelow(uint64_t bound) {

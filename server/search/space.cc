@@ -30,6 +30,9 @@ absl::Status ValidateParameter(const ParameterSpec& p) {
       if (!(p.low < p.high)) {
         return ParameterError(p, absl::StrCat("low must be < high, got low=", p.low, " high=", p.high));
       }
+      if (!std::isfinite(p.high - p.low)) {
+        return ParameterError(p, absl::StrCat("high - low must be a finite number, got low=", p.low, " high=", p.high));
+      }
       if (p.log && !(p.low > 0.0)) {
         return ParameterError(p, absl::StrCat("a log scale needs low > 0, got low=", p.low));
       }
