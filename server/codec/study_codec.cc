@@ -14,7 +14,9 @@ namespace {
 int64_t Nanos(absl::Time t) { return absl::ToUnixNanos(t); }
 absl::Time FromNanos(int64_t ns) { return absl::FromUnixNanos(ns); }
 
-v1::TrialState StateToProto(study::TrialState s) {
+}  // namespace
+
+v1::TrialState TrialStateToProto(study::TrialState s) {
   switch (s) {
     case study::TrialState::kLeased:
       return v1::TRIAL_STATE_LEASED;
@@ -28,7 +30,7 @@ v1::TrialState StateToProto(study::TrialState s) {
   return v1::TRIAL_STATE_UNSPECIFIED;
 }
 
-absl::StatusOr<study::TrialState> StateFromProto(v1::TrialState s) {
+absl::StatusOr<study::TrialState> TrialStateFromProto(v1::TrialState s) {
   switch (s) {
     case v1::TRIAL_STATE_LEASED:
       return study::TrialState::kLeased;
@@ -43,7 +45,7 @@ absl::StatusOr<study::TrialState> StateFromProto(v1::TrialState s) {
   }
 }
 
-v1::OutcomeUse UseToProto(study::Use u) {
+v1::OutcomeUse OutcomeUseToProto(study::Use u) {
   switch (u) {
     case study::Use::kNone:
       return v1::OUTCOME_USE_UNSPECIFIED;
@@ -56,6 +58,8 @@ v1::OutcomeUse UseToProto(study::Use u) {
   }
   return v1::OUTCOME_USE_UNSPECIFIED;
 }
+
+namespace {
 
 study::Use UseFromProto(v1::OutcomeUse u) {
   switch (u) {
@@ -118,7 +122,7 @@ v1::TrialRecord TrialToProto(const study::Trial& t) {
   r.set_epoch(t.epoch);
   for (int i = 0; i < t.x.size(); ++i) r.add_internal(t.x[i]);
   r.set_repaired(t.repaired);
-  r.set_state(StateToProto(t.state));
+  r.set_state(TrialStateToProto(t.state));
   r.set_worker(t.worker);
   r.set_leased_at_ns(Nanos(t.leased_at));
   r.set_lease_deadline_ns(Nanos(t.lease_deadline));
@@ -144,7 +148,7 @@ v1::TrialRecord TrialToProto(const study::Trial& t) {
   r.set_reported_at_ns(Nanos(t.reported_at));
   r.set_report_sequence(t.report_sequence);
   r.set_late(t.late);
-  r.set_use(UseToProto(t.use));
+  r.set_use(OutcomeUseToProto(t.use));
   r.set_consumed_by(t.consumed_by);
   return r;
 }
@@ -157,7 +161,7 @@ absl::StatusOr<study::Trial> TrialFromProto(const v1::TrialRecord& r) {
   t.x.resize(r.internal_size());
   for (int i = 0; i < r.internal_size(); ++i) t.x[i] = r.internal(i);
   t.repaired = r.repaired();
-  absl::StatusOr<study::TrialState> state = StateFromProto(r.state());
+  absl::StatusOr<study::TrialState> state = TrialStateFromProto(r.state());
   if (!state.ok()) return state.status();
   t.state = *state;
   t.worker = r.worker();
@@ -190,28 +194,38 @@ absl::StatusOr<study::Trial> TrialFromProto(const v1::TrialRecord& r) {
   return t;
 }
 
+v1::StudyPhase PhaseToProto(study::Phase phase) {
+  switch (phase) {
+    case study::Phase::kOpen:
+      return v1::STUDY_PHASE_OPEN;
+    case study::Phase::kPaused:
+      return v1::STUDY_PHASE_PAUSED;
+    case study::Phase::kDone:
+      return v1::STUDY_PHASE_DONE;
+  }
+  return v1::STUDY_PHASE_UNSPECIFIED;
+}
+
+v1::DoneReason DoneReasonToProto(study::DoneReason reason) {
+  switch (reason) {
+    case study::DoneReason::kNone:
+      return v1::DONE_REASON_UNSPECIFIED;
+    case study::DoneReason::kBudget:
+      return v1::DONE_REASON_BUDGET;
+    case study::DoneReason::kTarget:
+      return v1::DONE_REASON_TARGET;
+    case study::DoneReason::kConverged:
+      return v1::DONE_REASON_CONVERGED;
+    case study::DoneReason::kStopped:
+      return v1::DONE_REASON_STOPPED;
+  }
+  return v1::DONE_REASON_UNSPECIFIED;
+}
+
 v1::EngineState EngineStateToProto(const study::EngineState& e) {
   v1::EngineState p;
-  p.set_phase(e.phase == study::Phase::kOpen     ? v1::STUDY_PHASE_OPEN
-              : e.phase == study::Phase::kPaused ? v1::STUDY_PHASE_PAUSED
-                                                 : v1::STUDY_PHASE_DONE);
-  switch (e.reason) {
-    case study::DoneReason::kNone:
-      p.set_reason(v1::DONE_REASON_UNSPECIFIED);
-      break;
-    case study::DoneReason::kBudget:
-      p.set_reason(v1::DONE_REASON_BUDGET);
-      break;
-    case study::DoneReason::kTarget:
-      p.set_reason(v1::DONE_REASON_TARGET);
-      break;
-    case study::DoneReason::kConverged:
-      p.set_reason(v1::DONE_REASON_CONVERGED);
-      break;
-    case study::DoneReason::kStopped:
-      p.set_reason(v1::DONE_REASON_STOPPED);
-      break;
-  }
+  p.set_phase(PhaseToProto(e.phase));
+  p.set_reason(DoneReasonToProto(e.reason));
   p.set_phase_message(e.phase_message);
   if (e.distribution) *p.mutable_distribution() = DistributionStateToProto(e.distribution->state());
   for (uint64_t word : e.random) p.add_random_state(word);
@@ -298,6 +312,30 @@ absl::StatusOr<study::StudySnapshot> SnapshotFromProto(const v1::StudySnapshot& 
     snapshot.trials.push_back(*std::move(t));
   }
   return snapshot;
+}
+
+v1::GenerationSummary GenerationToProto(const study::GenerationRecord& r, absl::Time at) {
+  v1::GenerationSummary p;
+  p.set_generation(r.generation);
+  p.set_epoch(r.epoch);
+  p.set_population_size(r.population_size);
+  for (int64_t number : r.cohort) p.add_cohort(number);
+  p.set_mean_staleness(r.mean_staleness);
+  p.set_max_staleness(r.max_staleness);
+  if (r.summary.gaussian) {
+    const search::GaussianSummary& g = *r.summary.gaussian;
+    for (int i = 0; i < g.mean.size(); ++i) p.add_mean(g.mean[i]);
+    for (int i = 0; i < g.spread.size(); ++i) p.add_spread(g.spread[i]);
+    p.set_sigma(g.sigma);
+    p.set_axis_ratio(g.axis_ratio);
+  }
+  for (int i = 0; i < r.summary.flag_probabilities.size(); ++i) p.add_flag_probabilities(r.summary.flag_probabilities[i]);
+  for (const Eigen::VectorXd& theta : r.summary.option_probabilities) {
+    for (int k = 0; k < theta.size(); ++k) p.add_option_probabilities(theta[k]);
+  }
+  p.set_best_trial(r.best_trial);
+  p.set_recorded_at_ns(absl::ToUnixNanos(at));
+  return p;
 }
 
 v1::Outcome OutcomeToProto(const search::Outcome& o, const v1::Objective& objective) {

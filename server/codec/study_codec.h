@@ -16,6 +16,12 @@ namespace ogive::codec {
 // field.
 absl::StatusOr<study::StudyOptions> StudyOptionsFromDesign(const v1::StudyDesign& design);
 
+v1::TrialState TrialStateToProto(study::TrialState state);
+absl::StatusOr<study::TrialState> TrialStateFromProto(v1::TrialState state);  // DATA_LOSS if unknown
+v1::OutcomeUse OutcomeUseToProto(study::Use use);
+v1::StudyPhase PhaseToProto(study::Phase phase);
+v1::DoneReason DoneReasonToProto(study::DoneReason reason);
+
 v1::TrialRecord TrialToProto(const study::Trial& trial);
 absl::StatusOr<study::Trial> TrialFromProto(const v1::TrialRecord& record);
 
@@ -24,6 +30,9 @@ absl::StatusOr<study::EngineState> EngineStateFromProto(const v1::EngineState& p
 
 v1::StudySnapshot SnapshotToProto(const study::StudySnapshot& snapshot);
 absl::StatusOr<study::StudySnapshot> SnapshotFromProto(const v1::StudySnapshot& proto, const search::Space& space);
+
+// One update's record for history and plots, stamped with `at`.
+v1::GenerationSummary GenerationToProto(const study::GenerationRecord& record, absl::Time at);
 
 // A search outcome as a message; grades take their label from the objective's scale.
 v1::Outcome OutcomeToProto(const search::Outcome& outcome, const v1::Objective& objective);

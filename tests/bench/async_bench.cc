@@ -8,7 +8,8 @@
 // little later (duplicates). Workers never renew, so evaluations longer than the lease arrive late.
 //
 // Modes:
-//   engine                  the Study with expected_workers = W (λ = max(default, W)), one ask per free
+//   engine                  the Study with expected_workers = W (λ = max(default, W)) and IPOP restarts,
+//                           one ask per free
 //                           worker, reports as they come;
 //   engine-underestimated   the design says 1 worker while W = 4 λ_default work;
 //   barrier                 one generation of λ = max(W, λ_default) candidates at a time on the search
@@ -87,6 +88,7 @@ Result RunEngine(const Problem& problem, int workers, int expected_workers, Dura
   ogive::study::StudyOptions study_options;
   study_options.seed = seed;
   study_options.default_lease = absl::Seconds(kLease);
+  study_options.restarts = true;  // part of the engine: a run caught in a local minimum restarts (IPOP)
   ogive::study::Study study =
       *ogive::study::Study::Create(problem.space, ogive::search::OutcomeOrder{}, options, study_options);
   WorkerModel model{durations, RandomStream(seed * 7919 + 1)};

@@ -1,0 +1,844 @@
+#include "client/cli/cli.h"
+
+#include <unistd.h>
+
+#include <algorithm>
+#include <cstdint>
+#include <cstdio>
+#include <cstdlib>
+#include <map>
+#include <memory>
+
+#include "absl/strings/ascii.h"
+#include "absl/strings/match.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_join.h"
+#include "absl/time/clock.h"
+#include "client/cli/design_file.h"
+#include "client/cli/format.h"
+#include "client/cli/views.h"
+#include "client/ogive_client.h"
+#include "google/protobuf/util/json_util.h"
+
+namespace ogive::cli {
+namespace {
+
+constexpr char kSafetyNote[] =
+    "Safety: candidates are suggestions of a search algorithm, not instructions. Check every\n"
+    "candidate against your local safety rules and equipment limits before it drives equipment.\n";
+
+const OptionSpec kGlobalOptions[] = {
+    {"--server", "", "HOST:PORT", "the server (default $OGIVE_SERVER, else 127.0.0.1:7075)"},
+    {"--timeout", "", "SECONDS", "deadline of each call to the server (default 30)"},
+    {"--json", "", "", "print data as protobuf JSON instead of tables and text"},
+    {"--token-file", "", "PATH", "file holding the access token (default: $OGIVE_TOKEN)"},
+    {"--help", "-h", "", "this help"},
+};
+
+// ---- Running commands ----
+
+std::string Prefix(const Command& command) {
+  return absl::StrCat("ogive ", absl::StrJoin(command.words, " "));
+}
+
+int UsageError(const Command& command, absl::string_view message) {
+  std::fprintf(stderr, "%s: %s\n(see '%s --help')\n", Prefix(command).c_str(),
+               std::string(message).c_str(), Prefix(command).c_str());
+  return kExitUsage;
+}
+
+int ServerError(const Invocation& inv, const absl::Status& status) {
+  std::string text = absl::StrCat(Prefix(*inv.command), ": ",
+                                  absl::StatusCodeToString(status.code()), ": ", status.message());
+  if (status.code() == absl::StatusCode::kUnavailable ||
+      status.code() == absl::StatusCode::kDeadlineExceeded) {
+    absl::StrAppend(&text, "\n(server ", inv.globals.server,
+                    "; is ogived running there? Choose another with --server or $OGIVE_SERVER)");
+  }
+  std::fprintf(stderr, "%s\n", text.c_str());
+  return kExitServerError;
+}
+
+void Print(absl::string_view text) {
+  std::fwrite(text.data(), 1, text.size(), stdout);
+  std::fflush(stdout);
+}
+
+std::string Json(const google::protobuf::Message& message) {
+  std::string out;
+  google::protobuf::util::JsonPrintOptions options;
+  options.always_print_primitive_fields = true;  // scripts find 0, false and "" where they look
+  if (!google::protobuf::util::MessageToJsonString(message, &out, options).ok()) return "{}";
+  return out;
+}
+
+template <typename Messages>
+std::string JsonArray(const Messages& messages) {
+  std::string out = "[";
+  bool first = true;
+  for (const auto& m : messages) {
+    absl::StrAppend(&out, first ? "" : ",", Json(m));
+    first = false;
+  }
+  out += "]\n";
+  return out;
+}
+
+absl::StatusOr<std::unique_ptr<client::Client>> Connect(const Invocation& inv) {
+  client::ClientOptions options;
+  options.call_timeout = absl::Seconds(inv.globals.timeout_seconds);
+  if (!inv.globals.token_file.empty()) {
+    std::FILE* file = std::fopen(inv.globals.token_file.c_str(), "r");
+    if (file == nullptr) {
+      return absl::InvalidArgumentError(
+          absl::StrCat("--token-file: cannot read '", inv.globals.token_file, "'"));
+    }
+    char buffer[4096];
+    const size_t n = std::fread(buffer, 1, sizeof buffer, file);
+    std::fclose(file);
+    options.token = std::string(absl::StripAsciiWhitespace(absl::string_view(buffer, n)));
+  } else if (const char* token = std::getenv("OGIVE_TOKEN"); token != nullptr) {
+    options.token = std::string(absl::StripAsciiWhitespace(token));
+  }
+  return client::Client::Connect(inv.globals.server, std::move(options));
+}
+
+// Connects, or prints the usage error and returns nullptr with `*exit_code` set.
+std::unique_ptr<client::Client> ConnectOrFail(const Invocation& inv, int* exit_code) {
+  absl::StatusOr<std::unique_ptr<client::Client>> c = Connect(inv);
+  if (!c.ok()) {
+    *exit_code = UsageError(*inv.command, c.status().message());
+    return nullptr;
+  }
+  return std::move(*c);
+}
+
+const std::string& Arg(const Invocation& inv, size_t i) { return inv.args.positional[i]; }
+
+int RunStudyCreate(const Invocation& inv) {
+  absl::StatusOr<v1::StudyDesign> design = ReadDesignFile(Arg(inv, 0));
+  if (!design.ok()) return UsageError(*inv.command, design.status().message());
+  int code = 0;
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  absl::StatusOr<v1::StudyView> view = c->CreateStudy(*design);
+  if (!view.ok()) return ServerError(inv, view.status());
+  if (inv.globals.json) {
+    Print(Json(*view) + "\n");
+  } else {
+    Print(absl::StrCat("created study ", view->name(), " (population ",
+                       view->status().population_size(), ")\n"));
+  }
+  return kExitOk;
+}
+
+int RunStudyList(const Invocation& inv) {
+  int code = 0;
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  absl::StatusOr<v1::ListStudiesResponse> list = c->ListStudies();
+  if (!list.ok()) return ServerError(inv, list.status());
+  if (inv.globals.json) {
+    Print(JsonArray(list->studies()));
+  } else if (list->studies().empty()) {
+    Print(absl::StrCat("no studies on ", inv.globals.server, "\n"));
+  } else {
+    Print(StudyListTable(*list));
+  }
+  return kExitOk;
+}
+
+int RunStudyShow(const Invocation& inv) {
+  int code = 0;
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  absl::StatusOr<v1::StudyView> view = c->GetStudy(Arg(inv, 0));
+  if (!view.ok()) return ServerError(inv, view.status());
+  Print(inv.globals.json ? Json(*view) + "\n" : StudySummary(*view));
+  return kExitOk;
+}
+
+int RunPhase(const Invocation& inv, v1::PhaseCommand command) {
+  int code = 0;
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  absl::StatusOr<v1::StudyView> view = c->SetPhase(Arg(inv, 0), command);
+  if (!view.ok()) return ServerError(inv, view.status());
+  if (inv.globals.json) {
+    Print(Json(*view) + "\n");
+  } else {
+    const v1::StatusSummary& s = view->status();
+    Print(absl::StrCat("study ", view->name(), ": ", PhaseWithReason(s),
+                       s.phase_message().empty() ? "" : ": ", s.phase_message(), "\n"));
+  }
+  return kExitOk;
+}
+
+int RunStudyPause(const Invocation& inv) { return RunPhase(inv, v1::PHASE_COMMAND_PAUSE); }
+int RunStudyResume(const Invocation& inv) { return RunPhase(inv, v1::PHASE_COMMAND_RESUME); }
+int RunStudyFinish(const Invocation& inv) { return RunPhase(inv, v1::PHASE_COMMAND_FINISH); }
+
+int RunStudyTrials(const Invocation& inv) {
+  v1::TrialState state = v1::TRIAL_STATE_UNSPECIFIED;
+  if (std::optional<std::string> name = inv.args.Get("--state"); name.has_value()) {
+    std::optional<v1::TrialState> parsed = TrialStateFromName(*name);
+    if (!parsed.has_value()) {
+      return UsageError(
+          *inv.command,
+          absl::StrCat("--state: must be one of leased, reported, lapsed, voided; got '", *name,
+                       "'"));
+    }
+    state = *parsed;
+  }
+  const bool csv = inv.args.Has("--csv");
+  if (csv && inv.globals.json) {
+    return UsageError(*inv.command, "--csv and --json: choose one output format");
+  }
+  int code = 0;
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  const std::string& study = Arg(inv, 0);
+  v1::StudyDesign design;
+  if (!inv.globals.json) {
+    absl::StatusOr<v1::StudyView> view = c->GetStudy(study);
+    if (!view.ok()) return ServerError(inv, view.status());
+    design = view->design();
+  }
+  absl::StatusOr<std::vector<v1::Trial>> trials = c->ListAllTrials(study, state);
+  if (!trials.ok()) return ServerError(inv, trials.status());
+  if (inv.globals.json) {
+    Print(JsonArray(*trials));
+  } else if (csv) {
+    Print(TrialsCsv(design, *trials));
+  } else if (trials->empty()) {
+    Print(absl::StrCat("no ", state == v1::TRIAL_STATE_UNSPECIFIED ? "" : TrialStateName(state),
+                       state == v1::TRIAL_STATE_UNSPECIFIED ? "" : " ", "trials in study ", study,
+                       "\n"));
+  } else {
+    Print(TrialsTable(design, *trials));
+  }
+  return kExitOk;
+}
+
+double LeaseOption(const Invocation& inv, int* error_code) {
+  std::optional<std::string> text = inv.args.Get("--lease");
+  if (!text.has_value()) return 0;
+  absl::StatusOr<double> seconds = ParsePositiveSeconds("--lease", *text);
+  if (!seconds.ok()) {
+    *error_code = UsageError(*inv.command, seconds.status().message());
+    return 0;
+  }
+  return *seconds;
+}
+
+int RunAsk(const Invocation& inv) {
+  int64_t count = 1;
+  if (std::optional<std::string> n = inv.args.Get("-n"); n.has_value()) {
+    absl::StatusOr<int64_t> parsed = ParseInteger("-n", *n, 1, 1 << 30);
+    if (!parsed.ok()) return UsageError(*inv.command, parsed.status().message());
+    count = *parsed;
+  }
+  int code = 0;
+  const double lease = LeaseOption(inv, &code);
+  if (code != 0) return code;
+  const std::string worker = inv.args.Get("--worker").value_or(DefaultWorker());
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  const std::string& study = Arg(inv, 0);
+  v1::StudyDesign design;
+  if (!inv.globals.json) {
+    absl::StatusOr<v1::StudyView> view = c->GetStudy(study);
+    if (!view.ok()) return ServerError(inv, view.status());
+    design = view->design();
+  }
+  absl::StatusOr<v1::AskResponse> asked = c->Ask(study, static_cast<int>(count), worker, lease);
+  if (!asked.ok()) return ServerError(inv, asked.status());
+  if (inv.globals.json) {
+    Print(JsonArray(asked->trials()));
+  } else {
+    const absl::TimeZone zone = absl::LocalTimeZone();
+    for (const v1::Trial& t : asked->trials()) Print(LeasedTrialText(design, t, zone));
+  }
+  if (asked->trials_size() < count) {
+    std::fprintf(stderr,
+                 "%s: the server handed out %d of %lld trials (the trial budget has room "
+                 "for no more)\n",
+                 Prefix(*inv.command).c_str(), asked->trials_size(), static_cast<long long>(count));
+  }
+  return kExitOk;
+}
+
+int RunTell(const Invocation& inv) {
+  absl::StatusOr<int64_t> trial = ParseInteger("TRIAL", Arg(inv, 1), 1, INT64_MAX);
+  if (!trial.ok()) return UsageError(*inv.command, trial.status().message());
+  absl::StatusOr<v1::Outcome> outcome = OutcomeFromOptions(inv.args);
+  if (!outcome.ok()) return UsageError(*inv.command, outcome.status().message());
+  int code = 0;
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  v1::Report report;
+  report.set_trial(*trial);
+  *report.mutable_outcome() = *outcome;
+  absl::StatusOr<v1::TellResponse> told =
+      c->Tell(Arg(inv, 0), {report}, inv.args.Get("--worker").value_or(DefaultWorker()));
+  if (!told.ok()) return ServerError(inv, told.status());
+  if (inv.globals.json) Print(Json(*told) + "\n");
+  int exit_code = kExitOk;
+  for (const v1::ReportResult& r : told->results()) {
+    if (r.code() != 0) {
+      std::fprintf(stderr, "%s: trial %lld: %s: %s\n", Prefix(*inv.command).c_str(),
+                   static_cast<long long>(r.trial()),
+                   absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())).c_str(),
+                   r.message().c_str());
+      exit_code = kExitServerError;
+    } else if (!inv.globals.json) {
+      Print(absl::StrCat("trial ", r.trial(), ": ",
+                         r.duplicate() ? "already stored (duplicate)"
+                         : r.late()    ? "stored (late)"
+                                       : "stored",
+                         "\n"));
+    }
+  }
+  return exit_code;
+}
+
+int RunRenew(const Invocation& inv) {
+  std::vector<int64_t> trials;
+  for (size_t i = 1; i < inv.args.positional.size(); ++i) {
+    absl::StatusOr<int64_t> t = ParseInteger("TRIAL", Arg(inv, i), 1, INT64_MAX);
+    if (!t.ok()) return UsageError(*inv.command, t.status().message());
+    trials.push_back(*t);
+  }
+  int code = 0;
+  const double lease = LeaseOption(inv, &code);
+  if (code != 0) return code;
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  const std::string& study = Arg(inv, 0);
+
+  // Without --worker, each lease is renewed for the worker that holds it: the usual case is a
+  // person who asked from one shell and renews from another (a different default worker name).
+  std::map<std::string, std::vector<int64_t>> by_worker;
+  if (std::optional<std::string> worker = inv.args.Get("--worker"); worker.has_value()) {
+    by_worker[*worker] = trials;
+  } else {
+    std::map<int64_t, std::string> holder;
+    for (v1::TrialState state : {v1::TRIAL_STATE_LEASED, v1::TRIAL_STATE_LAPSED}) {
+      absl::StatusOr<std::vector<v1::Trial>> held = c->ListAllTrials(study, state);
+      if (!held.ok()) return ServerError(inv, held.status());
+      for (const v1::Trial& t : *held) holder[t.number()] = t.worker();
+    }
+    for (int64_t t : trials) {
+      auto it = holder.find(t);
+      by_worker[it != holder.end() ? it->second : DefaultWorker()].push_back(t);
+    }
+  }
+  std::vector<v1::Trial> renewed;
+  for (const auto& [worker, numbers] : by_worker) {
+    absl::StatusOr<v1::RenewResponse> r = c->Renew(study, numbers, worker, lease);
+    if (!r.ok()) return ServerError(inv, r.status());
+    renewed.insert(renewed.end(), r->trials().begin(), r->trials().end());
+  }
+  if (inv.globals.json) {
+    Print(JsonArray(renewed));
+  } else {
+    const absl::TimeZone zone = absl::LocalTimeZone();
+    for (const v1::Trial& t : renewed) {
+      Print(absl::StrCat("trial ", t.number(), ": lease until ",
+                         FormatUnixMs(t.lease_deadline_unix_ms(), zone), " (worker ", t.worker(),
+                         ")\n"));
+    }
+  }
+  return kExitOk;
+}
+
+int RunWorkCommand(const Invocation& inv) {
+  absl::StatusOr<WorkOptions> options = WorkOptionsFromArgs(inv.args, DefaultWorker());
+  if (!options.ok()) return UsageError(*inv.command, options.status().message());
+  const char* path = std::getenv("PATH");
+  if (!FindExecutable(options->command[0], path != nullptr ? path : "/usr/bin:/bin")) {
+    return UsageError(*inv.command, absl::StrCat("cannot run '", options->command[0], "': ",
+                                                 absl::StrContains(options->command[0], '/')
+                                                     ? "no such executable file"
+                                                     : "no executable file of that name on $PATH"));
+  }
+  int code = 0;
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  return RunWork(*c, *options);
+}
+
+// ---- The command table ----
+
+std::vector<Command> MakeCommands() {
+  std::vector<Command> commands;
+  commands.push_back(
+      {{"study", "create"},
+       "FILE",
+       "create a study from a design file",
+       "Creates a study from the StudyDesign in FILE: protobuf text format, or JSON (the proto3\n"
+       "JSON mapping) when FILE ends in .json. Prints the study's name and population size.\n"
+       "Errors in the file are shown with their line and column.\n",
+       {},
+       1,
+       1,
+       false,
+       true,
+       RunStudyCreate});
+  commands.push_back({{"study", "list"},
+                      "",
+                      "every study: phase, generation, trials by state, best outcome",
+                      "Lists every study on the server in name order.\n",
+                      {},
+                      0,
+                      0,
+                      false,
+                      true,
+                      RunStudyList});
+  commands.push_back(
+      {{"study", "show"},
+       "NAME",
+       "one study: status, best trial, search distribution",
+       "Shows the study's objective, phase, generation, trial and outcome counts, the best trial\n"
+       "with its candidate, and the search distribution in the parameters' units: mean and spread\n"
+       "of each real and integer parameter, P(on) of each flag, the probabilities of each\n"
+       "categorical parameter's options. --json prints the StudyView.\n",
+       {},
+       1,
+       1,
+       false,
+       true,
+       RunStudyShow});
+  commands.push_back({{"study", "pause"},
+                      "NAME",
+                      "stop handing out candidates (reports are still taken)",
+                      "Pauses the study: asks are refused until it is resumed; leased trials may "
+                      "still report.\n",
+                      {},
+                      1,
+                      1,
+                      false,
+                      true,
+                      RunStudyPause});
+  commands.push_back({{"study", "resume"},
+                      "NAME",
+                      "hand out candidates again",
+                      "Resumes a paused study.\n",
+                      {},
+                      1,
+                      1,
+                      false,
+                      true,
+                      RunStudyResume});
+  commands.push_back({{"study", "finish"},
+                      "NAME",
+                      "end the study for good (done, reason stopped)",
+                      "Finishes the study: it becomes done (reason stopped) and hands out no more\n"
+                      "candidates. This cannot be undone.\n",
+                      {},
+                      1,
+                      1,
+                      false,
+                      true,
+                      RunStudyFinish});
+  commands.push_back(
+      {{"study", "trials"},
+       "NAME [--state STATE] [--csv]",
+       "a study's trials as a table, CSV or JSON",
+       "Lists the study's trials in number order: state, generation, worker, outcome, whether it\n"
+       "came late, what the search made of it (pending, consumed, too_stale), and the candidate.\n"
+       "--csv prints CSV with a header row (RFC 4180 quoting); --json a JSON array of trials.\n",
+       {{"--state", "", "STATE", "only trials in this state: leased, reported, lapsed or voided"},
+        {"--csv", "", "", "print CSV instead of a table"}},
+       1,
+       1,
+       false,
+       true,
+       RunStudyTrials});
+  commands.push_back(
+      {{"ask"},
+       "NAME [-n N] [--worker ID] [--lease SECONDS]",
+       "lease candidates to evaluate",
+       "Leases N trials of study NAME and prints each: its number, its lease deadline and its\n"
+       "candidate (name = value unit). Report each with 'ogive tell' before the lease runs out,\n"
+       "or extend it with 'ogive renew'.\n",
+       {{"-n", "", "N", "how many trials (default 1)"},
+        {"--worker", "", "ID", "who evaluates them, shown in trial lists (default HOST:PID)"},
+        {"--lease", "", "SECONDS", "lease length (default: the study's)"}},
+       1,
+       1,
+       false,
+       true,
+       RunAsk});
+  commands.push_back(
+      {{"tell"},
+       "NAME TRIAL (--score X | --grade LABEL | --infeasible | --void) [--note TEXT]",
+       "report a trial's outcome",
+       "Reports the outcome of trial TRIAL of study NAME. Give exactly one of:\n"
+       "  --score X        a measured number (finite), ordered by the study's direction\n"
+       "  --grade LABEL    a label of the study's grade scale\n"
+       "  --infeasible     evaluated, but it broke a constraint (ranks below every score)\n"
+       "  --void           nothing was learned (the run never happened)\n"
+       "Prints 'stored', 'stored (late)' (the lease had lapsed) or 'already stored (duplicate)'.\n",
+       {{"--score", "", "X", "a score"},
+        {"--grade", "", "LABEL", "a grade"},
+        {"--infeasible", "", "", "infeasible"},
+        {"--void", "", "", "void"},
+        {"--note", "", "TEXT", "free text stored with the outcome"},
+        {"--worker", "", "ID", "who reports, for the server's log (default HOST:PID)"}},
+       2,
+       2,
+       false,
+       true,
+       RunTell});
+  commands.push_back(
+      {{"renew"},
+       "NAME TRIAL... [--lease SECONDS] [--worker ID]",
+       "extend leases",
+       "Extends the leases of the given trials of study NAME. Without --worker each lease is\n"
+       "renewed for the worker that holds it. A lapsed trial that has not reported is leased\n"
+       "again.\n",
+       {{"--lease", "", "SECONDS", "new lease length from now (default: the study's)"},
+        {"--worker", "", "ID", "the worker that holds the leases"}},
+       2,
+       SIZE_MAX,
+       false,
+       true,
+       RunRenew});
+  commands.push_back(
+      {{"work"},
+       "NAME [--max-trials N] [--parallel K] [--lease SECONDS] [--worker ID] -- PROGRAM [ARGS...]",
+       "the worker loop: ask, run PROGRAM, tell, repeat",
+       "Runs PROGRAM (directly, not through a shell) for one trial after another, K at a time.\n"
+       "Each run sees the candidate in its environment:\n"
+       "  OGIVE_<NAME>=value     one per parameter; NAME upper-cased, '-' and '.' become '_';\n"
+       "                         reals exact (%.17g), integers, flags 1/0, options by name\n"
+       "  OGIVE_STUDY, OGIVE_TRIAL, OGIVE_CANDIDATE_FILE (a JSON object name -> value)\n"
+       "Standard input is /dev/null; standard output is copied through and its last non-empty\n"
+       "line is the outcome: a number is a score, a label of the study's grade scale (any case)\n"
+       "a grade, the word 'infeasible' infeasible. Anything else, a non-zero exit status or death\n"
+       "by a signal reports void, with a note saying why. Leases are renewed while PROGRAM runs.\n"
+       "\n"
+       "Stops when the study is done (exit 0), after N trials started (exit 0), or on a server\n"
+       "error (exit 1); waits while the study is paused. On SIGTERM or SIGINT it sends SIGTERM to\n"
+       "the running programs, reports their trials void and exits with 128 + the signal (143 for\n"
+       "SIGTERM). One line per trial goes to standard error: 'trial 12: score 3.25 (41.2 s)'.\n",
+       {{"--max-trials", "", "N", "stop after starting N trials (default: no limit)"},
+        {"--parallel", "", "K", "run K trials at once (default 1)"},
+        {"--lease", "", "SECONDS",
+         "lease length, renewed every third of it (default: the study's)"},
+        {"--worker", "", "ID", "worker name shown in trial lists (default HOST:PID)"}},
+       1,
+       1,
+       true,
+       false,
+       RunWorkCommand});
+  return commands;
+}
+
+bool IsGlobal(absl::string_view arg) { return FindOption(arg, kGlobalOptions) != nullptr; }
+
+std::string CommandPrefix(absl::Span<const absl::string_view> words) {
+  return words.empty() ? "ogive" : absl::StrCat("ogive ", absl::StrJoin(words, " "));
+}
+
+absl::Status Usage(absl::Span<const absl::string_view> words, absl::string_view message) {
+  const std::string prefix = CommandPrefix(words);
+  return absl::InvalidArgumentError(
+      absl::StrCat(prefix, ": ", message, "\n(see '", prefix, " --help')"));
+}
+
+std::vector<OptionSpec> AllOptions(const Command* command) {
+  std::vector<OptionSpec> all(std::begin(kGlobalOptions), std::end(kGlobalOptions));
+  if (command != nullptr) all.insert(all.end(), command->options.begin(), command->options.end());
+  return all;
+}
+
+void AppendOptions(std::string* out, absl::Span<const OptionSpec> options) {
+  for (const OptionSpec& o : options) {
+    std::string left =
+        absl::StrCat("  ", o.short_name.empty() ? "" : absl::StrCat(o.short_name, ", "), o.name,
+                     o.value_name.empty() ? "" : " ", o.value_name);
+    if (left.size() < 24)
+      left.resize(24, ' ');
+    else
+      left += "  ";
+    absl::StrAppend(out, left, o.help, "\n");
+  }
+}
+
+}  // namespace
+
+const std::vector<Command>& Commands() {
+  static const std::vector<Command>* const commands = new std::vector<Command>(MakeCommands());
+  return *commands;
+}
+
+std::string HelpText(const Command* command, absl::Span<const absl::string_view> group) {
+  std::string out;
+  if (command != nullptr) {
+    absl::StrAppend(&out, "usage: ", Prefix(*command), command->synopsis.empty() ? "" : " ",
+                    command->synopsis, "\n\n", command->details);
+    if (!command->options.empty()) {
+      out += "\noptions:\n";
+      AppendOptions(&out, command->options);
+    }
+    absl::StrAppend(&out, "\nglobal options: --server HOST:PORT, --timeout SECONDS, ",
+                    command->prints_data ? "--json, " : "",
+                    "--token-file PATH (see 'ogive --help')\n");
+    if (command->words[0] == "ask" || command->words[0] == "work") {
+      absl::StrAppend(&out, "\n", kSafetyNote);
+    }
+    return out;
+  }
+  if (!group.empty()) {
+    absl::StrAppend(&out, "usage: ", CommandPrefix(group), " SUBCOMMAND ...\n\nsubcommands:\n");
+  } else {
+    out +=
+        "usage: ogive [global options] COMMAND [options] [arguments]\n"
+        "\n"
+        "The command-line client of an ogive server: create and inspect studies, lease "
+        "candidates,\n"
+        "report outcomes, and run the worker loop on cluster nodes.\n"
+        "\n"
+        "commands:\n";
+  }
+  for (const Command& c : Commands()) {
+    if (!group.empty() && c.words[0] != group[0]) continue;
+    std::string left = absl::StrCat("  ", absl::StrJoin(c.words, " "));
+    if (c.min_positional > 0) {
+      absl::StrAppend(&left, " ", c.synopsis.substr(0, c.synopsis.find(" [")));
+    }
+    if (c.takes_program) left = "  work NAME -- PROGRAM...";
+    if (absl::StartsWith(c.synopsis, "NAME TRIAL (")) left = "  tell NAME TRIAL OUTCOME";
+    if (left.size() < 28)
+      left.resize(28, ' ');
+    else
+      left += "  ";
+    absl::StrAppend(&out, left, c.summary, "\n");
+  }
+  if (!group.empty()) {
+    absl::StrAppend(&out, "\n'", CommandPrefix(group), " SUBCOMMAND --help' describes one.\n");
+    return out;
+  }
+  out += "\nglobal options (anywhere on the line):\n";
+  AppendOptions(&out, kGlobalOptions);
+  out +=
+      "\n'ogive COMMAND --help' describes a command.\n"
+      "\n"
+      "exit status: 0 success; 1 the server refused or failed a call (its gRPC code is printed);\n"
+      "2 a usage error; 'ogive work' stopped by SIGTERM exits 143 (SIGINT: 130).\n"
+      "\n";
+  out += kSafetyNote;
+  return out;
+}
+
+absl::StatusOr<Invocation> ParseCommandLine(absl::Span<const std::string> args,
+                                            const GetEnv& getenv) {
+  Invocation inv;
+  // Find the command's words among the arguments: global options (and their values) may come
+  // before them; everything else that is not a word goes to the command's own parser.
+  std::vector<absl::string_view> words;
+  std::vector<std::string> rest;
+  bool separator = false;
+  for (size_t i = 0; i < args.size(); ++i) {
+    const std::string& arg = args[i];
+    if (separator || inv.command != nullptr) {
+      rest.push_back(arg);
+      continue;
+    }
+    if (arg == "--") {
+      separator = true;
+      rest.push_back(arg);
+      continue;
+    }
+    if (arg.size() > 1 && arg[0] == '-') {
+      if (!IsGlobal(arg)) {
+        bool of_a_command = false;
+        for (const Command& c : Commands()) of_a_command |= FindOption(arg, c.options) != nullptr;
+        return Usage(words, absl::StrCat("unknown option '", arg.substr(0, arg.find('=')), "'",
+                                         of_a_command ? " (a command's options go after it)" : ""));
+      }
+      rest.push_back(arg);
+      const OptionSpec* spec = FindOption(arg, kGlobalOptions);
+      if (!spec->value_name.empty() && arg.find('=') == std::string::npos && i + 1 < args.size()) {
+        rest.push_back(args[++i]);
+      }
+      continue;
+    }
+    if (words.empty() && arg == "help") {  // `ogive help study create` reads as --help
+      inv.help = true;
+      continue;
+    }
+    words.push_back(arg);
+    bool prefix_of_some = false;
+    for (const Command& c : Commands()) {
+      if (c.words.size() >= words.size() &&
+          std::equal(words.begin(), words.end(), c.words.begin())) {
+        prefix_of_some = true;
+        if (c.words.size() == words.size()) inv.command = &c;
+      }
+    }
+    if (!prefix_of_some) {
+      words.pop_back();
+      return Usage(words, absl::StrCat("unknown command '", arg, "'"));
+    }
+  }
+
+  // --help wins over every other problem of the line.
+  for (const std::string& arg : rest) {
+    if (arg == "--") break;
+    if (arg == "--help" || arg == "-h") inv.help = true;
+  }
+  if (inv.help) {
+    if (inv.command == nullptr) inv.group = words;
+    return inv;
+  }
+  if (inv.command == nullptr) {
+    if (words.empty()) return Usage(words, "missing command");
+    std::vector<std::string> subcommands;
+    for (const Command& c : Commands()) {
+      if (c.words[0] == words[0] && c.words.size() > 1) subcommands.emplace_back(c.words[1]);
+    }
+    return Usage(words, absl::StrCat("missing subcommand: ", absl::StrJoin(subcommands, ", ")));
+  }
+
+  const Command& command = *inv.command;
+  const std::vector<OptionSpec> specs = AllOptions(&command);
+  absl::StatusOr<ParsedArgs> parsed = ParseArgs(rest, specs);
+  if (!parsed.ok()) return Usage(command.words, parsed.status().message());
+  inv.args = std::move(*parsed);
+  const ParsedArgs& a = inv.args;
+
+  if (a.has_separator && !command.takes_program) {
+    return Usage(command.words, "'--' is only for 'ogive work', which runs a program");
+  }
+  if (a.positional.size() < command.min_positional) {
+    const absl::string_view required =
+        command.synopsis.substr(0, command.synopsis.find_first_of("[(-"));
+    return Usage(command.words,
+                 absl::StrCat("missing argument: ", absl::StripAsciiWhitespace(required)));
+  }
+  if (a.positional.size() > command.max_positional) {
+    return Usage(command.words,
+                 absl::StrCat("unexpected argument '", a.positional[command.max_positional], "'",
+                              command.takes_program ? " (the program goes after '--')" : ""));
+  }
+
+  // Global options.
+  if (const char* server = getenv("OGIVE_SERVER"); server != nullptr && *server != '\0') {
+    inv.globals.server = server;
+  }
+  if (std::optional<std::string> server = a.Get("--server"); server.has_value()) {
+    if (server->empty() || server->find(':') == std::string::npos) {
+      return Usage(
+          command.words,
+          absl::StrCat("--server: must be HOST:PORT, such as 127.0.0.1:7075; got '", *server, "'"));
+    }
+    inv.globals.server = *server;
+  }
+  if (std::optional<std::string> timeout = a.Get("--timeout"); timeout.has_value()) {
+    absl::StatusOr<double> seconds = ParsePositiveSeconds("--timeout", *timeout);
+    if (!seconds.ok()) return Usage(command.words, seconds.status().message());
+    inv.globals.timeout_seconds = *seconds;
+  }
+  inv.globals.json = a.Has("--json");
+  if (inv.globals.json && !command.prints_data) {
+    return Usage(command.words,
+                 absl::StrCat("--json does not apply: '", Prefix(command), "' prints a log"));
+  }
+  inv.globals.token_file = a.Get("--token-file").value_or("");
+  return inv;
+}
+
+absl::StatusOr<v1::Outcome> OutcomeFromOptions(const ParsedArgs& args) {
+  std::vector<std::string> given;
+  for (const char* option : {"--score", "--grade", "--infeasible", "--void"}) {
+    if (args.Has(option)) given.emplace_back(option);
+  }
+  if (given.empty()) {
+    return absl::InvalidArgumentError(
+        "give the outcome: one of --score X, --grade LABEL, --infeasible or --void");
+  }
+  if (given.size() > 1) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("give exactly one outcome, got ", absl::StrJoin(given, " and "),
+                     " (one of --score X, --grade LABEL, --infeasible or --void)"));
+  }
+  v1::Outcome outcome;
+  if (std::optional<std::string> score = args.Get("--score"); score.has_value()) {
+    absl::StatusOr<double> value = ParseFiniteNumber("--score", *score);
+    if (!value.ok()) return value.status();
+    outcome.set_score(*value);
+  } else if (std::optional<std::string> grade = args.Get("--grade"); grade.has_value()) {
+    if (absl::StripAsciiWhitespace(*grade).empty()) {
+      return absl::InvalidArgumentError(
+          "--grade: must be a label of the study's grade scale, got ''");
+    }
+    outcome.set_grade(*grade);
+  } else if (args.Has("--infeasible")) {
+    outcome.mutable_infeasible();
+  } else {
+    outcome.mutable_void_();
+  }
+  outcome.set_note(args.Get("--note").value_or(""));
+  return outcome;
+}
+
+absl::StatusOr<WorkOptions> WorkOptionsFromArgs(const ParsedArgs& args,
+                                                const std::string& default_worker) {
+  WorkOptions options;
+  if (!args.positional.empty()) options.study = args.positional[0];
+  if (!args.has_separator || args.after_separator.empty()) {
+    return absl::InvalidArgumentError(
+        "give the program to run after '--', e.g. ogive work NAME -- ./evaluate.sh --fast");
+  }
+  options.command = args.after_separator;
+  if (options.command[0].empty()) {
+    return absl::InvalidArgumentError("the program after '--' must not be an empty string");
+  }
+  if (std::optional<std::string> n = args.Get("--max-trials"); n.has_value()) {
+    absl::StatusOr<int64_t> value = ParseInteger("--max-trials", *n, 1, INT64_MAX);
+    if (!value.ok()) return value.status();
+    options.max_trials = *value;
+  }
+  if (std::optional<std::string> k = args.Get("--parallel"); k.has_value()) {
+    absl::StatusOr<int64_t> value = ParseInteger("--parallel", *k, 1, 1024);
+    if (!value.ok()) return value.status();
+    options.parallel = static_cast<int>(*value);
+  }
+  if (std::optional<std::string> lease = args.Get("--lease"); lease.has_value()) {
+    absl::StatusOr<double> value = ParsePositiveSeconds("--lease", *lease);
+    if (!value.ok()) return value.status();
+    options.lease_seconds = *value;
+  }
+  options.worker = args.Get("--worker").value_or(default_worker);
+  if (options.worker.empty()) {
+    return absl::InvalidArgumentError("--worker: must not be empty");
+  }
+  return options;
+}
+
+std::string DefaultWorker() {
+  char host[256] = {0};
+  if (gethostname(host, sizeof host - 1) != 0 || host[0] == '\0')
+    std::snprintf(host, sizeof host, "localhost");
+  return absl::StrCat(host, ":", getpid());
+}
+
+int Main(int argc, char** argv) {
+  std::vector<std::string> args(argv + 1, argv + argc);
+  absl::StatusOr<Invocation> inv =
+      ParseCommandLine(args, [](const char* name) { return std::getenv(name); });
+  if (!inv.ok()) {
+    std::fprintf(stderr, "%s\n", std::string(inv.status().message()).c_str());
+    return kExitUsage;
+  }
+  if (inv->help) {
+    Print(HelpText(inv->command, inv->group));
+    return kExitOk;
+  }
+  return inv->command->run(*inv);
+}
+
+}  // namespace ogive::cli

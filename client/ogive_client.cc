@@ -1,0 +1,193 @@
+#include "client/ogive_client.h"
+
+#include <algorithm>
+#include <chrono>
+#include <cstdio>
+#include <random>
+
+#include "absl/strings/str_cat.h"
+#include "absl/time/clock.h"
+
+namespace ogive::client {
+namespace {
+
+absl::Status FromGrpc(const grpc::Status& s) {
+  if (s.ok()) return absl::OkStatus();
+  return absl::Status(static_cast<absl::StatusCode>(s.error_code()), s.error_message());
+}
+
+}  // namespace
+
+std::string NewRequestId() {
+  static thread_local std::mt19937_64 rng(std::random_device{}());
+  char buffer[40];
+  std::snprintf(buffer, sizeof buffer, "%016llx%016llx", static_cast<unsigned long long>(rng()),
+                static_cast<unsigned long long>(rng()));
+  return buffer;
+}
+
+std::unique_ptr<Client> Client::Connect(const std::string& target, ClientOptions options) {
+  grpc::ChannelArguments args;
+  args.SetMaxReceiveMessageSize(options.max_message_bytes);
+  args.SetMaxSendMessageSize(options.max_message_bytes);
+  return std::make_unique<Client>(grpc::CreateCustomChannel(target, grpc::InsecureChannelCredentials(), args),
+                                  std::move(options));
+}
+
+Client::Client(std::shared_ptr<grpc::Channel> channel, ClientOptions options)
+    : channel_(std::move(channel)), stub_(v1::Ogive::NewStub(channel_)), options_(std::move(options)) {
+  options_.max_attempts = std::max(1, options_.max_attempts);
+}
+
+void Client::Prepare(grpc::ClientContext& context) const {
+  context.set_deadline(std::chrono::system_clock::now() +
+                       std::chrono::microseconds(absl::ToInt64Microseconds(options_.call_timeout)));
+  if (!options_.token.empty()) context.AddMetadata("authorization", "Bearer " + options_.token);
+}
+
+template <typename Request, typename Response>
+absl::Status Client::Call(grpc::Status (v1::Ogive::Stub::*method)(grpc::ClientContext*, const Request&, Response*),
+                          const Request& request, Response* response) {
+  absl::Duration backoff = options_.first_backoff;
+  absl::Status last;
+  for (int attempt = 1; attempt <= options_.max_attempts; ++attempt) {
+    grpc::ClientContext context;
+    Prepare(context);
+    last = FromGrpc(((*stub_).*method)(&context, request, response));
+    if (last.code() != absl::StatusCode::kUnavailable) return last;
+    if (attempt < options_.max_attempts) {
+      absl::SleepFor(backoff);
+      backoff = std::min(2 * backoff, options_.max_backoff);
+    }
+  }
+  return last;
+}
+
+absl::StatusOr<v1::StudyView> Client::CreateStudy(const v1::StudyDesign& design) {
+  v1::CreateStudyRequest request;
+  *request.mutable_design() = design;
+  request.set_request_id(NewRequestId());
+  v1::StudyView response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::CreateStudy, request, &response); !s.ok()) return s;
+  return response;
+}
+
+absl::StatusOr<v1::StudyView> Client::GetStudy(const std::string& study) {
+  v1::GetStudyRequest request;
+  request.set_study(study);
+  v1::StudyView response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::GetStudy, request, &response); !s.ok()) return s;
+  return response;
+}
+
+absl::StatusOr<v1::ListStudiesResponse> Client::ListStudies() {
+  v1::ListStudiesResponse response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::ListStudies, v1::ListStudiesRequest(), &response); !s.ok()) return s;
+  return response;
+}
+
+absl::StatusOr<v1::AskResponse> Client::Ask(const std::string& study, int count, const std::string& worker,
+                                            double lease_seconds) {
+  v1::AskRequest request;
+  request.set_study(study);
+  request.set_count(count);
+  request.set_worker(worker);
+  request.set_lease_seconds(lease_seconds);
+  request.set_request_id(NewRequestId());  // the same id on every retry of this call
+  v1::AskResponse response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::Ask, request, &response); !s.ok()) return s;
+  return response;
+}
+
+absl::StatusOr<v1::TellResponse> Client::Tell(const std::string& study, const std::vector<v1::Report>& reports,
+                                              const std::string& worker) {
+  v1::TellRequest request;
+  request.set_study(study);
+  request.set_worker(worker);
+  for (const v1::Report& r : reports) *request.add_reports() = r;
+  v1::TellResponse response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::Tell, request, &response); !s.ok()) return s;
+  return response;
+}
+
+absl::StatusOr<v1::RenewResponse> Client::Renew(const std::string& study, const std::vector<int64_t>& trials,
+                                                const std::string& worker, double lease_seconds) {
+  v1::RenewRequest request;
+  request.set_study(study);
+  for (int64_t t : trials) request.add_trials(t);
+  request.set_worker(worker);
+  request.set_lease_seconds(lease_seconds);
+  v1::RenewResponse response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::Renew, request, &response); !s.ok()) return s;
+  return response;
+}
+
+absl::StatusOr<v1::ListTrialsResponse> Client::ListTrials(const v1::ListTrialsRequest& request) {
+  v1::ListTrialsResponse response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::ListTrials, request, &response); !s.ok()) return s;
+  return response;
+}
+
+absl::StatusOr<std::vector<v1::Trial>> Client::ListAllTrials(const std::string& study, v1::TrialState state) {
+  std::vector<v1::Trial> all;
+  v1::ListTrialsRequest request;
+  request.set_study(study);
+  request.set_state(state);
+  request.set_page_size(1000);
+  while (true) {
+    absl::StatusOr<v1::ListTrialsResponse> page = ListTrials(request);
+    if (!page.ok()) return page.status();
+    for (const v1::Trial& t : page->trials()) all.push_back(t);
+    if (page->next_page_token().empty()) return all;
+    request.set_page_token(page->next_page_token());
+  }
+}
+
+absl::StatusOr<v1::StudyView> Client::SetPhase(const std::string& study, v1::PhaseCommand command) {
+  v1::SetPhaseRequest request;
+  request.set_study(study);
+  request.set_command(command);
+  request.set_request_id(NewRequestId());
+  v1::StudyView response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::SetPhase, request, &response); !s.ok()) return s;
+  return response;
+}
+
+absl::Status Client::Watch(const std::string& study, const std::function<bool(const v1::StudyView&)>& on_view) {
+  grpc::ClientContext context;
+  if (!options_.token.empty()) context.AddMetadata("authorization", "Bearer " + options_.token);
+  v1::WatchRequest request;
+  request.set_study(study);
+  std::unique_ptr<grpc::ClientReader<v1::StudyView>> reader = stub_->Watch(&context, request);
+  v1::StudyView view;
+  while (reader->Read(&view)) {
+    if (!on_view(view)) {
+      context.TryCancel();
+      break;
+    }
+  }
+  const grpc::Status status = reader->Finish();
+  if (status.error_code() == grpc::StatusCode::CANCELLED) return absl::OkStatus();
+  return FromGrpc(status);
+}
+
+LeaseRenewer::LeaseRenewer(Client* client, std::string study, std::vector<int64_t> trials, std::string worker,
+                           double lease_seconds, absl::Duration interval) {
+  thread_ = std::thread([this, client, study = std::move(study), trials = std::move(trials),
+                         worker = std::move(worker), lease_seconds, interval] {
+    while (!stop_.WaitForNotificationWithTimeout(interval)) {
+      if (client->Renew(study, trials, worker, lease_seconds).ok()) {
+        ++renewals_;
+      } else {
+        ++failures_;
+      }
+    }
+  });
+}
+
+LeaseRenewer::~LeaseRenewer() {
+  stop_.Notify();
+  thread_.join();
+}
+
+}  // namespace ogive::client

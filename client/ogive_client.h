@@ -1,0 +1,100 @@
+// Client: a typed C++ client of the ogive service for workers, tools and tests.
+//
+// Every call has a deadline (ClientOptions::call_timeout). Calls that fail with UNAVAILABLE — the only
+// code worth retrying — are retried with exponential backoff up to ClientOptions::max_attempts; writes
+// are safe to retry: Ask carries a request id chosen once per call, Tell and Renew are idempotent by
+// trial number (the same outcome twice is accepted once).
+//
+// Thread-safe: one Client may be shared by many threads (gRPC channels are).
+#ifndef OGIVE_CLIENT_OGIVE_CLIENT_H_
+#define OGIVE_CLIENT_OGIVE_CLIENT_H_
+
+#include <atomic>
+#include <functional>
+#include <memory>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "absl/synchronization/notification.h"
+#include "absl/time/time.h"
+#include "grpcpp/grpcpp.h"
+#include "ogive/v1/service.grpc.pb.h"
+
+namespace ogive::client {
+
+struct ClientOptions {
+  absl::Duration call_timeout = absl::Seconds(30);  // deadline of each attempt
+  int max_attempts = 5;                              // attempts for UNAVAILABLE, >= 1
+  absl::Duration first_backoff = absl::Milliseconds(100);
+  absl::Duration max_backoff = absl::Seconds(5);
+  std::string token;                                 // sent as "authorization: Bearer <token>" if set
+  int max_message_bytes = 4 << 20;
+};
+
+class Client {
+ public:
+  // A client of the server at `target` ("host:port") over an insecure channel (loopback use).
+  static std::unique_ptr<Client> Connect(const std::string& target, ClientOptions options = {});
+  // A client over a channel the caller made (for TLS credentials or tests).
+  Client(std::shared_ptr<grpc::Channel> channel, ClientOptions options);
+
+  absl::StatusOr<v1::StudyView> CreateStudy(const v1::StudyDesign& design);
+  absl::StatusOr<v1::StudyView> GetStudy(const std::string& study);
+  absl::StatusOr<v1::ListStudiesResponse> ListStudies();
+  absl::StatusOr<v1::AskResponse> Ask(const std::string& study, int count, const std::string& worker,
+                                      double lease_seconds = 0);
+  absl::StatusOr<v1::TellResponse> Tell(const std::string& study, const std::vector<v1::Report>& reports,
+                                        const std::string& worker);
+  absl::StatusOr<v1::RenewResponse> Renew(const std::string& study, const std::vector<int64_t>& trials,
+                                          const std::string& worker, double lease_seconds = 0);
+  // Every trial (all pages), optionally of one state.
+  absl::StatusOr<std::vector<v1::Trial>> ListAllTrials(const std::string& study,
+                                                       v1::TrialState state = v1::TRIAL_STATE_UNSPECIFIED);
+  absl::StatusOr<v1::ListTrialsResponse> ListTrials(const v1::ListTrialsRequest& request);
+  absl::StatusOr<v1::StudyView> SetPhase(const std::string& study, v1::PhaseCommand command);
+  // Streams status updates to `on_view` until the study is done, `on_view` returns false, or the
+  // stream fails. No deadline (a watch runs as long as it is wanted).
+  absl::Status Watch(const std::string& study, const std::function<bool(const v1::StudyView&)>& on_view);
+
+  v1::Ogive::Stub& stub() { return *stub_; }
+
+ private:
+  template <typename Request, typename Response>
+  absl::Status Call(grpc::Status (v1::Ogive::Stub::*method)(grpc::ClientContext*, const Request&, Response*),
+                    const Request& request, Response* response);
+  void Prepare(grpc::ClientContext& context) const;
+
+  std::shared_ptr<grpc::Channel> channel_;
+  std::unique_ptr<v1::Ogive::Stub> stub_;
+  ClientOptions options_;
+};
+
+// Keeps the leases of some trials alive while a long evaluation runs: renews them every `interval`
+// (default: a third of the lease) on a background thread until destroyed. Renewal errors are counted,
+// not fatal: the lease may lapse, and the late report is still stored.
+class LeaseRenewer {
+ public:
+  LeaseRenewer(Client* client, std::string study, std::vector<int64_t> trials, std::string worker,
+               double lease_seconds, absl::Duration interval);
+  ~LeaseRenewer();
+  LeaseRenewer(const LeaseRenewer&) = delete;
+  LeaseRenewer& operator=(const LeaseRenewer&) = delete;
+
+  int renewals() const { return renewals_; }
+  int failures() const { return failures_; }
+
+ private:
+  absl::Notification stop_;
+  std::atomic<int> renewals_{0};
+  std::atomic<int> failures_{0};
+  std::thread thread_;
+};
+
+// A fresh random request id (128 bits, hex).
+std::string NewRequestId();
+
+}  // namespace ogive::client
+
+#endif  // OGIVE_CLIENT_OGIVE_CLIENT_H_

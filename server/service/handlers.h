@@ -1,0 +1,28 @@
+// The ogive service's methods as plain functions over the Registry: each validates its request (errors
+// name the field and the allowed values), converts it to domain types, calls the study host and
+// converts back. The gRPC layer (grpc_service.h) only adapts these; tests call them directly.
+#ifndef OGIVE_SERVER_SERVICE_HANDLERS_H_
+#define OGIVE_SERVER_SERVICE_HANDLERS_H_
+
+#include "absl/status/statusor.h"
+#include "absl/time/time.h"
+#include "ogive/v1/service.pb.h"
+#include "server/service/registry.h"
+
+namespace ogive::service {
+
+absl::StatusOr<v1::StudyView> CreateStudy(Registry& registry, const v1::CreateStudyRequest& request, absl::Time now);
+absl::StatusOr<v1::StudyView> GetStudy(Registry& registry, const v1::GetStudyRequest& request);
+absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1::ListStudiesRequest& request);
+absl::StatusOr<v1::AskResponse> Ask(Registry& registry, const v1::AskRequest& request, absl::Time now);
+// Malformed reports (a NaN or infinite score, a grade not on the scale, no outcome, a note too long)
+// fail the whole call with INVALID_ARGUMENT naming reports[i] and store nothing; unknown trials
+// (NOT_FOUND) and different outcomes for reported trials (ALREADY_EXISTS) are per-report results.
+absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest& request, absl::Time now);
+absl::StatusOr<v1::RenewResponse> Renew(Registry& registry, const v1::RenewRequest& request, absl::Time now);
+absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::ListTrialsRequest& request);
+absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now);
+
+}  // namespace ogive::service
+
+#endif  // OGIVE_SERVER_SERVICE_HANDLERS_H_

@@ -1,0 +1,56 @@
+// Registry: the studies one ogived serves, by name. Creates studies (validating the whole design),
+// loads every stored study at start, and hands out StudyHosts to the handlers.
+//
+// Thread-safe. Owns the hosts; the store outlives the registry.
+#ifndef OGIVE_SERVER_SERVICE_REGISTRY_H_
+#define OGIVE_SERVER_SERVICE_REGISTRY_H_
+
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "absl/container/btree_map.h"
+#include "absl/status/statusor.h"
+#include "absl/synchronization/mutex.h"
+#include "absl/time/time.h"
+#include "ogive/v1/study.pb.h"
+#include "server/service/limits.h"
+#include "server/service/study_host.h"
+#include "storage/store.h"
+
+namespace ogive::service {
+
+class Registry {
+ public:
+  Registry(storage::Store* store, ServiceLimits limits) : store_(store), limits_(limits) {}
+
+  // Restores every stored study exactly (same generation, same next candidate). DATA_LOSS names the
+  // study that could not be restored.
+  absl::Status LoadAll();
+
+  // Validates and creates a study. ALREADY_EXISTS when the name is taken by another request;
+  // the same request id returns the existing study. RESOURCE_EXHAUSTED beyond max_studies.
+  absl::StatusOr<std::shared_ptr<StudyHost>> Create(const v1::StudyDesign& design, const std::string& request_id,
+                                                    absl::Time now);
+
+  // NOT_FOUND naming the study when there is none by that name.
+  absl::StatusOr<std::shared_ptr<StudyHost>> Find(const std::string& name) const;
+
+  std::vector<std::shared_ptr<StudyHost>> All() const;
+
+  const ServiceLimits& limits() const { return limits_; }
+
+ private:
+  storage::Store* const store_;
+  const ServiceLimits limits_;
+  mutable absl::Mutex mu_;
+  absl::btree_map<std::string, std::shared_ptr<StudyHost>> studies_ ABSL_GUARDED_BY(mu_);
+};
+
+// Checks a design against the limits and the naming rules (before the search space's own validation):
+// INVALID_ARGUMENT naming the field, RESOURCE_EXHAUSTED for sizes beyond a limit.
+absl::Status ValidateDesignShape(const v1::StudyDesign& design, const ServiceLimits& limits);
+
+}  // namespace ogive::service
+
+#endif  // OGIVE_SERVER_SERVICE_REGISTRY_H_

@@ -1,0 +1,275 @@
+#include "server/service/study_host.h"
+
+#include <algorithm>
+#include <cmath>
+#include <utility>
+
+#include "absl/strings/str_cat.h"
+#include "server/codec/design_codec.h"
+#include "server/codec/state_codec.h"
+#include "server/codec/study_codec.h"
+
+namespace ogive::service {
+namespace {
+
+int64_t UnixMillis(absl::Time t) { return absl::ToUnixMillis(t); }
+
+
+}  // namespace
+
+StudyHost::StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store,
+                     std::string create_request_id,
+                     absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests)
+    : id_(id),
+      design_(std::move(design)),
+      create_request_id_(std::move(create_request_id)),
+      store_(store),
+      study_(std::move(study)),
+      ask_requests_(std::move(ask_requests)) {}
+
+absl::Status StudyHost::CommitAndApply(study::Change change, std::vector<storage::Event> events,
+                                       std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request,
+                                       absl::Time now) {
+  storage::StudyWrite write;
+  write.study_id = id_;
+  for (const study::Trial& t : change.trials) write.trials.push_back(codec::TrialToProto(t));
+  write.engine = codec::EngineStateToProto(change.engine);
+  write.engine->clear_distribution();
+  if (change.distribution_changed) {
+    write.distribution = codec::DistributionStateToProto(change.engine.distribution->state());
+  }
+  for (const study::GenerationRecord& g : change.generations) {
+    write.generations.push_back(codec::GenerationToProto(g, now));
+    events.push_back({"update", 0, "", absl::StrCat("generation ", g.generation, " from ", g.cohort.size(),
+                                                    " outcomes, mean staleness ", g.mean_staleness),
+                      absl::ToUnixNanos(now)});
+  }
+  if (change.engine.phase != study_.engine().phase || change.engine.epoch != study_.engine().epoch) {
+    events.push_back({"phase", 0, "",
+                      absl::StrCat(study::PhaseName(change.engine.phase), " ",
+                                   study::DoneReasonName(change.engine.reason), " ", change.engine.phase_message),
+                      absl::ToUnixNanos(now)});
+  }
+  write.ask_request = ask_request;
+  write.events = std::move(events);
+  if (absl::Status s = store_->Commit(std::move(write)); !s.ok()) return s;
+  study_.Apply(std::move(change));
+  if (ask_request.has_value()) ask_requests_.insert(*ask_request);
+  ++version_;
+  return absl::OkStatus();
+}
+
+absl::StatusOr<v1::AskResponse> StudyHost::Ask(int count, const std::string& worker,
+                                               std::optional<absl::Duration> lease, const std::string& request_id,
+                                               absl::Time now) {
+  absl::MutexLock lock(&mu_);
+  std::vector<int64_t> numbers;
+  if (auto it = ask_requests_.find(request_id); !request_id.empty() && it != ask_requests_.end()) {
+    numbers = it->second;  // a retry: the same trials again
+  } else {
+    absl::StatusOr<study::AskPlan> plan = study_.PlanAsk(count, worker, lease, now);
+    if (!plan.ok()) return plan.status();
+    numbers = plan->trials;
+    std::vector<storage::Event> events;
+    for (int64_t n : numbers) events.push_back({"ask", n, worker, "", absl::ToUnixNanos(now)});
+    std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request;
+    if (!request_id.empty()) ask_request = std::make_pair(request_id, numbers);
+    if (absl::Status s = CommitAndApply(std::move(plan->change), std::move(events), ask_request, now); !s.ok()) {
+      return s;
+    }
+  }
+  v1::AskResponse response;
+  for (int64_t n : numbers) *response.add_trials() = TrialView(*study_.trial(n));
+  return response;
+}
+
+absl::StatusOr<v1::TellResponse> StudyHost::Tell(const std::vector<study::Report>& reports,
+                                                 const std::string& worker, absl::Time now) {
+  absl::MutexLock lock(&mu_);
+  absl::StatusOr<study::TellPlan> plan = study_.PlanTell(reports, now);
+  if (!plan.ok()) return plan.status();
+  std::vector<storage::Event> events;
+  v1::TellResponse response;
+  for (const study::ReportResult& r : plan->results) {
+    v1::ReportResult* out = response.add_results();
+    out->set_trial(r.trial);
+    out->set_code(static_cast<int>(r.status.code()));
+    out->set_message(std::string(r.status.message()));
+    out->set_duplicate(r.duplicate);
+    out->set_late(r.late);
+    if (r.status.ok() && !r.duplicate) {
+      events.push_back({"tell", r.trial, worker, r.late ? "late" : "", absl::ToUnixNanos(now)});
+    }
+  }
+  if (absl::Status s = CommitAndApply(std::move(plan->change), std::move(events), std::nullopt, now); !s.ok()) {
+    return s;
+  }
+  response.set_generation(study_.engine().generation);
+  response.set_phase(codec::PhaseToProto(study_.engine().phase));
+  return response;
+}
+
+absl::StatusOr<v1::RenewResponse> StudyHost::Renew(const std::vector<int64_t>& trials, const std::string& worker,
+                                                   std::optional<absl::Duration> lease, absl::Time now) {
+  absl::MutexLock lock(&mu_);
+  absl::StatusOr<study::Change> change = study_.PlanRenew(trials, worker, lease, now);
+  if (!change.ok()) return change.status();
+  if (absl::Status s = CommitAndApply(*std::move(change), {}, std::nullopt, now); !s.ok()) return s;
+  v1::RenewResponse response;
+  for (int64_t n : trials) *response.add_trials() = TrialView(*study_.trial(n));
+  return response;
+}
+
+absl::StatusOr<v1::StudyView> StudyHost::SetPhase(study::PhaseCommand command, absl::Time now) {
+  absl::MutexLock lock(&mu_);
+  absl::StatusOr<study::Change> change = study_.PlanSetPhase(command, now);
+  if (!change.ok()) return change.status();
+  if (absl::Status s = CommitAndApply(*std::move(change), {}, std::nullopt, now); !s.ok()) return s;
+  return ViewLocked(false);
+}
+
+absl::StatusOr<int> StudyHost::Sweep(absl::Time now) {
+  absl::MutexLock lock(&mu_);
+  study::Change change = study_.PlanSweep(now);
+  if (change.trials.empty()) return 0;
+  const int lapsed = static_cast<int>(change.trials.size());
+  std::vector<storage::Event> events;
+  for (const study::Trial& t : change.trials) events.push_back({"lapse", t.number, t.worker, "", absl::ToUnixNanos(now)});
+  if (absl::Status s = CommitAndApply(std::move(change), std::move(events), std::nullopt, now); !s.ok()) return s;
+  return lapsed;
+}
+
+v1::Trial StudyHost::TrialView(const study::Trial& t) const {
+  v1::Trial v;
+  v.set_number(t.number);
+  *v.mutable_candidate() = codec::CandidateToProto(study_.space().Decode(t.x), study_.space());
+  v.set_generation(t.generation);
+  v.set_state(codec::TrialStateToProto(t.state));
+  v.set_worker(t.worker);
+  v.set_lease_deadline_unix_ms(UnixMillis(t.lease_deadline));
+  if (t.outcome.has_value()) {
+    *v.mutable_outcome() = codec::OutcomeToProto(*t.outcome, design_.objective());
+    v.mutable_outcome()->set_note(t.note);
+    v.set_reported_at_unix_ms(UnixMillis(t.reported_at));
+  }
+  v.set_late(t.late);
+  v.set_use(codec::OutcomeUseToProto(t.use));
+  v.set_consumed_by(t.consumed_by);
+  return v;
+}
+
+v1::StudyView StudyHost::View(bool brief) const {
+  absl::ReaderMutexLock lock(&mu_);
+  return ViewLocked(brief);
+}
+
+v1::StudyView StudyHost::ViewLocked(bool brief) const {
+  v1::StudyView view;
+  view.set_name(design_.name());
+  if (!brief) *view.mutable_design() = design_;
+  v1::StatusSummary* s = view.mutable_status();
+  const study::EngineState& e = study_.engine();
+  s->set_phase(codec::PhaseToProto(e.phase));
+  s->set_reason(codec::DoneReasonToProto(e.reason));
+  s->set_phase_message(e.phase_message);
+  s->set_generation(e.generation);
+  s->set_restarts(e.epoch);
+  s->set_population_size(study_.distribution().population_size());
+  const study::TrialCounts& c = study_.counts();
+  s->set_leased(c.leased);
+  s->set_reported(c.reported);
+  s->set_lapsed(c.lapsed);
+  s->set_voided(c.voided);
+  s->set_late(c.late);
+  s->set_pending(c.pending);
+  s->set_consumed(c.consumed);
+  s->set_too_stale(c.too_stale);
+  if (const study::Trial* best = study_.best()) *s->mutable_best() = TrialView(*best);
+  const search::DistributionSummary summary = study_.distribution().Summary();
+  const search::Space& space = study_.space();
+  if (summary.gaussian) {
+    s->set_step_size(summary.gaussian->sigma);
+    s->set_axis_ratio(summary.gaussian->axis_ratio);
+  }
+  int gaussian_k = 0, flag_k = 0, categorical_k = 0;
+  for (int i = 0; i < space.size(); ++i) {
+    const search::ParameterSpec& p = space.parameter(i);
+    v1::Marginal* m = s->add_marginals();
+    m->set_parameter(p.name);
+    m->set_unit(design_.parameters(i).unit());
+    switch (p.kind) {
+      case search::ParameterKind::kReal: {
+        const double u = summary.gaussian->mean[gaussian_k];
+        const double spread = summary.gaussian->spread[gaussian_k++];
+        m->set_low(p.low);
+        m->set_high(p.high);
+        if (p.log) {
+          const double span = std::log(p.high) - std::log(p.low);
+          const double mean = std::exp(std::log(p.low) + u * span);
+          m->set_mean(mean);
+          m->set_spread(mean * (std::exp(spread * span) - 1.0));
+        } else {
+          m->set_mean(p.low + u * (p.high - p.low));
+          m->set_spread(spread * (p.high - p.low));
+        }
+        break;
+      }
+      case search::ParameterKind::kInteger: {
+        const double w = static_cast<double>(p.integer_high - p.integer_low + 1);
+        m->set_low(static_cast<double>(p.integer_low));
+        m->set_high(static_cast<double>(p.integer_high));
+        m->set_mean(static_cast<double>(p.integer_low) - 0.5 + summary.gaussian->mean[gaussian_k] * w);
+        m->set_spread(summary.gaussian->spread[gaussian_k++] * w);
+        break;
+      }
+      case search::ParameterKind::kFlag:
+        m->add_probabilities(summary.flag_probabilities[flag_k++]);
+        break;
+      case search::ParameterKind::kCategorical: {
+        const Eigen::VectorXd& theta = summary.option_probabilities[categorical_k++];
+        for (size_t k = 0; k < p.options.size(); ++k) {
+          m->add_options(p.options[k]);
+          m->add_probabilities(theta[static_cast<int>(k)]);
+        }
+        break;
+      }
+    }
+  }
+  return view;
+}
+
+std::vector<v1::Trial> StudyHost::Trials(std::optional<study::TrialState> state, int64_t after, int limit,
+                                         int64_t* next_after) const {
+  absl::ReaderMutexLock lock(&mu_);
+  std::vector<v1::Trial> out;
+  *next_after = 0;
+  for (int64_t n = std::max<int64_t>(after + 1, 1); n <= study_.trial_count(); ++n) {
+    const study::Trial& t = *study_.trial(n);
+    if (state.has_value() && t.state != *state) continue;
+    if (static_cast<int>(out.size()) == limit) {
+      *next_after = out.back().number();
+      break;
+    }
+    out.push_back(TrialView(t));
+  }
+  return out;
+}
+
+int64_t StudyHost::WaitForChange(int64_t version, absl::Time deadline) const {
+  absl::MutexLock lock(&mu_);
+  auto changed = [this, version]() ABSL_SHARED_LOCKS_REQUIRED(mu_) { return version_ != version; };
+  mu_.AwaitWithDeadline(absl::Condition(&changed), deadline);
+  return version_;
+}
+
+int64_t StudyHost::version() const {
+  absl::ReaderMutexLock lock(&mu_);
+  return version_;
+}
+
+bool StudyHost::done() const {
+  absl::ReaderMutexLock lock(&mu_);
+  return study_.engine().phase == study::Phase::kDone;
+}
+
+}  // namespace ogive::service

@@ -1,0 +1,85 @@
+// StudyHost: one study served by ogived — the engine (study::Study), its design, and the path of every
+// request through it: validate, plan, commit to the store, apply, reply. Memory never runs ahead of
+// disk: a change is applied only after the store committed it, so a failed commit leaves both as they
+// were. Operations on one study are serialized by the host's mutex; different studies never wait for
+// each other (beyond sharing the store's group commit).
+//
+// Thread-safe. Owned by the Registry; handlers hold it by shared_ptr.
+#ifndef OGIVE_SERVER_SERVICE_STUDY_HOST_H_
+#define OGIVE_SERVER_SERVICE_STUDY_HOST_H_
+
+#include <cstdint>
+#include <memory>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "absl/container/flat_hash_map.h"
+#include "absl/status/statusor.h"
+#include "absl/synchronization/mutex.h"
+#include "absl/time/time.h"
+#include "ogive/v1/service.pb.h"
+#include "ogive/v1/study.pb.h"
+#include "server/study/study.h"
+#include "storage/store.h"
+
+namespace ogive::service {
+
+class StudyHost {
+ public:
+  // A host for a study that was just created or loaded. `store` outlives the host.
+  StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store,
+            std::string create_request_id,
+            absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests);
+
+  const std::string& name() const { return design_.name(); }
+  const v1::StudyDesign& design() const { return design_; }  // immutable
+  int64_t id() const { return id_; }
+  const std::string& create_request_id() const { return create_request_id_; }
+
+  // Ask: `count` trials for `worker`. A request id seen before returns the trials it returned then.
+  absl::StatusOr<v1::AskResponse> Ask(int count, const std::string& worker, std::optional<absl::Duration> lease,
+                                      const std::string& request_id, absl::Time now);
+  absl::StatusOr<v1::TellResponse> Tell(const std::vector<study::Report>& reports, const std::string& worker,
+                                        absl::Time now);
+  absl::StatusOr<v1::RenewResponse> Renew(const std::vector<int64_t>& trials, const std::string& worker,
+                                          std::optional<absl::Duration> lease, absl::Time now);
+  absl::StatusOr<v1::StudyView> SetPhase(study::PhaseCommand command, absl::Time now);
+  // Lapses expired leases; returns how many lapsed.
+  absl::StatusOr<int> Sweep(absl::Time now);
+
+  // The study's view; with the design unless `brief`.
+  v1::StudyView View(bool brief) const;
+  // Trials with number > after, optionally of one state, at most limit; sets *next_after to the last
+  // number returned when more remain (0 otherwise).
+  std::vector<v1::Trial> Trials(std::optional<study::TrialState> state, int64_t after, int limit,
+                                int64_t* next_after) const;
+
+  // Blocks until the study changed after `version` (returns the new version) or `deadline` passed
+  // (returns `version`).
+  int64_t WaitForChange(int64_t version, absl::Time deadline) const;
+  int64_t version() const;
+  bool done() const;
+
+ private:
+  // Commits `change` and the extra log lines, then applies it. Caller holds mu_.
+  absl::Status CommitAndApply(study::Change change, std::vector<storage::Event> events,
+                              std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request,
+                              absl::Time now) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  v1::Trial TrialView(const study::Trial& t) const ABSL_SHARED_LOCKS_REQUIRED(mu_);
+  v1::StudyView ViewLocked(bool brief) const ABSL_SHARED_LOCKS_REQUIRED(mu_);
+
+  const int64_t id_;
+  const v1::StudyDesign design_;
+  const std::string create_request_id_;
+  storage::Store* const store_;
+
+  mutable absl::Mutex mu_;
+  study::Study study_ ABSL_GUARDED_BY(mu_);
+  absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests_ ABSL_GUARDED_BY(mu_);
+  int64_t version_ ABSL_GUARDED_BY(mu_) = 0;
+};
+
+}  // namespace ogive::service
+
+#endif  // OGIVE_SERVER_SERVICE_STUDY_HOST_H_

@@ -1,0 +1,705 @@
+// Tests of the study engine's request rules (asks, reports, renewals, sweeps, phases and the trial
+// budget), of plans that are not applied, of its determinism, and of Snapshot()/Restore().
+#include "server/study/study.h"
+
+#include <cmath>
+#include <cstdint>
+#include <memory>
+#include <optional>
+#include <string>
+#include <tuple>
+#include <utility>
+#include <vector>
+
+#include "Eigen/Core"
+#include "absl/status/status.h"
+#include "absl/time/time.h"
+#include "gmock/gmock.h"
+#include "gtest/gtest.h"
+#include "server/search/ranking.h"
+#include "server/search/search_distribution.h"
+#include "server/study/study_options.h"
+#include "server/study/study_test_util.h"
+#include "server/study/trial.h"
+
+namespace ogive::study {
+namespace {
+
+using test_util::EventDriver;
+using test_util::ExpectSameStudy;
+using test_util::ExpectSameTrial;
+using test_util::kMinimize;
+using test_util::MakeStudy;
+using test_util::MixedSpace;
+using test_util::Origin;
+using test_util::RealSpace;
+using ::testing::HasSubstr;
+
+Report MakeReport(int64_t trial, search::Outcome outcome) {
+  Report r;
+  r.trial = trial;
+  r.outcome = outcome;
+  return r;
+}
+
+// Two reals on [-1, 1]: λ = 4 + ⌊3 ln 2⌋ = 6 (Hansen's tutorial, arXiv:1604.00772, Table 1).
+Study SmallStudy(const StudyOptions& options = {}) {
+  return MakeStudy(RealSpace(2, -1, 1), kMinimize, {}, options);
+}
+
+std::vector<int64_t> Numbers(const std::vector<Trial>& trials) {
+  std::vector<int64_t> numbers;
+  for (const Trial& t : trials) numbers.push_back(t.number);
+  return numbers;
+}
+
+// Reports a score for each trial in [first, last], one Tell per trial.
+void ReportScores(Study& study, int64_t first, int64_t last, absl::Time now) {
+  for (int64_t k = first; k <= last; ++k) {
+    const Report r = MakeReport(k, search::Outcome::Score(static_cast<double>(k)));
+    absl::StatusOr<std::vector<ReportResult>> results = study.Tell({&r, 1}, now);
+    ASSERT_TRUE(results.ok()) << results.status();
+    ASSERT_TRUE((*results)[0].status.ok()) << (*results)[0].status;
+  }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Asks.
+
+TEST(StudyAskTest, CountOutsideOneToTheMaximumIsInvalidArgumentNamingCount) {
+  Study study = SmallStudy();
+  for (int count : {0, -3, Study::kMaxAskCount + 1}) {
+    absl::StatusOr<std::vector<Trial>> asked = study.Ask(count, "w", std::nullopt, Origin());
+    EXPECT_EQ(asked.status().code(), absl::StatusCode::kInvalidArgument) << count;
+    EXPECT_THAT(std::string(asked.status().message()), HasSubstr("count")) << count;
+  }
+  EXPECT_EQ(study.trial_count(), 0);
+  absl::StatusOr<std::vector<Trial>> most =
+      study.Ask(Study::kMaxAskCount, "w", std::nullopt, Origin());
+  ASSERT_TRUE(most.ok()) << most.status();
+  EXPECT_EQ(static_cast<int>(most->size()), Study::kMaxAskCount);
+  EXPECT_EQ(study.trial_count(), Study::kMaxAskCount);
+}
+
+TEST(StudyAskTest, NonPositiveLeaseIsInvalidArgument) {
+  Study study = SmallStudy();
+  for (absl::Duration lease : {absl::ZeroDuration(), absl::Seconds(-5)}) {
+    absl::StatusOr<std::vector<Trial>> asked = study.Ask(1, "w", lease, Origin());
+    EXPECT_EQ(asked.status().code(), absl::StatusCode::kInvalidArgument);
+    EXPECT_THAT(std::string(asked.status().message()), HasSubstr("lease"));
+  }
+  EXPECT_EQ(study.trial_count(), 0);
+}
+
+TEST(StudyAskTest, TrialsAreNumberedAndLeasedFromNow) {
+  StudyOptions options;
+  options.default_lease = absl::Minutes(7);
+  Study study = SmallStudy(options);
+  const absl::Time t = Origin() + absl::Seconds(42);
+  absl::StatusOr<std::vector<Trial>> a = study.Ask(3, "alice", absl::Seconds(30), t);
+  ASSERT_TRUE(a.ok()) << a.status();
+  absl::StatusOr<std::vector<Trial>> b = study.Ask(2, "bob", std::nullopt, t);
+  ASSERT_TRUE(b.ok()) << b.status();
+  EXPECT_EQ(Numbers(*a), (std::vector<int64_t>{1, 2, 3}));
+  EXPECT_EQ(Numbers(*b), (std::vector<int64_t>{4, 5}));
+  for (const Trial& trial : study.trials()) {
+    const bool alice = trial.number <= 3;
+    EXPECT_EQ(trial.worker, alice ? "alice" : "bob");
+    EXPECT_EQ(trial.state, TrialState::kLeased);
+    EXPECT_EQ(trial.leased_at, t);
+    EXPECT_EQ(trial.lease_deadline, t + (alice ? absl::Seconds(30) : absl::Minutes(7)));
+    EXPECT_EQ(trial.generation, 0);
+    EXPECT_EQ(trial.epoch, 0);
+    EXPECT_EQ(trial.use, Use::kNone);
+    ASSERT_EQ(trial.x.size(), 2);
+    EXPECT_TRUE((trial.x.array() >= 0.0).all() && (trial.x.array() <= 1.0).all()) << trial.x;
+  }
+  EXPECT_EQ(study.counts().leased, 5);
+  EXPECT_EQ(study.counts().total(), 5);
+  EXPECT_EQ(study.engine().next_trial, 6);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Phases.
+
+TEST(StudyPhaseTest, PausedStudyRefusesAsksButStoresReportsAndUpdates) {
+  Study study = SmallStudy();
+  ASSERT_TRUE(study.Ask(6, "w", std::nullopt, Origin()).ok());
+  ASSERT_TRUE(study.SetPhase(PhaseCommand::kPause, Origin()).ok());
+  EXPECT_EQ(study.engine().phase, Phase::kPaused);
+
+  absl::StatusOr<std::vector<Trial>> refused = study.Ask(1, "w", std::nullopt, Origin());
+  EXPECT_EQ(refused.status().code(), absl::StatusCode::kFailedPrecondition);
+  EXPECT_THAT(std::string(refused.status().message()), HasSubstr("paused"));
+
+  // Reports keep coming in while paused; a full cohort of λ = 6 still updates (study.h: "updates
+  // happen while open or paused").
+  ReportScores(study, 1, 6, Origin() + absl::Seconds(1));
+  EXPECT_EQ(study.counts().reported, 6);
+  for (const Trial& t : study.trials()) EXPECT_EQ(t.state, TrialState::kReported);
+  EXPECT_EQ(study.engine().generation, 1);
+  EXPECT_EQ(study.engine().phase, Phase::kPaused);
+
+  ASSERT_TRUE(study.SetPhase(PhaseCommand::kResume, Origin()).ok());
+  EXPECT_EQ(study.engine().phase, Phase::kOpen);
+  EXPECT_TRUE(study.Ask(1, "w", std::nullopt, Origin()).ok());
+}
+
+TEST(StudyPhaseTest, DoneStudyRefusesAsksAndPhaseChangesButStoresReports) {
+  Study study = SmallStudy();
+  ASSERT_TRUE(study.Ask(8, "w", std::nullopt, Origin()).ok());
+  ASSERT_TRUE(study.SetPhase(PhaseCommand::kFinish, Origin()).ok());
+  EXPECT_EQ(study.engine().phase, Phase::kDone);
+  EXPECT_EQ(study.engine().reason, DoneReason::kStopped);
+
+  absl::StatusOr<std::vector<Trial>> refused = study.Ask(1, "w", std::nullopt, Origin());
+  EXPECT_EQ(refused.status().code(), absl::StatusCode::kFailedPrecondition);
+  EXPECT_THAT(std::string(refused.status().message()), HasSubstr("done"));
+  EXPECT_EQ(study.SetPhase(PhaseCommand::kResume, Origin()).code(),
+            absl::StatusCode::kFailedPrecondition);
+  EXPECT_EQ(study.SetPhase(PhaseCommand::kPause, Origin()).code(),
+            absl::StatusCode::kFailedPrecondition);
+
+  // Finishing again is accepted and changes nothing.
+  const EngineState before = study.engine();
+  EXPECT_TRUE(study.SetPhase(PhaseCommand::kFinish, Origin()).ok());
+  test_util::ExpectSameEngine(study.engine(), before);
+
+  // All eight reports are stored (more than λ = 6), but a done study does not update.
+  ReportScores(study, 1, 7, Origin() + absl::Seconds(1));
+  const Report v = MakeReport(8, search::Outcome::Void());
+  ASSERT_TRUE(study.Tell({&v, 1}, Origin() + absl::Seconds(2)).ok());
+  EXPECT_EQ(study.counts().reported, 7);
+  EXPECT_EQ(study.counts().voided, 1);
+  EXPECT_EQ(study.trial(3)->state, TrialState::kReported);
+  EXPECT_EQ(study.trial(8)->state, TrialState::kVoided);
+  EXPECT_EQ(study.engine().generation, 0);
+  EXPECT_EQ(study.engine().reason, DoneReason::kStopped);
+}
+
+TEST(StudyPhaseTest, PausingTwiceIsAcceptedAndChangesNothing) {
+  Study study = SmallStudy();
+  ASSERT_TRUE(study.SetPhase(PhaseCommand::kPause, Origin()).ok());
+  const EngineState before = study.engine();
+  EXPECT_TRUE(study.SetPhase(PhaseCommand::kPause, Origin() + absl::Seconds(5)).ok());
+  test_util::ExpectSameEngine(study.engine(), before);
+}
+
+// ---------------------------------------------------------------------------------------------
+// The trial budget: asks may not take more than budget − informative − outstanding.
+
+TEST(StudyBudgetTest, AsksBeyondTheBudgetAreTrimmedThenRefused) {
+  StudyOptions options;
+  options.trial_budget = 10;
+  Study study = SmallStudy(options);
+  const absl::Time t = Origin();
+  const absl::Duration lease = absl::Minutes(10);
+
+  absl::StatusOr<std::vector<Trial>> a = study.Ask(4, "w", lease, t);
+  absl::StatusOr<std::vector<Trial>> b = study.Ask(4, "w", lease, t);
+  absl::StatusOr<std::vector<Trial>> c = study.Ask(4, "w", lease, t);  // room for 2
+  ASSERT_TRUE(a.ok() && b.ok() && c.ok());
+  EXPECT_EQ(a->size(), 4u);
+  EXPECT_EQ(b->size(), 4u);
+  EXPECT_EQ(Numbers(*c), (std::vector<int64_t>{9, 10}));
+  absl::StatusOr<std::vector<Trial>> full = study.Ask(1, "w", lease, t);
+  EXPECT_EQ(full.status().code(), absl::StatusCode::kFailedPrecondition);
+  EXPECT_THAT(std::string(full.status().message()), HasSubstr("budget"));
+
+  // Voids are not informative: two voids free two places.
+  const Report voids[] = {MakeReport(1, search::Outcome::Void()),
+                          MakeReport(2, search::Outcome::Void())};
+  ASSERT_TRUE(study.Tell(voids, t).ok());
+  absl::StatusOr<std::vector<Trial>> d = study.Ask(5, "w", lease, t);
+  ASSERT_TRUE(d.ok()) << d.status();
+  EXPECT_EQ(Numbers(*d), (std::vector<int64_t>{11, 12}));
+  EXPECT_EQ(study.Ask(1, "w", lease, t).status().code(), absl::StatusCode::kFailedPrecondition);
+
+  // Five informative outcomes (3..7): 5 informative + 5 outstanding (8..12) = 10, no room.
+  ReportScores(study, 3, 7, t);
+  EXPECT_EQ(study.engine().informative, 5);
+  EXPECT_EQ(study.Ask(1, "w", lease, t).status().code(), absl::StatusCode::kFailedPrecondition);
+
+  // Lapsed trials are not outstanding: once 8..12 lapse there is room for 5 more.
+  const absl::Time later = t + lease + absl::Seconds(1);
+  absl::StatusOr<std::vector<Trial>> e = study.Ask(10, "w", lease, later);
+  ASSERT_TRUE(e.ok()) << e.status();
+  EXPECT_EQ(Numbers(*e), (std::vector<int64_t>{13, 14, 15, 16, 17}));
+  EXPECT_EQ(study.counts().lapsed, 5);
+
+  // The tenth informative outcome ends the study on its budget.
+  ReportScores(study, 13, 16, later);
+  EXPECT_EQ(study.engine().phase, Phase::kOpen);
+  ReportScores(study, 17, 17, later);
+  EXPECT_EQ(study.engine().informative, 10);
+  EXPECT_EQ(study.engine().phase, Phase::kDone);
+  EXPECT_EQ(study.engine().reason, DoneReason::kBudget);
+  EXPECT_THAT(study.engine().phase_message, HasSubstr("budget"));
+}
+
+TEST(StudyBudgetTest, VoidsNeverUseUpTheBudget) {
+  StudyOptions options;
+  options.trial_budget = 3;
+  Study study = SmallStudy(options);
+  absl::Time t = Origin();
+  for (int k = 0; k < 200; ++k) {
+    absl::StatusOr<std::vector<Trial>> asked = study.Ask(3, "w", std::nullopt, t);
+    ASSERT_TRUE(asked.ok()) << k << ": " << asked.status();
+    ASSERT_EQ(asked->size(), 3u);
+    std::vector<Report> reports;
+    for (const Trial& trial : *asked) {
+      reports.push_back(MakeReport(trial.number, search::Outcome::Void()));
+    }
+    ASSERT_TRUE(study.Tell(reports, t).ok());
+    t += absl::Seconds(1);
+  }
+  EXPECT_EQ(study.engine().phase, Phase::kOpen);
+  EXPECT_EQ(study.counts().voided, 600);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Renewals and sweeps.
+
+TEST(StudyRenewTest, RenewExtendsOwnLeasesOnly) {
+  Study study = SmallStudy();
+  const absl::Time t = Origin();
+  ASSERT_TRUE(study.Ask(2, "alice", absl::Seconds(60), t).ok());
+
+  const int64_t one[] = {1};
+  absl::Status other = study.Renew(one, "bob", absl::Seconds(60), t + absl::Seconds(10));
+  EXPECT_EQ(other.code(), absl::StatusCode::kFailedPrecondition);
+  EXPECT_THAT(std::string(other.message()), HasSubstr("alice"));
+
+  const int64_t unknown[] = {99};
+  EXPECT_EQ(study.Renew(unknown, "alice", absl::Seconds(60), t).code(),
+            absl::StatusCode::kNotFound);
+
+  // All or nothing: trial 1 keeps its deadline when the same request names an unknown trial.
+  const int64_t mixed[] = {1, 99};
+  EXPECT_EQ(study.Renew(mixed, "alice", absl::Seconds(600), t).code(), absl::StatusCode::kNotFound);
+  EXPECT_EQ(study.trial(1)->lease_deadline, t + absl::Seconds(60));
+
+  EXPECT_EQ(study.Renew(one, "alice", absl::ZeroDuration(), t).code(),
+            absl::StatusCode::kInvalidArgument);
+  EXPECT_EQ(study.Renew({}, "alice", absl::Seconds(5), t).code(),
+            absl::StatusCode::kInvalidArgument);
+
+  ASSERT_TRUE(study.Renew(one, "alice", absl::Seconds(60), t + absl::Seconds(30)).ok());
+  EXPECT_EQ(study.trial(1)->lease_deadline, t + absl::Seconds(90));
+  // At t + 80 s trial 2 (deadline t + 60 s) has lapsed, trial 1 has not.
+  EXPECT_EQ(study.Sweep(t + absl::Seconds(80)), 1);
+  EXPECT_EQ(study.trial(1)->state, TrialState::kLeased);
+  EXPECT_EQ(study.trial(2)->state, TrialState::kLapsed);
+
+  // A reported trial cannot be renewed.
+  const Report r = MakeReport(1, search::Outcome::Score(1.0));
+  ASSERT_TRUE(study.Tell({&r, 1}, t + absl::Seconds(81)).ok());
+  absl::Status reported = study.Renew(one, "alice", absl::Seconds(60), t + absl::Seconds(82));
+  EXPECT_EQ(reported.code(), absl::StatusCode::kFailedPrecondition);
+  EXPECT_THAT(std::string(reported.message()), HasSubstr("reported"));
+}
+
+TEST(StudyRenewTest, RenewingALapsedUnreportedTrialLeasesItAgain) {
+  Study study = SmallStudy();
+  const absl::Time t = Origin();
+  ASSERT_TRUE(study.Ask(1, "alice", absl::Seconds(60), t).ok());
+  EXPECT_EQ(study.Sweep(t + absl::Seconds(61)), 1);
+  ASSERT_EQ(study.trial(1)->state, TrialState::kLapsed);
+  EXPECT_EQ(study.counts().lapsed, 1);
+
+  const int64_t one[] = {1};
+  ASSERT_TRUE(study.Renew(one, "alice", absl::Seconds(60), t + absl::Seconds(70)).ok());
+  EXPECT_EQ(study.trial(1)->state, TrialState::kLeased);
+  EXPECT_EQ(study.trial(1)->lease_deadline, t + absl::Seconds(130));
+  EXPECT_EQ(study.counts().lapsed, 0);
+  EXPECT_EQ(study.counts().leased, 1);
+
+  // Reported within the new lease, it is not late.
+  const Report r = MakeReport(1, search::Outcome::Score(2.0));
+  absl::StatusOr<std::vector<ReportResult>> results = study.Tell({&r, 1}, t + absl::Seconds(100));
+  ASSERT_TRUE(results.ok());
+  EXPECT_FALSE((*results)[0].late);
+  EXPECT_FALSE(study.trial(1)->late);
+  EXPECT_EQ(study.counts().late, 0);
+}
+
+TEST(StudySweepTest, LapsesOnlyExpiredLeases) {
+  Study study = SmallStudy();
+  const absl::Time t = Origin();
+  ASSERT_TRUE(study.Ask(1, "w", absl::Seconds(10), t).ok());
+  ASSERT_TRUE(study.Ask(1, "w", absl::Seconds(20), t).ok());
+  ASSERT_TRUE(study.Ask(1, "w", absl::Seconds(30), t).ok());
+
+  EXPECT_EQ(study.Sweep(t + absl::Seconds(9)), 0);
+  EXPECT_EQ(study.Sweep(t + absl::Seconds(15)), 1);
+  EXPECT_EQ(study.trial(1)->state, TrialState::kLapsed);
+  EXPECT_EQ(study.trial(2)->state, TrialState::kLeased);
+  EXPECT_EQ(study.trial(3)->state, TrialState::kLeased);
+  EXPECT_EQ(study.Sweep(t + absl::Seconds(15)), 0);
+  EXPECT_EQ(study.Sweep(t + absl::Seconds(29)), 1);
+  EXPECT_EQ(study.trial(3)->state, TrialState::kLeased);
+  EXPECT_EQ(study.Sweep(t + absl::Seconds(31)), 1);
+  EXPECT_EQ(study.counts().lapsed, 3);
+  EXPECT_EQ(study.counts().leased, 0);
+  // A lapse is not a report: nothing was learned, nothing changed in the search.
+  EXPECT_EQ(study.engine().report_sequence, 0);
+  EXPECT_EQ(study.engine().generation, 0);
+}
+
+TEST(StudySweepTest, AskLapsesExpiredLeasesFirst) {
+  Study study = SmallStudy();
+  ASSERT_TRUE(study.Ask(2, "w", absl::Seconds(10), Origin()).ok());
+  ASSERT_TRUE(study.Ask(1, "w", absl::Seconds(10), Origin() + absl::Seconds(11)).ok());
+  EXPECT_EQ(study.trial(1)->state, TrialState::kLapsed);
+  EXPECT_EQ(study.trial(2)->state, TrialState::kLapsed);
+  EXPECT_EQ(study.trial(3)->state, TrialState::kLeased);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Reports.
+
+TEST(StudyTellTest, LateReportIsStoredAndMarkedLate) {
+  Study study = SmallStudy();
+  const absl::Time t = Origin();
+  ASSERT_TRUE(study.Ask(2, "w", absl::Seconds(10), t).ok());
+  ASSERT_EQ(study.Sweep(t + absl::Seconds(20)), 2);
+
+  const Report reports[] = {MakeReport(1, search::Outcome::Score(3.0)),
+                            MakeReport(2, search::Outcome::Void())};
+  absl::StatusOr<std::vector<ReportResult>> results = study.Tell(reports, t + absl::Seconds(30));
+  ASSERT_TRUE(results.ok()) << results.status();
+  for (const ReportResult& r : *results) {
+    EXPECT_TRUE(r.status.ok()) << r.status;
+    EXPECT_TRUE(r.late);
+    EXPECT_FALSE(r.duplicate);
+  }
+  const Trial& scored = *study.trial(1);
+  EXPECT_EQ(scored.state, TrialState::kReported);
+  EXPECT_TRUE(scored.late);
+  EXPECT_EQ(scored.use, Use::kPending);
+  EXPECT_EQ(scored.reported_at, t + absl::Seconds(30));
+  EXPECT_EQ(scored.report_sequence, 1);
+  const Trial& voided = *study.trial(2);
+  EXPECT_EQ(voided.state, TrialState::kVoided);
+  EXPECT_TRUE(voided.late);
+  EXPECT_EQ(voided.use, Use::kNone);
+  EXPECT_EQ(study.counts().late, 2);
+  EXPECT_EQ(study.counts().lapsed, 0);
+  EXPECT_EQ(study.counts().pending, 1);
+  EXPECT_EQ(study.engine().informative, 1);
+
+  // Reported again, a late report is a duplicate that is still marked late.
+  absl::StatusOr<std::vector<ReportResult>> again =
+      study.Tell({&reports[0], 1}, t + absl::Seconds(40));
+  ASSERT_TRUE(again.ok());
+  EXPECT_TRUE((*again)[0].duplicate);
+  EXPECT_TRUE((*again)[0].late);
+}
+
+TEST(StudyTellTest, ReportTimeAtOrAfterTheDeadlineIsLate) {
+  // A lease runs out at its deadline: a report at exactly that instant comes too late, one just
+  // before it does not (study.h: leases "ran out by now" lapse).
+  Study study = SmallStudy();
+  const absl::Time t = Origin();
+  ASSERT_TRUE(study.Ask(2, "w", absl::Seconds(10), t).ok());
+  const Report early = MakeReport(1, search::Outcome::Score(1.0));
+  absl::StatusOr<std::vector<ReportResult>> a =
+      study.Tell({&early, 1}, t + absl::Seconds(10) - absl::Nanoseconds(1));
+  ASSERT_TRUE(a.ok());
+  EXPECT_FALSE((*a)[0].late);
+  const Report edge = MakeReport(2, search::Outcome::Score(1.0));
+  absl::StatusOr<std::vector<ReportResult>> b = study.Tell({&edge, 1}, t + absl::Seconds(10));
+  ASSERT_TRUE(b.ok());
+  EXPECT_TRUE((*b)[0].late);
+}
+
+TEST(StudyTellTest, DuplicatesDifferentOutcomesAndUnknownTrials) {
+  Study study = SmallStudy();
+  const absl::Time t = Origin();
+  ASSERT_TRUE(study.Ask(3, "w", std::nullopt, t).ok());
+  const Report first[] = {MakeReport(1, search::Outcome::Score(0.5)),
+                          MakeReport(2, search::Outcome::Void())};
+  ASSERT_TRUE(study.Tell(first, t + absl::Seconds(1)).ok());
+  const std::vector<Trial> before = study.trials();
+  const EngineState engine_before = study.engine();
+
+  Report dup_with_other_note = MakeReport(1, search::Outcome::Score(0.5));
+  dup_with_other_note.note = "second try";
+  const Report batch[] = {
+      dup_with_other_note,                           // duplicate
+      MakeReport(2, search::Outcome::Void()),        // duplicate void
+      MakeReport(1, search::Outcome::Score(0.25)),   // different score
+      MakeReport(1, search::Outcome::Infeasible()),  // different kind
+      MakeReport(2, search::Outcome::Score(1.0)),    // void, then a score
+      MakeReport(0, search::Outcome::Score(1.0)),    // unknown
+      MakeReport(4, search::Outcome::Score(1.0)),    // unknown (not asked yet)
+      MakeReport(-7, search::Outcome::Score(1.0)),   // unknown
+  };
+  absl::StatusOr<std::vector<ReportResult>> results = study.Tell(batch, t + absl::Seconds(2));
+  ASSERT_TRUE(results.ok()) << results.status();
+  ASSERT_EQ(results->size(), 8u);
+  for (int k = 0; k < 8; ++k) EXPECT_EQ((*results)[k].trial, batch[k].trial);
+  EXPECT_TRUE((*results)[0].status.ok());
+  EXPECT_TRUE((*results)[0].duplicate);
+  EXPECT_TRUE((*results)[1].status.ok());
+  EXPECT_TRUE((*results)[1].duplicate);
+  for (int k : {2, 3, 4}) {
+    EXPECT_EQ((*results)[k].status.code(), absl::StatusCode::kAlreadyExists) << k;
+    EXPECT_FALSE((*results)[k].duplicate) << k;
+  }
+  for (int k : {5, 6, 7}) {
+    EXPECT_EQ((*results)[k].status.code(), absl::StatusCode::kNotFound) << k;
+    EXPECT_THAT(std::string((*results)[k].status.message()), HasSubstr("trial")) << k;
+  }
+  // Nothing changed: every record, and every counter.
+  ASSERT_EQ(study.trial_count(), static_cast<int64_t>(before.size()));
+  for (const Trial& old : before) ExpectSameTrial(*study.trial(old.number), old);
+  test_util::ExpectSameEngine(study.engine(), engine_before);
+  // Trial 3, still leased, can be reported normally.
+  const Report third = MakeReport(3, search::Outcome::Score(2.0));
+  absl::StatusOr<std::vector<ReportResult>> ok = study.Tell({&third, 1}, t + absl::Seconds(3));
+  ASSERT_TRUE(ok.ok());
+  EXPECT_TRUE((*ok)[0].status.ok());
+  EXPECT_FALSE((*ok)[0].duplicate);
+  EXPECT_EQ(study.trial(3)->report_sequence, 3);
+}
+
+TEST(StudyTellTest, EmptyTellIsInvalidArgument) {
+  Study study = SmallStudy();
+  absl::StatusOr<std::vector<ReportResult>> results = study.Tell({}, Origin());
+  EXPECT_EQ(results.status().code(), absl::StatusCode::kInvalidArgument);
+}
+
+TEST(StudyTellTest, OutcomeThatDoesNotFitTheOrderIsRefusedAndNotStored) {
+  Study study = SmallStudy();
+  ASSERT_TRUE(study.Ask(2, "w", std::nullopt, Origin()).ok());
+  const Report bad[] = {MakeReport(1, search::Outcome::Grade(1)),
+                        MakeReport(2, search::Outcome::Score(std::nan("")))};
+  absl::StatusOr<std::vector<ReportResult>> results = study.Tell(bad, Origin());
+  ASSERT_TRUE(results.ok());
+  for (const ReportResult& r : *results) {
+    EXPECT_EQ(r.status.code(), absl::StatusCode::kInvalidArgument);
+  }
+  EXPECT_FALSE(study.trial(1)->outcome.has_value());
+  EXPECT_FALSE(study.trial(2)->outcome.has_value());
+  EXPECT_EQ(study.counts().leased, 2);
+  EXPECT_EQ(study.engine().report_sequence, 0);
+}
+
+TEST(StudyTellTest, LambdaPendingOutcomesFormOneCohortOldestReportFirst) {
+  Study study = SmallStudy();
+  const int lambda = study.distribution().population_size();
+  ASSERT_EQ(lambda, 6);  // 4 + ⌊3 ln 2⌋ (tutorial, Table 1)
+  ASSERT_TRUE(study.Ask(8, "w", std::nullopt, Origin()).ok());
+  // Reports arrive in reverse order, 8, 7, ..., 1: the sixth report completes the cohort.
+  std::vector<GenerationRecord> records;
+  for (int64_t k = 8; k >= 1; --k) {
+    const Report r = MakeReport(k, search::Outcome::Score(static_cast<double>(k)));
+    absl::StatusOr<TellPlan> plan = study.PlanTell({&r, 1}, Origin() + absl::Seconds(9 - k));
+    ASSERT_TRUE(plan.ok()) << plan.status();
+    for (const GenerationRecord& g : plan->change.generations) records.push_back(g);
+    study.Apply(std::move(plan->change));
+    EXPECT_EQ(study.engine().generation, k > 3 ? 0 : 1) << "after the report of trial " << k;
+  }
+  ASSERT_EQ(records.size(), 1u);
+  EXPECT_EQ(records[0].generation, 1);
+  EXPECT_EQ(records[0].population_size, 6);
+  EXPECT_EQ(records[0].cohort, (std::vector<int64_t>{8, 7, 6, 5, 4, 3}));
+  EXPECT_EQ(records[0].max_staleness, 0);
+  for (int64_t k = 3; k <= 8; ++k) {
+    EXPECT_EQ(study.trial(k)->use, Use::kConsumed);
+    EXPECT_EQ(study.trial(k)->consumed_by, 1);
+  }
+  EXPECT_EQ(study.trial(2)->use, Use::kPending);
+  EXPECT_EQ(study.trial(1)->use, Use::kPending);
+  EXPECT_EQ(study.counts().consumed, 6);
+  EXPECT_EQ(study.counts().pending, 2);
+  // The best outcome is trial 1's score 1.
+  ASSERT_NE(study.best(), nullptr);
+  EXPECT_EQ(study.best()->number, 1);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Plans.
+
+TEST(StudyPlanTest, PlansThatAreNotAppliedChangeNothing) {
+  Study study = SmallStudy();
+  ASSERT_TRUE(study.Ask(6, "w", absl::Seconds(10), Origin()).ok());
+  const StudySnapshot before = study.Snapshot();
+
+  absl::StatusOr<AskPlan> ask1 = study.PlanAsk(3, "w", std::nullopt, Origin() + absl::Seconds(20));
+  absl::StatusOr<AskPlan> ask2 = study.PlanAsk(3, "w", std::nullopt, Origin() + absl::Seconds(20));
+  ASSERT_TRUE(ask1.ok() && ask2.ok());
+  // The random stream did not advance: the same plan twice.
+  ASSERT_EQ(ask1->change.trials.size(), ask2->change.trials.size());
+  for (size_t k = 0; k < ask1->change.trials.size(); ++k) {
+    EXPECT_TRUE(ask1->change.trials[k].x == ask2->change.trials[k].x);
+  }
+  std::vector<Report> reports;
+  for (int64_t k = 1; k <= 6; ++k) reports.push_back(MakeReport(k, search::Outcome::Score(k)));
+  absl::StatusOr<TellPlan> tell = study.PlanTell(reports, Origin() + absl::Seconds(1));
+  ASSERT_TRUE(tell.ok());
+  EXPECT_EQ(tell->change.generations.size(), 1u);
+  EXPECT_TRUE(tell->change.distribution_changed);
+  ASSERT_TRUE(study.PlanRenew(std::vector<int64_t>{1}, "w", std::nullopt, Origin()).ok());
+  study.PlanSweep(Origin() + absl::Hours(1));
+  ASSERT_TRUE(study.PlanSetPhase(PhaseCommand::kFinish, Origin()).ok());
+
+  ExpectSameStudy(study, *Study::Restore(RealSpace(2, -1, 1), kMinimize, {}, {}, before));
+  EXPECT_EQ(study.counts().leased, 6);
+  EXPECT_EQ(study.engine().generation, 0);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Determinism.
+
+// Compares what two drivers' events returned.
+void ExpectSameStep(const EventDriver::Step& a, const EventDriver::Step& b, int step) {
+  EXPECT_EQ(a.kind, b.kind) << "step " << step;
+  EXPECT_EQ(a.code, b.code) << "step " << step;
+  EXPECT_EQ(a.trials, b.trials) << "step " << step;
+  ASSERT_EQ(a.results.size(), b.results.size()) << "step " << step;
+  for (size_t k = 0; k < a.results.size(); ++k) {
+    EXPECT_EQ(a.results[k].trial, b.results[k].trial) << "step " << step;
+    EXPECT_EQ(a.results[k].status, b.results[k].status) << "step " << step;
+    EXPECT_EQ(a.results[k].duplicate, b.results[k].duplicate) << "step " << step;
+    EXPECT_EQ(a.results[k].late, b.results[k].late) << "step " << step;
+  }
+}
+
+StudyOptions SeededOptions(uint64_t seed) {
+  StudyOptions options;
+  options.seed = seed;
+  options.default_lease = absl::Seconds(90);
+  options.staleness_limit = 3;
+  return options;
+}
+
+TEST(StudyDeterminismTest, SameSeedAndEventsGiveIdenticalCandidatesAndStates) {
+  constexpr int kSteps = 1500;
+  Study a = MakeStudy(MixedSpace(), kMinimize, {}, SeededOptions(77));
+  Study b = MakeStudy(MixedSpace(), kMinimize, {}, SeededOptions(77));
+  // One run plans and applies, the other uses the one-step calls: the same events either way.
+  EventDriver da(5, {.workers = 3, .use_plan_api = true, .phase_changes = true});
+  EventDriver db(5, {.workers = 3, .use_plan_api = false, .phase_changes = true});
+  for (int step = 0; step < kSteps; ++step) {
+    ExpectSameStep(da.Next(a), db.Next(b), step);
+    if (step % 100 == 0) ExpectSameStudy(a, b);
+    if (::testing::Test::HasFailure()) return;
+  }
+  ExpectSameStudy(a, b);
+  // The run did something worth comparing.
+  EXPECT_GE(a.engine().generation, 10);
+  EXPECT_GT(a.counts().lapsed + a.counts().late, 0);
+}
+
+TEST(StudyDeterminismTest, DifferentSeedGivesDifferentCandidates) {
+  Study a = MakeStudy(MixedSpace(), kMinimize, {}, SeededOptions(1));
+  Study b = MakeStudy(MixedSpace(), kMinimize, {}, SeededOptions(2));
+  absl::StatusOr<std::vector<Trial>> ta = a.Ask(20, "w", std::nullopt, Origin());
+  absl::StatusOr<std::vector<Trial>> tb = b.Ask(20, "w", std::nullopt, Origin());
+  ASSERT_TRUE(ta.ok() && tb.ok());
+  int same = 0;
+  for (int k = 0; k < 20; ++k) same += (*ta)[k].x == (*tb)[k].x;
+  EXPECT_EQ(same, 0);
+  EXPECT_NE(a.engine().random, b.engine().random);
+}
+
+// Restores `snapshot` into a new study with the same constructor arguments. With `rebuild`, the
+// distribution is first rebuilt from its state, as a store that serialized it would.
+Study RestoreInto(StudySnapshot snapshot, bool rebuild) {
+  if (rebuild) {
+    absl::StatusOr<search::SearchDistribution> copy =
+        search::SearchDistribution::FromState(MixedSpace(), snapshot.engine.distribution->state());
+    EXPECT_TRUE(copy.ok()) << copy.status();
+    snapshot.engine.distribution =
+        std::make_shared<const search::SearchDistribution>(*std::move(copy));
+  }
+  absl::StatusOr<Study> restored =
+      Study::Restore(MixedSpace(), kMinimize, {}, SeededOptions(77), std::move(snapshot));
+  EXPECT_TRUE(restored.ok()) << restored.status();
+  return *std::move(restored);
+}
+
+class StudySnapshotTest : public ::testing::TestWithParam<std::tuple<int, bool>> {};
+
+TEST_P(StudySnapshotTest, RestoreMidRunChangesNothingThatFollows) {
+  const auto [k, rebuild] = GetParam();
+  constexpr int kSteps = 1200;
+  Study a = MakeStudy(MixedSpace(), kMinimize, {}, SeededOptions(77));
+  Study b = MakeStudy(MixedSpace(), kMinimize, {}, SeededOptions(77));
+  EventDriver da(9, {.workers = 4, .use_plan_api = true, .phase_changes = false});
+  EventDriver db(9, {.workers = 4, .use_plan_api = true, .phase_changes = false});
+  for (int step = 0; step < kSteps; ++step) {
+    if (step == k) {
+      Study restored = RestoreInto(b.Snapshot(), rebuild);
+      ExpectSameStudy(restored, b);
+      EXPECT_EQ(restored.counts().total(), b.counts().total());
+      EXPECT_EQ(restored.counts().pending, b.counts().pending);
+      EXPECT_EQ(restored.counts().late, b.counts().late);
+      b = std::move(restored);
+    }
+    ExpectSameStep(da.Next(a), db.Next(b), step);
+    if (step > k && step % 50 == 0) ExpectSameStudy(a, b);
+    if (::testing::Test::HasFailure()) return;
+  }
+  ExpectSameStudy(a, b);
+  EXPECT_GE(a.engine().generation, 10);
+}
+
+INSTANTIATE_TEST_SUITE_P(Steps, StudySnapshotTest,
+                         ::testing::Combine(::testing::Values(0, 1, 137, 600), ::testing::Bool()));
+
+TEST(StudyRestoreTest, RefusesSnapshotsThatDoNotFit) {
+  Study study = MakeStudy(MixedSpace(), kMinimize, {}, SeededOptions(77));
+  ASSERT_TRUE(study.Ask(4, "w", std::nullopt, Origin()).ok());
+
+  StudySnapshot no_distribution = study.Snapshot();
+  no_distribution.engine.distribution = nullptr;
+  EXPECT_EQ(Study::Restore(MixedSpace(), kMinimize, {}, SeededOptions(77), no_distribution)
+                .status()
+                .code(),
+            absl::StatusCode::kInvalidArgument);
+
+  StudySnapshot missing_trial = study.Snapshot();
+  missing_trial.trials.pop_back();
+  EXPECT_EQ(
+      Study::Restore(MixedSpace(), kMinimize, {}, SeededOptions(77), missing_trial).status().code(),
+      absl::StatusCode::kDataLoss);
+
+  StudySnapshot renumbered = study.Snapshot();
+  renumbered.trials[2].number = 7;
+  EXPECT_EQ(
+      Study::Restore(MixedSpace(), kMinimize, {}, SeededOptions(77), renumbered).status().code(),
+      absl::StatusCode::kDataLoss);
+
+  StudySnapshot short_sample = study.Snapshot();
+  short_sample.trials[1].x = Eigen::VectorXd::Zero(2);
+  EXPECT_EQ(
+      Study::Restore(MixedSpace(), kMinimize, {}, SeededOptions(77), short_sample).status().code(),
+      absl::StatusCode::kDataLoss);
+
+  StudyOptions bad = SeededOptions(77);
+  bad.staleness_limit = -1;
+  absl::StatusOr<Study> invalid =
+      Study::Restore(MixedSpace(), kMinimize, {}, bad, study.Snapshot());
+  EXPECT_EQ(invalid.status().code(), absl::StatusCode::kInvalidArgument);
+  EXPECT_THAT(std::string(invalid.status().message()), HasSubstr("staleness_limit"));
+}
+
+TEST(StudyCreateTest, InvalidOptionsNameTheField) {
+  StudyOptions options;
+  options.trial_budget = -1;
+  absl::StatusOr<Study> s = Study::Create(RealSpace(2, 0, 1), kMinimize, {}, options);
+  EXPECT_EQ(s.status().code(), absl::StatusCode::kInvalidArgument);
+  EXPECT_THAT(std::string(s.status().message()), HasSubstr("trial_budget"));
+
+  StudyOptions target;
+  target.target = search::Outcome::Grade(2);  // a grade for a scored study
+  absl::StatusOr<Study> t = Study::Create(RealSpace(2, 0, 1), kMinimize, {}, target);
+  EXPECT_EQ(t.status().code(), absl::StatusCode::kInvalidArgument);
+  EXPECT_THAT(std::string(t.status().message()), HasSubstr("target"));
+}
+
+}  // namespace
+}  // namespace ogive::study

@@ -1,0 +1,122 @@
+#include "storage/schema.h"
+
+#include <string>
+
+#include "absl/strings/str_cat.h"
+
+namespace ogive::storage::internal {
+namespace {
+
+// Version 1: studies, their trials, generation summaries, ask requests and the event log.
+//
+// Blobs are serialized ogive.v1 messages: studies.design a StudyDesign; studies.engine an
+// EngineState without its distribution, which is studies.distribution (a DistributionState, NULL
+// when the engine has none) so that a commit can replace one without rewriting the other;
+// trials.record a TrialRecord; generations.summary a GenerationSummary. trials.state, worker,
+// reported_at_ns and score copy fields of the record for queries (score is NULL unless the outcome
+// is a score). ask_requests.trials lists the trial numbers an ask returned, comma-separated
+// ("4,5,6").
+constexpr const char kVersion1[] = R"sql(
+CREATE TABLE studies (
+  id INTEGER PRIMARY KEY,
+  name TEXT NOT NULL UNIQUE,
+  design BLOB NOT NULL,
+  engine BLOB NOT NULL,
+  distribution BLOB,
+  create_request_id TEXT NOT NULL,
+  created_at_ns INTEGER NOT NULL
+);
+CREATE TABLE trials (
+  study_id INTEGER NOT NULL REFERENCES studies (id),
+  number INTEGER NOT NULL,
+  state INTEGER NOT NULL,
+  worker TEXT NOT NULL,
+  reported_at_ns INTEGER NOT NULL,
+  score REAL,
+  record BLOB NOT NULL,
+  PRIMARY KEY (study_id, number)
+);
+CREATE INDEX trials_by_state ON trials (study_id, state, number);
+CREATE TABLE generations (
+  study_id INTEGER NOT NULL REFERENCES studies (id),
+  generation INTEGER NOT NULL,
+  summary BLOB NOT NULL,
+  PRIMARY KEY (study_id, generation)
+);
+CREATE TABLE ask_requests (
+  study_id INTEGER NOT NULL REFERENCES studies (id),
+  request_id TEXT NOT NULL,
+  trials TEXT NOT NULL,
+  PRIMARY KEY (study_id, request_id)
+);
+CREATE TABLE events (
+  id INTEGER PRIMARY KEY,
+  study_id INTEGER NOT NULL REFERENCES studies (id),
+  at_ns INTEGER NOT NULL,
+  kind TEXT NOT NULL,
+  trial INTEGER NOT NULL,
+  worker TEXT NOT NULL,
+  message TEXT NOT NULL
+);
+CREATE INDEX events_by_study ON events (study_id, id);
+)sql";
+
+// Append new steps at the end (one line each, the SQL in a constant above). Never change a step
+// that has been released.
+constexpr const char* kMigrations[] = {
+    kVersion1,
+};
+
+absl::Status VersionMismatch(int64_t found, int64_t known, absl::string_view what) {
+  return absl::FailedPreconditionError(absl::StrCat("database schema version ", found, " is ", what,
+                                                    " than this build's version ", known));
+}
+
+}  // namespace
+
+absl::Span<const char* const> Migrations() { return kMigrations; }
+
+int64_t SchemaVersion() { return static_cast<int64_t>(Migrations().size()); }
+
+absl::Status Migrate(Connection& writer, absl::Span<const char* const> steps) {
+  const int64_t known = static_cast<int64_t>(steps.size());
+  // Read the version inside the write transaction, so that nothing can change it in between.
+  OGIVE_STORAGE_RETURN_IF_ERROR(writer.Execute("BEGIN IMMEDIATE", "begin migration"));
+  auto fail = [&writer](absl::Status status) {
+    if (writer.InTransaction()) (void)writer.Execute("ROLLBACK", "roll back migration");
+    return status;
+  };
+  absl::StatusOr<int64_t> found = writer.QueryInt64("PRAGMA user_version", "read user_version");
+  if (!found.ok()) return fail(found.status());
+  if (*found > known) return fail(VersionMismatch(*found, known, "newer"));
+  if (*found < 0) return fail(VersionMismatch(*found, known, "older (and negative)"));
+  for (int64_t v = *found; v < known; ++v) {
+    absl::Status applied =
+        writer.Execute(steps[static_cast<size_t>(v)],
+                       absl::StrCat("migrate schema from version ", v, " to ", v + 1));
+    if (!applied.ok()) return fail(applied);
+  }
+  if (*found < known) {
+    absl::Status set =
+        writer.Execute(absl::StrCat("PRAGMA user_version = ", known), "set user_version");
+    if (!set.ok()) return fail(set);
+  }
+  absl::Status committed = writer.Execute("COMMIT", "commit migration");
+  if (!committed.ok()) return fail(committed);
+  return absl::OkStatus();
+}
+
+absl::Status CheckVersion(Connection& reader, absl::Span<const char* const> steps) {
+  const int64_t known = static_cast<int64_t>(steps.size());
+  absl::StatusOr<int64_t> found = reader.QueryInt64("PRAGMA user_version", "read user_version");
+  if (!found.ok()) return found.status();
+  if (*found > known) return VersionMismatch(*found, known, "newer");
+  if (*found < known) {
+    return absl::FailedPreconditionError(absl::StrCat("database schema version ", *found,
+                                                      " is older than this build's version ", known,
+                                                      "; open it writable once to migrate it"));
+  }
+  return absl::OkStatus();
+}
+
+}  // namespace ogive::storage::internal

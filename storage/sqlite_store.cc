@@ -1,0 +1,990 @@
+#include "storage/sqlite_store.h"
+
+#include <sqlite3.h>
+
+#include <algorithm>
+#include <cmath>
+#include <filesystem>
+#include <system_error>
+#include <utility>
+
+#include "absl/strings/ascii.h"
+#include "absl/strings/numbers.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_join.h"
+#include "absl/strings/str_split.h"
+#include "absl/strings/string_view.h"
+#include "absl/synchronization/notification.h"
+#include "absl/time/clock.h"
+#include "absl/time/time.h"
+#include "google/protobuf/io/coded_stream.h"
+#include "google/protobuf/io/zero_copy_stream_impl_lite.h"
+#include "server/base/check.h"
+#include "storage/schema.h"
+#include "storage/sqlite_connection.h"
+
+namespace ogive::storage {
+
+using internal::Connection;
+using internal::ResetOnExit;
+using internal::Statement;
+
+namespace {
+
+// Steps a statement that returns no rows to its end and resets it.
+absl::Status RunOnce(Statement& statement) {
+  ResetOnExit reset(statement);
+  return statement.Run();
+}
+
+// Serialized with deterministic map order, so that equal messages are stored as equal bytes.
+bool Serialize(const google::protobuf::MessageLite& message, std::string& out) {
+  out.clear();
+  bool ok = false;
+  {
+    google::protobuf::io::StringOutputStream stream(&out);
+    google::protobuf::io::CodedOutputStream coded(&stream);
+    coded.SetSerializationDeterministic(true);
+    ok = message.SerializeToCodedStream(&coded) && !coded.HadError();
+  }  // the coded stream trims `out` when it goes
+  return ok;
+}
+
+bool Parse(absl::string_view bytes, google::protobuf::MessageLite& message) {
+  return message.ParseFromArray(bytes.data(), static_cast<int>(bytes.size()));
+}
+
+absl::Status ReadOnlyError(const std::string& path) {
+  return absl::FailedPreconditionError(
+      absl::StrCat("store on '", path, "' was opened read-only; it takes no writes"));
+}
+
+// Sets up one connection and reads every setting back: a setting SQLite silently ignored would
+// void the durability contract.
+absl::Status Configure(Connection& connection, bool writer, bool read_only_store) {
+  if (writer) {
+    absl::StatusOr<std::string> mode =
+        connection.QueryText("PRAGMA journal_mode = WAL", "set journal_mode");
+    if (!mode.ok()) return mode.status();
+    if (absl::AsciiStrToLower(*mode) != "wal") {
+      return absl::FailedPreconditionError(
+          absl::StrCat("journal_mode: asked for wal, the database reports '", *mode, "'"));
+    }
+  } else if (!read_only_store) {
+    absl::StatusOr<std::string> mode = connection.QueryText("PRAGMA journal_mode", "journal_mode");
+    if (!mode.ok()) return mode.status();
+    if (absl::AsciiStrToLower(*mode) != "wal") {
+      return absl::FailedPreconditionError(
+          absl::StrCat("journal_mode: a reader sees '", *mode, "', expected wal"));
+    }
+  }
+  OGIVE_STORAGE_RETURN_IF_ERROR(connection.Execute("PRAGMA synchronous = FULL", "set synchronous"));
+  absl::StatusOr<int64_t> synchronous =
+      connection.QueryInt64("PRAGMA synchronous", "read synchronous");
+  if (!synchronous.ok()) return synchronous.status();
+  if (*synchronous != 2) {
+    return absl::FailedPreconditionError(
+        absl::StrCat("synchronous: set to FULL (2), but the connection reports ", *synchronous));
+  }
+  OGIVE_STORAGE_RETURN_IF_ERROR(connection.Execute("PRAGMA foreign_keys = ON", "set foreign_keys"));
+  absl::StatusOr<int64_t> foreign_keys =
+      connection.QueryInt64("PRAGMA foreign_keys", "read foreign_keys");
+  if (!foreign_keys.ok()) return foreign_keys.status();
+  if (*foreign_keys != 1) {
+    return absl::FailedPreconditionError(
+        absl::StrCat("foreign_keys: set ON, but the connection reports ", *foreign_keys));
+  }
+  return absl::OkStatus();
+}
+
+absl::StatusOr<SqliteConnectionSettings> ReadSettings(Connection& connection, std::string role) {
+  SqliteConnectionSettings settings;
+  settings.role = std::move(role);
+  absl::StatusOr<std::string> mode = connection.QueryText("PRAGMA journal_mode", "journal_mode");
+  if (!mode.ok()) return mode.status();
+  settings.journal_mode = absl::AsciiStrToLower(*mode);
+  absl::StatusOr<int64_t> synchronous = connection.QueryInt64("PRAGMA synchronous", "synchronous");
+  if (!synchronous.ok()) return synchronous.status();
+  settings.synchronous = *synchronous;
+  absl::StatusOr<int64_t> foreign_keys =
+      connection.QueryInt64("PRAGMA foreign_keys", "foreign_keys");
+  if (!foreign_keys.ok()) return foreign_keys.status();
+  settings.foreign_keys = *foreign_keys == 1;
+  settings.read_only = connection.ReadOnly();
+  return settings;
+}
+
+// Prepares `sql` on `connection` into `*slot`.
+absl::Status PrepareInto(Connection& connection, const char* name, absl::string_view sql,
+                         Statement** slot) {
+  absl::StatusOr<Statement*> statement = connection.Prepare(name, sql);
+  if (!statement.ok()) return statement.status();
+  *slot = *statement;
+  return absl::OkStatus();
+}
+
+}  // namespace
+
+// ---- Options and statistics ----
+
+absl::Status SqliteStoreOptions::Validate() const {
+  if (max_batch_writes < 1) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("max_batch_writes: must be >= 1, got ", max_batch_writes));
+  }
+  if (busy_timeout_ms < 0) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("busy_timeout_ms: must be >= 0, got ", busy_timeout_ms));
+  }
+  if (reader_connections < 1) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("reader_connections: must be >= 1, got ", reader_connections));
+  }
+  return absl::OkStatus();
+}
+
+double SqliteStoreStats::commits_per_transaction() const {
+  if (transactions == 0) return 0.0;
+  return static_cast<double>(committed_writes) / static_cast<double>(transactions);
+}
+
+// ---- Internal types ----
+
+struct SqliteStore::WriterStatements {
+  Statement* begin = nullptr;
+  Statement* commit = nullptr;
+  Statement* rollback = nullptr;
+  Statement* savepoint = nullptr;
+  Statement* release = nullptr;
+  Statement* rollback_to = nullptr;
+  Statement* study_exists = nullptr;
+  Statement* study_by_name = nullptr;
+  Statement* insert_study = nullptr;
+  Statement* upsert_trial = nullptr;
+  Statement* update_engine = nullptr;
+  Statement* update_distribution = nullptr;
+  Statement* insert_generation = nullptr;
+  Statement* insert_ask_request = nullptr;
+  Statement* insert_event = nullptr;
+
+  absl::Status Prepare(Connection& c) {
+    const std::pair<const char*, std::pair<const char*, Statement**>> all[] = {
+        {"begin", {"BEGIN IMMEDIATE", &begin}},
+        {"commit", {"COMMIT", &commit}},
+        {"rollback", {"ROLLBACK", &rollback}},
+        {"savepoint", {"SAVEPOINT write", &savepoint}},
+        {"release savepoint", {"RELEASE write", &release}},
+        {"roll back to savepoint", {"ROLLBACK TO write", &rollback_to}},
+        {"find study", {"SELECT 1 FROM studies WHERE id = ?1", &study_exists}},
+        {"find study name", {"SELECT id FROM studies WHERE name = ?1", &study_by_name}},
+        {"insert study",
+         {"INSERT INTO studies (name, design, engine, distribution, create_request_id, "
+          "created_at_ns) VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
+          &insert_study}},
+        {"store trial",
+         {"INSERT INTO trials (study_id, number, state, worker, reported_at_ns, score, record) "
+          "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7) ON CONFLICT (study_id, number) DO UPDATE SET "
+          "state = excluded.state, worker = excluded.worker, "
+          "reported_at_ns = excluded.reported_at_ns, score = excluded.score, "
+          "record = excluded.record",
+          &upsert_trial}},
+        {"store engine", {"UPDATE studies SET engine = ?2 WHERE id = ?1", &update_engine}},
+        {"store distribution",
+         {"UPDATE studies SET distribution = ?2 WHERE id = ?1", &update_distribution}},
+        {"insert generation",
+         {"INSERT INTO generations (study_id, generation, summary) VALUES (?1, ?2, ?3)",
+          &insert_generation}},
+        {"insert ask request",
+         {"INSERT INTO ask_requests (study_id, request_id, trials) VALUES (?1, ?2, ?3)",
+          &insert_ask_request}},
+        {"insert event",
+         {"INSERT INTO events (study_id, at_ns, kind, trial, worker, message) "
+          "VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
+          &insert_event}},
+    };
+    for (const auto& [name, entry] : all) {
+      OGIVE_STORAGE_RETURN_IF_ERROR(PrepareInto(c, name, entry.first, entry.second));
+    }
+    return absl::OkStatus();
+  }
+};
+
+struct SqliteStore::Reader {
+  std::unique_ptr<Connection> connection;
+  int index = 0;
+  Statement* begin = nullptr;
+  Statement* commit = nullptr;
+  Statement* rollback = nullptr;
+  Statement* studies = nullptr;
+  Statement* study_exists = nullptr;
+  Statement* study_trials = nullptr;
+  Statement* study_ask_requests = nullptr;
+  Statement* trials_page = nullptr;
+  Statement* trials_page_in_state = nullptr;
+  Statement* generations = nullptr;
+  Statement* newest_events = nullptr;
+  Statement* integrity_check = nullptr;
+
+  absl::Status Prepare() {
+    Connection& c = *connection;
+    const std::pair<const char*, std::pair<const char*, Statement**>> all[] = {
+        {"begin read", {"BEGIN", &begin}},
+        {"end read", {"COMMIT", &commit}},
+        {"abandon read", {"ROLLBACK", &rollback}},
+        {"load studies",
+         {"SELECT id, name, design, engine, distribution, create_request_id FROM studies "
+          "ORDER BY id",
+          &studies}},
+        {"find study", {"SELECT 1 FROM studies WHERE id = ?1", &study_exists}},
+        {"load trials",
+         {"SELECT number, record FROM trials WHERE study_id = ?1 ORDER BY number", &study_trials}},
+        {"load ask requests",
+         {"SELECT request_id, trials FROM ask_requests WHERE study_id = ?1 ORDER BY request_id",
+          &study_ask_requests}},
+        {"list trials",
+         {"SELECT number, record FROM trials WHERE study_id = ?1 AND number > ?2 "
+          "ORDER BY number LIMIT ?3",
+          &trials_page}},
+        {"list trials in state",
+         {"SELECT number, record FROM trials WHERE study_id = ?1 AND state = ?4 "
+          "AND number > ?2 ORDER BY number LIMIT ?3",
+          &trials_page_in_state}},
+        {"list generations",
+         {"SELECT generation, summary FROM generations WHERE study_id = ?1 ORDER BY generation",
+          &generations}},
+        {"list events",
+         {"SELECT at_ns, kind, trial, worker, message FROM events WHERE study_id = ?1 "
+          "ORDER BY id DESC LIMIT ?2",
+          &newest_events}},
+        {"integrity check", {"PRAGMA integrity_check(20)", &integrity_check}},
+    };
+    for (const auto& [name, entry] : all) {
+      OGIVE_STORAGE_RETURN_IF_ERROR(PrepareInto(c, name, entry.first, entry.second));
+    }
+    return absl::OkStatus();
+  }
+
+  // NOT_FOUND unless the study exists. REQUIRES: inside a read transaction.
+  absl::Status CheckStudy(int64_t study_id) {
+    ResetOnExit reset(*study_exists);
+    study_exists->BindInt64(1, study_id);
+    absl::StatusOr<bool> row = study_exists->Step();
+    if (!row.ok()) return row.status();
+    if (!*row) return absl::NotFoundError(absl::StrCat("study id ", study_id, " does not exist"));
+    return absl::OkStatus();
+  }
+};
+
+struct SqliteStore::EncodedWrite {
+  struct Trial {
+    int64_t number = 0;
+    int state = 0;
+    std::string worker;
+    int64_t reported_at_ns = 0;
+    std::optional<double> score;  // finite
+    std::string record;
+  };
+  struct NewStudy {
+    std::string name;
+    std::string design;
+    std::string engine;
+    std::optional<std::string> distribution;
+    std::string request_id;
+    int64_t created_at_ns = 0;
+  };
+
+  std::optional<NewStudy> create;  // set for CreateStudy; everything below is for Commit
+  int64_t study_id = 0;
+  std::vector<Trial> trials;
+  std::optional<std::string> engine;
+  std::optional<std::string> distribution;
+  std::vector<std::pair<int64_t, std::string>> generations;
+  std::optional<std::pair<std::string, std::string>> ask_request;  // request id, "4,5,6"
+  std::vector<Event> events;
+};
+
+struct SqliteStore::Job {
+  enum class Kind { kWrite, kInspect };
+  Kind kind = Kind::kWrite;
+  const EncodedWrite* write = nullptr;               // kWrite
+  std::optional<SqliteConnectionSettings> settings;  // kInspect: out
+  int64_t created_id = 0;                            // kWrite of a new study: out
+  absl::Status status;                               // out
+  absl::Notification done;
+};
+
+// ---- Open and close ----
+
+SqliteStore::SqliteStore(std::string path, Options options)
+    : path_(std::move(path)), options_(options) {}
+
+absl::StatusOr<std::unique_ptr<SqliteStore>> SqliteStore::Open(const std::string& path,
+                                                               Options options) {
+  OGIVE_STORAGE_RETURN_IF_ERROR(options.Validate());
+  if (path.empty() || path == ":memory:" || path.rfind("file:", 0) == 0) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("path: must name a database file (WAL mode needs one), got '", path, "'"));
+  }
+  std::unique_ptr<SqliteStore> store(new SqliteStore(path, options));
+
+  if (!options.read_only) {
+    absl::StatusOr<std::unique_ptr<Connection>> writer =
+        Connection::Open(path, /*read_only=*/false, options.busy_timeout_ms);
+    if (!writer.ok()) return writer.status();
+    store->writer_ = *std::move(writer);
+    if (store->writer_->ReadOnly()) {
+      return absl::FailedPreconditionError(absl::StrCat(
+          "database file '", path, "' is not writable; open it with read_only to read it"));
+    }
+    OGIVE_STORAGE_RETURN_IF_ERROR(
+        Configure(*store->writer_, /*writer=*/true, /*read_only_store=*/false));
+    OGIVE_STORAGE_RETURN_IF_ERROR(internal::Migrate(*store->writer_, internal::Migrations()));
+    store->writer_statements_ = std::make_unique<WriterStatements>();
+    OGIVE_STORAGE_RETURN_IF_ERROR(store->writer_statements_->Prepare(*store->writer_));
+  }
+
+  // Readers open with SQLITE_OPEN_READONLY: they can neither write nor checkpoint, so the writer
+  // connection (with SQLite's default autocheckpoint) is the only one that ever changes the files.
+  for (int i = 0; i < options.reader_connections; ++i) {
+    auto reader = std::make_unique<Reader>();
+    reader->index = i;
+    absl::StatusOr<std::unique_ptr<Connection>> connection =
+        Connection::Open(path, /*read_only=*/true, options.busy_timeout_ms);
+    if (!connection.ok()) return connection.status();
+    reader->connection = *std::move(connection);
+    if (i == 0 && options.read_only) {
+      // Nothing may be migrated here, so the file must already be at this build's version.
+      OGIVE_STORAGE_RETURN_IF_ERROR(
+          internal::CheckVersion(*reader->connection, internal::Migrations()));
+    }
+    OGIVE_STORAGE_RETURN_IF_ERROR(
+        Configure(*reader->connection, /*writer=*/false, options.read_only));
+    OGIVE_STORAGE_RETURN_IF_ERROR(reader->Prepare());
+    store->readers_.push_back(std::move(reader));
+  }
+  {
+    absl::MutexLock lock(&store->readers_mu_);
+    for (const std::unique_ptr<Reader>& reader : store->readers_) {
+      store->free_readers_.push_back(reader.get());
+    }
+  }
+
+  if (!options.read_only) {
+    store->writer_thread_ = std::thread([s = store.get()] { s->WriterLoop(); });
+  }
+  return store;
+}
+
+SqliteStore::~SqliteStore() {
+  {
+    absl::MutexLock lock(&mu_);
+    stopping_ = true;
+  }
+  if (writer_thread_.joinable()) writer_thread_.join();
+  {
+    absl::MutexLock lock(&readers_mu_);
+    free_readers_.clear();
+  }
+  readers_.clear();
+  // The writer closes last: as the last connection it checkpoints the log into the database file.
+  writer_statements_.reset();
+  writer_.reset();
+}
+
+int64_t SqliteStore::schema_version() { return internal::SchemaVersion(); }
+
+SqliteStore::Stats SqliteStore::stats() const {
+  absl::MutexLock lock(&mu_);
+  Stats stats = stats_;
+  stats.queued_writes = static_cast<int64_t>(queue_.size());
+  return stats;
+}
+
+// ---- The writer ----
+
+void SqliteStore::Submit(Job& job) {
+  {
+    absl::MutexLock lock(&mu_);
+    if (stopping_) {
+      job.status = absl::FailedPreconditionError("the store is closing");
+      return;
+    }
+    queue_.push_back(&job);
+  }
+  job.done.WaitForNotification();
+}
+
+void SqliteStore::WriterLoop() {
+  std::vector<Job*> batch;
+  while (true) {
+    batch.clear();
+    {
+      absl::MutexLock lock(&mu_);
+      mu_.Await(absl::Condition(
+          +[](SqliteStore* store) ABSL_EXCLUSIVE_LOCKS_REQUIRED(store->mu_) {
+            return store->stopping_ || !store->queue_.empty();
+          },
+          this));
+      if (queue_.empty()) return;  // stopping, and every queued write has been done
+      const size_t n = std::min(queue_.size(), static_cast<size_t>(options_.max_batch_writes));
+      batch.assign(queue_.begin(), queue_.begin() + static_cast<std::ptrdiff_t>(n));
+      queue_.erase(queue_.begin(), queue_.begin() + static_cast<std::ptrdiff_t>(n));
+      stats_.active_writes = static_cast<int64_t>(n);
+    }
+    RunBatch(batch);
+  }
+}
+
+void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
+  WriterStatements& s = *writer_statements_;
+  std::vector<Job*> writes;
+  for (Job* job : batch) {
+    if (job->kind == Job::Kind::kInspect) {
+      absl::StatusOr<SqliteConnectionSettings> settings = ReadSettings(*writer_, "writer");
+      job->status = settings.status();
+      if (settings.ok()) job->settings = *std::move(settings);
+    } else {
+      writes.push_back(job);
+    }
+  }
+
+  int64_t committed = 0;
+  int64_t failed = 0;
+  bool transaction_failed = false;
+  if (!writes.empty()) {
+    absl::Status begun = RunOnce(*s.begin);
+    if (!begun.ok()) {
+      transaction_failed = true;
+      for (Job* job : writes) {
+        job->status = absl::UnavailableError(
+            absl::StrCat("could not start a write transaction: ", begun.message()));
+      }
+    }
+    // The error that ended the whole transaction early, if one did.
+    absl::Status lost;
+    for (size_t i = 0; !transaction_failed && i < writes.size(); ++i) {
+      Job& job = *writes[i];
+      absl::Status status = RunOnce(*s.savepoint);
+      if (status.ok()) {
+        status = Apply(*job.write, job.created_id);
+        if (status.ok()) {
+          status = RunOnce(*s.release);
+          if (!status.ok()) lost = status;
+        } else if (writer_->InTransaction()) {
+          // Undo this write alone; the others in the batch stay.
+          absl::Status undone = RunOnce(*s.rollback_to);
+          if (undone.ok()) undone = RunOnce(*s.release);
+          if (!undone.ok()) lost = undone;
+        } else {
+          // SQLite rolled the whole transaction back by itself (a disk full, an I/O error).
+          lost = status;
+        }
+      } else {
+        lost = status;
+      }
+      job.status = status;
+      if (!lost.ok()) transaction_failed = true;
+    }
+    absl::Status end;
+    if (!transaction_failed) {
+      end = RunOnce(*s.commit);
+      if (!end.ok()) transaction_failed = true;
+    } else {
+      end = lost;
+    }
+    if (transaction_failed && writer_->InTransaction()) (void)RunOnce(*s.rollback);
+    for (Job* job : writes) {
+      if (transaction_failed && job->status.ok()) {
+        job->status = absl::UnavailableError(absl::StrCat(
+            "the write transaction failed and nothing of this write was stored: ", end.message()));
+      }
+      if (job->status.ok()) {
+        ++committed;
+      } else {
+        ++failed;
+      }
+    }
+  }
+
+  {
+    absl::MutexLock lock(&mu_);
+    if (!writes.empty()) {
+      if (transaction_failed) {
+        ++stats_.failed_transactions;
+      } else {
+        ++stats_.transactions;
+        stats_.largest_batch = std::max(stats_.largest_batch, static_cast<int64_t>(writes.size()));
+      }
+    }
+    stats_.committed_writes += committed;
+    stats_.active_writes = 0;
+    stats_.failed_writes += failed;
+  }
+  for (Job* job : batch) job->done.Notify();  // after this the job may be gone
+}
+
+absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id) {
+  WriterStatements& s = *writer_statements_;
+  if (write.create.has_value()) {
+    const EncodedWrite::NewStudy& study = *write.create;
+    const absl::Status taken =
+        absl::AlreadyExistsError(absl::StrCat("study name '", study.name, "' is taken"));
+    {
+      ResetOnExit reset(*s.study_by_name);
+      s.study_by_name->BindText(1, study.name);
+      absl::StatusOr<bool> row = s.study_by_name->Step();
+      if (!row.ok()) return row.status();
+      if (*row) return taken;
+    }
+    Statement& insert = *s.insert_study;
+    ResetOnExit reset(insert);
+    insert.BindText(1, study.name);
+    insert.BindBlob(2, study.design);
+    insert.BindBlob(3, study.engine);
+    if (study.distribution.has_value()) {
+      insert.BindBlob(4, *study.distribution);
+    } else {
+      insert.BindNull(4);
+    }
+    insert.BindText(5, study.request_id);
+    insert.BindInt64(6, study.created_at_ns);
+    absl::Status status = insert.Run();
+    if (absl::IsAlreadyExists(status)) return taken;
+    if (!status.ok()) return status;
+    created_id = sqlite3_last_insert_rowid(writer_->db());
+    return absl::OkStatus();
+  }
+
+  const int64_t id = write.study_id;
+  {
+    ResetOnExit reset(*s.study_exists);
+    s.study_exists->BindInt64(1, id);
+    absl::StatusOr<bool> row = s.study_exists->Step();
+    if (!row.ok()) return row.status();
+    if (!*row) return absl::NotFoundError(absl::StrCat("study id ", id, " does not exist"));
+  }
+  for (const EncodedWrite::Trial& trial : write.trials) {
+    Statement& upsert = *s.upsert_trial;
+    ResetOnExit reset(upsert);
+    upsert.BindInt64(1, id);
+    upsert.BindInt64(2, trial.number);
+    upsert.BindInt64(3, trial.state);
+    upsert.BindText(4, trial.worker);
+    upsert.BindInt64(5, trial.reported_at_ns);
+    if (trial.score.has_value()) {
+      upsert.BindDouble(6, *trial.score);
+    } else {
+      upsert.BindNull(6);
+    }
+    upsert.BindBlob(7, trial.record);
+    OGIVE_STORAGE_RETURN_IF_ERROR(upsert.Run());
+  }
+  if (write.engine.has_value()) {
+    ResetOnExit reset(*s.update_engine);
+    s.update_engine->BindInt64(1, id);
+    s.update_engine->BindBlob(2, *write.engine);
+    OGIVE_STORAGE_RETURN_IF_ERROR(s.update_engine->Run());
+  }
+  if (write.distribution.has_value()) {
+    ResetOnExit reset(*s.update_distribution);
+    s.update_distribution->BindInt64(1, id);
+    s.update_distribution->BindBlob(2, *write.distribution);
+    OGIVE_STORAGE_RETURN_IF_ERROR(s.update_distribution->Run());
+  }
+  for (const auto& [generation, summary] : write.generations) {
+    ResetOnExit reset(*s.insert_generation);
+    s.insert_generation->BindInt64(1, id);
+    s.insert_generation->BindInt64(2, generation);
+    s.insert_generation->BindBlob(3, summary);
+    absl::Status status = s.insert_generation->Run();
+    if (absl::IsAlreadyExists(status)) {
+      return absl::AlreadyExistsError(
+          absl::StrCat("study id ", id, ": generation ", generation, " is already stored"));
+    }
+    OGIVE_STORAGE_RETURN_IF_ERROR(status);
+  }
+  if (write.ask_request.has_value()) {
+    ResetOnExit reset(*s.insert_ask_request);
+    s.insert_ask_request->BindInt64(1, id);
+    s.insert_ask_request->BindText(2, write.ask_request->first);
+    s.insert_ask_request->BindText(3, write.ask_request->second);
+    absl::Status status = s.insert_ask_request->Run();
+    if (absl::IsAlreadyExists(status)) {
+      return absl::AlreadyExistsError(absl::StrCat(
+          "study id ", id, ": ask request '", write.ask_request->first, "' is already stored"));
+    }
+    OGIVE_STORAGE_RETURN_IF_ERROR(status);
+  }
+  for (const Event& event : write.events) {
+    Statement& insert = *s.insert_event;
+    ResetOnExit reset(insert);
+    insert.BindInt64(1, id);
+    insert.BindInt64(2, event.at_ns);
+    insert.BindText(3, event.kind);
+    insert.BindInt64(4, event.trial);
+    insert.BindText(5, event.worker);
+    insert.BindText(6, event.message);
+    OGIVE_STORAGE_RETURN_IF_ERROR(insert.Run());
+  }
+  return absl::OkStatus();
+}
+
+// ---- Writes ----
+
+absl::StatusOr<int64_t> SqliteStore::CreateStudy(const std::string& name,
+                                                 const v1::StudyDesign& design,
+                                                 const v1::EngineState& engine,
+                                                 const std::string& request_id) {
+  if (options_.read_only) return ReadOnlyError(path_);
+  if (name.empty()) return absl::InvalidArgumentError("name: must not be empty");
+  EncodedWrite write;
+  EncodedWrite::NewStudy& study = write.create.emplace();
+  study.name = name;
+  study.request_id = request_id;
+  study.created_at_ns = absl::ToUnixNanos(absl::Now());
+  if (!Serialize(design, study.design)) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("study '", name, "': design does not serialize"));
+  }
+  v1::EngineState without_distribution = engine;
+  without_distribution.clear_distribution();
+  if (!Serialize(without_distribution, study.engine)) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("study '", name, "': engine does not serialize"));
+  }
+  if (engine.has_distribution()) {
+    if (!Serialize(engine.distribution(), study.distribution.emplace())) {
+      return absl::InvalidArgumentError(
+          absl::StrCat("study '", name, "': distribution does not serialize"));
+    }
+  }
+  Job job;
+  job.write = &write;
+  Submit(job);
+  if (!job.status.ok()) return job.status;
+  return job.created_id;
+}
+
+absl::Status SqliteStore::Commit(StudyWrite write) {
+  if (options_.read_only) return ReadOnlyError(path_);
+  EncodedWrite encoded;
+  encoded.study_id = write.study_id;
+  // Check and serialize here, on the caller's thread, so that the writer thread only binds.
+  absl::Status checked = [&]() -> absl::Status {
+    const std::string where = absl::StrCat("study id ", write.study_id, ": ");
+    encoded.trials.reserve(write.trials.size());
+    for (size_t i = 0; i < write.trials.size(); ++i) {
+      const v1::TrialRecord& record = write.trials[i];
+      if (record.number() < 1) {
+        return absl::InvalidArgumentError(
+            absl::StrCat(where, "trials[", i, "].number: must be >= 1, got ", record.number()));
+      }
+      // SQLite would store NaN as NULL without a word; refuse every non-finite score, in the
+      // column or not.
+      if (!std::isfinite(record.score())) {
+        return absl::InvalidArgumentError(absl::StrCat(where, "trials[", i, "].score (trial ",
+                                                       record.number(), "): must be finite, got ",
+                                                       record.score()));
+      }
+      EncodedWrite::Trial& trial = encoded.trials.emplace_back();
+      trial.number = record.number();
+      trial.state = static_cast<int>(record.state());
+      trial.worker = record.worker();
+      trial.reported_at_ns = record.reported_at_ns();
+      if (record.outcome_kind() == v1::OUTCOME_KIND_SCORE) trial.score = record.score();
+      if (!Serialize(record, trial.record)) {
+        return absl::InvalidArgumentError(
+            absl::StrCat(where, "trial ", record.number(), ": record does not serialize"));
+      }
+    }
+    if (write.engine.has_value()) {
+      write.engine->clear_distribution();  // stored on its own; see StudyWrite
+      if (!Serialize(*write.engine, encoded.engine.emplace())) {
+        return absl::InvalidArgumentError(absl::StrCat(where, "engine does not serialize"));
+      }
+    }
+    if (write.distribution.has_value() &&
+        !Serialize(*write.distribution, encoded.distribution.emplace())) {
+      return absl::InvalidArgumentError(absl::StrCat(where, "distribution does not serialize"));
+    }
+    for (const v1::GenerationSummary& summary : write.generations) {
+      auto& [generation, bytes] = encoded.generations.emplace_back();
+      generation = summary.generation();
+      if (!Serialize(summary, bytes)) {
+        return absl::InvalidArgumentError(
+            absl::StrCat(where, "generation ", generation, ": summary does not serialize"));
+      }
+    }
+    if (write.ask_request.has_value()) {
+      if (write.ask_request->first.empty()) {
+        return absl::InvalidArgumentError(absl::StrCat(where, "ask_request: empty request id"));
+      }
+      encoded.ask_request.emplace(std::move(write.ask_request->first),
+                                  absl::StrJoin(write.ask_request->second, ","));
+    }
+    encoded.events = std::move(write.events);
+    return absl::OkStatus();
+  }();
+  if (!checked.ok()) {
+    absl::MutexLock lock(&mu_);
+    ++stats_.failed_writes;
+    return checked;
+  }
+  Job job;
+  job.write = &encoded;
+  Submit(job);
+  return job.status;
+}
+
+// ---- Reads ----
+
+absl::Status SqliteStore::ReadTransaction(absl::FunctionRef<absl::Status(Reader&)> read) {
+  Reader* reader = nullptr;
+  {
+    absl::MutexLock lock(&readers_mu_);
+    readers_mu_.Await(absl::Condition(
+        +[](std::vector<Reader*>* free) { return !free->empty(); }, &free_readers_));
+    reader = free_readers_.back();
+    free_readers_.pop_back();
+  }
+  absl::Status status = RunOnce(*reader->begin);
+  if (status.ok()) {
+    status = read(*reader);
+    if (status.ok()) status = RunOnce(*reader->commit);
+    if (reader->connection->InTransaction()) (void)RunOnce(*reader->rollback);
+  }
+  {
+    absl::MutexLock lock(&readers_mu_);
+    free_readers_.push_back(reader);
+  }
+  return status;
+}
+
+absl::StatusOr<std::vector<StoredStudy>> SqliteStore::LoadAll() {
+  std::vector<StoredStudy> studies;
+  absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
+    studies.clear();
+    {
+      ResetOnExit reset(*r.studies);
+      while (true) {
+        absl::StatusOr<bool> row = r.studies->Step();
+        if (!row.ok()) return row.status();
+        if (!*row) break;
+        StoredStudy& study = studies.emplace_back();
+        study.id = r.studies->ColumnInt64(0);
+        study.name = std::string(r.studies->ColumnText(1));
+        const std::string where = absl::StrCat("study '", study.name, "' (id ", study.id, "): ");
+        if (!Parse(r.studies->ColumnBlob(2), study.design)) {
+          return absl::DataLossError(absl::StrCat(where, "the stored design does not parse"));
+        }
+        v1::EngineState& engine = *study.snapshot.mutable_engine();
+        if (!Parse(r.studies->ColumnBlob(3), engine)) {
+          return absl::DataLossError(absl::StrCat(where, "the stored engine state does not parse"));
+        }
+        if (!r.studies->ColumnIsNull(4) &&
+            !Parse(r.studies->ColumnBlob(4), *engine.mutable_distribution())) {
+          return absl::DataLossError(absl::StrCat(where, "the stored distribution does not parse"));
+        }
+        study.create_request_id = std::string(r.studies->ColumnText(5));
+      }
+    }
+    for (StoredStudy& study : studies) {
+      const std::string where = absl::StrCat("study '", study.name, "' (id ", study.id, "): ");
+      {
+        ResetOnExit reset(*r.study_trials);
+        r.study_trials->BindInt64(1, study.id);
+        while (true) {
+          absl::StatusOr<bool> row = r.study_trials->Step();
+          if (!row.ok()) return row.status();
+          if (!*row) break;
+          const int64_t number = r.study_trials->ColumnInt64(0);
+          v1::TrialRecord& record = *study.snapshot.add_trials();
+          if (!Parse(r.study_trials->ColumnBlob(1), record)) {
+            return absl::DataLossError(
+                absl::StrCat(where, "the record of trial ", number, " does not parse"));
+          }
+          if (record.number() != number) {
+            return absl::DataLossError(absl::StrCat(where, "the row of trial ", number,
+                                                    " holds the record of trial ",
+                                                    record.number()));
+          }
+        }
+      }
+      ResetOnExit reset(*r.study_ask_requests);
+      r.study_ask_requests->BindInt64(1, study.id);
+      while (true) {
+        absl::StatusOr<bool> row = r.study_ask_requests->Step();
+        if (!row.ok()) return row.status();
+        if (!*row) break;
+        auto& [request_id, trials] = study.ask_requests.emplace_back();
+        request_id = std::string(r.study_ask_requests->ColumnText(0));
+        const absl::string_view list = r.study_ask_requests->ColumnText(1);
+        if (list.empty()) continue;
+        for (absl::string_view item : absl::StrSplit(list, ',')) {
+          int64_t number = 0;
+          if (!absl::SimpleAtoi(item, &number)) {
+            return absl::DataLossError(
+                absl::StrCat(where, "ask request '", request_id, "': bad trial list '", list, "'"));
+          }
+          trials.push_back(number);
+        }
+      }
+    }
+    return absl::OkStatus();
+  });
+  if (!status.ok()) return status;
+  return studies;
+}
+
+absl::StatusOr<TrialPage> SqliteStore::ListTrials(int64_t study_id,
+                                                  std::optional<v1::TrialState> state,
+                                                  int64_t after_number, int limit) {
+  if (limit < 1)
+    return absl::InvalidArgumentError(absl::StrCat("limit: must be >= 1, got ", limit));
+  if (after_number < 0) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("after_number: must be >= 0, got ", after_number));
+  }
+  TrialPage page;
+  absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
+    page = TrialPage();
+    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckStudy(study_id));
+    Statement& query = state.has_value() ? *r.trials_page_in_state : *r.trials_page;
+    ResetOnExit reset(query);
+    query.BindInt64(1, study_id);
+    query.BindInt64(2, after_number);
+    query.BindInt64(3, static_cast<int64_t>(limit) + 1);  // one more tells whether a page follows
+    if (state.has_value()) query.BindInt64(4, static_cast<int64_t>(*state));
+    while (true) {
+      absl::StatusOr<bool> row = query.Step();
+      if (!row.ok()) return row.status();
+      if (!*row) break;
+      const int64_t number = query.ColumnInt64(0);
+      if (static_cast<int64_t>(page.trials.size()) == limit) {
+        page.next_after = page.trials.back().number();
+        break;
+      }
+      if (!Parse(query.ColumnBlob(1), page.trials.emplace_back())) {
+        return absl::DataLossError(absl::StrCat("study id ", study_id, ": the record of trial ",
+                                                number, " does not parse"));
+      }
+    }
+    return absl::OkStatus();
+  });
+  if (!status.ok()) return status;
+  return page;
+}
+
+absl::StatusOr<std::vector<v1::GenerationSummary>> SqliteStore::ListGenerations(int64_t study_id) {
+  std::vector<v1::GenerationSummary> generations;
+  absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
+    generations.clear();
+    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckStudy(study_id));
+    ResetOnExit reset(*r.generations);
+    r.generations->BindInt64(1, study_id);
+    while (true) {
+      absl::StatusOr<bool> row = r.generations->Step();
+      if (!row.ok()) return row.status();
+      if (!*row) break;
+      if (!Parse(r.generations->ColumnBlob(1), generations.emplace_back())) {
+        return absl::DataLossError(absl::StrCat("study id ", study_id,
+                                                ": the summary of generation ",
+                                                r.generations->ColumnInt64(0), " does not parse"));
+      }
+    }
+    return absl::OkStatus();
+  });
+  if (!status.ok()) return status;
+  return generations;
+}
+
+absl::StatusOr<std::vector<Event>> SqliteStore::ListEvents(int64_t study_id, int limit) {
+  if (limit < 1)
+    return absl::InvalidArgumentError(absl::StrCat("limit: must be >= 1, got ", limit));
+  std::vector<Event> events;
+  absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
+    events.clear();
+    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckStudy(study_id));
+    Statement& query = *r.newest_events;
+    ResetOnExit reset(query);
+    query.BindInt64(1, study_id);
+    query.BindInt64(2, limit);
+    while (true) {
+      absl::StatusOr<bool> row = query.Step();
+      if (!row.ok()) return row.status();
+      if (!*row) break;
+      Event& event = events.emplace_back();
+      event.at_ns = query.ColumnInt64(0);
+      event.kind = std::string(query.ColumnText(1));
+      event.trial = query.ColumnInt64(2);
+      event.worker = std::string(query.ColumnText(3));
+      event.message = std::string(query.ColumnText(4));
+    }
+    std::reverse(events.begin(), events.end());  // newest first from SQL, oldest first out
+    return absl::OkStatus();
+  });
+  if (!status.ok()) return status;
+  return events;
+}
+
+absl::StatusOr<int64_t> SqliteStore::SizeBytes() {
+  int64_t total = 0;
+  for (const std::string& file : {path_, path_ + "-wal"}) {
+    std::error_code error;
+    const uintmax_t size = std::filesystem::file_size(file, error);
+    if (error) {
+      if (file != path_ && error == std::errc::no_such_file_or_directory) continue;
+      return absl::UnavailableError(absl::StrCat("size of '", file, "': ", error.message()));
+    }
+    total += static_cast<int64_t>(size);
+  }
+  return total;
+}
+
+// ---- Diagnostics ----
+
+absl::Status SqliteStore::CheckIntegrity() {
+  std::vector<std::string> findings;
+  absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
+    findings.clear();
+    ResetOnExit reset(*r.integrity_check);
+    while (true) {
+      absl::StatusOr<bool> row = r.integrity_check->Step();
+      if (!row.ok()) return row.status();
+      if (!*row) break;
+      findings.emplace_back(r.integrity_check->ColumnText(0));
+    }
+    return absl::OkStatus();
+  });
+  if (!status.ok()) return status;
+  if (findings.size() == 1 && findings[0] == "ok") return absl::OkStatus();
+  return absl::DataLossError(
+      absl::StrCat("integrity check of '", path_, "' failed: ", absl::StrJoin(findings, "; ")));
+}
+
+absl::StatusOr<std::vector<SqliteConnectionSettings>> SqliteStore::InspectConnections() {
+  std::vector<SqliteConnectionSettings> all;
+  if (!options_.read_only) {
+    Job job;
+    job.kind = Job::Kind::kInspect;
+    Submit(job);
+    if (!job.status.ok()) return job.status;
+    all.push_back(*std::move(job.settings));
+  }
+  // Take every reader at once: a diagnostic may hold up other reads for a moment.
+  absl::MutexLock lock(&readers_mu_);
+  readers_mu_.Await(absl::Condition(
+      +[](SqliteStore* store) ABSL_EXCLUSIVE_LOCKS_REQUIRED(store->readers_mu_) {
+        return store->free_readers_.size() == store->readers_.size();
+      },
+      this));
+  for (const std::unique_ptr<Reader>& reader : readers_) {
+    absl::StatusOr<SqliteConnectionSettings> settings =
+        ReadSettings(*reader->connection, absl::StrCat("reader ", reader->index));
+    if (!settings.ok()) return settings.status();
+    all.push_back(*std::move(settings));
+  }
+  return all;
+}
+
+}  // namespace ogive::storage

@@ -1,0 +1,1120 @@
+// Tests of SqliteStore on temporary files: round trips, replacement and appends, pagination, group
+// commit, error isolation inside a batch, durability settings, migrations, damaged and read-only
+// files. A separate raw sqlite3 connection inspects the file, or holds its write lock to make the
+// writer wait (it never writes while a store is open on the file).
+#include "storage/sqlite_store.h"
+
+#include <grp.h>
+#include <sqlite3.h>
+#include <stdlib.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <fstream>
+#include <functional>
+#include <limits>
+#include <map>
+#include <memory>
+#include <string>
+#include <thread>
+#include <utility>
+#include <vector>
+
+#include "absl/status/status.h"
+#include "absl/status/statusor.h"
+#include "absl/strings/str_cat.h"
+#include "absl/time/clock.h"
+#include "absl/time/time.h"
+#include "gmock/gmock.h"
+#include "google/protobuf/io/coded_stream.h"
+#include "google/protobuf/io/zero_copy_stream_impl_lite.h"
+#include "gtest/gtest.h"
+#include "storage/schema.h"
+#include "storage/sqlite_connection.h"
+
+namespace ogive::storage {
+namespace {
+
+using ::testing::ElementsAre;
+using ::testing::HasSubstr;
+using ::testing::Pair;
+using ::testing::SizeIs;
+
+const absl::Status& StatusOf(const absl::Status& status) { return status; }
+template <typename T>
+const absl::Status& StatusOf(const absl::StatusOr<T>& status_or) {
+  return status_or.status();
+}
+
+// Matches an absl::Status or absl::StatusOr whose code is `code` and whose message matches.
+MATCHER_P2(StatusIs, code, message_matcher, "") {
+  const absl::Status& status = StatusOf(arg);
+  *result_listener << "status is " << status;
+  return status.code() == code &&
+         testing::ExplainMatchResult(message_matcher, std::string(status.message()),
+                                     result_listener);
+}
+
+MATCHER(IsOk, "") {
+  const absl::Status& status = StatusOf(arg);
+  *result_listener << "status is " << status;
+  return status.ok();
+}
+
+// The bytes of a message with deterministic map order (the design holds a map).
+std::string Bytes(const google::protobuf::MessageLite& message) {
+  std::string out;
+  {
+    google::protobuf::io::StringOutputStream stream(&out);
+    google::protobuf::io::CodedOutputStream coded(&stream);
+    coded.SetSerializationDeterministic(true);
+    message.SerializeToCodedStream(&coded);
+  }
+  return out;
+}
+
+v1::StudyDesign MakeDesign(const std::string& name) {
+  v1::StudyDesign design;
+  design.set_name(name);
+  v1::Parameter* temp = design.add_parameters();
+  temp->set_name("temp");
+  temp->set_unit("degC");
+  temp->mutable_real()->set_low(20.0);
+  temp->mutable_real()->set_high(80.0);
+  v1::Parameter* passes = design.add_parameters();
+  passes->set_name("passes");
+  passes->mutable_integer()->set_low(1);
+  passes->mutable_integer()->set_high(9);
+  v1::Parameter* glaze = design.add_parameters();
+  glaze->set_name("glaze");
+  glaze->mutable_categorical()->add_options("matte");
+  glaze->mutable_categorical()->add_options("gloss");
+  design.mutable_objective()->set_direction(v1::LOWER_IS_BETTER);
+  design.set_seed(20240611);
+  (*design.mutable_start()->mutable_values())["temp"].set_real(55.5);
+  (*design.mutable_start()->mutable_values())["passes"].set_integer(3);
+  (*design.mutable_start()->mutable_values())["glaze"].set_categorical("gloss");
+  return design;
+}
+
+v1::DistributionState MakeDistribution(double mean0) {
+  v1::DistributionState distribution;
+  v1::GaussianState* gaussian = distribution.mutable_gaussian();
+  gaussian->set_dimension(2);
+  gaussian->add_mean(mean0);
+  gaussian->add_mean(-0.25);
+  gaussian->set_sigma(0.3);
+  for (double c : {1.0, 0.1, 0.1, 0.5}) gaussian->add_covariance(c);
+  distribution.mutable_categorical()->add_parameters()->add_probabilities(0.5);
+  distribution.set_population_size(6);
+  return distribution;
+}
+
+v1::EngineState MakeEngine(double mean0) {
+  v1::EngineState engine;
+  engine.set_phase(v1::STUDY_PHASE_OPEN);
+  for (uint64_t word : {11u, 22u, 33u, 44u}) engine.add_random_state(word);
+  engine.set_next_trial(1);
+  engine.set_sigma0(0.3);
+  engine.set_base_population(6);
+  *engine.mutable_distribution() = MakeDistribution(mean0);
+  return engine;
+}
+
+v1::TrialRecord MakeTrial(int64_t number, v1::TrialState state, double score = 0.0) {
+  v1::TrialRecord trial;
+  trial.set_number(number);
+  trial.set_generation(number / 7);
+  trial.add_internal(0.125 * static_cast<double>(number));
+  trial.add_internal(-0.5);
+  trial.set_state(state);
+  trial.set_worker(absl::StrCat("worker-", number % 3));
+  trial.set_leased_at_ns(1'000'000 + number);
+  trial.set_lease_deadline_ns(2'000'000 + number);
+  trial.set_consumed_by(-1);
+  if (state == v1::TRIAL_STATE_REPORTED) {
+    trial.set_outcome_kind(v1::OUTCOME_KIND_SCORE);
+    trial.set_score(score);
+    trial.set_reported_at_ns(3'000'000 + number);
+    trial.set_use(v1::OUTCOME_USE_PENDING);
+  }
+  return trial;
+}
+
+v1::GenerationSummary MakeSummary(int64_t generation) {
+  v1::GenerationSummary summary;
+  summary.set_generation(generation);
+  summary.set_population_size(6);
+  summary.add_cohort(generation * 10);
+  summary.add_mean(0.5 / static_cast<double>(generation));
+  summary.set_sigma(0.3 / static_cast<double>(generation));
+  return summary;
+}
+
+Event MakeEvent(const std::string& kind, int64_t trial, const std::string& message) {
+  Event event;
+  event.kind = kind;
+  event.trial = trial;
+  event.worker = "worker-1";
+  event.message = message;
+  event.at_ns = 5'000'000 + trial;
+  return event;
+}
+
+// Polls `condition` every millisecond; false if it is still false after `timeout`.
+bool WaitFor(const std::function<bool()>& condition, absl::Duration timeout = absl::Seconds(10)) {
+  const absl::Time deadline = absl::Now() + timeout;
+  while (!condition()) {
+    if (absl::Now() > deadline) return false;
+    absl::SleepFor(absl::Milliseconds(1));
+  }
+  return true;
+}
+
+// A raw connection to the database file, for checks from outside the store. It never checkpoints
+// on close, and it writes only while no store is open on the file.
+class RawDb {
+ public:
+  explicit RawDb(const std::string& path) {
+    EXPECT_EQ(sqlite3_open_v2(path.c_str(), &db_, SQLITE_OPEN_READWRITE, nullptr), SQLITE_OK);
+    sqlite3_db_config(db_, SQLITE_DBCONFIG_NO_CKPT_ON_CLOSE, 1, nullptr);
+    sqlite3_busy_timeout(db_, 5000);
+  }
+  ~RawDb() { sqlite3_close_v2(db_); }
+  RawDb(const RawDb&) = delete;
+  RawDb& operator=(const RawDb&) = delete;
+
+  // The SQLite result code of running `sql`.
+  int Exec(const std::string& sql) {
+    return sqlite3_exec(db_, sql.c_str(), nullptr, nullptr, nullptr);
+  }
+
+  // The first column of the first row of `sql`, or "<error ...>".
+  std::string Text(const std::string& sql) {
+    sqlite3_stmt* stmt = nullptr;
+    if (sqlite3_prepare_v2(db_, sql.c_str(), -1, &stmt, nullptr) != SQLITE_OK) {
+      return absl::StrCat("<error ", sqlite3_errmsg(db_), ">");
+    }
+    std::string text = "<no row>";
+    if (sqlite3_step(stmt) == SQLITE_ROW) {
+      const unsigned char* value = sqlite3_column_text(stmt, 0);
+      text = value == nullptr ? "<null>" : reinterpret_cast<const char*>(value);
+    }
+    sqlite3_finalize(stmt);
+    return text;
+  }
+
+ private:
+  sqlite3* db_ = nullptr;
+};
+
+class SqliteStoreTest : public testing::Test {
+ protected:
+  void SetUp() override {
+    std::string pattern = testing::TempDir() + "ogive_storage_XXXXXX";
+    ASSERT_NE(mkdtemp(pattern.data()), nullptr);
+    dir_ = pattern;
+    path_ = dir_ + "/ogive.db";
+  }
+
+  void TearDown() override {
+    std::error_code error;
+    std::filesystem::remove_all(dir_, error);
+  }
+
+  std::unique_ptr<SqliteStore> OpenStore(SqliteStore::Options options = SqliteStore::Options()) {
+    absl::StatusOr<std::unique_ptr<SqliteStore>> store = SqliteStore::Open(path_, options);
+    EXPECT_THAT(store, IsOk());
+    return store.ok() ? *std::move(store) : nullptr;
+  }
+
+  // Creates study `name` with MakeDesign/MakeEngine and returns its id (0 on failure).
+  static int64_t Create(SqliteStore& store, const std::string& name) {
+    absl::StatusOr<int64_t> id =
+        store.CreateStudy(name, MakeDesign(name), MakeEngine(0.5), "create-" + name);
+    EXPECT_THAT(id, IsOk());
+    return id.ok() ? *id : 0;
+  }
+
+  std::string dir_;
+  std::string path_;
+};
+
+TEST_F(SqliteStoreTest, CreateAndLoadRoundTripsEveryByte) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const v1::StudyDesign design = MakeDesign("alpha");
+  const v1::EngineState created_engine = MakeEngine(0.5);
+  absl::StatusOr<int64_t> alpha = store->CreateStudy("alpha", design, created_engine, "req-1");
+  ASSERT_THAT(alpha, IsOk());
+  v1::EngineState bare_engine = MakeEngine(0.0);
+  bare_engine.clear_distribution();
+  absl::StatusOr<int64_t> beta =
+      store->CreateStudy("beta", MakeDesign("beta"), bare_engine, "req-2");
+  ASSERT_THAT(beta, IsOk());
+  EXPECT_GT(*beta, *alpha);
+
+  // Trials out of number order; the engine carries a distribution that must be ignored, and the
+  // distribution comes separately.
+  StudyWrite write;
+  write.study_id = *alpha;
+  write.trials = {MakeTrial(3, v1::TRIAL_STATE_VOIDED), MakeTrial(1, v1::TRIAL_STATE_LEASED),
+                  MakeTrial(2, v1::TRIAL_STATE_REPORTED, 1.5)};
+  v1::EngineState next_engine = MakeEngine(9.0);  // its distribution is ignored
+  next_engine.set_next_trial(4);
+  next_engine.set_generation(1);
+  write.engine = next_engine;
+  write.distribution = MakeDistribution(0.75);
+  write.generations = {MakeSummary(1)};
+  write.ask_request = std::make_pair(std::string("ask-7"), std::vector<int64_t>{1, 2, 3});
+  write.events = {MakeEvent("ask", 1, "asked for 3")};
+  ASSERT_THAT(store->Commit(write), IsOk());
+
+  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  ASSERT_THAT(loaded, IsOk());
+  ASSERT_THAT(*loaded, SizeIs(2));
+  const StoredStudy& a = (*loaded)[0];
+  EXPECT_EQ(a.id, *alpha);
+  EXPECT_EQ(a.name, "alpha");
+  EXPECT_EQ(a.create_request_id, "req-1");
+  EXPECT_EQ(Bytes(a.design), Bytes(design));
+  v1::EngineState expected_engine = next_engine;
+  *expected_engine.mutable_distribution() = MakeDistribution(0.75);
+  EXPECT_EQ(Bytes(a.snapshot.engine()), Bytes(expected_engine));
+  ASSERT_EQ(a.snapshot.trials_size(), 3);
+  for (int i = 0; i < 3; ++i) {
+    EXPECT_EQ(a.snapshot.trials(i).number(), i + 1);
+  }
+  EXPECT_EQ(Bytes(a.snapshot.trials(0)), Bytes(MakeTrial(1, v1::TRIAL_STATE_LEASED)));
+  EXPECT_EQ(Bytes(a.snapshot.trials(1)), Bytes(MakeTrial(2, v1::TRIAL_STATE_REPORTED, 1.5)));
+  EXPECT_EQ(Bytes(a.snapshot.trials(2)), Bytes(MakeTrial(3, v1::TRIAL_STATE_VOIDED)));
+  EXPECT_THAT(a.ask_requests, ElementsAre(Pair("ask-7", ElementsAre(1, 2, 3))));
+
+  // The study without commits keeps its initial engine; without a distribution it has none.
+  const StoredStudy& b = (*loaded)[1];
+  EXPECT_EQ(b.name, "beta");
+  EXPECT_FALSE(b.snapshot.engine().has_distribution());
+  EXPECT_EQ(Bytes(b.snapshot.engine()), Bytes(bare_engine));
+  EXPECT_EQ(b.snapshot.trials_size(), 0);
+  EXPECT_TRUE(b.ask_requests.empty());
+}
+
+TEST_F(SqliteStoreTest, CreatedEngineKeepsItsDistribution) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  ASSERT_THAT(loaded, IsOk());
+  ASSERT_THAT(*loaded, SizeIs(1));
+  EXPECT_EQ((*loaded)[0].id, id);
+  EXPECT_EQ(Bytes((*loaded)[0].snapshot.engine()), Bytes(MakeEngine(0.5)));
+}
+
+TEST_F(SqliteStoreTest, CommitReplacesTrialsByNumberAndAppendsGenerationsAndEvents) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+
+  StudyWrite ask;
+  ask.study_id = id;
+  ask.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED), MakeTrial(2, v1::TRIAL_STATE_LEASED)};
+  ask.generations = {MakeSummary(1)};
+  ask.events = {MakeEvent("ask", 1, "first"), MakeEvent("ask", 2, "second")};
+  ASSERT_THAT(store->Commit(ask), IsOk());
+
+  StudyWrite tell;
+  tell.study_id = id;
+  tell.trials = {MakeTrial(1, v1::TRIAL_STATE_REPORTED, -2.25)};
+  tell.engine = MakeEngine(7.0);  // distribution inside is ignored: the stored one stays
+  tell.generations = {MakeSummary(2), MakeSummary(3)};
+  tell.events = {MakeEvent("tell", 1, "third")};
+  ASSERT_THAT(store->Commit(tell), IsOk());
+
+  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  ASSERT_THAT(loaded, IsOk());
+  ASSERT_THAT(*loaded, SizeIs(1));
+  const v1::StudySnapshot& snapshot = (*loaded)[0].snapshot;
+  ASSERT_EQ(snapshot.trials_size(), 2);
+  EXPECT_EQ(Bytes(snapshot.trials(0)), Bytes(MakeTrial(1, v1::TRIAL_STATE_REPORTED, -2.25)));
+  EXPECT_EQ(Bytes(snapshot.trials(1)), Bytes(MakeTrial(2, v1::TRIAL_STATE_LEASED)));
+  EXPECT_EQ(Bytes(snapshot.engine()), Bytes(MakeEngine(0.5)))
+      << "the engine's own distribution field must not replace the stored distribution";
+
+  absl::StatusOr<TrialPage> reported =
+      store->ListTrials(id, v1::TRIAL_STATE_REPORTED, /*after_number=*/0, /*limit=*/10);
+  ASSERT_THAT(reported, IsOk());
+  ASSERT_THAT(reported->trials, SizeIs(1));
+  EXPECT_EQ(reported->trials[0].number(), 1);
+  // The score column holds the score of reported trials only (read from outside; no writes).
+  {
+    RawDb raw(path_);
+    EXPECT_EQ(raw.Text("SELECT score FROM trials WHERE number = 1"), "-2.25");
+    EXPECT_EQ(raw.Text("SELECT quote(score) FROM trials WHERE number = 2"), "NULL");
+  }
+
+  absl::StatusOr<std::vector<v1::GenerationSummary>> generations = store->ListGenerations(id);
+  ASSERT_THAT(generations, IsOk());
+  ASSERT_THAT(*generations, SizeIs(3));
+  for (int64_t g = 1; g <= 3; ++g) {
+    EXPECT_EQ(Bytes((*generations)[static_cast<size_t>(g - 1)]), Bytes(MakeSummary(g)));
+  }
+
+  absl::StatusOr<std::vector<Event>> events = store->ListEvents(id, 100);
+  ASSERT_THAT(events, IsOk());
+  ASSERT_THAT(*events, SizeIs(3));
+  EXPECT_EQ((*events)[0].message, "first");
+  EXPECT_EQ((*events)[2].message, "third");
+  EXPECT_EQ((*events)[2].kind, "tell");
+  EXPECT_EQ((*events)[2].trial, 1);
+  EXPECT_EQ((*events)[2].worker, "worker-1");
+  EXPECT_EQ((*events)[2].at_ns, 5'000'001);
+  absl::StatusOr<std::vector<Event>> newest = store->ListEvents(id, 2);
+  ASSERT_THAT(newest, IsOk());
+  ASSERT_THAT(*newest, SizeIs(2));
+  EXPECT_EQ((*newest)[0].message, "second");  // the newest two, oldest first
+  EXPECT_EQ((*newest)[1].message, "third");
+
+  // Replacing the distribution alone leaves the engine's other fields.
+  StudyWrite update;
+  update.study_id = id;
+  update.distribution = MakeDistribution(-3.0);
+  ASSERT_THAT(store->Commit(update), IsOk());
+  loaded = store->LoadAll();
+  ASSERT_THAT(loaded, IsOk());
+  v1::EngineState expected = MakeEngine(7.0);
+  *expected.mutable_distribution() = MakeDistribution(-3.0);
+  EXPECT_EQ(Bytes((*loaded)[0].snapshot.engine()), Bytes(expected));
+}
+
+TEST_F(SqliteStoreTest, ListTrialsPagesInNumberOrderAndFiltersByState) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  const int64_t other = Create(*store, "beta");
+  StudyWrite write;
+  write.study_id = id;
+  for (int64_t n = 25; n >= 1; --n) {  // reverse order on purpose
+    write.trials.push_back(n % 2 == 0 ? MakeTrial(n, v1::TRIAL_STATE_REPORTED, 0.5 * n)
+                                      : MakeTrial(n, v1::TRIAL_STATE_LEASED));
+  }
+  ASSERT_THAT(store->Commit(write), IsOk());
+  StudyWrite noise;  // trials of another study never show up
+  noise.study_id = other;
+  noise.trials = {MakeTrial(1, v1::TRIAL_STATE_REPORTED, 1.0)};
+  ASSERT_THAT(store->Commit(noise), IsOk());
+
+  std::vector<int64_t> seen;
+  std::vector<int64_t> next_afters;
+  int64_t after = 0;
+  do {
+    absl::StatusOr<TrialPage> page = store->ListTrials(id, std::nullopt, after, 10);
+    ASSERT_THAT(page, IsOk());
+    for (const v1::TrialRecord& t : page->trials) seen.push_back(t.number());
+    next_afters.push_back(page->next_after);
+    after = page->next_after;
+  } while (after != 0 && next_afters.size() < 10);
+  EXPECT_THAT(next_afters, ElementsAre(10, 20, 0));
+  ASSERT_THAT(seen, SizeIs(25));
+  for (size_t i = 0; i < seen.size(); ++i) EXPECT_EQ(seen[i], static_cast<int64_t>(i) + 1);
+
+  // 12 reported trials (2, 4, ..., 24): pages of 6 end exactly at the last one.
+  absl::StatusOr<TrialPage> first = store->ListTrials(id, v1::TRIAL_STATE_REPORTED, 0, 6);
+  ASSERT_THAT(first, IsOk());
+  ASSERT_THAT(first->trials, SizeIs(6));
+  EXPECT_EQ(first->trials.front().number(), 2);
+  EXPECT_EQ(first->trials.back().number(), 12);
+  EXPECT_EQ(first->next_after, 12);
+  absl::StatusOr<TrialPage> second =
+      store->ListTrials(id, v1::TRIAL_STATE_REPORTED, first->next_after, 6);
+  ASSERT_THAT(second, IsOk());
+  ASSERT_THAT(second->trials, SizeIs(6));
+  EXPECT_EQ(second->trials.front().number(), 14);
+  EXPECT_EQ(second->trials.back().number(), 24);
+  EXPECT_EQ(second->next_after, 0);
+  for (const v1::TrialRecord& t : second->trials) {
+    EXPECT_EQ(t.state(), v1::TRIAL_STATE_REPORTED);
+  }
+  absl::StatusOr<TrialPage> lapsed = store->ListTrials(id, v1::TRIAL_STATE_LAPSED, 0, 6);
+  ASSERT_THAT(lapsed, IsOk());
+  EXPECT_TRUE(lapsed->trials.empty());
+  EXPECT_EQ(lapsed->next_after, 0);
+
+  EXPECT_THAT(store->ListTrials(id, std::nullopt, 0, 0),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("limit")));
+  EXPECT_THAT(store->ListTrials(id, std::nullopt, -1, 5),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("after_number")));
+  EXPECT_THAT(store->ListTrials(999, std::nullopt, 0, 5),
+              StatusIs(absl::StatusCode::kNotFound, HasSubstr("999")));
+  EXPECT_THAT(store->ListGenerations(999), StatusIs(absl::StatusCode::kNotFound, HasSubstr("999")));
+  EXPECT_THAT(store->ListEvents(999, 5), StatusIs(absl::StatusCode::kNotFound, HasSubstr("999")));
+}
+
+TEST_F(SqliteStoreTest, TakenNameIsAlreadyExists) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  Create(*store, "alpha");
+  EXPECT_THAT(store->CreateStudy("alpha", MakeDesign("alpha"), MakeEngine(1.0), "again"),
+              StatusIs(absl::StatusCode::kAlreadyExists, HasSubstr("study name 'alpha' is taken")));
+  EXPECT_THAT(store->CreateStudy("", MakeDesign(""), MakeEngine(1.0), "r"),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("name")));
+  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  ASSERT_THAT(loaded, IsOk());
+  ASSERT_THAT(*loaded, SizeIs(1));
+  EXPECT_EQ((*loaded)[0].create_request_id, "create-alpha");
+}
+
+TEST_F(SqliteStoreTest, NonFiniteScoreIsRefusedAndNothingOfTheWriteIsStored) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  for (double bad :
+       {std::numeric_limits<double>::quiet_NaN(), std::numeric_limits<double>::infinity(),
+        -std::numeric_limits<double>::infinity()}) {
+    StudyWrite write;
+    write.study_id = id;
+    write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED),
+                    MakeTrial(2, v1::TRIAL_STATE_REPORTED, bad)};
+    write.generations = {MakeSummary(1)};
+    write.events = {MakeEvent("tell", 2, "bad")};
+    EXPECT_THAT(store->Commit(write), StatusIs(absl::StatusCode::kInvalidArgument,
+                                               HasSubstr("trials[1].score (trial 2)")))
+        << bad;
+  }
+  StudyWrite bad_number;
+  bad_number.study_id = id;
+  bad_number.trials = {MakeTrial(0, v1::TRIAL_STATE_LEASED)};
+  EXPECT_THAT(store->Commit(bad_number),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("trials[0].number")));
+
+  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  ASSERT_THAT(loaded, IsOk());
+  EXPECT_EQ((*loaded)[0].snapshot.trials_size(), 0);
+  absl::StatusOr<std::vector<Event>> events = store->ListEvents(id, 10);
+  ASSERT_THAT(events, IsOk());
+  EXPECT_TRUE(events->empty());
+  absl::StatusOr<std::vector<v1::GenerationSummary>> generations = store->ListGenerations(id);
+  ASSERT_THAT(generations, IsOk());
+  EXPECT_TRUE(generations->empty());
+  EXPECT_EQ(store->stats().failed_writes, 4);
+}
+
+TEST_F(SqliteStoreTest, ConcurrentRefusedWritesFailAloneAndTheOthersCommit) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  constexpr int kThreads = 8;
+  constexpr int kPerThread = 40;
+  // Every 4th write has a NaN score, every 5th names a study that does not exist.
+  auto kind_of = [](int64_t number) { return number % 4 == 0 ? 1 : (number % 5 == 0 ? 2 : 0); };
+  std::vector<std::vector<absl::Status>> results(kThreads);
+  std::vector<std::thread> threads;
+  for (int t = 0; t < kThreads; ++t) {
+    threads.emplace_back([&, t] {
+      for (int i = 0; i < kPerThread; ++i) {
+        const int64_t number = t * kPerThread + i + 1;
+        StudyWrite write;
+        write.study_id = kind_of(number) == 2 ? id + 1000 : id;
+        write.trials = {MakeTrial(number, v1::TRIAL_STATE_REPORTED,
+                                  kind_of(number) == 1 ? std::nan("") : 0.25 * number)};
+        write.events = {MakeEvent("tell", number, "t")};
+        results[static_cast<size_t>(t)].push_back(store->Commit(std::move(write)));
+      }
+    });
+  }
+  for (std::thread& thread : threads) thread.join();
+
+  int expected_stored = 0;
+  for (int t = 0; t < kThreads; ++t) {
+    for (int i = 0; i < kPerThread; ++i) {
+      const int64_t number = t * kPerThread + i + 1;
+      const absl::Status& status = results[static_cast<size_t>(t)][static_cast<size_t>(i)];
+      switch (kind_of(number)) {
+        case 0:
+          EXPECT_THAT(status, IsOk()) << number;
+          ++expected_stored;
+          break;
+        case 1:
+          EXPECT_THAT(status, StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("score")))
+              << number;
+          break;
+        default:
+          EXPECT_THAT(status, StatusIs(absl::StatusCode::kNotFound, HasSubstr("does not exist")))
+              << number;
+      }
+    }
+  }
+  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  ASSERT_THAT(loaded, IsOk());
+  const v1::StudySnapshot& snapshot = (*loaded)[0].snapshot;
+  ASSERT_EQ(snapshot.trials_size(), expected_stored);
+  for (const v1::TrialRecord& trial : snapshot.trials()) {
+    EXPECT_EQ(kind_of(trial.number()), 0) << trial.number();
+    EXPECT_EQ(trial.score(), 0.25 * static_cast<double>(trial.number()));
+  }
+  absl::StatusOr<std::vector<Event>> events = store->ListEvents(id, 10'000);
+  ASSERT_THAT(events, IsOk());
+  EXPECT_THAT(*events, SizeIs(expected_stored));
+  EXPECT_THAT(store->CheckIntegrity(), IsOk());
+}
+
+// Holds the database's write lock from a raw connection that writes nothing, so that the writer
+// thread waits in BEGIN IMMEDIATE while the test lines up the next batch.
+class WriteLockHolder {
+ public:
+  explicit WriteLockHolder(const std::string& path) : raw_(path) {
+    EXPECT_EQ(raw_.Exec("BEGIN IMMEDIATE"), SQLITE_OK);
+  }
+  ~WriteLockHolder() { Release(); }
+  void Release() {
+    if (held_) {
+      EXPECT_EQ(raw_.Exec("ROLLBACK"), SQLITE_OK);
+    }
+    held_ = false;
+  }
+
+ private:
+  RawDb raw_;
+  bool held_ = true;
+};
+
+TEST_F(SqliteStoreTest, FailingWritesInABatchRollBackAloneAndOnlyTheirCallersSeeIt) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  const SqliteStore::Stats before = store->stats();
+
+  WriteLockHolder lock(path_);
+  // X: taken alone by the writer thread, which then waits for the lock.
+  absl::Status x_status;
+  StudyWrite x;
+  x.study_id = id;
+  x.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED)};
+  x.generations = {MakeSummary(1)};
+  std::thread x_thread([&] { x_status = store->Commit(x); });
+  ASSERT_TRUE(WaitFor([&] {
+    const SqliteStore::Stats s = store->stats();
+    return s.active_writes == 1 && s.queued_writes == 0;
+  }));
+
+  // Then four writes queue up behind it, in this order, and form the next batch.
+  std::vector<StudyWrite> writes(4);
+  writes[0].study_id = id + 41;  // unknown study
+  writes[0].trials = {MakeTrial(5, v1::TRIAL_STATE_LEASED)};
+  writes[1].study_id = id;  // fine
+  writes[1].trials = {MakeTrial(2, v1::TRIAL_STATE_LEASED)};
+  writes[2].study_id = id;  // its trial is written, then its generation collides: all undone
+  writes[2].trials = {MakeTrial(3, v1::TRIAL_STATE_LEASED)};
+  writes[2].events = {MakeEvent("ask", 3, "never stored")};
+  writes[2].generations = {MakeSummary(1)};
+  writes[3].study_id = id;  // fine
+  writes[3].events = {MakeEvent("phase", 0, "stored")};
+  std::vector<absl::Status> statuses(writes.size());
+  std::vector<std::thread> threads;
+  for (size_t i = 0; i < writes.size(); ++i) {
+    threads.emplace_back([&, i] { statuses[i] = store->Commit(writes[i]); });
+    ASSERT_TRUE(
+        WaitFor([&] { return store->stats().queued_writes == static_cast<int64_t>(i + 1); }));
+  }
+  lock.Release();
+  x_thread.join();
+  for (std::thread& thread : threads) thread.join();
+
+  EXPECT_THAT(x_status, IsOk());
+  EXPECT_THAT(statuses[0], StatusIs(absl::StatusCode::kNotFound, HasSubstr("does not exist")));
+  EXPECT_THAT(statuses[1], IsOk());
+  EXPECT_THAT(statuses[2], StatusIs(absl::StatusCode::kAlreadyExists,
+                                    HasSubstr("generation 1 is already stored")));
+  EXPECT_THAT(statuses[3], IsOk());
+  const SqliteStore::Stats after = store->stats();
+  EXPECT_EQ(after.transactions - before.transactions, 2);
+  EXPECT_EQ(after.largest_batch, 4);
+  EXPECT_EQ(after.committed_writes - before.committed_writes, 3);
+  EXPECT_EQ(after.failed_writes - before.failed_writes, 2);
+
+  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  ASSERT_THAT(loaded, IsOk());
+  ASSERT_THAT(*loaded, SizeIs(1));
+  const v1::StudySnapshot& snapshot = (*loaded)[0].snapshot;
+  ASSERT_EQ(snapshot.trials_size(), 2);
+  EXPECT_EQ(snapshot.trials(0).number(), 1);
+  EXPECT_EQ(snapshot.trials(1).number(), 2);
+  absl::StatusOr<std::vector<Event>> events = store->ListEvents(id, 10);
+  ASSERT_THAT(events, IsOk());
+  ASSERT_THAT(*events, SizeIs(1));
+  EXPECT_EQ((*events)[0].message, "stored");
+}
+
+TEST_F(SqliteStoreTest, LockedDatabaseIsUnavailableAndReadsKeepWorking) {
+  SqliteStore::Options options;
+  options.busy_timeout_ms = 50;
+  std::unique_ptr<SqliteStore> store = OpenStore(options);
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  StudyWrite write;
+  write.study_id = id;
+  write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED)};
+  {
+    WriteLockHolder lock(path_);
+    EXPECT_THAT(store->Commit(write),
+                StatusIs(absl::StatusCode::kUnavailable, HasSubstr("locked")));
+    EXPECT_THAT(store->CreateStudy("beta", MakeDesign("beta"), MakeEngine(0.0), "r"),
+                StatusIs(absl::StatusCode::kUnavailable, HasSubstr("write transaction")));
+    // Reads do not wait for a writer.
+    absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+    ASSERT_THAT(loaded, IsOk());
+    EXPECT_THAT(*loaded, SizeIs(1));
+  }
+  EXPECT_EQ(store->stats().failed_transactions, 2);
+  EXPECT_THAT(store->Commit(write), IsOk());
+  absl::StatusOr<TrialPage> page = store->ListTrials(id, std::nullopt, 0, 10);
+  ASSERT_THAT(page, IsOk());
+  EXPECT_THAT(page->trials, SizeIs(1));
+}
+
+TEST_F(SqliteStoreTest, EveryConnectionIsWalWithSynchronousFull) {
+  SqliteStore::Options options;
+  options.reader_connections = 3;
+  std::unique_ptr<SqliteStore> store = OpenStore(options);
+  ASSERT_NE(store, nullptr);
+  absl::StatusOr<std::vector<SqliteConnectionSettings>> settings = store->InspectConnections();
+  ASSERT_THAT(settings, IsOk());
+  ASSERT_THAT(*settings, SizeIs(4));
+  EXPECT_EQ((*settings)[0].role, "writer");
+  EXPECT_FALSE((*settings)[0].read_only);
+  for (size_t i = 0; i < settings->size(); ++i) {
+    const SqliteConnectionSettings& s = (*settings)[i];
+    EXPECT_EQ(s.synchronous, 2) << s.role;
+    EXPECT_EQ(s.journal_mode, "wal") << s.role;
+    EXPECT_TRUE(s.foreign_keys) << s.role;
+    if (i > 0) {
+      EXPECT_EQ(s.role, absl::StrCat("reader ", i - 1));
+      EXPECT_TRUE(s.read_only) << s.role;
+    }
+  }
+  // From outside: WAL is a property of the file, and the schema version is the build's.
+  RawDb raw(path_);
+  EXPECT_EQ(raw.Text("PRAGMA journal_mode"), "wal");
+  EXPECT_EQ(raw.Text("PRAGMA user_version"), absl::StrCat(SqliteStore::schema_version()));
+  EXPECT_EQ(raw.Text("SELECT count(*) FROM sqlite_master WHERE name = 'trials_by_state'"), "1");
+}
+
+TEST_F(SqliteStoreTest, GroupCommitSharesTransactionsAndKeepsEveryWrite) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  constexpr int kStudies = 4;
+  constexpr int kThreads = 16;
+  constexpr int kPerThread = 200;
+  constexpr int kCommits = kThreads * kPerThread;
+  std::vector<int64_t> ids;
+  for (int s = 0; s < kStudies; ++s) ids.push_back(Create(*store, absl::StrCat("study-", s)));
+  const SqliteStore::Stats before = store->stats();
+
+  std::vector<int> failures(kThreads, 0);
+  std::vector<std::thread> threads;
+  const absl::Time start = absl::Now();
+  for (int t = 0; t < kThreads; ++t) {
+    threads.emplace_back([&, t] {
+      for (int i = 0; i < kPerThread; ++i) {
+        // Thread t writes trials t, t + 16, t + 32, ... of study t % 4: numbers never collide.
+        const int64_t number = static_cast<int64_t>(i) * kThreads + t + 1;
+        StudyWrite write;
+        write.study_id = ids[static_cast<size_t>(t % kStudies)];
+        write.trials = {MakeTrial(number, v1::TRIAL_STATE_REPORTED, 0.5 * number)};
+        write.events = {MakeEvent("tell", number, absl::StrCat("thread ", t))};
+        if (!store->Commit(std::move(write)).ok()) ++failures[static_cast<size_t>(t)];
+      }
+    });
+  }
+  for (std::thread& thread : threads) thread.join();
+  const double seconds = absl::ToDoubleSeconds(absl::Now() - start);
+  for (int t = 0; t < kThreads; ++t) EXPECT_EQ(failures[static_cast<size_t>(t)], 0) << t;
+
+  const SqliteStore::Stats after = store->stats();
+  const int64_t transactions = after.transactions - before.transactions;
+  EXPECT_EQ(after.committed_writes - before.committed_writes, kCommits);
+  EXPECT_EQ(after.failed_transactions, 0);
+  // With 16 writers waiting on fsyncs, most transactions carry several commits.
+  EXPECT_LE(transactions, kCommits / 3);
+  std::printf(
+      "group commit: %d commits in %.3f s (%.0f commits/s), %lld transactions, "
+      "%.1f commits per transaction, largest batch %lld\n",
+      kCommits, seconds, kCommits / seconds, static_cast<long long>(transactions),
+      static_cast<double>(kCommits) / static_cast<double>(transactions),
+      static_cast<long long>(after.largest_batch));
+  RecordProperty("commits_per_second", static_cast<int>(kCommits / seconds));
+  RecordProperty("transactions", static_cast<int>(transactions));
+
+  auto check_all_stored = [&](SqliteStore& s) {
+    absl::StatusOr<std::vector<StoredStudy>> loaded = s.LoadAll();
+    ASSERT_THAT(loaded, IsOk());
+    ASSERT_THAT(*loaded, SizeIs(kStudies));
+    int total = 0;
+    for (const StoredStudy& study : *loaded) {
+      int64_t previous = 0;
+      for (const v1::TrialRecord& trial : study.snapshot.trials()) {
+        EXPECT_GT(trial.number(), previous);
+        previous = trial.number();
+        EXPECT_EQ(Bytes(trial), Bytes(MakeTrial(trial.number(), v1::TRIAL_STATE_REPORTED,
+                                                0.5 * static_cast<double>(trial.number()))));
+        EXPECT_EQ(static_cast<int64_t>((trial.number() - 1) % kThreads) % kStudies,
+                  study.id - ids[0]);
+      }
+      total += study.snapshot.trials_size();
+      absl::StatusOr<std::vector<Event>> events = s.ListEvents(study.id, kCommits);
+      ASSERT_THAT(events, IsOk());
+      EXPECT_EQ(static_cast<int>(events->size()), study.snapshot.trials_size());
+    }
+    EXPECT_EQ(total, kCommits);
+  };
+  check_all_stored(*store);
+  EXPECT_THAT(store->CheckIntegrity(), IsOk());
+
+  store.reset();
+  {
+    RawDb raw(path_);
+    EXPECT_EQ(raw.Text("PRAGMA integrity_check"), "ok");
+    EXPECT_EQ(raw.Text("SELECT count(*) FROM trials"), absl::StrCat(kCommits));
+  }
+  store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  check_all_stored(*store);
+}
+
+TEST_F(SqliteStoreTest, ReopeningGivesTheSameDataAndTheLogIsFoldedOnClose) {
+  std::string before;
+  {
+    std::unique_ptr<SqliteStore> store = OpenStore();
+    ASSERT_NE(store, nullptr);
+    const int64_t id = Create(*store, "alpha");
+    Create(*store, "beta");
+    StudyWrite write;
+    write.study_id = id;
+    write.trials = {MakeTrial(1, v1::TRIAL_STATE_REPORTED, 3.0),
+                    MakeTrial(2, v1::TRIAL_STATE_LAPSED)};
+    write.ask_request = std::make_pair(std::string("a"), std::vector<int64_t>{1, 2});
+    write.distribution = MakeDistribution(0.1);
+    ASSERT_THAT(store->Commit(write), IsOk());
+    absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+    ASSERT_THAT(loaded, IsOk());
+    for (const StoredStudy& s : *loaded) {
+      absl::StrAppend(&before, s.id, s.name, Bytes(s.design), Bytes(s.snapshot),
+                      s.create_request_id, s.ask_requests.size());
+    }
+    absl::StatusOr<int64_t> size = store->SizeBytes();
+    ASSERT_THAT(size, IsOk());
+    EXPECT_GT(*size, 0);
+  }
+  // The writer closed last and checkpointed: the log is gone, everything is in the main file.
+  EXPECT_FALSE(std::filesystem::exists(path_ + "-wal"));
+
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  ASSERT_THAT(loaded, IsOk());
+  std::string after;
+  for (const StoredStudy& s : *loaded) {
+    absl::StrAppend(&after, s.id, s.name, Bytes(s.design), Bytes(s.snapshot), s.create_request_id,
+                    s.ask_requests.size());
+  }
+  EXPECT_EQ(after, before);
+  EXPECT_THAT((*loaded)[0].ask_requests, ElementsAre(Pair("a", ElementsAre(1, 2))));
+  // Ids keep counting after a reopen.
+  EXPECT_GT(Create(*store, "gamma"), (*loaded)[1].id);
+}
+
+TEST_F(SqliteStoreTest, DuplicateAskRequestIsAlreadyExists) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  StudyWrite write;
+  write.study_id = id;
+  write.ask_request = std::make_pair(std::string("req"), std::vector<int64_t>{1});
+  ASSERT_THAT(store->Commit(write), IsOk());
+  write.trials = {MakeTrial(9, v1::TRIAL_STATE_LEASED)};
+  EXPECT_THAT(store->Commit(write), StatusIs(absl::StatusCode::kAlreadyExists,
+                                             HasSubstr("ask request 'req' is already stored")));
+  absl::StatusOr<TrialPage> page = store->ListTrials(id, std::nullopt, 0, 10);
+  ASSERT_THAT(page, IsOk());
+  EXPECT_TRUE(page->trials.empty());
+  write.ask_request->first.clear();
+  EXPECT_THAT(store->Commit(write),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("empty request id")));
+}
+
+TEST_F(SqliteStoreTest, NewerSchemaVersionIsRefusedNamingBothVersions) {
+  OpenStore().reset();  // creates the file at the current version
+  const int64_t future = SqliteStore::schema_version() + 7;
+  {
+    RawDb raw(path_);
+    ASSERT_EQ(raw.Exec(absl::StrCat("PRAGMA user_version = ", future)), SQLITE_OK);
+  }
+  for (bool read_only : {false, true}) {
+    SqliteStore::Options options;
+    options.read_only = read_only;
+    EXPECT_THAT(SqliteStore::Open(path_, options),
+                StatusIs(absl::StatusCode::kFailedPrecondition,
+                         HasSubstr(absl::StrCat("schema version ", future,
+                                                " is newer than this build's version ",
+                                                SqliteStore::schema_version()))))
+        << read_only;
+  }
+}
+
+TEST_F(SqliteStoreTest, ReadOnlyOpenOfAnOlderSchemaIsRefused) {
+  // A database at version 0 (an empty file SQLite created).
+  {
+    sqlite3* db = nullptr;
+    ASSERT_EQ(sqlite3_open(path_.c_str(), &db), SQLITE_OK);
+    ASSERT_EQ(sqlite3_exec(db, "PRAGMA journal_mode = WAL; CREATE TABLE unrelated (x)", nullptr,
+                           nullptr, nullptr),
+              SQLITE_OK);
+    sqlite3_close(db);
+  }
+  SqliteStore::Options options;
+  options.read_only = true;
+  EXPECT_THAT(SqliteStore::Open(path_, options),
+              StatusIs(absl::StatusCode::kFailedPrecondition, HasSubstr("older")));
+  // Opened writable, it is migrated.
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  EXPECT_GT(Create(*store, "alpha"), 0);
+}
+
+TEST_F(SqliteStoreTest, MigrateAppliesOnlyMissingStepsAllOrNothing) {
+  absl::StatusOr<std::unique_ptr<internal::Connection>> connection =
+      internal::Connection::Open(path_, /*read_only=*/false, 1000);
+  ASSERT_THAT(connection, IsOk());
+  internal::Connection& c = **connection;
+  const char* const v1[] = {"CREATE TABLE a (x INTEGER)"};
+  const char* const v2[] = {"CREATE TABLE a (x INTEGER)",  // would fail if it ran again
+                            "CREATE TABLE b (y TEXT); INSERT INTO b VALUES ('two')"};
+  const char* const broken[] = {"CREATE TABLE a (x INTEGER)", "CREATE TABLE b (y TEXT)",
+                                "CREATE TABLE c (z); INSERT INTO nowhere VALUES (1)"};
+  ASSERT_THAT(internal::Migrate(c, v1), IsOk());
+  EXPECT_EQ(*c.QueryInt64("PRAGMA user_version", "v"), 1);
+  ASSERT_THAT(internal::Migrate(c, v2), IsOk());
+  EXPECT_EQ(*c.QueryInt64("PRAGMA user_version", "v"), 2);
+  EXPECT_EQ(*c.QueryText("SELECT y FROM b", "b"), "two");
+  ASSERT_THAT(internal::Migrate(c, v2), IsOk());  // nothing to do
+  EXPECT_THAT(internal::Migrate(c, broken),
+              StatusIs(absl::StatusCode::kInternal, HasSubstr("from version 2 to 3")));
+  EXPECT_FALSE(c.InTransaction());
+  EXPECT_EQ(*c.QueryInt64("PRAGMA user_version", "v"), 2);
+  EXPECT_EQ(*c.QueryInt64("SELECT count(*) FROM sqlite_master WHERE name = 'c'", "c"), 0);
+  EXPECT_THAT(internal::Migrate(c, v1),
+              StatusIs(absl::StatusCode::kFailedPrecondition,
+                       HasSubstr("version 2 is newer than this build's version 1")));
+  // The real list starts from an empty database and its length is the version.
+  EXPECT_EQ(SqliteStore::schema_version(), static_cast<int64_t>(internal::Migrations().size()));
+}
+
+// Checks a store opened on a read-only file; returns "" or what went wrong.
+std::string CheckReadOnlyFile(const std::string& path, int64_t study_id) {
+  absl::StatusOr<std::unique_ptr<SqliteStore>> writable = SqliteStore::Open(path);
+  if (writable.ok() || writable.status().code() != absl::StatusCode::kFailedPrecondition ||
+      writable.status().message().find("not writable") == absl::string_view::npos) {
+    return absl::StrCat("writable open: ", writable.status().ToString());
+  }
+  SqliteStore::Options options;
+  options.read_only = true;
+  absl::StatusOr<std::unique_ptr<SqliteStore>> store = SqliteStore::Open(path, options);
+  if (!store.ok()) return absl::StrCat("read-only open: ", store.status().ToString());
+  absl::StatusOr<std::vector<StoredStudy>> loaded = (*store)->LoadAll();
+  if (!loaded.ok() || loaded->size() != 1 || (*loaded)[0].snapshot.trials_size() != 2) {
+    return absl::StrCat("LoadAll: ", loaded.status().ToString());
+  }
+  absl::StatusOr<TrialPage> page = (*store)->ListTrials(study_id, std::nullopt, 0, 10);
+  if (!page.ok() || page->trials.size() != 2) return "ListTrials failed";
+  StudyWrite write;
+  write.study_id = study_id;
+  absl::Status commit = (*store)->Commit(write);
+  if (commit.code() != absl::StatusCode::kFailedPrecondition) {
+    return absl::StrCat("Commit: ", commit.ToString());
+  }
+  absl::StatusOr<int64_t> created =
+      (*store)->CreateStudy("beta", MakeDesign("beta"), MakeEngine(0.0), "r");
+  if (created.status().code() != absl::StatusCode::kFailedPrecondition) {
+    return absl::StrCat("CreateStudy: ", created.status().ToString());
+  }
+  if (absl::Status integrity = (*store)->CheckIntegrity(); !integrity.ok()) {
+    return absl::StrCat("CheckIntegrity: ", integrity.ToString());
+  }
+  return "";
+}
+
+TEST_F(SqliteStoreTest, ReadOnlyFileRefusesWritesClearlyAndReadsKeepWorking) {
+  int64_t id = 0;
+  {
+    std::unique_ptr<SqliteStore> store = OpenStore();
+    ASSERT_NE(store, nullptr);
+    id = Create(*store, "alpha");
+    StudyWrite write;
+    write.study_id = id;
+    write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED), MakeTrial(2, v1::TRIAL_STATE_LEASED)};
+    ASSERT_THAT(store->Commit(write), IsOk());
+  }
+  ASSERT_EQ(chmod(path_.c_str(), 0444), 0);
+  ASSERT_EQ(chmod(dir_.c_str(), 0777), 0);  // the directory stays writable, as usual
+
+  // Opened read-only on purpose, whoever we are.
+  {
+    SqliteStore::Options options;
+    options.read_only = true;
+    absl::StatusOr<std::unique_ptr<SqliteStore>> store = SqliteStore::Open(path_, options);
+    ASSERT_THAT(store, IsOk());
+    absl::StatusOr<std::vector<StoredStudy>> loaded = (*store)->LoadAll();
+    ASSERT_THAT(loaded, IsOk());
+    EXPECT_EQ((*loaded)[0].snapshot.trials_size(), 2);
+    StudyWrite write;
+    write.study_id = id;
+    EXPECT_THAT((*store)->Commit(write),
+                StatusIs(absl::StatusCode::kFailedPrecondition, HasSubstr("read-only")));
+    absl::StatusOr<std::vector<SqliteConnectionSettings>> settings = (*store)->InspectConnections();
+    ASSERT_THAT(settings, IsOk());
+    EXPECT_THAT(*settings, SizeIs(SqliteStore::Options().reader_connections));
+  }
+
+  if (geteuid() != 0) {
+    EXPECT_EQ(CheckReadOnlyFile(path_, id), "");
+  } else {
+    // File modes do not bind root: check as an unprivileged user in a child process.
+    EXPECT_EXIT(
+        {
+          if (setgroups(0, nullptr) != 0 || setgid(65534) != 0 || setuid(65534) != 0) {
+            std::fprintf(stderr, "cannot drop privileges\n");
+            _exit(2);
+          }
+          const std::string problem = CheckReadOnlyFile(path_, id);
+          std::fprintf(stderr, "%s\n",
+                       problem.empty() ? "read-only checks passed" : problem.c_str());
+          _exit(problem.empty() ? 0 : 1);
+        },
+        testing::ExitedWithCode(0), "read-only checks passed");
+  }
+}
+
+TEST_F(SqliteStoreTest, DamagedFilesAreDataLoss) {
+  {
+    std::ofstream garbage(path_, std::ios::binary);
+    garbage << std::string(8192, 'x');
+  }
+  EXPECT_THAT(SqliteStore::Open(path_), StatusIs(absl::StatusCode::kDataLoss, HasSubstr("")));
+  std::filesystem::remove(path_);
+
+  int64_t id = 0;
+  {
+    std::unique_ptr<SqliteStore> store = OpenStore();
+    ASSERT_NE(store, nullptr);
+    id = Create(*store, "alpha");
+    StudyWrite write;
+    write.study_id = id;
+    write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED), MakeTrial(2, v1::TRIAL_STATE_LEASED)};
+    ASSERT_THAT(store->Commit(write), IsOk());
+  }
+  {
+    RawDb raw(path_);
+    ASSERT_EQ(raw.Exec("UPDATE trials SET record = X'FFFFFFFF' WHERE number = 2"), SQLITE_OK);
+  }
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  EXPECT_THAT(store->LoadAll(), StatusIs(absl::StatusCode::kDataLoss,
+                                         HasSubstr("study 'alpha' (id 1): the record of trial 2")));
+  EXPECT_THAT(store->ListTrials(id, std::nullopt, 0, 10),
+              StatusIs(absl::StatusCode::kDataLoss, HasSubstr("trial 2")));
+  // A row that holds another trial's record is caught too.
+  store.reset();
+  {
+    RawDb raw(path_);
+    ASSERT_EQ(raw.Exec("UPDATE trials SET record = (SELECT record FROM trials WHERE number = 1) "
+                       "WHERE number = 2"),
+              SQLITE_OK);
+  }
+  store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  EXPECT_THAT(store->LoadAll(), StatusIs(absl::StatusCode::kDataLoss,
+                                         HasSubstr("row of trial 2 holds the record of trial 1")));
+}
+
+TEST_F(SqliteStoreTest, OptionsAndPathAreValidated) {
+  SqliteStore::Options options;
+  options.max_batch_writes = 0;
+  EXPECT_THAT(SqliteStore::Open(path_, options),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("max_batch_writes")));
+  options = SqliteStore::Options();
+  options.reader_connections = 0;
+  EXPECT_THAT(SqliteStore::Open(path_, options),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("reader_connections")));
+  options = SqliteStore::Options();
+  options.busy_timeout_ms = -1;
+  EXPECT_THAT(SqliteStore::Open(path_, options),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("busy_timeout_ms")));
+  EXPECT_THAT(SqliteStore::Open(":memory:"),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("WAL")));
+  EXPECT_THAT(SqliteStore::Open(dir_ + "/missing/dir/ogive.db"),
+              StatusIs(absl::StatusCode::kUnavailable, HasSubstr("open")));
+  options = SqliteStore::Options();
+  options.read_only = true;
+  EXPECT_THAT(SqliteStore::Open(dir_ + "/absent.db", options),
+              StatusIs(absl::StatusCode::kUnavailable, HasSubstr("absent.db")));
+  EXPECT_FALSE(std::filesystem::exists(dir_ + "/absent.db"));
+}
+
+TEST_F(SqliteStoreTest, DestructionCompletesQueuedWrites) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  constexpr int kWrites = 6;
+  std::vector<absl::Status> statuses(kWrites);
+  std::vector<std::thread> threads;
+  std::thread closer;
+  {
+    WriteLockHolder lock(path_);
+    for (int i = 0; i < kWrites; ++i) {
+      threads.emplace_back([&, i] {
+        StudyWrite write;
+        write.study_id = id;
+        write.trials = {MakeTrial(i + 1, v1::TRIAL_STATE_LEASED)};
+        statuses[static_cast<size_t>(i)] = store->Commit(std::move(write));
+      });
+    }
+    ASSERT_TRUE(WaitFor([&] {
+      const SqliteStore::Stats s = store->stats();
+      return s.active_writes + s.queued_writes == kWrites;
+    }));
+    SqliteStore* raw_store = store.release();
+    closer = std::thread([raw_store] { delete raw_store; });
+    absl::SleepFor(absl::Milliseconds(20));  // let the destructor start waiting for the writer
+  }
+  closer.join();
+  for (std::thread& thread : threads) thread.join();
+  for (int i = 0; i < kWrites; ++i) EXPECT_THAT(statuses[static_cast<size_t>(i)], IsOk()) << i;
+  store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  absl::StatusOr<TrialPage> page = store->ListTrials(id, std::nullopt, 0, 100);
+  ASSERT_THAT(page, IsOk());
+  EXPECT_THAT(page->trials, SizeIs(kWrites));
+}
+
+TEST_F(SqliteStoreTest, SizeBytesCountsTheFileAndTheLog) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  absl::StatusOr<int64_t> small = store->SizeBytes();
+  ASSERT_THAT(small, IsOk());
+  StudyWrite write;
+  write.study_id = id;
+  for (int64_t n = 1; n <= 500; ++n) write.trials.push_back(MakeTrial(n, v1::TRIAL_STATE_LEASED));
+  ASSERT_THAT(store->Commit(write), IsOk());
+  absl::StatusOr<int64_t> large = store->SizeBytes();
+  ASSERT_THAT(large, IsOk());
+  EXPECT_GT(*large, *small);
+  std::error_code error;
+  const auto main_size = static_cast<int64_t>(std::filesystem::file_size(path_, error));
+  EXPECT_GE(*large, main_size);
+}
+
+}  // namespace
+}  // namespace ogive::storage

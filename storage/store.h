@@ -1,0 +1,101 @@
+// Store: where ogived keeps its studies. The service talks to this interface only; SqliteStore
+// (sqlite_store.h) is the embedded implementation. The store knows the serialized form of a study
+// (protobuf messages of study.proto) but none of the math.
+//
+// Durability contract: when Commit() or CreateStudy() returns OK, the data is on disk (the
+// transaction committed with synchronous=FULL). A write either commits whole or not at all.
+// Implementations are thread-safe: any thread may call any method; writes are serialized
+// internally, reads do not wait for writes of other studies.
+#ifndef OGIVE_STORAGE_STORE_H_
+#define OGIVE_STORAGE_STORE_H_
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <utility>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "ogive/v1/study.pb.h"
+
+namespace ogive::storage {
+
+// A study as stored, for loading at start-up.
+struct StoredStudy {
+  int64_t id = 0;
+  std::string name;
+  v1::StudyDesign design;
+  v1::StudySnapshot snapshot;  // engine state (with its distribution) and every trial, by number
+  std::string create_request_id;
+  // Ask request ids seen, with the trial numbers each returned (for idempotent retries).
+  std::vector<std::pair<std::string, std::vector<int64_t>>> ask_requests;
+};
+
+// One line of a study's append-only event log.
+struct Event {
+  std::string kind;    // e.g. "ask", "tell", "update", "phase", "lapse", "restart"
+  int64_t trial = 0;   // 0 when not about one trial
+  std::string worker;  // or token label
+  std::string message;
+  int64_t at_ns = 0;  // Unix nanoseconds
+};
+
+// Everything one request changed in one study; committed as one transaction.
+struct StudyWrite {
+  int64_t study_id = 0;
+  std::vector<v1::TrialRecord> trials;                // inserted or replaced, by (study, number)
+  std::optional<v1::EngineState> engine;              // replaces the stored engine state; its
+                                                      // `distribution` field is ignored here...
+  std::optional<v1::DistributionState> distribution;  // ...and replaced only when this is set
+  std::vector<v1::GenerationSummary> generations;     // appended
+  std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request;  // request id -> trials
+  std::vector<Event> events;                          // appended
+};
+
+// One page of ListTrials().
+struct TrialPage {
+  std::vector<v1::TrialRecord> trials;
+  int64_t next_after = 0;  // pass as `after_number` for the next page; 0 when this is the last page
+};
+
+// The storage interface; see the top of this file for its contract.
+class Store {
+ public:
+  virtual ~Store() = default;
+
+  // Every study with its full state, in id order. DATA_LOSS if a stored message does not parse.
+  virtual absl::StatusOr<std::vector<StoredStudy>> LoadAll() = 0;
+
+  // Inserts a new study with its initial engine state (distribution included) and returns its id.
+  // ALREADY_EXISTS if the name is taken. Durable on return.
+  virtual absl::StatusOr<int64_t> CreateStudy(const std::string& name,
+                                              const v1::StudyDesign& design,
+                                              const v1::EngineState& engine,
+                                              const std::string& request_id) = 0;
+
+  // Commits one study write. Many concurrent Commit() calls share one transaction and one fsync
+  // (group commit); each returns only after the transaction holding its write committed. On error
+  // nothing of this write is stored: UNAVAILABLE when the database is busy or the disk failed (the
+  // caller may retry), INVALID_ARGUMENT if the write holds a NaN or infinity where a number is
+  // stored in a column (SQLite would store NaN as NULL), NOT_FOUND for an unknown study id.
+  virtual absl::Status Commit(StudyWrite write) = 0;
+
+  // Trials of a study with number > after_number, in number order, at most `limit`, optionally of
+  // one state. Reads committed data only.
+  virtual absl::StatusOr<TrialPage> ListTrials(int64_t study_id,
+                                               std::optional<v1::TrialState> state,
+                                               int64_t after_number, int limit) = 0;
+
+  // The generation summaries of a study, in generation order.
+  virtual absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t study_id) = 0;
+
+  // The event log of a study, oldest first, at most `limit` of the newest.
+  virtual absl::StatusOr<std::vector<Event>> ListEvents(int64_t study_id, int limit) = 0;
+
+  // Bytes the database occupies on disk (main file and write-ahead log).
+  virtual absl::StatusOr<int64_t> SizeBytes() = 0;
+};
+
+}  // namespace ogive::storage
+
+#endif  // OGIVE_STORAGE_STORE_H_
