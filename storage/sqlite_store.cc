@@ -295,6 +295,7 @@ struct SqliteStore::EncodedWrite {
 
   std::optional<NewStudy> create;  // set for CreateStudy; everything below is for Commit
   int64_t study_id = 0;
+  int64_t chain = 0;
   std::vector<Trial> trials;
   std::optional<std::string> engine;
   std::optional<std::string> distribution;
@@ -402,17 +403,43 @@ SqliteStore::Stats SqliteStore::stats() const {
 
 // ---- The writer ----
 
-void SqliteStore::Submit(Job& job) {
-  {
-    absl::MutexLock lock(&mu_);
-    if (stopping_) {
-      job.status = absl::FailedPreconditionError("the store is closing");
-      return;
-    }
-    queue_.push_back(&job);
+bool SqliteStore::Enqueue(Job& job) {
+  absl::MutexLock lock(&mu_);
+  if (stopping_) {
+    job.status = absl::FailedPreconditionError("the store is closing");
+    return false;
   }
-  job.done.WaitForNotification();
+  queue_.push_back(&job);
+  return true;
 }
+
+void SqliteStore::Submit(Job& job) {
+  if (Enqueue(job)) job.done.WaitForNotification();
+}
+
+// Owns a queued write and its job until the writer is done with them.
+class SqliteStore::Pending final : public PendingCommit {
+ public:
+  explicit Pending(absl::Status early) : early_(std::move(early)) {}
+  Pending(SqliteStore* store, EncodedWrite write) : write_(std::move(write)) {
+    job_.write = &write_;
+    queued_ = store->Enqueue(job_);
+  }
+  ~Pending() override {
+    if (queued_) job_.done.WaitForNotification();  // the writer still points at job_
+  }
+  absl::Status Wait() override {
+    if (!early_.ok()) return early_;
+    if (queued_) job_.done.WaitForNotification();
+    return job_.status;
+  }
+
+ private:
+  absl::Status early_;
+  EncodedWrite write_;
+  Job job_;
+  bool queued_ = false;
+};
 
 void SqliteStore::WriterLoop() {
   std::vector<Job*> batch;
@@ -464,6 +491,12 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
     absl::Status lost;
     for (size_t i = 0; !transaction_failed && i < writes.size(); ++i) {
       Job& job = *writes[i];
+      const std::pair<int64_t, int64_t> chain{job.write->study_id, job.write->chain};
+      if (job.write->chain != 0 && broken_chains_.count(chain) > 0) {
+        job.status = absl::UnavailableError(absl::StrCat(
+            "study id ", chain.first, ": an earlier write of this study failed; nothing of this write was stored"));
+        continue;
+      }
       absl::Status status = RunOnce(*s.savepoint);
       if (status.ok()) {
         status = Apply(*job.write, job.created_id);
@@ -497,6 +530,9 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
       if (transaction_failed && job->status.ok()) {
         job->status = absl::UnavailableError(absl::StrCat(
             "the write transaction failed and nothing of this write was stored: ", end.message()));
+      }
+      if (!job->status.ok() && job->write->chain != 0) {
+        broken_chains_.insert({job->write->study_id, job->write->chain});
       }
       if (job->status.ok()) {
         ++committed;
@@ -665,10 +701,11 @@ absl::StatusOr<int64_t> SqliteStore::CreateStudy(const std::string& name,
   return job.created_id;
 }
 
-absl::Status SqliteStore::Commit(StudyWrite write) {
-  if (options_.read_only) return ReadOnlyError(path_);
+std::unique_ptr<PendingCommit> SqliteStore::CommitAsync(StudyWrite write) {
+  if (options_.read_only) return std::make_unique<Pending>(ReadOnlyError(path_));
   EncodedWrite encoded;
   encoded.study_id = write.study_id;
+  encoded.chain = write.chain;
   // Check and serialize here, on the caller's thread, so that the writer thread only binds.
   absl::Status checked = [&]() -> absl::Status {
     const std::string where = absl::StrCat("study id ", write.study_id, ": ");
@@ -728,12 +765,9 @@ absl::Status SqliteStore::Commit(StudyWrite write) {
   if (!checked.ok()) {
     absl::MutexLock lock(&mu_);
     ++stats_.failed_writes;
-    return checked;
+    return std::make_unique<Pending>(checked);
   }
-  Job job;
-  job.write = &encoded;
-  Submit(job);
-  return job.status;
+  return std::make_unique<Pending>(this, std::move(encoded));
 }
 
 // ---- Reads ----

@@ -23,6 +23,7 @@
 #include <memory>
 #include <optional>
 #include <string>
+#include <set>
 #include <thread>
 #include <vector>
 
@@ -111,7 +112,7 @@ class SqliteStore final : public Store {
   absl::StatusOr<int64_t> CreateStudy(const std::string& name, const v1::StudyDesign& design,
                                       const v1::EngineState& engine,
                                       const std::string& request_id) override;
-  absl::Status Commit(StudyWrite write) override;
+  std::unique_ptr<PendingCommit> CommitAsync(StudyWrite write) override;
   absl::StatusOr<TrialPage> ListTrials(int64_t study_id, std::optional<v1::TrialState> state,
                                        int64_t after_number, int limit) override;
   absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t study_id) override;
@@ -142,8 +143,12 @@ class SqliteStore final : public Store {
 
   SqliteStore(std::string path, Options options);
 
+  class Pending;             // the PendingCommit of a queued Job
+
   // Queues `job` and blocks until the writer thread has finished it.
   void Submit(Job& job);
+  // Queues `job`; false (with job.status set) when the store is closing.
+  bool Enqueue(Job& job);
   void WriterLoop();
   void RunBatch(const std::vector<Job*>& batch);
   // Applies one write inside the open transaction (the caller wraps it in a savepoint).
@@ -166,6 +171,9 @@ class SqliteStore final : public Store {
   std::deque<Job*> queue_ ABSL_GUARDED_BY(mu_);
   bool stopping_ ABSL_GUARDED_BY(mu_) = false;
   Stats stats_ ABSL_GUARDED_BY(mu_);
+
+  // (study id, chain) of chains in which a write failed; touched by the writer thread only.
+  std::set<std::pair<int64_t, int64_t>> broken_chains_;
 
   std::thread writer_thread_;  // started last in Open, joined first in the destructor
 };

@@ -10,6 +10,7 @@
 #define OGIVE_STORAGE_STORE_H_
 
 #include <cstdint>
+#include <memory>
 #include <optional>
 #include <string>
 #include <utility>
@@ -50,6 +51,19 @@ struct StudyWrite {
   std::vector<v1::GenerationSummary> generations;     // appended
   std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request;  // request id -> trials
   std::vector<Event> events;                          // appended
+  // Writes of one study that carry the same non-zero chain depend on each other: they commit in the
+  // order they were queued, and once one of them fails every later one fails too (UNAVAILABLE)
+  // without being applied. A caller that applies changes to memory before their commit completes
+  // reloads the study after a failure and continues with a new chain.
+  int64_t chain = 0;
+};
+
+// A queued write; Wait() blocks until the transaction holding it committed or failed.
+class PendingCommit {
+ public:
+  virtual ~PendingCommit() = default;
+  // The write's outcome, as Store::Commit() would return it. Call at most once.
+  virtual absl::Status Wait() = 0;
 };
 
 // One page of ListTrials().
@@ -78,7 +92,21 @@ class Store {
   // nothing of this write is stored: UNAVAILABLE when the database is busy or the disk failed (the
   // caller may retry), INVALID_ARGUMENT if the write holds a NaN or infinity where a number is
   // stored in a column (SQLite would store NaN as NULL), NOT_FOUND for an unknown study id.
-  virtual absl::Status Commit(StudyWrite write) = 0;
+  virtual absl::Status Commit(StudyWrite write) { return CommitAsync(std::move(write))->Wait(); }
+
+  // Queues one study write and returns at once; writes are applied in the order they were queued.
+  // Errors found before queuing (a NaN, a malformed write) are returned by Wait().
+  virtual std::unique_ptr<PendingCommit> CommitAsync(StudyWrite write) = 0;
+
+  // One study with its full state, as LoadAll() returns it. NOT_FOUND for an unknown id.
+  virtual absl::StatusOr<StoredStudy> LoadStudy(int64_t study_id) {
+    absl::StatusOr<std::vector<StoredStudy>> all = LoadAll();
+    if (!all.ok()) return all.status();
+    for (StoredStudy& s : *all) {
+      if (s.id == study_id) return std::move(s);
+    }
+    return absl::NotFoundError("study id not found");
+  }
 
   // Trials of a study with number > after_number, in number order, at most `limit`, optionally of
   // one state. Reads committed data only.

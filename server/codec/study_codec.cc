@@ -222,12 +222,14 @@ v1::DoneReason DoneReasonToProto(study::DoneReason reason) {
   return v1::DONE_REASON_UNSPECIFIED;
 }
 
-v1::EngineState EngineStateToProto(const study::EngineState& e) {
+v1::EngineState EngineStateToProto(const study::EngineState& e, bool include_distribution) {
   v1::EngineState p;
   p.set_phase(PhaseToProto(e.phase));
   p.set_reason(DoneReasonToProto(e.reason));
   p.set_phase_message(e.phase_message);
-  if (e.distribution) *p.mutable_distribution() = DistributionStateToProto(e.distribution->state());
+  if (include_distribution && e.distribution) {
+    *p.mutable_distribution() = DistributionStateToProto(e.distribution->state());
+  }
   for (uint64_t word : e.random) p.add_random_state(word);
   p.set_generation(e.generation);
   p.set_epoch(e.epoch);

@@ -25,7 +25,8 @@ v1::DoneReason DoneReasonToProto(study::DoneReason reason);
 v1::TrialRecord TrialToProto(const study::Trial& trial);
 absl::StatusOr<study::Trial> TrialFromProto(const v1::TrialRecord& record);
 
-v1::EngineState EngineStateToProto(const study::EngineState& engine);
+// With include_distribution = false the distribution field is left empty (storage keeps it apart).
+v1::EngineState EngineStateToProto(const study::EngineState& engine, bool include_distribution = true);
 absl::StatusOr<study::EngineState> EngineStateFromProto(const v1::EngineState& proto, const search::Space& space);
 
 v1::StudySnapshot SnapshotToProto(const study::StudySnapshot& snapshot);

@@ -161,9 +161,21 @@ absl::Status GaussianFamily::Update(absl::Span<const GaussianSample> cohort, abs
   for (int i = 0; i < lambda; ++i) y_w += w_mean[i] * Y.col(i);
   st.mean += p.c_m * st.sigma * st.margin_scale.cwiseProduct(y_w);
 
+  // With ties the weights actually used are flatter than w: normalize the paths with their own
+  // variance-effective mass 1/Σ w̄_i², so that ⟨y⟩_w √μ_w stays N(0, C) under random selection (an
+  // all-tied cohort would otherwise shrink σ every generation). Without ties μ_w = μ_eff.
+  const bool tied = std::any_of(spans.begin(), spans.end(),
+                                [](const TieSpan& s) { return s.better_or_equal - s.better > 1; });
+  double mu_w = p.mu_eff;
+  if (tied) {
+    double sum_sq = 0;
+    for (double w : w_mean) sum_sq += w * w;
+    mu_w = 1.0 / sum_sq;
+  }
+
   // p_σ ← (1 − c_σ) p_σ + √(c_σ (2 − c_σ) μ_eff) C^{-1/2} ⟨y⟩_w
   st.p_sigma = (1.0 - p.c_sigma) * st.p_sigma +
-               std::sqrt(p.c_sigma * (2.0 - p.c_sigma) * p.mu_eff) * InverseSqrtTimes(y_w);
+               std::sqrt(p.c_sigma * (2.0 - p.c_sigma) * mu_w) * InverseSqrtTimes(y_w);
 
   // h_σ = 1 iff ‖p_σ‖ / √(1 − (1 − c_σ)^{2(g+1)}) < (1.4 + 2/(n+1)) E‖N(0,I)‖
   const double p_sigma_norm = st.p_sigma.norm();
@@ -172,7 +184,7 @@ absl::Status GaussianFamily::Update(absl::Span<const GaussianSample> cohort, abs
   const double h_sigma = p_sigma_norm / correction < (1.4 + 2.0 / (n + 1.0)) * p.chi_n ? 1.0 : 0.0;
 
   // p_c ← (1 − c_c) p_c + h_σ √(c_c (2 − c_c) μ_eff) ⟨y⟩_w
-  st.p_c = (1.0 - p.c_c) * st.p_c + h_sigma * std::sqrt(p.c_c * (2.0 - p.c_c) * p.mu_eff) * y_w;
+  st.p_c = (1.0 - p.c_c) * st.p_c + h_sigma * std::sqrt(p.c_c * (2.0 - p.c_c) * mu_w) * y_w;
 
   // w°_i = w_i for w_i ≥ 0, else w_i · n / ‖C^{-1/2} y_i‖². External members get no negative weight:
   // the active update's scaling assumes y_i ~ N(0, C), which a repaired or re-expressed step is not;

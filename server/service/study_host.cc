@@ -27,14 +27,14 @@ StudyHost::StudyHost(int64_t id, v1::StudyDesign design, study::Study study, sto
       study_(std::move(study)),
       ask_requests_(std::move(ask_requests)) {}
 
-absl::Status StudyHost::CommitAndApply(study::Change change, std::vector<storage::Event> events,
-                                       std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request,
-                                       absl::Time now) {
+StudyHost::Queued StudyHost::ApplyAndQueue(study::Change change, std::vector<storage::Event> events,
+                                           std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request,
+                                           absl::Time now) {
   storage::StudyWrite write;
   write.study_id = id_;
+  write.chain = chain_;
   for (const study::Trial& t : change.trials) write.trials.push_back(codec::TrialToProto(t));
-  write.engine = codec::EngineStateToProto(change.engine);
-  write.engine->clear_distribution();
+  write.engine = codec::EngineStateToProto(change.engine, /*include_distribution=*/false);
   if (change.distribution_changed) {
     write.distribution = codec::DistributionStateToProto(change.engine.distribution->state());
   }
@@ -52,90 +52,146 @@ absl::Status StudyHost::CommitAndApply(study::Change change, std::vector<storage
   }
   write.ask_request = ask_request;
   write.events = std::move(events);
-  if (absl::Status s = store_->Commit(std::move(write)); !s.ok()) return s;
   study_.Apply(std::move(change));
-  if (ask_request.has_value()) ask_requests_.insert(*ask_request);
+  if (ask_request.has_value()) ask_requests_.insert(*std::move(ask_request));
   ++version_;
-  return absl::OkStatus();
+  return Queued{store_->CommitAsync(std::move(write)), chain_};
 }
+
+absl::Status StudyHost::Await(Queued queued) {
+  const absl::Status committed = queued.pending->Wait();
+  if (committed.ok()) return committed;
+  absl::MutexLock lock(&mu_);
+  if (queued.chain != chain_) return committed;  // another request reloaded already
+  // Memory ran ahead of disk: go back to what the store holds.
+  ++chain_;
+  ++version_;
+  absl::StatusOr<storage::StoredStudy> stored = store_->LoadStudy(id_);
+  absl::StatusOr<study::StudySnapshot> snapshot =
+      stored.ok() ? codec::SnapshotFromProto(stored->snapshot, study_.space()) : stored.status();
+  absl::StatusOr<study::Study> restored =
+      snapshot.ok() ? study::Study::Restore(study_.space(), study_.order(), study_.distribution_options(),
+                                            study_.options(), *std::move(snapshot))
+                    : snapshot.status();
+  if (!restored.ok()) {
+    broken_ = absl::UnavailableError(absl::StrCat("study '", name(), "' could not be reloaded after a failed write: ",
+                                                  restored.status().message()));
+    return committed;
+  }
+  study_ = *std::move(restored);
+  ask_requests_.clear();
+  ask_requests_.insert(stored->ask_requests.begin(), stored->ask_requests.end());
+  broken_ = absl::OkStatus();
+  return committed;
+}
+
+absl::Status StudyHost::Usable() const { return broken_; }
 
 absl::StatusOr<v1::AskResponse> StudyHost::Ask(int count, const std::string& worker,
                                                std::optional<absl::Duration> lease, const std::string& request_id,
                                                absl::Time now) {
-  absl::MutexLock lock(&mu_);
-  std::vector<int64_t> numbers;
-  if (auto it = ask_requests_.find(request_id); !request_id.empty() && it != ask_requests_.end()) {
-    numbers = it->second;  // a retry: the same trials again
-  } else {
-    absl::StatusOr<study::AskPlan> plan = study_.PlanAsk(count, worker, lease, now);
-    if (!plan.ok()) return plan.status();
-    numbers = plan->trials;
-    std::vector<storage::Event> events;
-    for (int64_t n : numbers) events.push_back({"ask", n, worker, "", absl::ToUnixNanos(now)});
-    std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request;
-    if (!request_id.empty()) ask_request = std::make_pair(request_id, numbers);
-    if (absl::Status s = CommitAndApply(std::move(plan->change), std::move(events), ask_request, now); !s.ok()) {
-      return s;
-    }
-  }
+  Queued queued;
   v1::AskResponse response;
-  for (int64_t n : numbers) *response.add_trials() = TrialView(*study_.trial(n));
+  {
+    absl::MutexLock lock(&mu_);
+    if (absl::Status s = Usable(); !s.ok()) return s;
+    std::vector<int64_t> numbers;
+    if (auto it = ask_requests_.find(request_id); !request_id.empty() && it != ask_requests_.end()) {
+      numbers = it->second;  // a retry: the same trials again
+    } else {
+      absl::StatusOr<study::AskPlan> plan = study_.PlanAsk(count, worker, lease, now);
+      if (!plan.ok()) return plan.status();
+      numbers = plan->trials;
+      std::vector<storage::Event> events;
+      for (int64_t n : numbers) events.push_back({"ask", n, worker, "", absl::ToUnixNanos(now)});
+      std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request;
+      if (!request_id.empty()) ask_request = std::make_pair(request_id, numbers);
+      queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::move(ask_request), now);
+    }
+    for (int64_t n : numbers) *response.add_trials() = TrialView(*study_.trial(n));
+  }
+  if (queued.pending != nullptr) {
+    if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
+  }
   return response;
 }
 
 absl::StatusOr<v1::TellResponse> StudyHost::Tell(const std::vector<study::Report>& reports,
                                                  const std::string& worker, absl::Time now) {
-  absl::MutexLock lock(&mu_);
-  absl::StatusOr<study::TellPlan> plan = study_.PlanTell(reports, now);
-  if (!plan.ok()) return plan.status();
-  std::vector<storage::Event> events;
+  Queued queued;
   v1::TellResponse response;
-  for (const study::ReportResult& r : plan->results) {
-    v1::ReportResult* out = response.add_results();
-    out->set_trial(r.trial);
-    out->set_code(static_cast<int>(r.status.code()));
-    out->set_message(std::string(r.status.message()));
-    out->set_duplicate(r.duplicate);
-    out->set_late(r.late);
-    if (r.status.ok() && !r.duplicate) {
-      events.push_back({"tell", r.trial, worker, r.late ? "late" : "", absl::ToUnixNanos(now)});
+  {
+    absl::MutexLock lock(&mu_);
+    if (absl::Status s = Usable(); !s.ok()) return s;
+    absl::StatusOr<study::TellPlan> plan = study_.PlanTell(reports, now);
+    if (!plan.ok()) return plan.status();
+    std::vector<storage::Event> events;
+    for (const study::ReportResult& r : plan->results) {
+      v1::ReportResult* out = response.add_results();
+      out->set_trial(r.trial);
+      out->set_code(static_cast<int>(r.status.code()));
+      out->set_message(std::string(r.status.message()));
+      out->set_duplicate(r.duplicate);
+      out->set_late(r.late);
+      if (r.status.ok() && !r.duplicate) {
+        events.push_back({"tell", r.trial, worker, r.late ? "late" : "", absl::ToUnixNanos(now)});
+      }
     }
+    queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::nullopt, now);
+    response.set_generation(study_.engine().generation);
+    response.set_phase(codec::PhaseToProto(study_.engine().phase));
   }
-  if (absl::Status s = CommitAndApply(std::move(plan->change), std::move(events), std::nullopt, now); !s.ok()) {
-    return s;
-  }
-  response.set_generation(study_.engine().generation);
-  response.set_phase(codec::PhaseToProto(study_.engine().phase));
+  if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
   return response;
 }
 
 absl::StatusOr<v1::RenewResponse> StudyHost::Renew(const std::vector<int64_t>& trials, const std::string& worker,
                                                    std::optional<absl::Duration> lease, absl::Time now) {
-  absl::MutexLock lock(&mu_);
-  absl::StatusOr<study::Change> change = study_.PlanRenew(trials, worker, lease, now);
-  if (!change.ok()) return change.status();
-  if (absl::Status s = CommitAndApply(*std::move(change), {}, std::nullopt, now); !s.ok()) return s;
+  Queued queued;
   v1::RenewResponse response;
-  for (int64_t n : trials) *response.add_trials() = TrialView(*study_.trial(n));
+  {
+    absl::MutexLock lock(&mu_);
+    if (absl::Status s = Usable(); !s.ok()) return s;
+    absl::StatusOr<study::Change> change = study_.PlanRenew(trials, worker, lease, now);
+    if (!change.ok()) return change.status();
+    queued = ApplyAndQueue(*std::move(change), {}, std::nullopt, now);
+    for (int64_t n : trials) *response.add_trials() = TrialView(*study_.trial(n));
+  }
+  if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
   return response;
 }
 
 absl::StatusOr<v1::StudyView> StudyHost::SetPhase(study::PhaseCommand command, absl::Time now) {
-  absl::MutexLock lock(&mu_);
-  absl::StatusOr<study::Change> change = study_.PlanSetPhase(command, now);
-  if (!change.ok()) return change.status();
-  if (absl::Status s = CommitAndApply(*std::move(change), {}, std::nullopt, now); !s.ok()) return s;
-  return ViewLocked(false);
+  Queued queued;
+  v1::StudyView view;
+  {
+    absl::MutexLock lock(&mu_);
+    if (absl::Status s = Usable(); !s.ok()) return s;
+    absl::StatusOr<study::Change> change = study_.PlanSetPhase(command, now);
+    if (!change.ok()) return change.status();
+    queued = ApplyAndQueue(*std::move(change), {}, std::nullopt, now);
+    view = ViewLocked(false);
+  }
+  if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
+  return view;
 }
 
 absl::StatusOr<int> StudyHost::Sweep(absl::Time now) {
-  absl::MutexLock lock(&mu_);
-  study::Change change = study_.PlanSweep(now);
-  if (change.trials.empty()) return 0;
-  const int lapsed = static_cast<int>(change.trials.size());
-  std::vector<storage::Event> events;
-  for (const study::Trial& t : change.trials) events.push_back({"lapse", t.number, t.worker, "", absl::ToUnixNanos(now)});
-  if (absl::Status s = CommitAndApply(std::move(change), std::move(events), std::nullopt, now); !s.ok()) return s;
+  Queued queued;
+  int lapsed = 0;
+  {
+    absl::MutexLock lock(&mu_);
+    if (absl::Status s = Usable(); !s.ok()) return s;
+    study::Change change = study_.PlanSweep(now);
+    if (change.trials.empty()) return 0;
+    lapsed = static_cast<int>(change.trials.size());
+    std::vector<storage::Event> events;
+    for (const study::Trial& t : change.trials) {
+      events.push_back({"lapse", t.number, t.worker, "", absl::ToUnixNanos(now)});
+    }
+    queued = ApplyAndQueue(std::move(change), std::move(events), std::nullopt, now);
+  }
+  if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
   return lapsed;
 }
 

@@ -1,8 +1,14 @@
 // StudyHost: one study served by ogived — the engine (study::Study), its design, and the path of every
-// request through it: validate, plan, commit to the store, apply, reply. Memory never runs ahead of
-// disk: a change is applied only after the store committed it, so a failed commit leaves both as they
-// were. Operations on one study are serialized by the host's mutex; different studies never wait for
-// each other (beyond sharing the store's group commit).
+// request through it: plan, apply, queue the write, reply once it committed.
+//
+// A reply is sent only after the transaction holding its change committed. To let many requests of one
+// study share an fsync, the host applies a change to memory under its mutex and queues the write in
+// order, then waits for the commit outside the mutex; the next request plans on top. The writes of one
+// host form a chain in the store: if one fails, every later one fails too, nothing of them is stored,
+// and the host reloads the study from the store (what is on disk) before it serves again. So a failed
+// commit never leaves memory ahead of disk for long, and never acknowledges anything not on disk.
+// Operations on one study are serialized by the host's mutex; different studies never wait for each
+// other (beyond sharing the store's group commit).
 //
 // Thread-safe. Owned by the Registry; handlers hold it by shared_ptr.
 #ifndef OGIVE_SERVER_SERVICE_STUDY_HOST_H_
@@ -62,10 +68,19 @@ class StudyHost {
   bool done() const;
 
  private:
-  // Commits `change` and the extra log lines, then applies it. Caller holds mu_.
-  absl::Status CommitAndApply(study::Change change, std::vector<storage::Event> events,
-                              std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request,
-                              absl::Time now) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // A queued write of this host and the chain it belongs to.
+  struct Queued {
+    std::unique_ptr<storage::PendingCommit> pending;
+    int64_t chain = 0;
+  };
+  // Applies `change` to memory and queues its write (with the extra log lines). Caller holds mu_.
+  Queued ApplyAndQueue(study::Change change, std::vector<storage::Event> events,
+                       std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request, absl::Time now)
+      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+  // Waits for a queued write outside mu_; after a failure reloads the study from the store.
+  absl::Status Await(Queued queued) ABSL_LOCKS_EXCLUDED(mu_);
+  // UNAVAILABLE while the study could not be reloaded after a failed commit.
+  absl::Status Usable() const ABSL_SHARED_LOCKS_REQUIRED(mu_);
   v1::Trial TrialView(const study::Trial& t) const ABSL_SHARED_LOCKS_REQUIRED(mu_);
   v1::StudyView ViewLocked(bool brief) const ABSL_SHARED_LOCKS_REQUIRED(mu_);
 
@@ -78,6 +93,8 @@ class StudyHost {
   study::Study study_ ABSL_GUARDED_BY(mu_);
   absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests_ ABSL_GUARDED_BY(mu_);
   int64_t version_ ABSL_GUARDED_BY(mu_) = 0;
+  int64_t chain_ ABSL_GUARDED_BY(mu_) = 1;          // the store chain of this host's writes
+  absl::Status broken_ ABSL_GUARDED_BY(mu_);        // set when a reload failed
 };
 
 }  // namespace ogive::service

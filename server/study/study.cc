@@ -207,7 +207,7 @@ class Study::Planner {
 
   // Forms and consumes cohorts while λ pending outcomes are waiting; then applies the stopping rules.
   void UpdateWhileReady() {
-    if (engine_.phase == Phase::kDone) return;
+    CheckTarget();  // a target reached by these reports ends the study before any update
     while (engine_.phase != Phase::kDone) {
       DropStale();
       const int lambda = engine_.distribution->population_size();
@@ -216,6 +216,7 @@ class Study::Planner {
       for (auto it = pending_.begin(); static_cast<int>(cohort.size()) < lambda; ++it) cohort.push_back(it->second);
       Consume(cohort);
     }
+    DropStale();  // also when the last update ended the study
     CheckTargetAndBudget();
   }
 
@@ -349,14 +350,19 @@ class Study::Planner {
     DropStale();
   }
 
-  void CheckTargetAndBudget() {
+  void CheckTarget() {
     if (engine_.phase == Phase::kDone) return;
     const Trial* best = Get(engine_.best_trial);
     if (study_.options_.target.has_value() && best != nullptr &&
         search::CompareOutcomes(*best->outcome, *study_.options_.target, study_.order_) <= 0) {
       SetPhase(Phase::kDone, DoneReason::kTarget, absl::StrCat("trial ", best->number, " reached the target"));
-      return;
     }
+  }
+
+  // The cohort that completes the budget is still consumed; the study ends after it.
+  void CheckTargetAndBudget() {
+    CheckTarget();
+    if (engine_.phase == Phase::kDone) return;
     const int64_t budget = study_.options_.trial_budget;
     if (budget > 0 && engine_.informative >= budget) {
       SetPhase(Phase::kDone, DoneReason::kBudget,
@@ -506,6 +512,7 @@ absl::StatusOr<Change> Study::PlanSetPhase(PhaseCommand command, absl::Time now)
       if (engine_.phase == Phase::kDone) {
         return absl::FailedPreconditionError("study is done; a done study cannot be paused");
       }
+      if (engine_.phase == Phase::kPaused) return planner.Finish();
       planner.SetPhase(Phase::kPaused, DoneReason::kNone, "paused by request");
       break;
     case PhaseCommand::kResume:
@@ -513,7 +520,8 @@ absl::StatusOr<Change> Study::PlanSetPhase(PhaseCommand command, absl::Time now)
         return absl::FailedPreconditionError(absl::StrCat("study is done (", DoneReasonName(engine_.reason),
                                                           "); a done study cannot be resumed"));
       }
-      planner.SetPhase(Phase::kOpen, DoneReason::kNone, "");
+      if (engine_.phase == Phase::kOpen) return planner.Finish();
+      planner.SetPhase(Phase::kOpen, DoneReason::kNone, "resumed by request");
       break;
     case PhaseCommand::kFinish:
       if (engine_.phase == Phase::kDone) return planner.Finish();

@@ -154,6 +154,7 @@ class Study {
   const search::Space& space() const { return space_; }
   const search::OutcomeOrder& order() const { return order_; }
   const StudyOptions& options() const { return options_; }
+  const search::DistributionOptions& distribution_options() const { return distribution_options_; }
   const EngineState& engine() const { return engine_; }
   const search::SearchDistribution& distribution() const { return *engine_.distribution; }
   const TrialCounts& counts() const { return counts_; }

@@ -154,6 +154,11 @@ def update(state, params, x, f):
     # Tie-aware weights per sample: mean weights use w^+ = max(w, 0), covariance weights the full w.
     w_mean = tied_weights(f, np.maximum(w, 0.0))
     w_cov = tied_weights(f, w)
+    # ogive's rule for ties (the tutorial has none): the paths are normalized with the variance-
+    # effective selection mass of the weights actually used, 1 / sum_i w_mean_i^2, so that under
+    # random selection <y> scaled by it is still N(0, C). Without ties this is mu_eff itself.
+    if len(set(f)) < len(f):
+        mu_eff = 1.0 / float(np.sum(w_mean ** 2))
 
     # 1. y_i = (x_i - m) / sigma
     y = (x - state.m) / state.sigma

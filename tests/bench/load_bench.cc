@@ -1,0 +1,227 @@
+// ogive-bench-load: N client threads, each with its own channel, loop Ask(1) + Tell against one ogived
+// on loopback for T seconds; in the same run the same harness calls the health service's Check RPC as
+// a no-op baseline. Prints one JSON object with one result per N.
+//
+// ratio = (ask+tell pairs per second) / (baseline calls per second / 2): how close a durable ask+tell
+// pair (every tell committed with synchronous=FULL) comes to two calls that do nothing.
+//
+// Usage: ogive-bench-load --ogived PATH [--seconds T] [--clients 1,16,64,256]
+#include <signal.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <atomic>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <cstring>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "absl/strings/numbers.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_split.h"
+#include "client/ogive_client.h"
+#include "grpc/health/v1/health.grpc.pb.h"
+#include "grpcpp/grpcpp.h"
+
+namespace {
+
+using Clock = std::chrono::steady_clock;
+
+int FreePort() {
+  // Let the kernel pick: bind to port 0, read it back, close. A race with another process taking the
+  // port in between is possible but harmless for a benchmark (ogived would fail to start, loudly).
+  const std::string out = "/tmp/ogive-bench-port";
+  std::system(("/usr/bin/python3 -c 'import socket; s = socket.socket(); s.bind((\"127.0.0.1\", 0)); "
+               "print(s.getsockname()[1])' > " + out).c_str());
+  FILE* f = std::fopen(out.c_str(), "r");
+  int port = 0;
+  if (f != nullptr) {
+    if (std::fscanf(f, "%d", &port) != 1) port = 0;
+    std::fclose(f);
+  }
+  return port;
+}
+
+struct Measurement {
+  double pairs_per_s = 0;
+  double p50_ms = 0, p99_ms = 0, max_ms = 0;
+  long errors = 0;
+};
+
+double Percentile(std::vector<double>& v, double q) {
+  if (v.empty()) return 0;
+  const size_t k = std::min(v.size() - 1, static_cast<size_t>(q * (v.size() - 1) + 0.5));
+  std::nth_element(v.begin(), v.begin() + k, v.end());
+  return v[k];
+}
+
+// Each client: Ask(1), Tell(score) until the deadline; latency per pair.
+Measurement RunAskTell(const std::string& target, const std::string& study, int clients, double seconds) {
+  std::vector<std::vector<double>> latencies(clients);
+  std::vector<long> errors(clients, 0);
+  std::atomic<bool> go{false};
+  const auto deadline_after = std::chrono::duration<double>(seconds);
+  std::vector<std::thread> threads;
+  for (int c = 0; c < clients; ++c) {
+    threads.emplace_back([&, c] {
+      ogive::client::ClientOptions options;
+      options.max_attempts = 1;
+      grpc::ChannelArguments args;
+      args.SetInt("ogive.client", c);  // distinct arguments: a channel (and connection) of its own
+      auto client = std::make_unique<ogive::client::Client>(
+          grpc::CreateCustomChannel(target, grpc::InsecureChannelCredentials(), args), options);
+      while (!go) std::this_thread::yield();
+      const auto end = Clock::now() + std::chrono::duration_cast<Clock::duration>(deadline_after);
+      const std::string worker = absl::StrCat("bench-", c);
+      while (Clock::now() < end) {
+        const auto start = Clock::now();
+        absl::StatusOr<ogive::v1::AskResponse> asked = client->Ask(study, 1, worker, 600);
+        if (!asked.ok() || asked->trials_size() != 1) {
+          if (errors[c]++ == 0) std::fprintf(stderr, "client %d: ask: %s\n", c, asked.status().ToString().c_str());
+          continue;
+        }
+        ogive::v1::Report report;
+        report.set_trial(asked->trials(0).number());
+        double f = 0;
+        for (const auto& [name, value] : asked->trials(0).candidate().values()) f += value.real() * value.real();
+        report.mutable_outcome()->set_score(f);
+        absl::StatusOr<ogive::v1::TellResponse> told = client->Tell(study, {report}, worker);
+        if (!told.ok() || told->results(0).code() != 0) {
+          if (errors[c]++ == 0) {
+            std::fprintf(stderr, "client %d: tell: %s %s\n", c, told.status().ToString().c_str(),
+                         told.ok() ? told->results(0).message().c_str() : "");
+          }
+          continue;
+        }
+        latencies[c].push_back(std::chrono::duration<double, std::milli>(Clock::now() - start).count());
+      }
+    });
+  }
+  const auto start = Clock::now();
+  go = true;
+  for (auto& t : threads) t.join();
+  const double elapsed = std::chrono::duration<double>(Clock::now() - start).count();
+  std::vector<double> all;
+  Measurement m;
+  for (int c = 0; c < clients; ++c) {
+    all.insert(all.end(), latencies[c].begin(), latencies[c].end());
+    m.errors += errors[c];
+  }
+  m.pairs_per_s = all.size() / elapsed;
+  m.max_ms = all.empty() ? 0 : *std::max_element(all.begin(), all.end());
+  m.p99_ms = Percentile(all, 0.99);
+  m.p50_ms = Percentile(all, 0.50);
+  return m;
+}
+
+// Each client calls grpc.health.v1.Health/Check until the deadline.
+double RunBaseline(const std::string& target, int clients, double seconds) {
+  std::vector<long> calls(clients, 0);
+  std::atomic<bool> go{false};
+  std::vector<std::thread> threads;
+  for (int c = 0; c < clients; ++c) {
+    threads.emplace_back([&, c] {
+      grpc::ChannelArguments args;
+      args.SetInt("ogive.client", c);
+      auto stub = grpc::health::v1::Health::NewStub(
+          grpc::CreateCustomChannel(target, grpc::InsecureChannelCredentials(), args));
+      while (!go) std::this_thread::yield();
+      const auto end = Clock::now() + std::chrono::duration_cast<Clock::duration>(std::chrono::duration<double>(seconds));
+      while (Clock::now() < end) {
+        grpc::ClientContext context;
+        context.set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(10));
+        grpc::health::v1::HealthCheckResponse response;
+        if (stub->Check(&context, grpc::health::v1::HealthCheckRequest(), &response).ok()) ++calls[c];
+      }
+    });
+  }
+  const auto start = Clock::now();
+  go = true;
+  for (auto& t : threads) t.join();
+  const double elapsed = std::chrono::duration<double>(Clock::now() - start).count();
+  long total = 0;
+  for (long n : calls) total += n;
+  return total / elapsed;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  std::string ogived;
+  double seconds = 5;
+  std::vector<int> client_counts = {1, 16, 64, 256};
+  for (int i = 1; i < argc; ++i) {
+    const std::string arg = argv[i];
+    if (arg == "--ogived" && i + 1 < argc) ogived = argv[++i];
+    if (arg == "--seconds" && i + 1 < argc) seconds = std::atof(argv[++i]);
+    if (arg == "--clients" && i + 1 < argc) {
+      client_counts.clear();
+      for (absl::string_view s : absl::StrSplit(argv[++i], ',')) {
+        int n = 0;
+        if (absl::SimpleAtoi(s, &n) && n > 0) client_counts.push_back(n);
+      }
+    }
+  }
+  if (ogived.empty()) {
+    std::fprintf(stderr, "usage: ogive-bench-load --ogived PATH [--seconds T] [--clients 1,16,64,256]\n");
+    return 2;
+  }
+  char dir_template[] = "/tmp/ogive-bench-load.XXXXXX";
+  const std::string dir = mkdtemp(dir_template);
+  const int port = FreePort();
+  const std::string target = absl::StrCat("127.0.0.1:", port);
+  const pid_t server = fork();
+  if (server == 0) {
+    const std::string db = dir + "/load.db";
+    const std::string log = dir + "/ogived.log";
+    freopen(log.c_str(), "w", stderr);
+    execl(ogived.c_str(), ogived.c_str(), "--db", db.c_str(), "--listen", target.c_str(), nullptr);
+    _exit(127);
+  }
+  auto client = ogive::client::Client::Connect(target);
+  ogive::v1::StudyDesign design;
+  design.set_name("load");
+  for (int j = 0; j < 4; ++j) {
+    ogive::v1::Parameter* p = design.add_parameters();
+    p->set_name(absl::StrCat("x", j));
+    p->mutable_real()->set_low(-5);
+    p->mutable_real()->set_high(5);
+  }
+  design.mutable_objective()->set_direction(ogive::v1::LOWER_IS_BETTER);
+  design.set_seed(1);
+  bool created = false;
+  for (int attempt = 0; attempt < 100 && !created; ++attempt) {
+    created = client->CreateStudy(design).ok();
+    if (!created) std::this_thread::sleep_for(std::chrono::milliseconds(100));
+  }
+  if (!created) {
+    std::fprintf(stderr, "ogive-bench-load: could not create the study on %s (see %s/ogived.log)\n",
+                 target.c_str(), dir.c_str());
+    kill(server, SIGTERM);
+    return 1;
+  }
+  std::printf("{\n  \"benchmark\": \"ogive-bench-load\",\n  \"seconds\": %g,\n  \"synchronous\": \"FULL\",\n"
+              "  \"results\": [",
+              seconds);
+  for (size_t k = 0; k < client_counts.size(); ++k) {
+    const int n = client_counts[k];
+    const Measurement m = RunAskTell(target, "load", n, seconds);
+    const double baseline = RunBaseline(target, n, seconds);
+    std::printf("%s\n    {\"clients\": %d, \"asks_per_s\": %.1f, \"tells_per_s\": %.1f, \"p50_ms\": %.3f, "
+                "\"p99_ms\": %.3f, \"max_ms\": %.3f, \"errors\": %ld, \"baseline_calls_per_s\": %.1f, "
+                "\"ratio\": %.3f}",
+                k ? "," : "", n, m.pairs_per_s, m.pairs_per_s, m.p50_ms, m.p99_ms, m.max_ms, m.errors, baseline,
+                m.pairs_per_s / (baseline / 2));
+    std::fflush(stdout);
+  }
+  std::printf("\n  ]\n}\n");
+  kill(server, SIGTERM);
+  int status = 0;
+  waitpid(server, &status, 0);
+  return WIFEXITED(status) && WEXITSTATUS(status) == 0 ? 0 : 1;
+}
