@@ -370,169 +370,184 @@ int RunWorkCommand(const Invocation& inv) {
 
 // ---- The command table ----
 
+// What `ogive COMMAND --help` says besides the usage line and the options.
+constexpr char kStudyCreateHelp[] =
+    R"(Creates a study from the StudyDesign in FILE: protobuf text format, or JSON (the proto3
+JSON mapping) when FILE ends in .json. Prints the study's name and population size.
+Errors in the file are shown with their line and column.
+)";
+
+constexpr char kStudyListHelp[] = R"(Lists every study on the server in name order.
+)";
+
+constexpr char kStudyShowHelp[] =
+    R"(Shows the study's objective, phase, generation, trial and outcome counts, the best trial
+with its candidate, and the search distribution in the parameters' units: mean and spread
+of each real and integer parameter, P(on) of each flag, the probabilities of each
+categorical parameter's options. --json prints the StudyView.
+)";
+
+constexpr char kStudyPauseHelp[] =
+    R"(Pauses the study: asks are refused until it is resumed; leased trials may still report.
+)";
+
+constexpr char kStudyResumeHelp[] = R"(Resumes a paused study.
+)";
+
+constexpr char kStudyFinishHelp[] =
+    R"(Finishes the study: it becomes done (reason stopped) and hands out no more
+candidates. This cannot be undone.
+)";
+
+constexpr char kStudyTrialsHelp[] =
+    R"(Lists the study's trials in number order: state, generation, worker, outcome, whether it
+came late, what the search made of it (pending, consumed, too_stale), and the candidate.
+--csv prints CSV with a header row (RFC 4180 quoting); --json a JSON array of trials.
+)";
+
+constexpr char kAskHelp[] =
+    R"(Leases N trials of study NAME and prints each: its number, its lease deadline and its
+candidate (name = value unit). Report each with 'ogive tell' before the lease runs out,
+or extend it with 'ogive renew'.
+)";
+
+constexpr char kTellHelp[] =
+    R"(Reports the outcome of trial TRIAL of study NAME. Give exactly one of:
+  --score X        a measured number (finite), ordered by the study's direction
+  --grade LABEL    a label of the study's grade scale
+  --infeasible     evaluated, but it broke a constraint (ranks below every score)
+  --void           nothing was learned (the run never happened)
+Prints 'stored', 'stored (late)' (the lease had lapsed) or 'already stored (duplicate)'.
+)";
+
+constexpr char kRenewHelp[] =
+    R"(Extends the leases of the given trials of study NAME. Without --worker each lease is
+renewed for the worker that holds it. A lapsed trial that has not reported is leased
+again.
+)";
+
+constexpr char kWorkHelp[] =
+    R"(Runs PROGRAM (directly, not through a shell) for one trial after another, K at a time.
+Each run sees the candidate in its environment:
+  OGIVE_<NAME>=value     one per parameter; NAME upper-cased, '-' and '.' become '_';
+                         reals exact (%.17g), integers, flags 1/0, options by name
+  OGIVE_STUDY, OGIVE_TRIAL, OGIVE_CANDIDATE_FILE (a JSON object name -> value)
+Standard input is /dev/null; standard output is copied through, and its last non-empty
+line is the outcome: a number is a score; a label of the study's grade scale (any case) is
+a grade; the word 'infeasible' is infeasible. Anything else, a non-zero exit status or
+death by a signal reports void, with a note saying why. The lease is renewed while
+PROGRAM runs.
+
+Stops when the study is done (exit 0), after N trials started (exit 0), or on a server
+error (exit 1); waits while the study is paused. On SIGTERM or SIGINT it sends SIGTERM to
+the running programs, reports their trials void and exits with 128 + the signal (143 for
+SIGTERM). One line per trial goes to standard error: 'trial 12: score 3.25 (41.2 s)'.
+)";
+
 std::vector<Command> MakeCommands() {
   std::vector<Command> commands;
+  commands.push_back({.words = {"study", "create"},
+                      .synopsis = "FILE",
+                      .summary = "create a study from a design file",
+                      .details = kStudyCreateHelp,
+                      .min_positional = 1,
+                      .max_positional = 1,
+                      .run = RunStudyCreate});
+  commands.push_back({.words = {"study", "list"},
+                      .synopsis = "",
+                      .summary = "every study: phase, generation, trials by state, best outcome",
+                      .details = kStudyListHelp,
+                      .run = RunStudyList});
+  commands.push_back({.words = {"study", "show"},
+                      .synopsis = "NAME",
+                      .summary = "one study: status, best trial, search distribution",
+                      .details = kStudyShowHelp,
+                      .min_positional = 1,
+                      .max_positional = 1,
+                      .run = RunStudyShow});
+  commands.push_back({.words = {"study", "pause"},
+                      .synopsis = "NAME",
+                      .summary = "stop handing out candidates (reports are still taken)",
+                      .details = kStudyPauseHelp,
+                      .min_positional = 1,
+                      .max_positional = 1,
+                      .run = RunStudyPause});
+  commands.push_back({.words = {"study", "resume"},
+                      .synopsis = "NAME",
+                      .summary = "hand out candidates again",
+                      .details = kStudyResumeHelp,
+                      .min_positional = 1,
+                      .max_positional = 1,
+                      .run = RunStudyResume});
+  commands.push_back({.words = {"study", "finish"},
+                      .synopsis = "NAME",
+                      .summary = "end the study for good (done, reason stopped)",
+                      .details = kStudyFinishHelp,
+                      .min_positional = 1,
+                      .max_positional = 1,
+                      .run = RunStudyFinish});
+  commands.push_back({.words = {"study", "trials"},
+                      .synopsis = "NAME [--state STATE] [--csv]",
+                      .summary = "a study's trials as a table, CSV or JSON",
+                      .details = kStudyTrialsHelp,
+                      .options = {{"--state", "", "STATE",
+                                   "only trials in this state: leased, reported, lapsed or voided"},
+                                  {"--csv", "", "", "print CSV instead of a table"}},
+                      .min_positional = 1,
+                      .max_positional = 1,
+                      .run = RunStudyTrials});
   commands.push_back(
-      {{"study", "create"},
-       "FILE",
-       "create a study from a design file",
-       "Creates a study from the StudyDesign in FILE: protobuf text format, or JSON (the proto3\n"
-       "JSON mapping) when FILE ends in .json. Prints the study's name and population size.\n"
-       "Errors in the file are shown with their line and column.\n",
-       {},
-       1,
-       1,
-       false,
-       true,
-       RunStudyCreate});
-  commands.push_back({{"study", "list"},
-                      "",
-                      "every study: phase, generation, trials by state, best outcome",
-                      "Lists every study on the server in name order.\n",
-                      {},
-                      0,
-                      0,
-                      false,
-                      true,
-                      RunStudyList});
+      {.words = {"ask"},
+       .synopsis = "NAME [-n N] [--worker ID] [--lease SECONDS]",
+       .summary = "lease candidates to evaluate",
+       .details = kAskHelp,
+       .options = {{"-n", "", "N", "how many trials (default 1)"},
+                   {"--worker", "", "ID",
+                    "who evaluates them, shown in trial lists (default HOST:PID)"},
+                   {"--lease", "", "SECONDS", "lease length (default: the study's)"}},
+       .min_positional = 1,
+       .max_positional = 1,
+       .run = RunAsk});
   commands.push_back(
-      {{"study", "show"},
-       "NAME",
-       "one study: status, best trial, search distribution",
-       "Shows the study's objective, phase, generation, trial and outcome counts, the best trial\n"
-       "with its candidate, and the search distribution in the parameters' units: mean and spread\n"
-       "of each real and integer parameter, P(on) of each flag, the probabilities of each\n"
-       "categorical parameter's options. --json prints the StudyView.\n",
-       {},
-       1,
-       1,
-       false,
-       true,
-       RunStudyShow});
-  commands.push_back({{"study", "pause"},
-                      "NAME",
-                      "stop handing out candidates (reports are still taken)",
-                      "Pauses the study: asks are refused until it is resumed; leased trials may "
-                      "still report.\n",
-                      {},
-                      1,
-                      1,
-                      false,
-                      true,
-                      RunStudyPause});
-  commands.push_back({{"study", "resume"},
-                      "NAME",
-                      "hand out candidates again",
-                      "Resumes a paused study.\n",
-                      {},
-                      1,
-                      1,
-                      false,
-                      true,
-                      RunStudyResume});
-  commands.push_back({{"study", "finish"},
-                      "NAME",
-                      "end the study for good (done, reason stopped)",
-                      "Finishes the study: it becomes done (reason stopped) and hands out no more\n"
-                      "candidates. This cannot be undone.\n",
-                      {},
-                      1,
-                      1,
-                      false,
-                      true,
-                      RunStudyFinish});
+      {.words = {"tell"},
+       .synopsis = "NAME TRIAL (--score X | --grade LABEL | --infeasible | --void) [--note TEXT]",
+       .summary = "report a trial's outcome",
+       .details = kTellHelp,
+       .options = {{"--score", "", "X", "a score"},
+                   {"--grade", "", "LABEL", "a grade"},
+                   {"--infeasible", "", "", "infeasible"},
+                   {"--void", "", "", "void"},
+                   {"--note", "", "TEXT", "free text stored with the outcome"},
+                   {"--worker", "", "ID", "who reports, for the server's log (default HOST:PID)"}},
+       .min_positional = 2,
+       .max_positional = 2,
+       .run = RunTell});
   commands.push_back(
-      {{"study", "trials"},
-       "NAME [--state STATE] [--csv]",
-       "a study's trials as a table, CSV or JSON",
-       "Lists the study's trials in number order: state, generation, worker, outcome, whether it\n"
-       "came late, what the search made of it (pending, consumed, too_stale), and the candidate.\n"
-       "--csv prints CSV with a header row (RFC 4180 quoting); --json a JSON array of trials.\n",
-       {{"--state", "", "STATE", "only trials in this state: leased, reported, lapsed or voided"},
-        {"--csv", "", "", "print CSV instead of a table"}},
-       1,
-       1,
-       false,
-       true,
-       RunStudyTrials});
+      {.words = {"renew"},
+       .synopsis = "NAME TRIAL... [--lease SECONDS] [--worker ID]",
+       .summary = "extend leases",
+       .details = kRenewHelp,
+       .options = {{"--lease", "", "SECONDS", "new lease length from now (default: the study's)"},
+                   {"--worker", "", "ID", "the worker that holds the leases"}},
+       .min_positional = 2,
+       .max_positional = SIZE_MAX,
+       .run = RunRenew});
   commands.push_back(
-      {{"ask"},
-       "NAME [-n N] [--worker ID] [--lease SECONDS]",
-       "lease candidates to evaluate",
-       "Leases N trials of study NAME and prints each: its number, its lease deadline and its\n"
-       "candidate (name = value unit). Report each with 'ogive tell' before the lease runs out,\n"
-       "or extend it with 'ogive renew'.\n",
-       {{"-n", "", "N", "how many trials (default 1)"},
-        {"--worker", "", "ID", "who evaluates them, shown in trial lists (default HOST:PID)"},
-        {"--lease", "", "SECONDS", "lease length (default: the study's)"}},
-       1,
-       1,
-       false,
-       true,
-       RunAsk});
-  commands.push_back(
-      {{"tell"},
-       "NAME TRIAL (--score X | --grade LABEL | --infeasible | --void) [--note TEXT]",
-       "report a trial's outcome",
-       "Reports the outcome of trial TRIAL of study NAME. Give exactly one of:\n"
-       "  --score X        a measured number (finite), ordered by the study's direction\n"
-       "  --grade LABEL    a label of the study's grade scale\n"
-       "  --infeasible     evaluated, but it broke a constraint (ranks below every score)\n"
-       "  --void           nothing was learned (the run never happened)\n"
-       "Prints 'stored', 'stored (late)' (the lease had lapsed) or 'already stored (duplicate)'.\n",
-       {{"--score", "", "X", "a score"},
-        {"--grade", "", "LABEL", "a grade"},
-        {"--infeasible", "", "", "infeasible"},
-        {"--void", "", "", "void"},
-        {"--note", "", "TEXT", "free text stored with the outcome"},
-        {"--worker", "", "ID", "who reports, for the server's log (default HOST:PID)"}},
-       2,
-       2,
-       false,
-       true,
-       RunTell});
-  commands.push_back(
-      {{"renew"},
-       "NAME TRIAL... [--lease SECONDS] [--worker ID]",
-       "extend leases",
-       "Extends the leases of the given trials of study NAME. Without --worker each lease is\n"
-       "renewed for the worker that holds it. A lapsed trial that has not reported is leased\n"
-       "again.\n",
-       {{"--lease", "", "SECONDS", "new lease length from now (default: the study's)"},
-        {"--worker", "", "ID", "the worker that holds the leases"}},
-       2,
-       SIZE_MAX,
-       false,
-       true,
-       RunRenew});
-  commands.push_back(
-      {{"work"},
-       "NAME [--max-trials N] [--parallel K] [--lease SECONDS] [--worker ID] -- PROGRAM [ARGS...]",
-       "the worker loop: ask, run PROGRAM, tell, repeat",
-       "Runs PROGRAM (directly, not through a shell) for one trial after another, K at a time.\n"
-       "Each run sees the candidate in its environment:\n"
-       "  OGIVE_<NAME>=value     one per parameter; NAME upper-cased, '-' and '.' become '_';\n"
-       "                         reals exact (%.17g), integers, flags 1/0, options by name\n"
-       "  OGIVE_STUDY, OGIVE_TRIAL, OGIVE_CANDIDATE_FILE (a JSON object name -> value)\n"
-       "Standard input is /dev/null; standard output is copied through and its last non-empty\n"
-       "line is the outcome: a number is a score, a label of the study's grade scale (any case)\n"
-       "a grade, the word 'infeasible' infeasible. Anything else, a non-zero exit status or death\n"
-       "by a signal reports void, with a note saying why. Leases are renewed while PROGRAM runs.\n"
-       "\n"
-       "Stops when the study is done (exit 0), after N trials started (exit 0), or on a server\n"
-       "error (exit 1); waits while the study is paused. On SIGTERM or SIGINT it sends SIGTERM to\n"
-       "the running programs, reports their trials void and exits with 128 + the signal (143 for\n"
-       "SIGTERM). One line per trial goes to standard error: 'trial 12: score 3.25 (41.2 s)'.\n",
-       {{"--max-trials", "", "N", "stop after starting N trials (default: no limit)"},
-        {"--parallel", "", "K", "run K trials at once (default 1)"},
-        {"--lease", "", "SECONDS",
-         "lease length, renewed every third of it (default: the study's)"},
-        {"--worker", "", "ID", "worker name shown in trial lists (default HOST:PID)"}},
-       1,
-       1,
-       true,
-       false,
-       RunWorkCommand});
+      {.words = {"work"},
+       .synopsis = "NAME [--max-trials N] [--parallel K] [--lease SECONDS] [--worker ID]\n"
+                   "                  -- PROGRAM [ARGS...]",
+       .summary = "the worker loop: ask, run PROGRAM, tell, repeat",
+       .details = kWorkHelp,
+       .options = {{"--max-trials", "", "N", "stop after starting N trials (default: no limit)"},
+                   {"--parallel", "", "K", "run K trials at once (default 1)"},
+                   {"--lease", "", "SECONDS",
+                    "lease length, renewed every third of it (default: the study's)"},
+                   {"--worker", "", "ID", "worker name shown in trial lists (default HOST:PID)"}},
+       .min_positional = 1,
+       .max_positional = 1,
+       .takes_program = true,
+       .prints_data = false,
+       .run = RunWorkCommand});
   return commands;
 }
 
@@ -574,7 +589,8 @@ const std::vector<Command>& Commands() {
   return *commands;
 }
 
-std::string HelpText(const Command* command, absl::Span<const absl::string_view> group) {
+std::string HelpText(const Command* command, const std::vector<std::string>& group_words) {
+  const std::vector<absl::string_view> group(group_words.begin(), group_words.end());
   std::string out;
   if (command != nullptr) {
     absl::StrAppend(&out, "usage: ", Prefix(*command), command->synopsis.empty() ? "" : " ",
@@ -585,7 +601,7 @@ std::string HelpText(const Command* command, absl::Span<const absl::string_view>
     }
     absl::StrAppend(&out, "\nglobal options: --server HOST:PORT, --timeout SECONDS, ",
                     command->prints_data ? "--json, " : "",
-                    "--token-file PATH (see 'ogive --help')\n");
+                    "--token-file PATH\n(see 'ogive --help')\n");
     if (command->words[0] == "ask" || command->words[0] == "work") {
       absl::StrAppend(&out, "\n", kSafetyNote);
     }
@@ -691,7 +707,9 @@ absl::StatusOr<Invocation> ParseCommandLine(absl::Span<const std::string> args,
     if (arg == "--help" || arg == "-h") inv.help = true;
   }
   if (inv.help) {
-    if (inv.command == nullptr) inv.group = words;
+    if (inv.command == nullptr) {
+      for (absl::string_view w : words) inv.group.emplace_back(w);
+    }
     return inv;
   }
   if (inv.command == nullptr) {

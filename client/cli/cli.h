@@ -31,11 +31,11 @@ struct Invocation;
 
 // One subcommand: `ogive study create`, `ogive ask`, ...
 struct Command {
-  std::vector<absl::string_view> words;  // {"study", "create"}
-  absl::string_view synopsis;            // what follows the words in the usage line
-  absl::string_view summary;             // one line for `ogive --help`
-  absl::string_view details;             // paragraphs for `ogive ... --help`
-  std::vector<OptionSpec> options;       // besides the global ones
+  std::vector<absl::string_view> words = {};  // {"study", "create"}
+  absl::string_view synopsis = "";            // what follows the words in the usage line
+  absl::string_view summary = "";             // one line for `ogive --help`
+  absl::string_view details = "";             // paragraphs for `ogive ... --help`
+  std::vector<OptionSpec> options = {};       // besides the global ones
   size_t min_positional = 0;
   size_t max_positional = 0;
   bool takes_program = false;  // `-- PROGRAM [ARGS...]` (ogive work)
@@ -53,10 +53,10 @@ struct GlobalOptions {
 
 // A parsed command line.
 struct Invocation {
-  const Command* command = nullptr;      // nullptr: no command (top-level help)
-  std::vector<absl::string_view> group;  // for help on a group: {"study"}
-  bool help = false;                     // --help was asked for
-  ParsedArgs args;                       // the command's options and arguments
+  const Command* command = nullptr;  // nullptr: no command (top-level help)
+  std::vector<std::string> group;    // for help on a group: {"study"}
+  bool help = false;                 // --help was asked for
+  ParsedArgs args;                   // the command's options and arguments
   GlobalOptions globals;
 };
 
@@ -74,7 +74,7 @@ absl::StatusOr<Invocation> ParseCommandLine(absl::Span<const std::string> args,
                                             const GetEnv& getenv);
 
 // The help text of `command`, of a group ({"study"}), or of `ogive` itself (both empty).
-std::string HelpText(const Command* command, absl::Span<const absl::string_view> group);
+std::string HelpText(const Command* command, const std::vector<std::string>& group);
 
 // The outcome chosen by `ogive tell`'s options (exactly one of --score, --grade, --infeasible,
 // --void; --note adds a note). INVALID_ARGUMENT naming the options otherwise, or for a score that

@@ -552,8 +552,15 @@ TEST(DesignFileTest, TextErrorsNameFileLineAndColumn) {
                                                   "}\n");
   ASSERT_FALSE(d.ok());
   EXPECT_EQ(d.status().code(), absl::StatusCode::kInvalidArgument);
-  EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.textproto:3:7: "));
+  EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.textproto:3:3: "));
   EXPECT_THAT(std::string(d.status().message()), HasSubstr("nmae"));
+
+  d = ParseDesign("d.txtpb", "name: \"x\"\npopulation_size: many\n");
+  ASSERT_FALSE(d.ok());
+  EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.txtpb:2:18: "));
+  d = ParseDesign("d.txtpb", "parameters {\n  name: \"a\"\n");
+  ASSERT_FALSE(d.ok());
+  EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.txtpb:3:1: "));
 }
 
 TEST(DesignFileTest, ReadsJson) {

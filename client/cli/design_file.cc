@@ -32,11 +32,27 @@ class FirstError : public google::protobuf::io::ErrorCollector {
   }
   bool found() const { return found_; }
   // The first error, positions from 1.
-  std::string Describe(absl::string_view file_name) const {
-    return absl::StrCat(file_name, ":", line_ + 1, ":", column_ + 1, ": ", message_);
+  std::string Describe(absl::string_view file_name, absl::string_view contents) const {
+    return absl::StrCat(file_name, ":", line_ + 1, ":", NameColumn(contents) + 1, ": ", message_);
   }
 
  private:
+  // protobuf reports an unknown field at the token after its name; point at the name itself. (Lines
+  // with tabs are left alone: protobuf counts a tab as up to eight columns.)
+  int NameColumn(absl::string_view contents) const {
+    static constexpr absl::string_view kMarker = "no field named \"";
+    const size_t at = message_.find(kMarker.data(), 0, kMarker.size());
+    if (at == std::string::npos) return column_;
+    const size_t start = at + kMarker.size();
+    const std::string name = message_.substr(start, message_.find('"', start) - start);
+    const std::vector<absl::string_view> lines = absl::StrSplit(contents, '\n');
+    if (name.empty() || line_ < 0 || line_ >= static_cast<int>(lines.size())) return column_;
+    const absl::string_view line = lines[line_];
+    if (line.find('\t') != absl::string_view::npos) return column_;
+    const size_t found = line.substr(0, static_cast<size_t>(column_)).rfind(name);
+    return found == absl::string_view::npos ? column_ : static_cast<int>(found);
+  }
+
   bool found_ = false;
   int line_ = 0;
   int column_ = 0;
@@ -49,7 +65,7 @@ absl::StatusOr<v1::StudyDesign> ParseText(absl::string_view file_name, absl::str
   parser.RecordErrorsTo(&errors);
   v1::StudyDesign design;
   if (!parser.ParseFromString(std::string(contents), &design)) {
-    if (errors.found()) return absl::InvalidArgumentError(errors.Describe(file_name));
+    if (errors.found()) return absl::InvalidArgumentError(errors.Describe(file_name, contents));
     return absl::InvalidArgumentError(
         absl::StrCat(file_name, ":1:1: not a StudyDesign in text format"));
   }

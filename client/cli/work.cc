@@ -96,6 +96,10 @@ struct Running {
   std::unique_ptr<client::LeaseRenewer> renewer;
   bool exited = false;
   int wait_status = 0;
+  absl::Time ended = absl::InfiniteFuture();  // when the program exited
+
+  // How long the program ran (so far).
+  absl::Duration RunTime() const { return std::min(ended, absl::Now()) - started; }
 };
 
 // Copies complete lines of the program's output to our stdout, so that parallel programs interleave
@@ -255,6 +259,7 @@ bool Reap(Running& r) {
   if (pid == r.pid) {
     r.exited = true;
     r.wait_status = status;
+    r.ended = absl::Now();
   } else if (pid < 0) {  // not our child any more (cannot happen); treat it as gone
     r.exited = true;
     r.wait_status = 0;
@@ -262,8 +267,8 @@ bool Reap(Running& r) {
   return r.exited;
 }
 
-std::string Elapsed(absl::Time since) {
-  return absl::StrFormat("%.1f s", absl::ToDoubleSeconds(absl::Now() - since));
+std::string Seconds(absl::Duration d) {
+  return absl::StrFormat("%.1f s", absl::ToDoubleSeconds(d));
 }
 
 std::string ErrorText(const absl::Status& status) {
@@ -370,7 +375,8 @@ int WorkLoop::Run() {
   Log(absl::StrCat("ogive work: study ", options_.study, ", worker ", options_.worker, ", ",
                    options_.parallel, options_.parallel == 1 ? " slot" : " slots",
                    options_.max_trials > 0
-                       ? absl::StrCat(", at most ", options_.max_trials, " trials")
+                       ? absl::StrCat(", at most ", options_.max_trials,
+                                      options_.max_trials == 1 ? " trial" : " trials")
                        : std::string(),
                    ": ", absl::StrJoin(options_.command, " ")));
 
@@ -406,8 +412,8 @@ void WorkLoop::AskForTrials() {
   if (absl::Now() < retry_at_) return;
   if (options_.max_trials > 0 && started_ >= options_.max_trials) {
     stop_ = Stop::kMaxTrials;
-    stop_message_ = absl::StrCat("started ", started_, " trials (--max-trials ",
-                                 options_.max_trials, "); stopping");
+    stop_message_ = absl::StrCat("started ", started_, started_ == 1 ? " trial" : " trials",
+                                 " (--max-trials ", options_.max_trials, "); stopping");
     return;
   }
   int64_t count = options_.parallel - static_cast<int64_t>(running_.size());
@@ -455,7 +461,8 @@ void WorkLoop::HandleAskRefusal(const absl::Status& status) {
     stop_message_ = absl::StrCat("study ", options_.study, " is ", done_text, "; stopping");
     if (!running_.empty()) {
       Log(absl::StrCat("ogive work: study ", options_.study, " is done; waiting for ",
-                       running_.size(), " running trials"));
+                       running_.size(),
+                       running_.size() == 1 ? " running trial" : " running trials"));
     }
     return;
   }
@@ -547,7 +554,7 @@ void WorkLoop::Tell(const std::vector<std::pair<const Running*, v1::Outcome>>& r
   if (told.ok()) unavailable_since_ = absl::InfiniteFuture();
   for (size_t i = 0; i < reports.size(); ++i) {
     const auto& [r, outcome] = reports[i];
-    std::string line = TrialLogLine(r->trial, outcome, Elapsed(r->started));
+    std::string line = TrialLogLine(r->trial, outcome, Seconds(r->RunTime()));
     if (!told.ok()) {
       absl::StrAppend(&line, "; NOT stored: ", ErrorText(told.status()));
     } else if (static_cast<int>(i) < told->results_size()) {

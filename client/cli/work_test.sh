@@ -238,7 +238,7 @@ timeout 10 "$OGIVE" study pause e2e-graded >/dev/null
 "$OGIVE" work e2e-graded --max-trials 1 -- "$TMP/grade.sh" >"$TMP/paused.out" 2>"$TMP/paused.log" &
 WORK_PID=$!
 for _ in $(seq 200); do
-  grep -q "is paused" "$TMP/paused.log" && break
+  grep -qs "is paused" "$TMP/paused.log" && break
   sleep 0.05
 done
 grep -q "is paused" "$TMP/paused.log" || fail "paused: the worker did not say the study is paused"
