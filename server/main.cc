@@ -19,6 +19,7 @@
 
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
+#include "absl/synchronization/mutex.h"
 #include "absl/synchronization/notification.h"
 #include "absl/time/clock.h"
 #include "grpcpp/ext/proto_server_reflection_plugin.h"
@@ -117,6 +118,8 @@ void OnSignal(int) {
 
 int main(int argc, char** argv) {
   const Flags flags = ParseFlags(argc, argv);
+  // Lock-order checking is for tests; in the server it costs a graph update on every lock.
+  absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
   using ogive::service::LogLine;
 
   absl::StatusOr<std::unique_ptr<ogive::storage::SqliteStore>> store =

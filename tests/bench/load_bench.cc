@@ -154,11 +154,13 @@ double RunBaseline(const std::string& target, int clients, double seconds) {
 
 int main(int argc, char** argv) {
   std::string ogived;
+  std::string existing;
   double seconds = 5;
   std::vector<int> client_counts = {1, 16, 64, 256};
   for (int i = 1; i < argc; ++i) {
     const std::string arg = argv[i];
     if (arg == "--ogived" && i + 1 < argc) ogived = argv[++i];
+    if (arg == "--server" && i + 1 < argc) existing = argv[++i];  // a running server (for profiling)
     if (arg == "--seconds" && i + 1 < argc) seconds = std::atof(argv[++i]);
     if (arg == "--clients" && i + 1 < argc) {
       client_counts.clear();
@@ -168,15 +170,15 @@ int main(int argc, char** argv) {
       }
     }
   }
-  if (ogived.empty()) {
-    std::fprintf(stderr, "usage: ogive-bench-load --ogived PATH [--seconds T] [--clients 1,16,64,256]\n");
+  if (ogived.empty() == existing.empty()) {
+    std::fprintf(stderr,
+                 "usage: ogive-bench-load (--ogived PATH | --server HOST:PORT) [--seconds T] [--clients 1,16,64,256]\n");
     return 2;
   }
   char dir_template[] = "/tmp/ogive-bench-load.XXXXXX";
   const std::string dir = mkdtemp(dir_template);
-  const int port = FreePort();
-  const std::string target = absl::StrCat("127.0.0.1:", port);
-  const pid_t server = fork();
+  const std::string target = existing.empty() ? absl::StrCat("127.0.0.1:", FreePort()) : existing;
+  const pid_t server = existing.empty() ? fork() : -1;
   if (server == 0) {
     const std::string db = dir + "/load.db";
     const std::string log = dir + "/ogived.log";
@@ -204,7 +206,7 @@ int main(int argc, char** argv) {
   if (!created) {
     std::fprintf(stderr, "ogive-bench-load: could not create the study on %s (see %s/ogived.log)\n",
                  target.c_str(), dir.c_str());
-    kill(server, SIGTERM);
+    if (server > 0) kill(server, SIGTERM);
     return 1;
   }
   std::printf("{\n  \"benchmark\": \"ogive-bench-load\",\n  \"seconds\": %g,\n  \"synchronous\": \"FULL\",\n"
@@ -222,6 +224,7 @@ int main(int argc, char** argv) {
     std::fflush(stdout);
   }
   std::printf("\n  ]\n}\n");
+  if (server < 0) return 0;
   kill(server, SIGTERM);
   int status = 0;
   waitpid(server, &status, 0);
