@@ -8,7 +8,7 @@ packages=(
   libgrpc++-dev protobuf-compiler-grpc libprotobuf-dev protobuf-compiler
   libeigen3-dev libabsl-dev libsqlite3-dev sqlite3
   libgtest-dev libgmock-dev
-  python3-numpy python3-scipy python3-grpcio python3-grpc-tools
+  python3-numpy python3-scipy python3-grpcio python3-protobuf
 )
 
 missing=()

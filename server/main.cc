@@ -45,6 +45,7 @@ constexpr char kUsage[] =
     "  --max-ask-count N           trials per Ask (default 1000)\n"
     "  --max-reports-per-tell N    reports per Tell (default 1000)\n"
     "  --max-studies N             studies per server (default 10000)\n"
+    "  --allow-insecure-remote     listen on a non-loopback address without TLS (plain text!)\n"
     "  --help                      this text\n"
     "\n"
     "Candidates are suggestions: check them against your local safety rules before they drive\n"
@@ -54,6 +55,7 @@ struct Flags {
   std::string db = "ogive.db";
   std::string listen = "127.0.0.1:7075";
   double sweep_interval_seconds = 1.0;
+  bool allow_insecure_remote = false;
   ogive::service::ServiceLimits limits;
 };
 
@@ -69,6 +71,10 @@ Flags ParseFlags(int argc, char** argv) {
     if (arg == "--help" || arg == "-h") {
       std::fputs(kUsage, stdout);
       std::exit(0);
+    }
+    if (arg == "--allow-insecure-remote") {
+      flags.allow_insecure_remote = true;
+      continue;
     }
     const size_t eq = arg.find('=');
     const std::string name = arg.substr(0, eq);
@@ -104,6 +110,13 @@ Flags ParseFlags(int argc, char** argv) {
     }
   }
   if (absl::Status s = flags.limits.Validate(); !s.ok()) Fail(std::string(s.message()));
+  const bool loopback = flags.listen.rfind("127.", 0) == 0 || flags.listen.rfind("localhost:", 0) == 0 ||
+                        flags.listen.rfind("[::1]:", 0) == 0;
+  if (!loopback && !flags.allow_insecure_remote) {
+    Fail(absl::StrCat("--listen ", flags.listen,
+                      ": without TLS ogived listens on loopback only (127.0.0.1, [::1], localhost); pass "
+                      "--allow-insecure-remote to serve other hosts in plain text"));
+  }
   return flags;
 }
 
@@ -136,6 +149,8 @@ int main(int argc, char** argv) {
   int port = 0;
   builder.AddListeningPort(flags.listen, grpc::InsecureServerCredentials(), &port);
   builder.SetMaxReceiveMessageSize(flags.limits.max_message_bytes);
+  // A port already in use is an error, not a port to share with another server.
+  builder.AddChannelArgument(GRPC_ARG_ALLOW_REUSEPORT, 0);
   builder.RegisterService(&service);
   std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
   if (server == nullptr || port == 0) Fail(absl::StrCat("cannot listen on '", flags.listen, "'"));

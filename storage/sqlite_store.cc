@@ -1,5 +1,12 @@
 #include "storage/sqlite_store.h"
 
+#include <fcntl.h>
+#include <sys/file.h>
+#include <unistd.h>
+
+#include <cerrno>
+#include <cstring>
+
 #include <sqlite3.h>
 
 #include <algorithm>
@@ -296,6 +303,7 @@ struct SqliteStore::EncodedWrite {
   std::optional<NewStudy> create;  // set for CreateStudy; everything below is for Commit
   int64_t study_id = 0;
   int64_t chain = 0;
+  absl::Status refusal;  // not OK: refused before queuing; fails in its place without being applied
   std::vector<Trial> trials;
   std::optional<std::string> engine;
   std::optional<std::string> distribution;
@@ -336,6 +344,19 @@ absl::StatusOr<std::unique_ptr<SqliteStore>> SqliteStore::Open(const std::string
     if (store->writer_->ReadOnly()) {
       return absl::FailedPreconditionError(absl::StrCat(
           "database file '", path, "' is not writable; open it with read_only to read it"));
+    }
+    // One writing store per database file: a second server on the same file would hand out the same
+    // trial numbers and overwrite acknowledged outcomes. The lock is on a side file (SQLite's own
+    // exclusive locking mode would shut out our reader connections) and is released when the store
+    // closes or the process dies.
+    const std::string lock_path = path + ".lock";
+    store->lock_fd_ = ::open(lock_path.c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644);
+    if (store->lock_fd_ < 0) {
+      return absl::UnavailableError(absl::StrCat("cannot open the lock file '", lock_path, "': ", std::strerror(errno)));
+    }
+    if (::flock(store->lock_fd_, LOCK_EX | LOCK_NB) != 0) {
+      return absl::FailedPreconditionError(absl::StrCat(
+          "database file '", path, "' is in use by another server (", lock_path, " is locked)"));
     }
     OGIVE_STORAGE_RETURN_IF_ERROR(
         Configure(*store->writer_, /*writer=*/true, /*read_only_store=*/false));
@@ -390,6 +411,7 @@ SqliteStore::~SqliteStore() {
   // The writer closes last: as the last connection it checkpoints the log into the database file.
   writer_statements_.reset();
   writer_.reset();
+  if (lock_fd_ >= 0) ::close(lock_fd_);  // releases the flock
 }
 
 int64_t SqliteStore::schema_version() { return internal::SchemaVersion(); }
@@ -492,6 +514,11 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
     for (size_t i = 0; !transaction_failed && i < writes.size(); ++i) {
       Job& job = *writes[i];
       const std::pair<int64_t, int64_t> chain{job.write->study_id, job.write->chain};
+      if (!job.write->refusal.ok()) {
+        job.status = job.write->refusal;
+        if (job.write->chain != 0) broken_chains_.insert(chain);
+        continue;
+      }
       if (job.write->chain != 0 && broken_chains_.count(chain) > 0) {
         job.status = absl::UnavailableError(absl::StrCat(
             "study id ", chain.first, ": an earlier write of this study failed; nothing of this write was stored"));
@@ -516,6 +543,7 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
         lost = status;
       }
       job.status = status;
+      if (!status.ok() && job.write->chain != 0) broken_chains_.insert(chain);  // later writes see it
       if (!lost.ok()) transaction_failed = true;
     }
     absl::Status end;
@@ -763,9 +791,17 @@ std::unique_ptr<PendingCommit> SqliteStore::CommitAsync(StudyWrite write) {
     return absl::OkStatus();
   }();
   if (!checked.ok()) {
-    absl::MutexLock lock(&mu_);
-    ++stats_.failed_writes;
-    return std::make_unique<Pending>(checked);
+    if (write.chain == 0) {
+      absl::MutexLock lock(&mu_);
+      ++stats_.failed_writes;
+      return std::make_unique<Pending>(checked);
+    }
+    // In a chain the refusal must take its place in the queue: it breaks the chain for the writes
+    // queued after it.
+    encoded = EncodedWrite();
+    encoded.study_id = write.study_id;
+    encoded.chain = write.chain;
+    encoded.refusal = checked;
   }
   return std::make_unique<Pending>(this, std::move(encoded));
 }

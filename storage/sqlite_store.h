@@ -159,6 +159,7 @@ class SqliteStore final : public Store {
 
   const std::string path_;
   const Options options_;
+  int lock_fd_ = -1;  // holds an exclusive flock on <path>.lock while the store can write
 
   std::unique_ptr<internal::Connection> writer_;  // used only on writer_thread_; null if read only
   std::unique_ptr<WriterStatements> writer_statements_;

@@ -191,11 +191,15 @@ absl::Status GaussianFamily::Update(absl::Span<const GaussianSample> cohort, abs
   // with it, repaired samples near the bounds collapsed C on the rotated ellipsoid (our choice, see
   // docs/math.md).
   std::vector<double> w_circ(lambda);
+  // Σ w_j of the weights actually applied: a negative weight dropped for an external member must also
+  // leave the decay term, or C would grow under random selection (eq. 47's balance).
+  double sum_applied = p.SumOfWeights();
   for (int i = 0; i < lambda; ++i) {
     if (w_cov[i] >= 0) {
       w_circ[i] = w_cov[i];
     } else if (cohort[i].external) {
       w_circ[i] = 0.0;
+      sum_applied -= w_cov[i];
     } else {
       const double norm_sq = InverseSqrtTimes(Y.col(i)).squaredNorm();
       w_circ[i] = norm_sq > 0 ? w_cov[i] * n / norm_sq : 0.0;
@@ -205,7 +209,7 @@ absl::Status GaussianFamily::Update(absl::Span<const GaussianSample> cohort, abs
   // C ← (1 + c_1 δ(h_σ) − c_1 − c_μ Σ w_j) C + c_1 p_c p_cᵀ + c_μ Σ w°_i y_i y_iᵀ,
   // δ(h_σ) = (1 − h_σ) c_c (2 − c_c)
   const double delta_h = (1.0 - h_sigma) * p.c_c * (2.0 - p.c_c);
-  const double decay = 1.0 + p.c_1 * delta_h - p.c_1 - p.c_mu * p.SumOfWeights();
+  const double decay = 1.0 + p.c_1 * delta_h - p.c_1 - p.c_mu * sum_applied;
   if (st.diagonal) {
     Eigen::VectorXd rank_mu = Eigen::VectorXd::Zero(n);
     for (int i = 0; i < lambda; ++i) rank_mu += w_circ[i] * Y.col(i).cwiseAbs2();
@@ -272,6 +276,12 @@ void GaussianFamily::UpdateMargin() {
     // With no spread at all (σ underflowed) no finite scale helps; such a study is converged.
     st.margin_scale[j] = spread > 0.0 ? std::max(1.0, distance / (z_alpha * spread)) : 1.0;
   }
+}
+
+void GaussianFamily::ScaleStepSize(double factor) {
+  OGIVE_CHECK(factor > 0.0 && std::isfinite(factor));
+  state_.sigma *= factor;
+  UpdateMargin();
 }
 
 void GaussianFamily::SetPopulationSize(int lambda) {

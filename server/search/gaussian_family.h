@@ -90,6 +90,10 @@ class GaussianFamily {
   // needs a restart). On error the state is unchanged.
   absl::Status Update(absl::Span<const GaussianSample> cohort, absl::Span<const TieSpan> spans);
 
+  // σ ← σ · factor (the flat-fitness remedy: a cohort that ranked all alike says the step is too
+  // small to see a difference). REQUIRES: factor > 0 and finite.
+  void ScaleStepSize(double factor);
+
   // Changes λ (and the strategy parameters that depend on it) for the next update; m, σ, C and the
   // paths are kept. REQUIRES: lambda >= 2.
   void SetPopulationSize(int lambda);

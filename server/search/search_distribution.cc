@@ -232,6 +232,10 @@ absl::Status SearchDistribution::Update(absl::Span<const CohortMember> cohort, a
   return absl::OkStatus();
 }
 
+void SearchDistribution::ScaleStepSize(double factor) {
+  if (gaussian_) gaussian_->ScaleStepSize(factor);
+}
+
 void SearchDistribution::SetPopulationSize(int lambda) {
   OGIVE_CHECK(lambda >= 2);
   population_size_ = lambda;

@@ -99,6 +99,9 @@ class SearchDistribution {
   // One update from a cohort of population_size() members and their tie spans (RankCohort).
   absl::Status Update(absl::Span<const CohortMember> cohort, absl::Span<const TieSpan> spans);
 
+  // Multiplies the Gaussian block's step size by `factor` (no effect without one). REQUIRES: factor > 0.
+  void ScaleStepSize(double factor);
+
   // Changes λ for the next updates. REQUIRES: lambda >= 2.
   void SetPopulationSize(int lambda);
 

@@ -98,14 +98,14 @@ grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRe
   if (!host.ok()) return ToGrpc(host.status());
   int64_t version = (*host)->version();
   if (!writer->Write((*host)->View(false))) return grpc::Status::OK;
-  // Wake up at least every 200 ms to notice a cancelled call or a draining server.
+  // Wake up at least every 200 ms to notice a cancelled call or a draining server. The view after the
+  // change that ended the study is the last one sent.
   while (!context->IsCancelled() && !stopping_ && !(*host)->done()) {
     const int64_t now_version = (*host)->WaitForChange(version, absl::Now() + absl::Milliseconds(200));
     if (now_version == version) continue;
     version = now_version;
     if (!writer->Write((*host)->View(true))) break;
   }
-  if ((*host)->done() && !context->IsCancelled()) writer->Write((*host)->View(true));
   return grpc::Status::OK;
 }
 

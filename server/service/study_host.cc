@@ -97,7 +97,13 @@ absl::StatusOr<v1::AskResponse> StudyHost::Ask(int count, const std::string& wor
     if (absl::Status s = Usable(); !s.ok()) return s;
     std::vector<int64_t> numbers;
     if (auto it = ask_requests_.find(request_id); !request_id.empty() && it != ask_requests_.end()) {
-      numbers = it->second;  // a retry: the same trials again
+      // A retry: the same trials again, answered only once the original's write (queued earlier in
+      // this study's chain) has committed — an empty write behind it waits for exactly that.
+      numbers = it->second;
+      storage::StudyWrite barrier;
+      barrier.study_id = id_;
+      barrier.chain = chain_;
+      queued = Queued{store_->CommitAsync(std::move(barrier)), chain_};
     } else {
       absl::StatusOr<study::AskPlan> plan = study_.PlanAsk(count, worker, lease, now);
       if (!plan.ok()) return plan.status();

@@ -276,9 +276,18 @@ class Study::Planner {
     }
     absl::StatusOr<std::vector<search::TieSpan>> spans = search::RankCohort(outcomes, study_.order_);
     OGIVE_CHECK(spans.ok());  // every pending outcome passed CheckOutcome when it was stored
-    const bool flat = std::all_of(spans->begin(), spans->end(), [&](const search::TieSpan& s) {
-      return s.better == 0 && s.better_or_equal == static_cast<int>(spans->size());
-    });
+    // EqualValues counts tied cohorts of scores (a plateau of the objective) and of the top grade
+    // (nothing better exists). A cohort tied below the top grade, or all infeasible, only says that
+    // the region is uniform at that level: a graded search crosses such plateaus on its way up (the
+    // tie-aware step size keeps it moving), so they do not end it.
+    const search::Outcome& level = outcomes.front();
+    const bool uninformative_level =
+        level.kind == search::Outcome::Kind::kInfeasible ||
+        (level.kind == search::Outcome::Kind::kGrade && level.grade < study_.order_.grade_count - 1);
+    const bool flat = !uninformative_level &&
+                      std::all_of(spans->begin(), spans->end(), [&](const search::TieSpan& s) {
+                        return s.better == 0 && s.better_or_equal == static_cast<int>(spans->size());
+                      });
 
     search::SearchDistribution next = *engine_.distribution;
     const absl::Status updated = next.Update(members, *spans);
@@ -296,7 +305,16 @@ class Study::Planner {
     record.cohort = cohort;
     record.mean_staleness = staleness_sum / cohort.size();
     std::optional<std::string> converged;
+    const bool all_tied = std::all_of(spans->begin(), spans->end(), [&](const search::TieSpan& s) {
+      return s.better == 0 && s.better_or_equal == static_cast<int>(spans->size());
+    });
     if (updated.ok()) {
+      // Flat fitness: a cohort tied below the top level saw no difference at all; widen the step so
+      // the next one can (σ · exp(0.2 + c_σ/d_σ), common practice in CMA-ES implementations).
+      if (all_tied && uninformative_level && next.gaussian()) {
+        const search::CmaParameters& cp = next.gaussian()->parameters();
+        next.ScaleStepSize(std::exp(0.2 + cp.c_sigma / cp.d_sigma));
+      }
       AdaptPopulation(next);
       converged = ConvergenceReason(next, engine_.flat_generations, engine_.sigma0);
       engine_.distribution = std::make_shared<const search::SearchDistribution>(std::move(next));
