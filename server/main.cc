@@ -151,6 +151,11 @@ int main(int argc, char** argv) {
   builder.SetMaxReceiveMessageSize(flags.limits.max_message_bytes);
   // A port already in use is an error, not a port to share with another server.
   builder.AddChannelArgument(GRPC_ARG_ALLOW_REUSEPORT, 0);
+  // Handlers block until their commit, so many run at once. Let the sync server keep its threads as
+  // pollers instead of exiting and re-creating them (thread creation showed in profiles under 64
+  // clients; the measured gain was within noise).
+  builder.SetSyncServerOption(grpc::ServerBuilder::SyncServerOption::MIN_POLLERS, 4);
+  builder.SetSyncServerOption(grpc::ServerBuilder::SyncServerOption::MAX_POLLERS, 512);
   builder.RegisterService(&service);
   std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
   if (server == nullptr || port == 0) Fail(absl::StrCat("cannot listen on '", flags.listen, "'"));
