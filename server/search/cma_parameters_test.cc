@@ -14,8 +14,8 @@ namespace {
 // The reference table has six decimals, so a correct value is within half a unit of the last place.
 constexpr double kTableTolerance = 5e-6;
 
-// One column of the table in /work/shared/REFERENCES.md, "CMA-ES default parameters": computed in
-// double precision from N. Hansen, "The CMA Evolution Strategy: A Tutorial", arXiv:1604.00772
+// One column of the table "CMA-ES default parameters" in shared/REFERENCES.md (the project's list
+// of published check values): computed in double precision from N. Hansen, "The CMA Evolution Strategy: A Tutorial", arXiv:1604.00772
 // (2016), Table 1 (the form of the formulas from memory), with the 1/4 term in c_μ.
 struct TableColumn {
   int n;

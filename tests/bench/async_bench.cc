@@ -197,27 +197,6 @@ Result RunBarrier(const Problem& problem, int workers, Durations durations, uint
   return result;
 }
 
-// Evaluations of the plain sequential core (one worker, no failures), for evals_ratio.
-long RunSequential(const Problem& problem, uint64_t seed) {
-  SearchDistribution d = *SearchDistribution::Create(problem.space, problem.options);
-  RandomStream random(seed);
-  long evaluations = 0;
-  while (evaluations < kBudget) {
-    std::vector<CohortMember> cohort;
-    std::vector<Outcome> outcomes;
-    for (int i = 0; i < d.population_size(); ++i) {
-      const ogive::search::Draw draw = d.Sample(random);
-      const double gap = problem.gap(problem.space.Decode(draw.x));
-      ++evaluations;
-      if (gap <= kTarget) return evaluations;
-      cohort.push_back({draw.x, draw.repaired});
-      outcomes.push_back(Outcome::Score(gap));
-    }
-    if (!d.Update(cohort, *ogive::search::RankCohort(outcomes, ogive::search::OutcomeOrder{})).ok()) return -1;
-  }
-  return -1;
-}
-
 double Median(std::vector<double> v) {
   if (v.empty()) return -1;
   std::sort(v.begin(), v.end());
@@ -273,7 +252,8 @@ int main(int argc, char** argv) {
     if (c.problem.rfind(only, 0) != 0) continue;
     std::vector<double> sequential;
     for (int s = 0; s < seeds; ++s) {
-      const long e = RunSequential(ogive::testing::MakeProblem(c.problem, c.n, 1000 + s), 7000 + s);
+      const long e = ogive::testing::EvaluationsToTarget(ogive::testing::MakeProblem(c.problem, c.n, 1000 + s),
+                                                          7000 + s, kBudget, kTarget);
       if (e > 0) sequential.push_back(static_cast<double>(e));
     }
     const double sequential_median = Median(sequential);

@@ -40,33 +40,6 @@ using ogive::search::Space;
 constexpr long kBudget = 200000;
 constexpr double kTarget = 1e-8;
 
-// f − f_opt of a candidate (0 at the optimum).
-using Objective = std::function<double(const Candidate&)>;
-
-// Evaluations until f − f_opt ≤ kTarget, or -1 if the budget ran out.
-long RunToTarget(const Space& space, const DistributionOptions& options, const Objective& objective,
-                 uint64_t seed) {
-  SearchDistribution d = *SearchDistribution::Create(space, options);
-  RandomStream random(seed);
-  long evaluations = 0;
-  while (evaluations < kBudget) {
-    std::vector<CohortMember> cohort;
-    std::vector<Outcome> outcomes;
-    for (int i = 0; i < d.population_size(); ++i) {
-      const Draw draw = d.Sample(random);
-      const double f = objective(space.Decode(draw.x));
-      ++evaluations;
-      if (f <= kTarget) return evaluations;
-      cohort.push_back({draw.x, draw.repaired});
-      outcomes.push_back(Outcome::Score(f));
-    }
-    // A degenerate distribution (FAILED_PRECONDITION) ends the run unsolved; a restart is the study
-    // engine's business, not the sequential core's.
-    if (!d.Update(cohort, *ogive::search::RankCohort(outcomes, OutcomeOrder{})).ok()) return -1;
-  }
-  return -1;
-}
-
 Space BoxSpace(int n) {
   std::vector<ParameterSpec> specs;
   for (int j = 0; j < n; ++j) specs.push_back(ParameterSpec::Real("x" + std::to_string(j), -5, 5));
@@ -172,7 +145,7 @@ int main(int argc, char** argv) {
     for (int s = 0; s < seeds; ++s) {
       ogive::testing::Problem problem = ogive::testing::MakeProblem(c.problem, c.n, 1000 + s);
       problem.options.discrete_learning_rate = discrete_rate;
-      row.evals.push_back(RunToTarget(problem.space, problem.options, problem.gap, 7000 + s));
+      row.evals.push_back(ogive::testing::EvaluationsToTarget(problem, 7000 + s, kBudget, kTarget));
     }
     rows.push_back(row);
   }

@@ -6,6 +6,8 @@
 #include <vector>
 
 #include "server/base/check.h"
+#include "server/search/random_stream.h"
+#include "server/search/ranking.h"
 #include "tests/support/bbob.h"
 #include "tests/support/discrete_problems.h"
 
@@ -91,6 +93,26 @@ Problem MakeProblem(const std::string& name, int n, uint64_t seed) {
     return (*f)(x) - f->f_opt();
   };
   return p;
+}
+
+long EvaluationsToTarget(const Problem& problem, uint64_t seed, long budget, double target) {
+  search::SearchDistribution d = *search::SearchDistribution::Create(problem.space, problem.options);
+  search::RandomStream random(seed);
+  long evaluations = 0;
+  while (evaluations < budget) {
+    std::vector<search::CohortMember> cohort;
+    std::vector<search::Outcome> outcomes;
+    for (int i = 0; i < d.population_size(); ++i) {
+      const search::Draw draw = d.Sample(random);
+      const double gap = problem.gap(problem.space.Decode(draw.x));
+      ++evaluations;
+      if (gap <= target) return evaluations;
+      cohort.push_back({draw.x, draw.repaired});
+      outcomes.push_back(search::Outcome::Score(gap));
+    }
+    if (!d.Update(cohort, *search::RankCohort(outcomes, search::OutcomeOrder{})).ok()) return -1;
+  }
+  return -1;
 }
 
 }  // namespace ogive::testing
