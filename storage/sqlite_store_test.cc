@@ -1118,3 +1118,56 @@ TEST_F(SqliteStoreTest, SizeBytesCountsTheFileAndTheLog) {
 
 }  // namespace
 }  // namespace ogive::storage
+
+namespace ogive::storage {
+namespace {
+
+// store.h: writes of one study with the same chain depend on each other — once one fails, every
+// later one fails unapplied, whether it waits in the same batch or a later one, and whether the
+// first was refused before queuing (a NaN) or failed in the database (a duplicate generation).
+// Writes of another chain, or without one, are unaffected.
+TEST_F(SqliteStoreTest, AFailedWriteBreaksItsChainOnly) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "chained");
+
+  auto write = [&](int64_t chain, int64_t trial, double score) {
+    StudyWrite w;
+    w.study_id = id;
+    w.chain = chain;
+    w.trials = {MakeTrial(trial, v1::TRIAL_STATE_REPORTED, score)};
+    return w;
+  };
+  // Chain 1: a NaN is refused before queuing; the two writes queued behind it fail unapplied.
+  std::unique_ptr<PendingCommit> refused = store->CommitAsync(write(1, 1, std::nan("")));
+  std::unique_ptr<PendingCommit> behind = store->CommitAsync(write(1, 2, 2.0));
+  std::unique_ptr<PendingCommit> other_chain = store->CommitAsync(write(2, 3, 3.0));
+  std::unique_ptr<PendingCommit> no_chain = store->CommitAsync(write(0, 4, 4.0));
+  EXPECT_THAT(refused->Wait(), StatusIs(absl::StatusCode::kInvalidArgument, testing::HasSubstr("score")));
+  EXPECT_THAT(behind->Wait(), StatusIs(absl::StatusCode::kUnavailable, testing::HasSubstr("earlier write")));
+  EXPECT_THAT(other_chain->Wait(), IsOk());
+  EXPECT_THAT(no_chain->Wait(), IsOk());
+  EXPECT_THAT(store->Commit(write(1, 5, 5.0)),
+              StatusIs(absl::StatusCode::kUnavailable, testing::HasSubstr("earlier write")));
+
+  // Chain 3: a duplicate generation fails inside the transaction; the next write of the chain, queued
+  // at once behind it, fails too.
+  StudyWrite first = write(3, 6, 6.0);
+  first.generations.emplace_back().set_generation(1);
+  ASSERT_THAT(store->Commit(std::move(first)), IsOk());
+  StudyWrite duplicate = write(3, 7, 7.0);
+  duplicate.generations.emplace_back().set_generation(1);
+  std::unique_ptr<PendingCommit> failing = store->CommitAsync(std::move(duplicate));
+  std::unique_ptr<PendingCommit> after = store->CommitAsync(write(3, 8, 8.0));
+  EXPECT_FALSE(failing->Wait().ok());
+  EXPECT_THAT(after->Wait(), StatusIs(absl::StatusCode::kUnavailable, testing::_));
+
+  absl::StatusOr<TrialPage> page = store->ListTrials(id, std::nullopt, 0, 100);
+  ASSERT_THAT(page, IsOk());
+  std::vector<int64_t> stored;
+  for (const v1::TrialRecord& t : page->trials) stored.push_back(t.number());
+  EXPECT_EQ(stored, (std::vector<int64_t>{3, 4, 6}));
+}
+
+}  // namespace
+}  // namespace ogive::storage
