@@ -30,7 +30,7 @@ grpc::Status ToGrpc(const absl::Status& status) {
 
 grpc::Status OgiveService::CreateStudy(grpc::ServerContext*, const v1::CreateStudyRequest* request,
                                        v1::StudyView* response) {
-  return Finish("create", request->design().name(), "", service::CreateStudy(*registry_, *request, clock_()),
+  return Finish("create", request->design().name(), "", service::CreateStudy(*registry_, *request),
                 response);
 }
 

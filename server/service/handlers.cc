@@ -41,10 +41,9 @@ absl::StatusOr<std::shared_ptr<StudyHost>> FindStudy(Registry& registry, const s
 
 }  // namespace
 
-absl::StatusOr<v1::StudyView> CreateStudy(Registry& registry, const v1::CreateStudyRequest& request,
-                                          absl::Time now) {
+absl::StatusOr<v1::StudyView> CreateStudy(Registry& registry, const v1::CreateStudyRequest& request) {
   if (absl::Status s = CheckOptionalName(request.request_id(), "request_id", registry.limits()); !s.ok()) return s;
-  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Create(request.design(), request.request_id(), now);
+  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Create(request.design(), request.request_id());
   if (!host.ok()) return host.status();
   return (*host)->View(false);
 }

@@ -11,7 +11,7 @@
 
 namespace ogive::service {
 
-absl::StatusOr<v1::StudyView> CreateStudy(Registry& registry, const v1::CreateStudyRequest& request, absl::Time now);
+absl::StatusOr<v1::StudyView> CreateStudy(Registry& registry, const v1::CreateStudyRequest& request);
 absl::StatusOr<v1::StudyView> GetStudy(Registry& registry, const v1::GetStudyRequest& request);
 absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1::ListStudiesRequest& request);
 absl::StatusOr<v1::AskResponse> Ask(Registry& registry, const v1::AskRequest& request, absl::Time now);

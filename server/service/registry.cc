@@ -122,8 +122,7 @@ absl::Status Registry::LoadAll() {
 }
 
 absl::StatusOr<std::shared_ptr<StudyHost>> Registry::Create(const v1::StudyDesign& design,
-                                                            const std::string& request_id, absl::Time now) {
-  (void)now;
+                                                            const std::string& request_id) {
   if (absl::Status s = ValidateDesignShape(design, limits_); !s.ok()) return s;
   absl::StatusOr<Built> built = Build(design);
   if (!built.ok()) return built.status();

@@ -30,8 +30,7 @@ class Registry {
 
   // Validates and creates a study. ALREADY_EXISTS when the name is taken by another request;
   // the same request id returns the existing study. RESOURCE_EXHAUSTED beyond max_studies.
-  absl::StatusOr<std::shared_ptr<StudyHost>> Create(const v1::StudyDesign& design, const std::string& request_id,
-                                                    absl::Time now);
+  absl::StatusOr<std::shared_ptr<StudyHost>> Create(const v1::StudyDesign& design, const std::string& request_id);
 
   // NOT_FOUND naming the study when there is none by that name.
   absl::StatusOr<std::shared_ptr<StudyHost>> Find(const std::string& name) const;

@@ -284,10 +284,10 @@ class Study::Planner {
     const bool uninformative_level =
         level.kind == search::Outcome::Kind::kInfeasible ||
         (level.kind == search::Outcome::Kind::kGrade && level.grade < study_.order_.grade_count - 1);
-    const bool flat = !uninformative_level &&
-                      std::all_of(spans->begin(), spans->end(), [&](const search::TieSpan& s) {
-                        return s.better == 0 && s.better_or_equal == static_cast<int>(spans->size());
-                      });
+    const bool all_tied = std::all_of(spans->begin(), spans->end(), [&](const search::TieSpan& s) {
+      return s.better == 0 && s.better_or_equal == static_cast<int>(spans->size());
+    });
+    const bool flat = all_tied && !uninformative_level;
 
     search::SearchDistribution next = *engine_.distribution;
     const absl::Status updated = next.Update(members, *spans);
@@ -305,9 +305,6 @@ class Study::Planner {
     record.cohort = cohort;
     record.mean_staleness = staleness_sum / cohort.size();
     std::optional<std::string> converged;
-    const bool all_tied = std::all_of(spans->begin(), spans->end(), [&](const search::TieSpan& s) {
-      return s.better == 0 && s.better_or_equal == static_cast<int>(spans->size());
-    });
     if (updated.ok()) {
       // Flat fitness: a cohort tied below the top level saw no difference at all; widen the step so
       // the next one can (σ · exp(0.2 + c_σ/d_σ), common practice in CMA-ES implementations).

@@ -25,13 +25,11 @@
 
 namespace {
 
-using ogive::search::Candidate;
 using ogive::search::CohortMember;
 using ogive::search::DistributionOptions;
 using ogive::search::Draw;
 using ogive::search::Outcome;
 using ogive::search::OutcomeOrder;
-using ogive::search::ParameterKind;
 using ogive::search::ParameterSpec;
 using ogive::search::RandomStream;
 using ogive::search::SearchDistribution;

@@ -93,7 +93,7 @@ TEST(CommitFailureTest, AFailedCommitStoresNothingAndTheStudyKeepsServing) {
 
   v1::CreateStudyRequest create;
   *create.mutable_design() = Design();
-  ASSERT_TRUE(CreateStudy(registry, create, now).ok());
+  ASSERT_TRUE(CreateStudy(registry, create).ok());
   v1::AskRequest ask;
   ask.set_study("kiln-fault");
   ask.set_count(3);
