@@ -19,6 +19,7 @@
 
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
+#include "absl/strings/str_format.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/synchronization/notification.h"
 #include "absl/time/clock.h"
@@ -193,7 +194,11 @@ int main(int argc, char** argv) {
   server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(10));
   stop_sweeping.Notify();
   sweeper.join();
+  const ogive::storage::SqliteStore::Stats stats = (*store)->stats();
   store->reset();  // drains the writer: every acknowledged write is committed
-  LogLine({{"event", "stopped"}});
+  LogLine({{"event", "stopped"}, {"transactions", absl::StrCat(stats.transactions)},
+           {"writes", absl::StrCat(stats.committed_writes)},
+           {"writes_per_transaction", absl::StrFormat("%.2f", stats.commits_per_transaction())},
+           {"group_commit_waits", absl::StrCat(stats.group_commit_waits)}});
   return 0;
 }

@@ -143,6 +143,10 @@ absl::Status SqliteStoreOptions::Validate() const {
     return absl::InvalidArgumentError(
         absl::StrCat("busy_timeout_ms: must be >= 0, got ", busy_timeout_ms));
   }
+  if (group_commit_window_us < 0) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("group_commit_window_us: must be >= 0, got ", group_commit_window_us));
+  }
   if (reader_connections < 1) {
     return absl::InvalidArgumentError(
         absl::StrCat("reader_connections: must be >= 1, got ", reader_connections));
@@ -475,6 +479,15 @@ void SqliteStore::WriterLoop() {
           },
           this));
       if (queue_.empty()) return;  // stopping, and every queued write has been done
+      if (options_.group_commit_window_us > 0 && queue_.size() < expected_batch_) {
+        ++stats_.group_commit_waits;
+        mu_.AwaitWithTimeout(absl::Condition(
+                                 +[](SqliteStore* store) ABSL_EXCLUSIVE_LOCKS_REQUIRED(store->mu_) {
+                                   return store->stopping_ || store->queue_.size() >= store->expected_batch_;
+                                 },
+                                 this),
+                             absl::Microseconds(options_.group_commit_window_us));
+      }
       const size_t n = std::min(queue_.size(), static_cast<size_t>(options_.max_batch_writes));
       batch.assign(queue_.begin(), queue_.begin() + static_cast<std::ptrdiff_t>(n));
       queue_.erase(queue_.begin(), queue_.begin() + static_cast<std::ptrdiff_t>(n));
@@ -572,6 +585,7 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
 
   {
     absl::MutexLock lock(&mu_);
+    expected_batch_ = std::min(batch.size() + queue_.size(), static_cast<size_t>(options_.max_batch_writes));
     if (!writes.empty()) {
       if (transaction_failed) {
         ++stats_.failed_transactions;

@@ -6,7 +6,11 @@
 // once). Group commit: a caller queues its write and blocks; the writer thread takes every queued
 // write (at most max_batch_writes), opens BEGIN IMMEDIATE, applies each write inside its own
 // SAVEPOINT (a write that fails rolls back alone and only its caller sees the error), commits once
-// with synchronous=FULL, and then wakes all of them. Serializing protobuf messages and checking
+// with synchronous=FULL, and then wakes all of them. Under load the writer first lets a batch grow
+// for a short window: it expects as many writes as the previous batch held plus those that queued
+// while it ran (callers woken by a commit tend to write again at once), and waits until that many
+// are queued or the window ends, so that one fsync serves more writes. A lone writer (the previous
+// batch one write, nothing queued behind it) is committed at once. Serializing protobuf messages and checking
 // numbers happens on the callers' threads, so the writer thread only binds and steps.
 //
 // Reads: a small pool of read-only connections; each read takes one connection and one short read
@@ -44,6 +48,10 @@ class Connection;
 struct SqliteStoreOptions {
   // At most this many writes share one transaction (and its fsync). >= 1.
   int max_batch_writes = 256;
+  // Group commit window: how long (microseconds) the writer may wait for a batch to grow to the
+  // size it expects (see the top of this file) before it begins the transaction. 0 turns the wait
+  // off. >= 0.
+  int group_commit_window_us = 500;
   // How long a connection waits for a lock held by another process before the call fails with
   // UNAVAILABLE. >= 0.
   int busy_timeout_ms = 5000;
@@ -66,6 +74,7 @@ struct SqliteStoreStats {
                                     // their transaction
   int64_t failed_transactions = 0;  // batches whose BEGIN or COMMIT failed (nothing of them stored)
   int64_t largest_batch = 0;        // most writes one transaction held
+  int64_t group_commit_waits = 0;   // transactions that waited for their batch to grow
   int64_t queued_writes = 0;        // writes waiting for the writer thread right now
   int64_t active_writes = 0;        // writes in the batch the writer thread is running right now
 
@@ -171,6 +180,9 @@ class SqliteStore final : public Store {
   mutable absl::Mutex mu_;
   std::deque<Job*> queue_ ABSL_GUARDED_BY(mu_);
   bool stopping_ ABSL_GUARDED_BY(mu_) = false;
+  // The size the writer expects its next batch to reach: the last batch's size plus the writes that
+  // queued while it ran, at most max_batch_writes.
+  size_t expected_batch_ ABSL_GUARDED_BY(mu_) = 1;
   Stats stats_ ABSL_GUARDED_BY(mu_);
 
   // (study id, chain) of chains in which a write failed; touched by the writer thread only.

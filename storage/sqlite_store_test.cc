@@ -4,6 +4,7 @@
 // writer wait (it never writes while a store is open on the file).
 #include "storage/sqlite_store.h"
 
+#include <atomic>
 #include <grp.h>
 #include <sqlite3.h>
 #include <stdlib.h>
@@ -783,6 +784,76 @@ TEST_F(SqliteStoreTest, GroupCommitSharesTransactionsAndKeepsEveryWrite) {
   check_all_stored(*store);
 }
 
+TEST_F(SqliteStoreTest, GroupCommitWindowWaitsForABatchOnlyUnderLoad) {
+  SqliteStore::Options options;
+  options.group_commit_window_us = 50000;  // long enough that a wait would show in the timing
+  std::unique_ptr<SqliteStore> store = OpenStore(options);
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  int64_t number = 0;
+  auto write = [&](int64_t n) {
+    StudyWrite w;
+    w.study_id = id;
+    w.trials = {MakeTrial(n, v1::TRIAL_STATE_REPORTED, 1.0)};
+    return w;
+  };
+
+  // One writer alone: every batch holds its one write and nothing queued behind it, so the writer
+  // never waits (20 waits of 50 ms would take a second).
+  const absl::Time start = absl::Now();
+  for (int i = 0; i < 20; ++i) ASSERT_THAT(store->Commit(write(++number)), IsOk());
+  EXPECT_LT(absl::Now() - start, absl::Milliseconds(900));
+  EXPECT_EQ(store->stats().group_commit_waits, 0);
+
+  // Eight writers in step: each batch waits until the eight are back, so batches stay full.
+  const SqliteStore::Stats before = store->stats();
+  constexpr int kThreads = 8;
+  constexpr int kPerThread = 40;
+  std::atomic<int64_t> next{number};
+  std::atomic<int> failures{0};
+  std::vector<std::thread> threads;
+  for (int t = 0; t < kThreads; ++t) {
+    threads.emplace_back([&] {
+      for (int i = 0; i < kPerThread; ++i) {
+        if (!store->Commit(write(++next)).ok()) ++failures;
+      }
+    });
+  }
+  for (std::thread& thread : threads) thread.join();
+  EXPECT_EQ(failures, 0);
+  const SqliteStore::Stats after = store->stats();
+  const int64_t transactions = after.transactions - before.transactions;
+  EXPECT_EQ(after.committed_writes - before.committed_writes, kThreads * kPerThread);
+  EXPECT_GT(after.group_commit_waits, 0);
+  // Without the window a batch holds what queued during one fsync; with it, about all eight.
+  EXPECT_LE(transactions, kThreads * kPerThread / 4) << "writes per transaction "
+                                                     << after.commits_per_transaction();
+}
+
+TEST_F(SqliteStoreTest, GroupCommitWindowOfZeroNeverWaits) {
+  SqliteStore::Options options;
+  options.group_commit_window_us = 0;
+  std::unique_ptr<SqliteStore> store = OpenStore(options);
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  const int64_t committed_before = store->stats().committed_writes;
+  std::atomic<int64_t> next{0};
+  std::vector<std::thread> threads;
+  for (int t = 0; t < 4; ++t) {
+    threads.emplace_back([&] {
+      for (int i = 0; i < 20; ++i) {
+        StudyWrite w;
+        w.study_id = id;
+        w.trials = {MakeTrial(++next, v1::TRIAL_STATE_LEASED)};
+        EXPECT_THAT(store->Commit(std::move(w)), IsOk());
+      }
+    });
+  }
+  for (std::thread& thread : threads) thread.join();
+  EXPECT_EQ(store->stats().group_commit_waits, 0);
+  EXPECT_EQ(store->stats().committed_writes - committed_before, 80);
+}
+
 TEST_F(SqliteStoreTest, ReopeningGivesTheSameDataAndTheLogIsFoldedOnClose) {
   std::string before;
   {
@@ -1047,6 +1118,10 @@ TEST_F(SqliteStoreTest, OptionsAndPathAreValidated) {
   options.reader_connections = 0;
   EXPECT_THAT(SqliteStore::Open(path_, options),
               StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("reader_connections")));
+  options = SqliteStore::Options();
+  options.group_commit_window_us = -1;
+  EXPECT_THAT(SqliteStore::Open(path_, options),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("group_commit_window_us")));
   options = SqliteStore::Options();
   options.busy_timeout_ms = -1;
   EXPECT_THAT(SqliteStore::Open(path_, options),

@@ -50,26 +50,36 @@ grpc::Status OgiveService::ListStudies(grpc::ServerContext*, const v1::ListStudi
   return grpc::Status::OK;
 }
 
-grpc::Status OgiveService::Ask(grpc::ServerContext*, const v1::AskRequest* request, v1::AskResponse* response) {
-  absl::StatusOr<v1::AskResponse> result = service::Ask(*registry_, *request, clock_());
-  std::string trials;
-  if (result.ok()) {
-    for (const v1::Trial& t : result->trials()) absl::StrAppend(&trials, trials.empty() ? "" : ",", t.number());
-  }
-  return Finish("ask", request->study(), request->worker(), std::move(result), response, "trials=" + trials);
+grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context, const v1::AskRequest* request,
+                                             v1::AskResponse* response) {
+  grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
+  // `request` and `response` stay valid until the reactor finishes.
+  service::Ask(*registry_, *request, clock_(), [reactor, request, response](absl::StatusOr<v1::AskResponse> result) {
+    std::string trials;
+    if (result.ok()) {
+      for (const v1::Trial& t : result->trials()) absl::StrAppend(&trials, trials.empty() ? "" : ",", t.number());
+    }
+    reactor->Finish(
+        Finish("ask", request->study(), request->worker(), std::move(result), response, "trials=" + trials));
+  });
+  return reactor;
 }
 
-grpc::Status OgiveService::Tell(grpc::ServerContext*, const v1::TellRequest* request, v1::TellResponse* response) {
-  absl::StatusOr<v1::TellResponse> result = service::Tell(*registry_, *request, clock_());
-  std::string detail;
-  if (result.ok()) {
-    for (const v1::ReportResult& r : result->results()) {
-      absl::StrAppend(&detail, detail.empty() ? "" : ",", r.trial(), ":",
-                      absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())), r.duplicate() ? "(dup)" : "",
-                      r.late() ? "(late)" : "");
+grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* context, const v1::TellRequest* request,
+                                              v1::TellResponse* response) {
+  grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
+  service::Tell(*registry_, *request, clock_(), [reactor, request, response](absl::StatusOr<v1::TellResponse> result) {
+    std::string detail;
+    if (result.ok()) {
+      for (const v1::ReportResult& r : result->results()) {
+        absl::StrAppend(&detail, detail.empty() ? "" : ",", r.trial(), ":",
+                        absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())),
+                        r.duplicate() ? "(dup)" : "", r.late() ? "(late)" : "");
+      }
     }
-  }
-  return Finish("tell", request->study(), request->worker(), std::move(result), response, detail);
+    reactor->Finish(Finish("tell", request->study(), request->worker(), std::move(result), response, detail));
+  });
+  return reactor;
 }
 
 grpc::Status OgiveService::Renew(grpc::ServerContext*, const v1::RenewRequest* request,

@@ -5,8 +5,10 @@
 #include <string>
 #include <vector>
 
+#include "absl/functional/function_ref.h"
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
+#include "absl/synchronization/notification.h"
 #include "server/codec/design_codec.h"
 #include "server/codec/study_codec.h"
 
@@ -32,6 +34,19 @@ absl::StatusOr<std::optional<absl::Duration>> LeaseOf(double seconds, const Serv
   }
   if (seconds == 0) return std::optional<absl::Duration>();
   return std::optional<absl::Duration>(absl::Seconds(seconds));
+}
+
+// Runs `start` (which hands its Reply on) and blocks until the reply came.
+template <typename Response>
+absl::StatusOr<Response> AwaitReply(absl::FunctionRef<void(Reply<Response>)> start) {
+  absl::StatusOr<Response> result;
+  absl::Notification replied;
+  start([&](absl::StatusOr<Response> r) {
+    result = std::move(r);
+    replied.Notify();
+  });
+  replied.WaitForNotification();
+  return result;
 }
 
 absl::StatusOr<std::shared_ptr<StudyHost>> FindStudy(Registry& registry, const std::string& name) {
@@ -60,45 +75,61 @@ absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1
   return response;
 }
 
-absl::StatusOr<v1::AskResponse> Ask(Registry& registry, const v1::AskRequest& request, absl::Time now) {
+void Ask(Registry& registry, const v1::AskRequest& request, absl::Time now, Reply<v1::AskResponse> reply) {
   const ServiceLimits& limits = registry.limits();
   if (request.count() < 1 || request.count() > limits.max_ask_count) {
-    return absl::InvalidArgumentError(
-        absl::StrCat("count: must be in 1..", limits.max_ask_count, ", got ", request.count()));
+    return reply(absl::InvalidArgumentError(
+        absl::StrCat("count: must be in 1..", limits.max_ask_count, ", got ", request.count())));
   }
-  if (absl::Status s = CheckOptionalName(request.worker(), "worker", limits); !s.ok()) return s;
-  if (absl::Status s = CheckOptionalName(request.request_id(), "request_id", limits); !s.ok()) return s;
+  if (absl::Status s = CheckOptionalName(request.worker(), "worker", limits); !s.ok()) return reply(s);
+  if (absl::Status s = CheckOptionalName(request.request_id(), "request_id", limits); !s.ok()) return reply(s);
   absl::StatusOr<std::optional<absl::Duration>> lease = LeaseOf(request.lease_seconds(), limits);
-  if (!lease.ok()) return lease.status();
+  if (!lease.ok()) return reply(lease.status());
   absl::StatusOr<std::shared_ptr<StudyHost>> host = FindStudy(registry, request.study());
-  if (!host.ok()) return host.status();
-  return (*host)->Ask(request.count(), request.worker(), *lease, request.request_id(), now);
+  if (!host.ok()) return reply(host.status());
+  (*host)->Ask(request.count(), request.worker(), *lease, request.request_id(), now,
+               [host = *host, reply = std::move(reply)](absl::StatusOr<v1::AskResponse> r) mutable {
+                 reply(std::move(r));  // `host` stays alive until the reply is out
+               });
 }
 
-absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest& request, absl::Time now) {
+void Tell(Registry& registry, const v1::TellRequest& request, absl::Time now, Reply<v1::TellResponse> reply) {
   const ServiceLimits& limits = registry.limits();
   if (request.reports_size() < 1 || request.reports_size() > limits.max_reports_per_tell) {
-    return absl::InvalidArgumentError(absl::StrCat("reports: must hold 1..", limits.max_reports_per_tell,
-                                                   " reports, got ", request.reports_size()));
+    return reply(absl::InvalidArgumentError(absl::StrCat("reports: must hold 1..", limits.max_reports_per_tell,
+                                                         " reports, got ", request.reports_size())));
   }
-  if (absl::Status s = CheckOptionalName(request.worker(), "worker", limits); !s.ok()) return s;
+  if (absl::Status s = CheckOptionalName(request.worker(), "worker", limits); !s.ok()) return reply(s);
   absl::StatusOr<std::shared_ptr<StudyHost>> host = FindStudy(registry, request.study());
-  if (!host.ok()) return host.status();
+  if (!host.ok()) return reply(host.status());
   const v1::Objective& objective = (*host)->design().objective();
   std::vector<study::Report> reports;
   for (int i = 0; i < request.reports_size(); ++i) {
     const v1::Report& r = request.reports(i);
     if (static_cast<int>(r.outcome().note().size()) > limits.max_note_bytes) {
-      return absl::InvalidArgumentError(
-          absl::StrCat("reports[", i, "].outcome.note: at most ", limits.max_note_bytes, " bytes"));
+      return reply(absl::InvalidArgumentError(
+          absl::StrCat("reports[", i, "].outcome.note: at most ", limits.max_note_bytes, " bytes")));
     }
     absl::StatusOr<search::Outcome> outcome = codec::OutcomeFromProto(r.outcome(), objective);
     if (!outcome.ok()) {
-      return absl::InvalidArgumentError(absl::StrCat("reports[", i, "].", outcome.status().message()));
+      return reply(absl::InvalidArgumentError(absl::StrCat("reports[", i, "].", outcome.status().message())));
     }
     reports.push_back({r.trial(), *outcome, r.outcome().note()});
   }
-  return (*host)->Tell(reports, request.worker(), now);
+  (*host)->Tell(reports, request.worker(), now,
+                [host = *host, reply = std::move(reply)](absl::StatusOr<v1::TellResponse> r) mutable {
+                  reply(std::move(r));
+                });
+}
+
+absl::StatusOr<v1::AskResponse> Ask(Registry& registry, const v1::AskRequest& request, absl::Time now) {
+  return AwaitReply<v1::AskResponse>(
+      [&](Reply<v1::AskResponse> reply) { Ask(registry, request, now, std::move(reply)); });
+}
+
+absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest& request, absl::Time now) {
+  return AwaitReply<v1::TellResponse>(
+      [&](Reply<v1::TellResponse> reply) { Tell(registry, request, now, std::move(reply)); });
 }
 
 absl::StatusOr<v1::RenewResponse> Renew(Registry& registry, const v1::RenewRequest& request, absl::Time now) {

@@ -1,6 +1,8 @@
 // The ogive service's methods as plain functions over the Registry: each validates its request (errors
 // name the field and the allowed values), converts it to domain types, calls the study host and
 // converts back. The gRPC layer (grpc_service.h) only adapts these; tests call them directly.
+// Ask and Tell come in two forms: one that replies through a continuation once the write committed
+// (the gRPC layer's, so that no thread waits for an fsync), and one that blocks until then.
 #ifndef OGIVE_SERVER_SERVICE_HANDLERS_H_
 #define OGIVE_SERVER_SERVICE_HANDLERS_H_
 
@@ -14,10 +16,12 @@ namespace ogive::service {
 absl::StatusOr<v1::StudyView> CreateStudy(Registry& registry, const v1::CreateStudyRequest& request);
 absl::StatusOr<v1::StudyView> GetStudy(Registry& registry, const v1::GetStudyRequest& request);
 absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1::ListStudiesRequest& request);
+void Ask(Registry& registry, const v1::AskRequest& request, absl::Time now, Reply<v1::AskResponse> reply);
 absl::StatusOr<v1::AskResponse> Ask(Registry& registry, const v1::AskRequest& request, absl::Time now);
 // Malformed reports (a NaN or infinite score, a grade not on the scale, no outcome, a note too long)
 // fail the whole call with INVALID_ARGUMENT naming reports[i] and store nothing; unknown trials
 // (NOT_FOUND) and different outcomes for reported trials (ALREADY_EXISTS) are per-report results.
+void Tell(Registry& registry, const v1::TellRequest& request, absl::Time now, Reply<v1::TellResponse> reply);
 absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest& request, absl::Time now);
 absl::StatusOr<v1::RenewResponse> Renew(Registry& registry, const v1::RenewRequest& request, absl::Time now);
 absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::ListTrialsRequest& request);

@@ -115,7 +115,8 @@ absl::Status Registry::LoadAll() {
                               *std::move(snapshot));
     if (!restored.ok()) return absl::DataLossError(absl::StrCat("study '", s.name, "': ", restored.status().message()));
     absl::flat_hash_map<std::string, std::vector<int64_t>> asks(s.ask_requests.begin(), s.ask_requests.end());
-    studies_[s.name] = std::make_shared<StudyHost>(s.id, s.design, *std::move(restored), store_, s.create_request_id,
+    studies_[s.name] = std::make_shared<StudyHost>(s.id, s.design, *std::move(restored), store_, &waiter_,
+                                                   s.create_request_id,
                                                    std::move(asks));
   }
   return absl::OkStatus();
@@ -140,7 +141,7 @@ absl::StatusOr<std::shared_ptr<StudyHost>> Registry::Create(const v1::StudyDesig
   absl::StatusOr<int64_t> id = store_->CreateStudy(design.name(), design,
                                                    codec::EngineStateToProto(created->engine()), request_id);
   if (!id.ok()) return id.status();
-  auto host = std::make_shared<StudyHost>(*id, design, *std::move(created), store_, request_id,
+  auto host = std::make_shared<StudyHost>(*id, design, *std::move(created), store_, &waiter_, request_id,
                                           absl::flat_hash_map<std::string, std::vector<int64_t>>{});
   studies_[design.name()] = host;
   return host;

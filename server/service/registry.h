@@ -1,7 +1,8 @@
 // Registry: the studies one ogived serves, by name. Creates studies (validating the whole design),
 // loads every stored study at start, and hands out StudyHosts to the handlers.
 //
-// Thread-safe. Owns the hosts; the store outlives the registry.
+// Thread-safe. Owns the hosts and the CommitWaiter their replies run on; the store outlives the
+// registry.
 #ifndef OGIVE_SERVER_SERVICE_REGISTRY_H_
 #define OGIVE_SERVER_SERVICE_REGISTRY_H_
 
@@ -44,6 +45,8 @@ class Registry {
   const ServiceLimits limits_;
   mutable absl::Mutex mu_;
   absl::btree_map<std::string, std::shared_ptr<StudyHost>> studies_ ABSL_GUARDED_BY(mu_);
+  // Last, so it is destroyed first: its remaining continuations still reach the hosts.
+  CommitWaiter waiter_;
 };
 
 // Checks a design against the limits and the naming rules (before the search space's own validation):

@@ -18,12 +18,13 @@ int64_t UnixMillis(absl::Time t) { return absl::ToUnixMillis(t); }
 }  // namespace
 
 StudyHost::StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store,
-                     std::string create_request_id,
+                     CommitWaiter* waiter, std::string create_request_id,
                      absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests)
     : id_(id),
       design_(std::move(design)),
       create_request_id_(std::move(create_request_id)),
       store_(store),
+      waiter_(waiter),
       study_(std::move(study)),
       ask_requests_(std::move(ask_requests)) {}
 
@@ -60,9 +61,27 @@ StudyHost::Queued StudyHost::ApplyAndQueue(study::Change change, std::vector<sto
 
 absl::Status StudyHost::Await(Queued queued) {
   const absl::Status committed = queued.pending->Wait();
+  return AfterCommit(queued.chain, committed);
+}
+
+template <typename Response>
+void StudyHost::ReplyAfterCommit(Queued queued, Response response, Reply<Response> reply) {
+  waiter_->Add(std::move(queued.pending),
+               [this, chain = queued.chain, response = std::move(response),
+                reply = std::move(reply)](absl::Status committed) mutable {
+                 const absl::Status status = AfterCommit(chain, std::move(committed));
+                 if (status.ok()) {
+                   reply(std::move(response));
+                 } else {
+                   reply(status);
+                 }
+               });
+}
+
+absl::Status StudyHost::AfterCommit(int64_t chain, absl::Status committed) {
   if (committed.ok()) return committed;
   absl::MutexLock lock(&mu_);
-  if (queued.chain != chain_) return committed;  // another request reloaded already
+  if (chain != chain_) return committed;  // another request reloaded already
   // Memory ran ahead of disk: go back to what the store holds.
   ++chain_;
   ++version_;
@@ -87,14 +106,13 @@ absl::Status StudyHost::Await(Queued queued) {
 
 absl::Status StudyHost::Usable() const { return broken_; }
 
-absl::StatusOr<v1::AskResponse> StudyHost::Ask(int count, const std::string& worker,
-                                               std::optional<absl::Duration> lease, const std::string& request_id,
-                                               absl::Time now) {
+void StudyHost::Ask(int count, const std::string& worker, std::optional<absl::Duration> lease,
+                    const std::string& request_id, absl::Time now, Reply<v1::AskResponse> reply) {
   Queued queued;
   v1::AskResponse response;
   {
     absl::MutexLock lock(&mu_);
-    if (absl::Status s = Usable(); !s.ok()) return s;
+    if (absl::Status s = Usable(); !s.ok()) return reply(s);
     std::vector<int64_t> numbers;
     if (auto it = ask_requests_.find(request_id); !request_id.empty() && it != ask_requests_.end()) {
       // A retry: the same trials again, answered only once the original's write (queued earlier in
@@ -106,7 +124,7 @@ absl::StatusOr<v1::AskResponse> StudyHost::Ask(int count, const std::string& wor
       queued = Queued{store_->CommitAsync(std::move(barrier)), chain_};
     } else {
       absl::StatusOr<study::AskPlan> plan = study_.PlanAsk(count, worker, lease, now);
-      if (!plan.ok()) return plan.status();
+      if (!plan.ok()) return reply(plan.status());
       numbers = plan->trials;
       std::vector<storage::Event> events;
       for (int64_t n : numbers) events.push_back({"ask", n, worker, "", absl::ToUnixNanos(now)});
@@ -116,21 +134,18 @@ absl::StatusOr<v1::AskResponse> StudyHost::Ask(int count, const std::string& wor
     }
     for (int64_t n : numbers) *response.add_trials() = TrialView(*study_.trial(n));
   }
-  if (queued.pending != nullptr) {
-    if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
-  }
-  return response;
+  ReplyAfterCommit(std::move(queued), std::move(response), std::move(reply));
 }
 
-absl::StatusOr<v1::TellResponse> StudyHost::Tell(const std::vector<study::Report>& reports,
-                                                 const std::string& worker, absl::Time now) {
+void StudyHost::Tell(const std::vector<study::Report>& reports, const std::string& worker, absl::Time now,
+                     Reply<v1::TellResponse> reply) {
   Queued queued;
   v1::TellResponse response;
   {
     absl::MutexLock lock(&mu_);
-    if (absl::Status s = Usable(); !s.ok()) return s;
+    if (absl::Status s = Usable(); !s.ok()) return reply(s);
     absl::StatusOr<study::TellPlan> plan = study_.PlanTell(reports, now);
-    if (!plan.ok()) return plan.status();
+    if (!plan.ok()) return reply(plan.status());
     std::vector<storage::Event> events;
     for (const study::ReportResult& r : plan->results) {
       v1::ReportResult* out = response.add_results();
@@ -147,8 +162,7 @@ absl::StatusOr<v1::TellResponse> StudyHost::Tell(const std::vector<study::Report
     response.set_generation(study_.engine().generation);
     response.set_phase(codec::PhaseToProto(study_.engine().phase));
   }
-  if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
-  return response;
+  ReplyAfterCommit(std::move(queued), std::move(response), std::move(reply));
 }
 
 absl::StatusOr<v1::RenewResponse> StudyHost::Renew(const std::vector<int64_t>& trials, const std::string& worker,

@@ -3,7 +3,9 @@
 //
 // A reply is sent only after the transaction holding its change committed. To let many requests of one
 // study share an fsync, the host applies a change to memory under its mutex and queues the write in
-// order, then waits for the commit outside the mutex; the next request plans on top. The writes of one
+// order, then waits for the commit outside the mutex; the next request plans on top. Ask and Tell do
+// not wait on the caller's thread: their reply is a continuation that the CommitWaiter runs once the
+// write committed. The writes of one
 // host form a chain in the store: if one fails, every later one fails too, nothing of them is stored,
 // and the host reloads the study from the store (what is on disk) before it serves again. So a failed
 // commit never leaves memory ahead of disk for long, and never acknowledges anything not on disk.
@@ -21,20 +23,27 @@
 #include <vector>
 
 #include "absl/container/flat_hash_map.h"
+#include "absl/functional/any_invocable.h"
 #include "absl/status/statusor.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/time/time.h"
 #include "ogive/v1/service.pb.h"
 #include "ogive/v1/study.pb.h"
+#include "server/service/commit_waiter.h"
 #include "server/study/study.h"
 #include "storage/store.h"
 
 namespace ogive::service {
 
+// Receives the outcome of a request once it is known: called exactly once, on the caller's thread for
+// an error found before anything was queued, on the CommitWaiter's thread otherwise.
+template <typename Response>
+using Reply = absl::AnyInvocable<void(absl::StatusOr<Response>)>;
+
 class StudyHost {
  public:
-  // A host for a study that was just created or loaded. `store` outlives the host.
-  StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store,
+  // A host for a study that was just created or loaded. `store` and `waiter` outlive the host.
+  StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store, CommitWaiter* waiter,
             std::string create_request_id,
             absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests);
 
@@ -44,10 +53,10 @@ class StudyHost {
   const std::string& create_request_id() const { return create_request_id_; }
 
   // Ask: `count` trials for `worker`. A request id seen before returns the trials it returned then.
-  absl::StatusOr<v1::AskResponse> Ask(int count, const std::string& worker, std::optional<absl::Duration> lease,
-                                      const std::string& request_id, absl::Time now);
-  absl::StatusOr<v1::TellResponse> Tell(const std::vector<study::Report>& reports, const std::string& worker,
-                                        absl::Time now);
+  void Ask(int count, const std::string& worker, std::optional<absl::Duration> lease, const std::string& request_id,
+           absl::Time now, Reply<v1::AskResponse> reply);
+  void Tell(const std::vector<study::Report>& reports, const std::string& worker, absl::Time now,
+            Reply<v1::TellResponse> reply);
   absl::StatusOr<v1::RenewResponse> Renew(const std::vector<int64_t>& trials, const std::string& worker,
                                           std::optional<absl::Duration> lease, absl::Time now);
   absl::StatusOr<v1::StudyView> SetPhase(study::PhaseCommand command, absl::Time now);
@@ -79,6 +88,11 @@ class StudyHost {
       ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Waits for a queued write outside mu_; after a failure reloads the study from the store.
   absl::Status Await(Queued queued) ABSL_LOCKS_EXCLUDED(mu_);
+  // Await's second half: what to report once the write of `chain` ended with `committed`.
+  absl::Status AfterCommit(int64_t chain, absl::Status committed) ABSL_LOCKS_EXCLUDED(mu_);
+  // Replies `response` (or the failure) once `queued` committed, from the waiter's thread.
+  template <typename Response>
+  void ReplyAfterCommit(Queued queued, Response response, Reply<Response> reply) ABSL_LOCKS_EXCLUDED(mu_);
   // UNAVAILABLE while the study could not be reloaded after a failed commit.
   absl::Status Usable() const ABSL_SHARED_LOCKS_REQUIRED(mu_);
   v1::Trial TrialView(const study::Trial& t) const ABSL_SHARED_LOCKS_REQUIRED(mu_);
@@ -88,6 +102,7 @@ class StudyHost {
   const v1::StudyDesign design_;
   const std::string create_request_id_;
   storage::Store* const store_;
+  CommitWaiter* const waiter_;
 
   mutable absl::Mutex mu_;
   study::Study study_ ABSL_GUARDED_BY(mu_);
