@@ -46,10 +46,6 @@ class Registry {
   absl::btree_map<std::string, std::shared_ptr<StudyHost>> studies_ ABSL_GUARDED_BY(mu_);
 };
 
-// Checks a design against the limits and the naming rules (before the search space's own validation):
-// INVALID_ARGUMENT naming the field, RESOURCE_EXHAUSTED for sizes beyond a limit.
-absl::Status ValidateDesignShape(const v1::StudyDesign& design, const ServiceLimits& limits);
-
 }  // namespace ogive::service
 
 #endif  // OGIVE_SERVER_SERVICE_REGISTRY_H_
