@@ -87,6 +87,17 @@ new_key "$PKI/stray.key"
 openssl verify -CAfile "$PKI/ca.pem" "$PKI/server.pem" "$PKI/client.pem" >/dev/null ||
   fail "openssl does not verify the certificates it made"
 
+step "ogived --help names the TLS flags and every limit with its default"
+timeout 10 "$OGIVED" --help >"$TMP/help.out" 2>&1 || fail "ogived --help failed"
+for flag in --tls-cert --tls-key --tls-client-ca --allow-insecure-remote --max-message-bytes \
+  --max-ask-count --max-reports-per-tell --max-parameters --max-options --max-name-bytes \
+  --max-request-id-bytes --max-note-bytes --max-description-bytes --max-studies --max-page-size \
+  --max-lease-seconds; do
+  grep -q -- "^  $flag " "$TMP/help.out" || fail "ogived --help does not list $flag"
+done
+[[ $(grep -c -- "^  --max-.*(default [0-9]*)$" "$TMP/help.out") -eq 12 ]] ||
+  fail "ogived --help: not every limit shows its default: $(cat "$TMP/help.out")"
+
 # ---- Refusals at start ----
 # refused EXPECTED_TEXT ARGS...: ogived must exit 2 within 10 s and print EXPECTED_TEXT.
 refused() {
