@@ -36,7 +36,7 @@ const OptionSpec kGlobalOptions[] = {
     {"--tls-ca", "", "PEM", "CA certificates that sign the server's (default $OGIVE_TLS_CA)"},
     {"--tls-cert", "", "PEM", "client certificate, for a server that asks (default $OGIVE_TLS_CERT)"},
     {"--tls-key", "", "PEM", "private key of --tls-cert (default $OGIVE_TLS_KEY)"},
-    {"--tls-server-name", "", "NAME", "name the server's certificate must carry (default: the host of --server; $OGIVE_TLS_SERVER_NAME)"},
+    {"--tls-server-name", "", "NAME", "name in the server's certificate (default: its host; $OGIVE_TLS_SERVER_NAME)"},
     {"--help", "-h", "", "this help"},
 };
 
