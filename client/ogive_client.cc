@@ -26,12 +26,23 @@ std::string NewRequestId() {
   return buffer;
 }
 
-std::unique_ptr<Client> Client::Connect(const std::string& target, ClientOptions options) {
+absl::StatusOr<std::unique_ptr<Client>> Client::Open(const std::string& target, ClientOptions options) {
   grpc::ChannelArguments args;
   args.SetMaxReceiveMessageSize(options.max_message_bytes);
   args.SetMaxSendMessageSize(options.max_message_bytes);
-  return std::make_unique<Client>(grpc::CreateCustomChannel(target, grpc::InsecureChannelCredentials(), args),
-                                  std::move(options));
+  std::shared_ptr<grpc::ChannelCredentials> credentials = grpc::InsecureChannelCredentials();
+  if (options.tls.on()) {
+    absl::StatusOr<std::shared_ptr<grpc::ChannelCredentials>> tls = TlsChannelCredentials(options.tls);
+    if (!tls.ok()) return tls.status();
+    credentials = *std::move(tls);
+    if (!options.tls.server_name.empty()) args.SetSslTargetNameOverride(options.tls.server_name);
+  }
+  return std::make_unique<Client>(grpc::CreateCustomChannel(target, credentials, args), std::move(options));
+}
+
+std::unique_ptr<Client> Client::Connect(const std::string& target, ClientOptions options) {
+  absl::StatusOr<std::unique_ptr<Client>> client = Open(target, std::move(options));
+  return client.ok() ? *std::move(client) : nullptr;
 }
 
 Client::Client(std::shared_ptr<grpc::Channel> channel, ClientOptions options)

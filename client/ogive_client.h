@@ -19,6 +19,7 @@
 #include "absl/status/statusor.h"
 #include "absl/synchronization/notification.h"
 #include "absl/time/time.h"
+#include "client/client_tls.h"
 #include "grpcpp/grpcpp.h"
 #include "ogive/v1/service.grpc.pb.h"
 
@@ -31,11 +32,18 @@ struct ClientOptions {
   absl::Duration max_backoff = absl::Seconds(5);
   std::string token;                                 // sent as "authorization: Bearer <token>" if set
   int max_message_bytes = 4 << 20;
+  ClientTls tls;                                     // plain text unless tls.on()
 };
 
 class Client {
  public:
-  // A client of the server at `target` ("host:port") over an insecure channel (loopback use).
+  // A client of the server at `target` ("host:port"): over TLS when options.tls.on(), else in plain
+  // text (a server on loopback). INVALID_ARGUMENT naming the option and path when a TLS file cannot
+  // be used. Connecting is lazy: an unreachable server or a failed handshake shows as UNAVAILABLE on
+  // the first call.
+  static absl::StatusOr<std::unique_ptr<Client>> Open(const std::string& target, ClientOptions options = {});
+  // Like Open, for callers that never fail to build a channel: nullptr when options.tls names a file
+  // that cannot be used (Open says why).
   static std::unique_ptr<Client> Connect(const std::string& target, ClientOptions options = {});
   // A client over a channel the caller made (for TLS credentials or tests).
   Client(std::shared_ptr<grpc::Channel> channel, ClientOptions options);

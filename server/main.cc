@@ -1,6 +1,7 @@
 // ogived: the ogive server. Serves many studies over gRPC from one SQLite file.
 //
-//   ogived [--db PATH] [--listen ADDRESS] [--max-message-bytes N] [--sweep-interval-seconds S]
+//   ogived [--db PATH] [--listen ADDRESS] [--tls-cert PEM --tls-key PEM [--tls-client-ca PEM]]
+//          [--max-... N] [--sweep-interval-seconds S]   (see --help)
 //
 // On start it restores every stored study exactly. On SIGTERM or SIGINT it reports NOT_SERVING on the
 // health service, stops accepting calls, lets in-flight calls finish (their commits included) and
@@ -29,6 +30,7 @@
 #include "server/service/grpc_service.h"
 #include "server/service/log.h"
 #include "server/service/registry.h"
+#include "server/service/transport.h"
 #include "storage/sqlite_store.h"
 
 namespace {
@@ -41,13 +43,18 @@ constexpr char kUsage[] =
     "options:\n"
     "  --db PATH                   database file (default ./ogive.db; created if missing)\n"
     "  --listen ADDRESS            host:port to listen on (default 127.0.0.1:7075)\n"
-    "  --max-message-bytes N       largest request accepted (default 4194304)\n"
     "  --sweep-interval-seconds S  how often expired leases are lapsed (default 1)\n"
-    "  --max-ask-count N           trials per Ask (default 1000)\n"
-    "  --max-reports-per-tell N    reports per Tell (default 1000)\n"
-    "  --max-studies N             studies per server (default 10000)\n"
+    "  --tls-cert PEM              serve TLS with this certificate chain (server's certificate first)\n"
+    "  --tls-key PEM               the private key of --tls-cert (unencrypted PEM)\n"
+    "  --tls-client-ca PEM         require client certificates signed by these CAs (mutual TLS)\n"
     "  --allow-insecure-remote     listen on a non-loopback address without TLS (plain text!)\n"
     "  --help                      this text\n"
+    "\n"
+    "Without --tls-cert ogived listens on loopback addresses only, unless --allow-insecure-remote.\n"
+    "\n"
+    "limits (beyond them a request gets RESOURCE_EXHAUSTED or INVALID_ARGUMENT):\n";
+
+constexpr char kSafety[] =
     "\n"
     "Candidates are suggestions: check them against your local safety rules before they drive\n"
     "equipment.\n";
@@ -56,7 +63,7 @@ struct Flags {
   std::string db = "ogive.db";
   std::string listen = "127.0.0.1:7075";
   double sweep_interval_seconds = 1.0;
-  bool allow_insecure_remote = false;
+  ogive::service::TransportFlags transport;
   ogive::service::ServiceLimits limits;
 };
 
@@ -70,11 +77,11 @@ Flags ParseFlags(int argc, char** argv) {
   for (int i = 1; i < argc; ++i) {
     const std::string arg = argv[i];
     if (arg == "--help" || arg == "-h") {
-      std::fputs(kUsage, stdout);
+      std::fputs(absl::StrCat(kUsage, ogive::service::LimitFlagsHelp(), kSafety).c_str(), stdout);
       std::exit(0);
     }
     if (arg == "--allow-insecure-remote") {
-      flags.allow_insecure_remote = true;
+      flags.transport.allow_insecure_remote = true;
       continue;
     }
     const size_t eq = arg.find('=');
@@ -87,21 +94,18 @@ Flags ParseFlags(int argc, char** argv) {
     } else {
       Fail(absl::StrCat(name, ": needs a value (see --help)"));
     }
-    auto integer = [&](int* out) {
-      if (!absl::SimpleAtoi(value, out) || *out < 1) Fail(absl::StrCat(name, ": must be a positive integer, got '", value, "'"));
-    };
     if (name == "--db") {
       flags.db = value;
     } else if (name == "--listen") {
       flags.listen = value;
-    } else if (name == "--max-message-bytes") {
-      integer(&flags.limits.max_message_bytes);
-    } else if (name == "--max-ask-count") {
-      integer(&flags.limits.max_ask_count);
-    } else if (name == "--max-reports-per-tell") {
-      integer(&flags.limits.max_reports_per_tell);
-    } else if (name == "--max-studies") {
-      integer(&flags.limits.max_studies);
+    } else if (name == "--tls-cert") {
+      flags.transport.tls_cert_path = value;
+    } else if (name == "--tls-key") {
+      flags.transport.tls_key_path = value;
+    } else if (name == "--tls-client-ca") {
+      flags.transport.tls_client_ca_path = value;
+    } else if (absl::Status s = ogive::service::SetLimitFromFlag(flags.limits, name, value); !absl::IsNotFound(s)) {
+      if (!s.ok()) Fail(std::string(s.message()));
     } else if (name == "--sweep-interval-seconds") {
       if (!absl::SimpleAtod(value, &flags.sweep_interval_seconds) || !(flags.sweep_interval_seconds > 0)) {
         Fail(absl::StrCat(name, ": must be a positive number of seconds, got '", value, "'"));
@@ -111,13 +115,6 @@ Flags ParseFlags(int argc, char** argv) {
     }
   }
   if (absl::Status s = flags.limits.Validate(); !s.ok()) Fail(std::string(s.message()));
-  const bool loopback = flags.listen.rfind("127.", 0) == 0 || flags.listen.rfind("localhost:", 0) == 0 ||
-                        flags.listen.rfind("[::1]:", 0) == 0;
-  if (!loopback && !flags.allow_insecure_remote) {
-    Fail(absl::StrCat("--listen ", flags.listen,
-                      ": without TLS ogived listens on loopback only (127.0.0.1, [::1], localhost); pass "
-                      "--allow-insecure-remote to serve other hosts in plain text"));
-  }
   return flags;
 }
 
@@ -132,6 +129,9 @@ void OnSignal(int) {
 
 int main(int argc, char** argv) {
   const Flags flags = ParseFlags(argc, argv);
+  // Certificates are checked before the database is opened: a bad file fails fast, naming its flag.
+  absl::StatusOr<ogive::service::Transport> transport = ogive::service::ChooseTransport(flags.listen, flags.transport);
+  if (!transport.ok()) Fail(std::string(transport.status().message()));
   // Lock-order checking is for tests; in the server it costs a graph update on every lock.
   absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
   using ogive::service::LogLine;
@@ -148,7 +148,7 @@ int main(int argc, char** argv) {
   grpc::reflection::InitProtoReflectionServerBuilderPlugin();
   grpc::ServerBuilder builder;
   int port = 0;
-  builder.AddListeningPort(flags.listen, grpc::InsecureServerCredentials(), &port);
+  builder.AddListeningPort(flags.listen, transport->credentials, &port);
   builder.SetMaxReceiveMessageSize(flags.limits.max_message_bytes);
   // A port already in use is an error, not a port to share with another server.
   builder.AddChannelArgument(GRPC_ARG_ALLOW_REUSEPORT, 0);
@@ -161,7 +161,16 @@ int main(int argc, char** argv) {
   std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
   if (server == nullptr || port == 0) Fail(absl::StrCat("cannot listen on '", flags.listen, "'"));
   server->GetHealthCheckService()->SetServingStatus(true);
-  LogLine({{"event", "listening"}, {"address", flags.listen}, {"port", absl::StrCat(port)}});
+  const std::string tls_mode(ogive::service::TransportModeName(transport->mode));
+  LogLine({{"event", "listening"}, {"address", flags.listen}, {"port", absl::StrCat(port)}, {"tls", tls_mode}});
+  if (transport->mode == ogive::service::TransportMode::kPlainLoopback) {
+    LogLine({{"event", "insecure"}, {"tls", tls_mode},
+             {"detail", "no TLS: listening on loopback only; give --tls-cert and --tls-key to serve other hosts"}});
+  } else if (transport->mode == ogive::service::TransportMode::kPlainRemote) {
+    LogLine({{"event", "insecure"}, {"tls", tls_mode},
+             {"detail", "no TLS on a non-loopback address (--allow-insecure-remote): requests and results cross "
+                        "the network in plain text"}});
+  }
 
   if (pipe(signal_pipe) != 0) Fail("pipe failed");
   struct sigaction action;

@@ -32,6 +32,11 @@ const OptionSpec kGlobalOptions[] = {
     {"--timeout", "", "SECONDS", "deadline of each call to the server (default 30)"},
     {"--json", "", "", "print data as protobuf JSON instead of tables and text"},
     {"--token-file", "", "PATH", "file holding the access token (default: $OGIVE_TOKEN)"},
+    {"--tls", "", "", "use TLS, trusting the system's CA certificates (implied by --tls-*)"},
+    {"--tls-ca", "", "PEM", "CA certificates that sign the server's (default $OGIVE_TLS_CA)"},
+    {"--tls-cert", "", "PEM", "client certificate, for a server that asks (default $OGIVE_TLS_CERT)"},
+    {"--tls-key", "", "PEM", "private key of --tls-cert (default $OGIVE_TLS_KEY)"},
+    {"--tls-server-name", "", "NAME", "name in the server's certificate (default: its host; $OGIVE_TLS_SERVER_NAME)"},
     {"--help", "-h", "", "this help"},
 };
 
@@ -53,7 +58,10 @@ int ServerError(const Invocation& inv, const absl::Status& status) {
   if (status.code() == absl::StatusCode::kUnavailable ||
       status.code() == absl::StatusCode::kDeadlineExceeded) {
     absl::StrAppend(&text, "\n(server ", inv.globals.server,
-                    "; is ogived running there? Choose another with --server or $OGIVE_SERVER)");
+                    "; is ogived running there? Choose another with --server or $OGIVE_SERVER",
+                    inv.globals.tls.on() ? ". With TLS: does --tls-ca sign its certificate, does the certificate "
+                                           "name the host (else --tls-server-name), does it want --tls-cert?)"
+                                         : ". If it serves TLS, give --tls-ca)");
   }
   std::fprintf(stderr, "%s\n", text.c_str());
   return kExitServerError;
@@ -100,7 +108,8 @@ absl::StatusOr<std::unique_ptr<client::Client>> Connect(const Invocation& inv) {
   } else if (const char* token = std::getenv("OGIVE_TOKEN"); token != nullptr) {
     options.token = std::string(absl::StripAsciiWhitespace(token));
   }
-  return client::Client::Connect(inv.globals.server, std::move(options));
+  options.tls = inv.globals.tls;
+  return client::Client::Open(inv.globals.server, std::move(options));
 }
 
 // Connects, or prints the usage error and returns nullptr with `*exit_code` set.
@@ -601,7 +610,7 @@ std::string HelpText(const Command* command, const std::vector<std::string>& gro
     }
     absl::StrAppend(&out, "\nglobal options: --server HOST:PORT, --timeout SECONDS, ",
                     command->prints_data ? "--json, " : "",
-                    "--token-file PATH\n(see 'ogive --help')\n");
+                    "--token-file PATH, --tls-ca PEM, ...\n(see 'ogive --help')\n");
     if (command->words[0] == "ask" || command->words[0] == "work") {
       absl::StrAppend(&out, "\n", kSafetyNote);
     }
@@ -766,6 +775,25 @@ absl::StatusOr<Invocation> ParseCommandLine(absl::Span<const std::string> args,
                  absl::StrCat("--json does not apply: '", Prefix(command), "' prints a log"));
   }
   inv.globals.token_file = a.Get("--token-file").value_or("");
+  // TLS: each option, else its environment variable.
+  const auto option_or_env = [&](absl::string_view option, const char* env) {
+    if (std::optional<std::string> value = a.Get(option); value.has_value()) return *value;
+    const char* from_env = getenv(env);
+    return std::string(from_env == nullptr ? "" : from_env);
+  };
+  client::ClientTls& tls = inv.globals.tls;
+  tls.enabled = a.Has("--tls");
+  tls.ca_path = option_or_env("--tls-ca", "OGIVE_TLS_CA");
+  tls.cert_path = option_or_env("--tls-cert", "OGIVE_TLS_CERT");
+  tls.key_path = option_or_env("--tls-key", "OGIVE_TLS_KEY");
+  tls.server_name = option_or_env("--tls-server-name", "OGIVE_TLS_SERVER_NAME");
+  if (tls.cert_path.empty() != tls.key_path.empty()) {
+    return Usage(command.words, tls.cert_path.empty() ? "--tls-key: needs --tls-cert (or $OGIVE_TLS_CERT)"
+                                                      : "--tls-cert: needs --tls-key (or $OGIVE_TLS_KEY)");
+  }
+  if (!tls.server_name.empty() && !tls.on()) {
+    return Usage(command.words, "--tls-server-name: applies to TLS only; give --tls or --tls-ca too");
+  }
   return inv;
 }
 

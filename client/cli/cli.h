@@ -17,6 +17,7 @@
 #include "absl/types/span.h"
 #include "client/cli/args.h"
 #include "client/cli/work.h"
+#include "client/client_tls.h"
 #include "ogive/v1/study.pb.h"
 
 namespace ogive::cli {
@@ -49,6 +50,8 @@ struct GlobalOptions {
   double timeout_seconds = 30;          // --timeout: deadline of each call
   bool json = false;                    // --json
   std::string token_file;               // --token-file, else the token is $OGIVE_TOKEN
+  client::ClientTls tls;                // --tls, --tls-ca, --tls-cert, --tls-key, --tls-server-name,
+                                        // else $OGIVE_TLS_CA, $OGIVE_TLS_CERT, ...
 };
 
 // A parsed command line.

@@ -5,6 +5,8 @@
 #include <sys/wait.h>
 
 #include <csignal>
+#include <cstdio>
+#include <fstream>
 #include <map>
 #include <string>
 #include <vector>
@@ -17,6 +19,8 @@
 #include "client/cli/outcome_line.h"
 #include "client/cli/views.h"
 #include "client/cli/work.h"
+#include "client/client_tls.h"
+#include "client/ogive_client.h"
 #include "gmock/gmock.h"
 #include "google/protobuf/text_format.h"
 #include "gtest/gtest.h"
@@ -421,6 +425,64 @@ TEST(CommandLineTest, ServerFromTheEnvironmentUnlessGiven) {
               HasSubstr("--server: must be HOST:PORT"));
   EXPECT_THAT(UsageMessage({"study", "list", "--timeout", "-1"}),
               HasSubstr("--timeout: must be a positive number of seconds"));
+}
+
+TEST(CommandLineTest, TlsOptionsFromTheCommandLineElseTheEnvironment) {
+  const client::ClientTls plain = Parse({"study", "list"})->globals.tls;
+  EXPECT_FALSE(plain.on());
+  absl::StatusOr<Invocation> given =
+      Parse({"--tls-ca", "ca.pem", "work", "S", "--tls-cert=c.pem", "--tls-key", "c.key", "--tls-server-name",
+             "ogive.lab", "--", "prog"},
+            {{"OGIVE_TLS_CA", "env-ca.pem"}, {"OGIVE_TLS_SERVER_NAME", "env.name"}});
+  ASSERT_TRUE(given.ok()) << given.status();
+  EXPECT_TRUE(given->globals.tls.on());
+  EXPECT_EQ(given->globals.tls.ca_path, "ca.pem");
+  EXPECT_EQ(given->globals.tls.cert_path, "c.pem");
+  EXPECT_EQ(given->globals.tls.key_path, "c.key");
+  EXPECT_EQ(given->globals.tls.server_name, "ogive.lab");
+  absl::StatusOr<Invocation> env = Parse({"ask", "S"}, {{"OGIVE_TLS_CA", "env-ca.pem"},
+                                                        {"OGIVE_TLS_CERT", "e.pem"},
+                                                        {"OGIVE_TLS_KEY", "e.key"}});
+  ASSERT_TRUE(env.ok()) << env.status();
+  EXPECT_EQ(env->globals.tls.ca_path, "env-ca.pem");
+  EXPECT_EQ(env->globals.tls.cert_path, "e.pem");
+  EXPECT_EQ(env->globals.tls.key_path, "e.key");
+  EXPECT_TRUE(Parse({"study", "list", "--tls"})->globals.tls.on());
+  EXPECT_THAT(UsageMessage({"study", "list", "--tls-cert", "c.pem"}), HasSubstr("--tls-cert: needs --tls-key"));
+  EXPECT_THAT(UsageMessage({"study", "list", "--tls-key", "c.key"}), HasSubstr("--tls-key: needs --tls-cert"));
+  EXPECT_THAT(UsageMessage({"study", "list", "--tls-server-name", "x"}),
+              HasSubstr("--tls-server-name: applies to TLS only"));
+}
+
+TEST(ClientTlsTest, UnusableFilesNameTheOptionAndThePath) {
+  const std::string dir = ::testing::TempDir();
+  const std::string cert = dir + "/cli_test_cert.pem";
+  const std::string not_pem = dir + "/cli_test_not.pem";
+  {
+    std::ofstream(cert) << "-----BEGIN CERTIFICATE-----\nAAAA\n-----END CERTIFICATE-----\n";
+    std::ofstream(not_pem) << "hello\n";
+  }
+  client::ClientTls tls;
+  tls.ca_path = dir + "/cli_test_missing.pem";
+  EXPECT_THAT(std::string(client::TlsChannelCredentials(tls).status().message()),
+              HasSubstr("--tls-ca '" + tls.ca_path + "': cannot read"));
+  tls.ca_path = not_pem;
+  EXPECT_THAT(std::string(client::TlsChannelCredentials(tls).status().message()),
+              HasSubstr("--tls-ca '" + not_pem + "': holds no PEM certificate"));
+  tls.ca_path = cert;
+  tls.cert_path = cert;
+  tls.key_path = cert;  // a certificate where the key should be
+  EXPECT_THAT(std::string(client::TlsChannelCredentials(tls).status().message()),
+              HasSubstr("--tls-key '" + cert + "': holds no PEM private key"));
+  tls.key_path = "";
+  EXPECT_THAT(std::string(client::TlsChannelCredentials(tls).status().message()),
+              HasSubstr("--tls-cert: needs --tls-key"));
+  client::ClientOptions options;
+  options.tls.ca_path = dir + "/cli_test_missing.pem";
+  EXPECT_EQ(client::Client::Open("127.0.0.1:1", options).status().code(), absl::StatusCode::kInvalidArgument);
+  EXPECT_EQ(client::Client::Connect("127.0.0.1:1", options), nullptr);
+  std::remove(cert.c_str());
+  std::remove(not_pem.c_str());
 }
 
 TEST(CommandLineTest, UsageErrorsNameTheProblem) {

@@ -5,6 +5,7 @@
 #include "absl/strings/str_cat.h"
 #include "server/service/handlers.h"
 #include "server/service/log.h"
+#include "server/service/validation.h"
 
 namespace ogive::service {
 namespace {
@@ -104,6 +105,7 @@ grpc::Status OgiveService::SetPhase(grpc::ServerContext*, const v1::SetPhaseRequ
 
 grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRequest* request,
                                  grpc::ServerWriter<v1::StudyView>* writer) {
+  if (absl::Status s = ValidateWatch(*request, registry_->limits()); !s.ok()) return ToGrpc(s);
   absl::StatusOr<std::shared_ptr<StudyHost>> host = registry_->Find(request->study());
   if (!host.ok()) return ToGrpc(host.status());
   int64_t version = (*host)->version();

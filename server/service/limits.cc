@@ -1,27 +1,64 @@
 #include "server/service/limits.h"
 
+#include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 
 namespace ogive::service {
 
-absl::Status ServiceLimits::Validate() const {
-  struct Field {
-    const char* name;
-    double value;
+absl::Span<const LimitFlag> LimitFlags() {
+  using L = ServiceLimits;
+  static const LimitFlag kFlags[] = {
+      {"--max-message-bytes", "max_message_bytes", "largest request accepted, bytes", &L::max_message_bytes, 1024},
+      {"--max-ask-count", "max_ask_count", "trials per Ask, trial numbers per Renew", &L::max_ask_count, 1},
+      {"--max-reports-per-tell", "max_reports_per_tell", "reports per Tell", &L::max_reports_per_tell, 1},
+      {"--max-parameters", "max_parameters", "parameters per design", &L::max_parameters, 1},
+      {"--max-options", "max_options", "options per categorical parameter, labels per grade scale",
+       &L::max_options, 2},
+      {"--max-name-bytes", "max_name_bytes", "study, parameter, option, grade and worker names, units",
+       &L::max_name_bytes, 8},
+      {"--max-request-id-bytes", "max_request_id_bytes", "request ids", &L::max_request_id_bytes, 32},
+      {"--max-note-bytes", "max_note_bytes", "the note of a report", &L::max_note_bytes, 1},
+      {"--max-description-bytes", "max_description_bytes", "a parameter's description",
+       &L::max_description_bytes, 1},
+      {"--max-studies", "max_studies", "studies per server", &L::max_studies, 1},
+      {"--max-page-size", "max_page_size", "trials per ListTrials page", &L::max_page_size, 100},
+      {"--max-lease-seconds", "max_lease_seconds", "longest lease", &L::max_lease_seconds, 1},
   };
-  for (const Field& f : {Field{"max_message_bytes", static_cast<double>(max_message_bytes)},
-                         Field{"max_ask_count", static_cast<double>(max_ask_count)},
-                         Field{"max_reports_per_tell", static_cast<double>(max_reports_per_tell)},
-                         Field{"max_parameters", static_cast<double>(max_parameters)},
-                         Field{"max_options", static_cast<double>(max_options)},
-                         Field{"max_name_bytes", static_cast<double>(max_name_bytes)},
-                         Field{"max_note_bytes", static_cast<double>(max_note_bytes)},
-                         Field{"max_studies", static_cast<double>(max_studies)},
-                         Field{"max_page_size", static_cast<double>(max_page_size)},
-                         Field{"max_lease_seconds", max_lease_seconds}}) {
-    if (!(f.value >= 1)) return absl::InvalidArgumentError(absl::StrCat(f.name, ": must be at least 1, got ", f.value));
+  return kFlags;
+}
+
+absl::Status ServiceLimits::Validate() const {
+  for (const LimitFlag& f : LimitFlags()) {
+    if (this->*f.member < f.min) {
+      return absl::InvalidArgumentError(absl::StrCat(f.field, ": must be at least ", f.min, ", got ", this->*f.member));
+    }
   }
   return absl::OkStatus();
+}
+
+absl::Status SetLimitFromFlag(ServiceLimits& limits, absl::string_view flag, absl::string_view value) {
+  for (const LimitFlag& f : LimitFlags()) {
+    if (f.flag != flag) continue;
+    int parsed = 0;
+    if (!absl::SimpleAtoi(value, &parsed) || parsed < f.min) {
+      return absl::InvalidArgumentError(
+          absl::StrCat(flag, ": must be a whole number >= ", f.min, " (", f.help, "), got '", value, "'"));
+    }
+    limits.*f.member = parsed;
+    return absl::OkStatus();
+  }
+  return absl::NotFoundError(absl::StrCat("no limit has the flag ", flag));
+}
+
+std::string LimitFlagsHelp() {
+  const ServiceLimits defaults;
+  std::string out;
+  for (const LimitFlag& f : LimitFlags()) {
+    std::string left = absl::StrCat("  ", f.flag, " N");
+    if (left.size() < 30) left.resize(30, ' ');
+    absl::StrAppend(&out, left, f.help, " (default ", defaults.*f.member, ")\n");
+  }
+  return out;
 }
 
 }  // namespace ogive::service

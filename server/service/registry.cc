@@ -5,18 +5,10 @@
 #include "absl/strings/str_cat.h"
 #include "server/codec/design_codec.h"
 #include "server/codec/study_codec.h"
+#include "server/service/validation.h"
 
 namespace ogive::service {
 namespace {
-
-bool NameCharactersOk(const std::string& name, bool allow_dot) {
-  for (char c : name) {
-    const bool ok = (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '_' ||
-                    c == '-' || (allow_dot && c == '.');
-    if (!ok) return false;
-  }
-  return !name.empty();
-}
 
 struct Built {
   search::Space space;
@@ -38,64 +30,6 @@ absl::StatusOr<Built> Build(const v1::StudyDesign& design) {
 }
 
 }  // namespace
-
-absl::Status ValidateDesignShape(const v1::StudyDesign& design, const ServiceLimits& limits) {
-  const int max_name = limits.max_name_bytes;
-  if (design.name().empty()) return absl::InvalidArgumentError("design.name: must not be empty");
-  if (static_cast<int>(design.name().size()) > max_name) {
-    return absl::InvalidArgumentError(absl::StrCat("design.name: at most ", max_name, " bytes"));
-  }
-  if (!NameCharactersOk(design.name(), true)) {
-    return absl::InvalidArgumentError(absl::StrCat("design.name: '", design.name(),
-                                                   "' may hold only letters, digits, '_', '-' and '.'"));
-  }
-  if (design.parameters_size() > limits.max_parameters) {
-    return absl::ResourceExhaustedError(absl::StrCat("design.parameters: at most ", limits.max_parameters,
-                                                     " parameters, got ", design.parameters_size()));
-  }
-  for (int i = 0; i < design.parameters_size(); ++i) {
-    const v1::Parameter& p = design.parameters(i);
-    const std::string field = absl::StrCat("design.parameters[", i, "]");
-    if (!NameCharactersOk(p.name(), false) || static_cast<int>(p.name().size()) > max_name) {
-      return absl::InvalidArgumentError(absl::StrCat(field, ".name: '", p.name(), "' must be 1..", max_name,
-                                                     " letters, digits, '_' or '-'"));
-    }
-    if (static_cast<int>(p.unit().size()) > max_name || static_cast<int>(p.description().size()) > 8 * max_name) {
-      return absl::InvalidArgumentError(absl::StrCat(field, ": unit or description too long"));
-    }
-    if (p.has_categorical()) {
-      if (p.categorical().options_size() > limits.max_options) {
-        return absl::ResourceExhaustedError(
-            absl::StrCat(field, ".categorical.options: at most ", limits.max_options, " options"));
-      }
-      for (const std::string& option : p.categorical().options()) {
-        if (static_cast<int>(option.size()) > max_name) {
-          return absl::InvalidArgumentError(absl::StrCat(field, ".categorical.options: at most ", max_name, " bytes each"));
-        }
-      }
-    }
-  }
-  if (design.objective().has_grade_scale()) {
-    if (design.objective().grade_scale().labels_size() > limits.max_options) {
-      return absl::ResourceExhaustedError(
-          absl::StrCat("design.objective.grade_scale.labels: at most ", limits.max_options, " labels"));
-    }
-    for (const std::string& label : design.objective().grade_scale().labels()) {
-      if (static_cast<int>(label.size()) > max_name) {
-        return absl::InvalidArgumentError(
-            absl::StrCat("design.objective.grade_scale.labels: at most ", max_name, " bytes each"));
-      }
-    }
-  }
-  if (design.lease_seconds() > limits.max_lease_seconds) {
-    return absl::InvalidArgumentError(
-        absl::StrCat("design.lease_seconds: at most ", limits.max_lease_seconds, ", got ", design.lease_seconds()));
-  }
-  if (design.expected_workers() > 100000 || design.population_size() > 100000) {
-    return absl::InvalidArgumentError("design.expected_workers, design.population_size: at most 100000");
-  }
-  return absl::OkStatus();
-}
 
 absl::Status Registry::LoadAll() {
   absl::StatusOr<std::vector<storage::StoredStudy>> stored = store_->LoadAll();

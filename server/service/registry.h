@@ -49,10 +49,6 @@ class Registry {
   CommitWaiter waiter_;
 };
 
-// Checks a design against the limits and the naming rules (before the search space's own validation):
-// INVALID_ARGUMENT naming the field, RESOURCE_EXHAUSTED for sizes beyond a limit.
-absl::Status ValidateDesignShape(const v1::StudyDesign& design, const ServiceLimits& limits);
-
 }  // namespace ogive::service
 
 #endif  // OGIVE_SERVER_SERVICE_REGISTRY_H_

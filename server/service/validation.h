@@ -1,0 +1,50 @@
+// Request validation: checks every field of each request against the service's rules and limits
+// before anything is looked up or stored, so a bad request changes nothing. Each error starts with the
+// path of the field it refuses ("design.parameters[2].real.low: ...", "reports[0].outcome.score: ...")
+// and says what is allowed. Codes: RESOURCE_EXHAUSTED for a repeated field or count beyond a server
+// limit (ServiceLimits), INVALID_ARGUMENT for everything else (missing or malformed values, unknown
+// enum values, NaN and infinities, strings too long or with characters not allowed).
+//
+// What depends on stored state (does the study exist, is the grade on this study's scale, is the trial
+// leased to this worker) is checked later, by the codec and the study engine.
+//
+// Free functions over protos; no state.
+#ifndef OGIVE_SERVER_SERVICE_VALIDATION_H_
+#define OGIVE_SERVER_SERVICE_VALIDATION_H_
+
+#include <string>
+
+#include "absl/status/status.h"
+#include "absl/strings/string_view.h"
+#include "ogive/v1/service.pb.h"
+#include "ogive/v1/study.pb.h"
+#include "server/service/limits.h"
+
+namespace ogive::service {
+
+// The whole design, field by field (paths start with "design."): names and their characters, parameter
+// kinds and bounds, options and grade labels, the objective, every number of the design, the start
+// point against the parameters. Also refuses parameter names that would give the same OGIVE_<NAME>
+// environment variable to `ogive work`'s programs (they differ only in case or '-' / '_'), or one the
+// CLI uses itself (OGIVE_STUDY, OGIVE_TRIAL, ...).
+absl::Status ValidateDesignShape(const v1::StudyDesign& design, const ServiceLimits& limits);
+
+// A study name as requests carry it (`field` is its path, e.g. "study"): 1..max_name_bytes of letters,
+// digits, '_', '-' and '.'.
+absl::Status ValidateStudyName(absl::string_view field, const std::string& name, const ServiceLimits& limits);
+
+absl::Status ValidateCreateStudy(const v1::CreateStudyRequest& request, const ServiceLimits& limits);
+absl::Status ValidateGetStudy(const v1::GetStudyRequest& request, const ServiceLimits& limits);
+absl::Status ValidateAsk(const v1::AskRequest& request, const ServiceLimits& limits);
+// Counts, that each report has an outcome, finite scores, grade labels, note lengths. Whether a grade is
+// on the study's scale is the codec's check; a trial number that names no trial is a per-report
+// NOT_FOUND, left to the study.
+absl::Status ValidateTell(const v1::TellRequest& request, const ServiceLimits& limits);
+absl::Status ValidateRenew(const v1::RenewRequest& request, const ServiceLimits& limits);
+absl::Status ValidateListTrials(const v1::ListTrialsRequest& request, const ServiceLimits& limits);
+absl::Status ValidateSetPhase(const v1::SetPhaseRequest& request, const ServiceLimits& limits);
+absl::Status ValidateWatch(const v1::WatchRequest& request, const ServiceLimits& limits);
+
+}  // namespace ogive::service
+
+#endif  // OGIVE_SERVER_SERVICE_VALIDATION_H_
