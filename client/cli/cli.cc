@@ -14,7 +14,11 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "absl/time/clock.h"
+#include "client/cli/card.h"
+#include "client/cli/csv_reader.h"
 #include "client/cli/design_file.h"
+#include "client/cli/grade_match.h"
+#include "client/cli/import_plan.h"
 #include "client/cli/format.h"
 #include "client/cli/views.h"
 #include "client/ogive_client.h"
@@ -251,6 +255,9 @@ int RunAsk(const Invocation& inv) {
   const double lease = LeaseOption(inv, &code);
   if (code != 0) return code;
   const std::string worker = inv.args.Get("--worker").value_or(DefaultWorker());
+  if (inv.args.Has("--card") && inv.globals.json) {
+    return UsageError(*inv.command, "--card and --json: choose one output format");
+  }
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
   const std::string& study = Arg(inv, 0);
@@ -266,7 +273,9 @@ int RunAsk(const Invocation& inv) {
     Print(JsonArray(asked->trials()));
   } else {
     const absl::TimeZone zone = absl::LocalTimeZone();
-    for (const v1::Trial& t : asked->trials()) Print(LeasedTrialText(design, t, zone));
+    for (const v1::Trial& t : asked->trials()) {
+      Print(inv.args.Has("--card") ? TrialCard(study, design, t, zone) : LeasedTrialText(design, t, zone));
+    }
   }
   if (asked->trials_size() < count) {
     std::fprintf(stderr,
@@ -285,6 +294,16 @@ int RunTell(const Invocation& inv) {
   int code = 0;
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
+  if (outcome->has_grade()) {
+    // Labels match in any case; a typo is refused here, with the closest label suggested.
+    absl::StatusOr<v1::StudyView> view = c->GetStudy(Arg(inv, 0));
+    if (!view.ok()) return ServerError(inv, view.status());
+    if (view->design().objective().has_grade_scale()) {
+      absl::StatusOr<std::string> grade = MatchGrade(outcome->grade(), view->design().objective().grade_scale(), "--grade");
+      if (!grade.ok()) return UsageError(*inv.command, grade.status().message());
+      outcome->set_grade(*grade);
+    }
+  }
   v1::Report report;
   report.set_trial(*trial);
   *report.mutable_outcome() = *outcome;
@@ -361,6 +380,90 @@ int RunRenew(const Invocation& inv) {
   return kExitOk;
 }
 
+absl::StatusOr<std::string> ReadWholeFile(const std::string& path, absl::string_view what) {
+  std::FILE* file = std::fopen(path.c_str(), "rb");
+  if (file == nullptr) return absl::InvalidArgumentError(absl::StrCat(what, ": cannot read '", path, "'"));
+  std::string text;
+  char buffer[65536];
+  size_t n = 0;
+  while ((n = std::fread(buffer, 1, sizeof buffer, file)) > 0) text.append(buffer, n);
+  std::fclose(file);
+  return text;
+}
+
+int RunImport(const Invocation& inv) {
+  const std::string& study = Arg(inv, 0);
+  const std::string& path = Arg(inv, 1);
+  absl::StatusOr<std::string> text = ReadWholeFile(path, "FILE");
+  if (!text.ok()) return UsageError(*inv.command, text.status().message());
+  absl::StatusOr<std::vector<CsvRecord>> records = ParseCsv(*text);
+  if (!records.ok()) {
+    std::fprintf(stderr, "%s: %s:%s\nnothing imported\n", Prefix(*inv.command).c_str(), path.c_str(),
+                 std::string(records.status().message()).c_str());
+    return kExitServerError;
+  }
+  int code = 0;
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  absl::StatusOr<v1::StudyView> view = c->GetStudy(study);
+  if (!view.ok()) return ServerError(inv, view.status());
+  absl::StatusOr<std::vector<v1::Trial>> trials = c->ListAllTrials(study, v1::TRIAL_STATE_UNSPECIFIED);
+  if (!trials.ok()) return ServerError(inv, trials.status());
+  const ImportPlan plan = PlanImport(*records, view->design(), *trials);
+  for (const BadRow& bad : plan.bad) {
+    std::fprintf(stderr, "%s:%d: %s\n", path.c_str(), bad.line, bad.reason.c_str());
+  }
+  const bool skip_bad = inv.args.Has("--skip-bad");
+  if (!plan.bad.empty() && !skip_bad) {
+    std::fprintf(stderr, "%s: %zu bad row%s; nothing imported (fix them, or pass --skip-bad to import the rest)\n",
+                 Prefix(*inv.command).c_str(), plan.bad.size(), plan.bad.size() == 1 ? "" : "s");
+    return kExitServerError;
+  }
+  const std::string worker = inv.args.Get("--worker").value_or(DefaultWorker());
+  int stored = 0, late = 0;
+  std::vector<std::string> refused;
+  constexpr size_t kPerTell = 100;
+  for (size_t begin = 0; begin < plan.to_report.size(); begin += kPerTell) {
+    std::vector<v1::Report> reports;
+    std::vector<int> lines;
+    for (size_t i = begin; i < std::min(plan.to_report.size(), begin + kPerTell); ++i) {
+      v1::Report& r = reports.emplace_back();
+      r.set_trial(plan.to_report[i].trial);
+      *r.mutable_outcome() = plan.to_report[i].outcome;
+      lines.push_back(plan.to_report[i].line);
+    }
+    absl::StatusOr<v1::TellResponse> told = c->Tell(study, reports, worker);
+    if (!told.ok()) {
+      std::fprintf(stderr, "%s: %d outcomes stored before the error below; importing the file again stores the rest\n",
+                   Prefix(*inv.command).c_str(), stored);
+      return ServerError(inv, told.status());
+    }
+    for (int i = 0; i < told->results_size(); ++i) {
+      const v1::ReportResult& r = told->results(i);
+      if (r.code() != 0) {
+        refused.push_back(absl::StrCat(path, ":", lines[static_cast<size_t>(i)], ": trial ", r.trial(), ": ",
+                                       absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())), ": ",
+                                       r.message()));
+      } else {
+        ++stored;
+        if (r.late()) ++late;
+      }
+    }
+  }
+  for (const std::string& line : refused) std::fprintf(stderr, "%s\n", line.c_str());
+  if (inv.globals.json) {
+    Print(absl::StrCat("{\"stored\": ", stored, ", \"late\": ", late, ", \"already_stored\": ",
+                       plan.already_stored.size(), ", \"bad_rows\": ", plan.bad.size(), ", \"refused\": ",
+                       refused.size(), "}\n"));
+  } else {
+    Print(absl::StrCat("imported ", stored, " outcome", stored == 1 ? "" : "s", late > 0 ? absl::StrCat(" (", late, " late)") : "",
+                       "; ", plan.already_stored.size(), " already stored",
+                       skip_bad ? absl::StrCat("; ", plan.bad.size(), " bad row", plan.bad.size() == 1 ? "" : "s", " skipped") : "",
+                       "\n"));
+  }
+  return refused.empty() ? kExitOk : kExitServerError;
+}
+
 int RunWorkCommand(const Invocation& inv) {
   absl::StatusOr<WorkOptions> options = WorkOptionsFromArgs(inv.args, DefaultWorker());
   if (!options.ok()) return UsageError(*inv.command, options.status().message());
@@ -417,16 +520,29 @@ came late, what the search made of it (pending, consumed, too_stale), and the ca
 constexpr char kAskHelp[] =
     R"(Leases N trials of study NAME and prints each: its number, its lease deadline and its
 candidate (name = value unit). Report each with 'ogive tell' before the lease runs out,
-or extend it with 'ogive renew'.
+or extend it with 'ogive renew'. --card prints a card per trial for the bench instead: the
+trial number in large digits, each parameter with its unit and description, and how to
+report back; each card ends with a form feed, so printing starts each on a new page.
 )";
 
 constexpr char kTellHelp[] =
     R"(Reports the outcome of trial TRIAL of study NAME. Give exactly one of:
   --score X        a measured number (finite), ordered by the study's direction
-  --grade LABEL    a label of the study's grade scale
+  --grade LABEL    a label of the study's grade scale (any case; a typo is refused with
+                   the closest label suggested)
   --infeasible     evaluated, but it broke a constraint (ranks below every score)
   --void           nothing was learned (the run never happened)
 Prints 'stored', 'stored (late)' (the lease had lapsed) or 'already stored (duplicate)'.
+)";
+
+constexpr char kImportHelp[] =
+    R"(Reports outcomes measured in a batch, read from FILE (CSV, RFC 4180). Each row holds a
+trial number, an outcome and optionally a note: with a header row naming the columns
+'trial', 'outcome' and 'note' (any order), or without one in that order. An outcome is a
+number (a score), a label of the study's grade scale (any case), 'infeasible' or 'void'.
+Every row is checked first; each bad row is listed as FILE:LINE: reason, and then nothing
+is imported unless --skip-bad is given. Rows whose outcome is already stored are counted
+and left alone, so importing the same file again changes nothing.
 )";
 
 constexpr char kRenewHelp[] =
@@ -513,7 +629,9 @@ std::vector<Command> MakeCommands() {
        .options = {{"-n", "", "N", "how many trials (default 1)"},
                    {"--worker", "", "ID",
                     "who evaluates them, shown in trial lists (default HOST:PID)"},
-                   {"--lease", "", "SECONDS", "lease length (default: the study's)"}},
+                   {"--lease", "", "SECONDS", "lease length (default: the study's)"},
+                   {"--card", "", "", "print a card per trial for the bench (large trial number, units, "
+                                      "descriptions, how to report)"}},
        .min_positional = 1,
        .max_positional = 1,
        .run = RunAsk});
@@ -531,6 +649,15 @@ std::vector<Command> MakeCommands() {
        .min_positional = 2,
        .max_positional = 2,
        .run = RunTell});
+  commands.push_back({.words = {"import"},
+                      .synopsis = "NAME FILE.csv [--skip-bad]",
+                      .summary = "report a batch of measured outcomes from a CSV file",
+                      .details = kImportHelp,
+                      .options = {{"--skip-bad", "", "", "import the good rows even if some are bad"},
+                                  {"--worker", "", "ID", "who reports, for the server's log (default HOST:PID)"}},
+                      .min_positional = 2,
+                      .max_positional = 2,
+                      .run = RunImport});
   commands.push_back(
       {.words = {"renew"},
        .synopsis = "NAME TRIAL... [--lease SECONDS] [--worker ID]",

@@ -1,0 +1,172 @@
+#include "client/cli/import_plan.h"
+
+#include <cerrno>
+#include <cmath>
+#include <cstdlib>
+#include <optional>
+
+#include "absl/container/flat_hash_map.h"
+#include "absl/strings/ascii.h"
+#include "absl/strings/match.h"
+#include "absl/strings/numbers.h"
+#include "absl/strings/str_cat.h"
+#include "client/cli/format.h"
+#include "client/cli/grade_match.h"
+
+namespace ogive::cli {
+namespace {
+
+struct Columns {
+  int trial = 0;
+  int outcome = 1;
+  int note = 2;  // -1 when the file has none
+};
+
+bool SameOutcome(const v1::Outcome& a, const v1::Outcome& b) {
+  if (a.kind_case() != b.kind_case()) return false;
+  switch (a.kind_case()) {
+    case v1::Outcome::kScore:
+      return a.score() == b.score();
+    case v1::Outcome::kGrade:
+      return a.grade() == b.grade();
+    default:
+      return true;
+  }
+}
+
+absl::StatusOr<v1::Outcome> ParseOutcomeField(absl::string_view text, const v1::Objective& objective) {
+  const absl::string_view t = absl::StripAsciiWhitespace(text);
+  v1::Outcome outcome;
+  if (t.empty()) return absl::InvalidArgumentError("the outcome is empty");
+  if (absl::EqualsIgnoreCase(t, "infeasible")) {
+    outcome.mutable_infeasible();
+    return outcome;
+  }
+  if (absl::EqualsIgnoreCase(t, "void")) {
+    outcome.mutable_void_();
+    return outcome;
+  }
+  if (objective.has_grade_scale()) {
+    absl::StatusOr<std::string> grade = MatchGrade(t, objective.grade_scale(), "outcome");
+    if (!grade.ok()) return grade.status();
+    outcome.set_grade(*grade);
+    return outcome;
+  }
+  const std::string copy(t);
+  char* end = nullptr;
+  errno = 0;
+  const double value = std::strtod(copy.c_str(), &end);
+  if (end != copy.c_str() + copy.size()) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "outcome: '", t, "' is not a number (a score), 'infeasible' or 'void'"));
+  }
+  if (!std::isfinite(value)) {
+    return absl::InvalidArgumentError(absl::StrCat("outcome: '", t, "' is not a finite number"));
+  }
+  outcome.set_score(value);
+  return outcome;
+}
+
+}  // namespace
+
+std::string OutcomeSummary(const v1::Outcome& outcome) {
+  switch (outcome.kind_case()) {
+    case v1::Outcome::kScore:
+      return absl::StrCat("score ", FormatExact(outcome.score()));
+    case v1::Outcome::kGrade:
+      return absl::StrCat("grade ", outcome.grade());
+    case v1::Outcome::kInfeasible:
+      return "infeasible";
+    case v1::Outcome::kVoid:
+      return "void";
+    default:
+      return "no outcome";
+  }
+}
+
+ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::StudyDesign& design,
+                      const std::vector<v1::Trial>& trials) {
+  ImportPlan plan;
+  absl::flat_hash_map<int64_t, const v1::Trial*> by_number;
+  for (const v1::Trial& t : trials) by_number[t.number()] = &t;
+
+  Columns columns;
+  size_t first = 0;
+  if (!records.empty()) {
+    int64_t ignored = 0;
+    const CsvRecord& head = records[0];
+    if (!head.fields.empty() && !absl::SimpleAtoi(absl::StripAsciiWhitespace(head.fields[0]), &ignored)) {
+      // A header row: find the columns by name.
+      columns = Columns{-1, -1, -1};
+      for (size_t i = 0; i < head.fields.size(); ++i) {
+        const std::string name = absl::AsciiStrToLower(absl::StripAsciiWhitespace(head.fields[i]));
+        if (name == "trial") columns.trial = static_cast<int>(i);
+        if (name == "outcome") columns.outcome = static_cast<int>(i);
+        if (name == "note") columns.note = static_cast<int>(i);
+      }
+      first = 1;
+      if (columns.trial < 0 || columns.outcome < 0) {
+        plan.bad.push_back({head.line, "the header row must name the columns 'trial' and 'outcome' (and "
+                                       "optionally 'note'); without a header the columns are trial, "
+                                       "outcome, note"});
+        return plan;
+      }
+    }
+  }
+
+  absl::flat_hash_map<int64_t, std::pair<int, v1::Outcome>> seen;  // trial -> (line, outcome)
+  for (size_t r = first; r < records.size(); ++r) {
+    const CsvRecord& record = records[r];
+    auto field = [&](int column) -> std::optional<std::string> {
+      if (column < 0 || static_cast<size_t>(column) >= record.fields.size()) return std::nullopt;
+      return record.fields[static_cast<size_t>(column)];
+    };
+    auto bad = [&](std::string reason) { plan.bad.push_back({record.line, std::move(reason)}); };
+    const std::optional<std::string> trial_text = field(columns.trial);
+    const std::optional<std::string> outcome_text = field(columns.outcome);
+    if (!trial_text.has_value() || !outcome_text.has_value()) {
+      bad(absl::StrCat("expected at least ", std::max(columns.trial, columns.outcome) + 1, " fields, got ",
+                       record.fields.size()));
+      continue;
+    }
+    int64_t number = 0;
+    if (!absl::SimpleAtoi(absl::StripAsciiWhitespace(*trial_text), &number) || number < 1) {
+      bad(absl::StrCat("trial: '", *trial_text, "' is not a trial number (an integer >= 1)"));
+      continue;
+    }
+    auto found = by_number.find(number);
+    if (found == by_number.end()) {
+      bad(absl::StrCat("trial ", number, ": no such trial in this study"));
+      continue;
+    }
+    absl::StatusOr<v1::Outcome> outcome = ParseOutcomeField(*outcome_text, design.objective());
+    if (!outcome.ok()) {
+      bad(absl::StrCat("trial ", number, ": ", outcome.status().message()));
+      continue;
+    }
+    if (std::optional<std::string> note = field(columns.note); note.has_value()) outcome->set_note(*note);
+    if (auto earlier = seen.find(number); earlier != seen.end()) {
+      if (!SameOutcome(earlier->second.second, *outcome)) {
+        bad(absl::StrCat("trial ", number, ": line ", earlier->second.first, " gives it ",
+                         OutcomeSummary(earlier->second.second), ", this row ", OutcomeSummary(*outcome)));
+      }
+      continue;  // the same outcome twice in one file: once is enough
+    }
+    seen[number] = {record.line, *outcome};
+    const v1::Trial& stored = *found->second;
+    const bool reported = stored.outcome().kind_case() != v1::Outcome::KIND_NOT_SET;
+    if (reported) {
+      if (SameOutcome(stored.outcome(), *outcome)) {
+        plan.already_stored.push_back({record.line, number, *outcome});
+      } else {
+        bad(absl::StrCat("trial ", number, ": already reported ", OutcomeSummary(stored.outcome()),
+                         "; this row says ", OutcomeSummary(*outcome)));
+      }
+      continue;
+    }
+    plan.to_report.push_back({record.line, number, *outcome});
+  }
+  return plan;
+}
+
+}  // namespace ogive::cli

@@ -1,0 +1,95 @@
+#!/usr/bin/env bash
+# End-to-end test of the bench technician's commands against a real server, on the kiln firing
+# example of docs/examples: `ask --card`, `tell --grade` in any case and with a typo, and `import`
+# of a CSV file (a file with a bad row imports nothing; --skip-bad imports the rest; importing the
+# same file again changes nothing).
+#
+#   technician_test.sh PATH/TO/ogived PATH/TO/ogive PATH/TO/kiln-firing.txtpb
+set -euo pipefail
+
+if [[ $# -ne 3 ]]; then
+  echo "usage: $0 OGIVED OGIVE KILN_DESIGN" >&2
+  exit 2
+fi
+OGIVED=$(realpath "$1")
+OGIVE=$(realpath "$2")
+DESIGN=$(realpath "$3")
+PY=/usr/bin/python3
+
+TMP=$(mktemp -d "${TMPDIR:-/tmp}/ogive-technician-test.XXXXXX")
+OGIVED_PID=""
+cleanup() {
+  if [[ -n "$OGIVED_PID" ]] && kill -0 "$OGIVED_PID" 2>/dev/null; then kill -KILL "$OGIVED_PID" 2>/dev/null || true; fi
+  rm -rf "$TMP"
+}
+trap cleanup EXIT
+fail() {
+  echo "FAIL: $*" >&2
+  [[ -f "$TMP/ogived.log" ]] && tail -n 20 "$TMP/ogived.log" >&2
+  exit 1
+}
+step() { echo "== $*"; }
+og() { timeout 20 "$OGIVE" "$@"; }
+
+PORT=$("$PY" -c 'import socket;s=socket.socket();s.bind(("127.0.0.1",0));print(s.getsockname()[1])')
+export OGIVE_SERVER="127.0.0.1:$PORT"
+"$OGIVED" --db "$TMP/ogive.db" --listen "$OGIVE_SERVER" >"$TMP/ogived.log" 2>&1 &
+OGIVED_PID=$!
+for _ in $(seq 100); do
+  if og study list --timeout 1 >/dev/null 2>&1; then break; fi
+  kill -0 "$OGIVED_PID" 2>/dev/null || fail "ogived exited at start"
+  sleep 0.1
+done
+og study create "$DESIGN" >/dev/null || fail "study create"
+STUDY=kiln-glaze
+
+step "ask --card prints a card per trial"
+og ask "$STUDY" -n 6 --card >"$TMP/cards.txt" || fail "ask --card"
+[[ $(grep -c $'\f' "$TMP/cards.txt") -eq 6 ]] || fail "expected 6 cards, one form feed each"
+grep -q "peak_temp = .* degC" "$TMP/cards.txt" || fail "card lacks the value with its unit"
+grep -q "Peak temperature of the firing" "$TMP/cards.txt" || fail "card lacks the description"
+grep -q "ogive tell $STUDY 1 --grade LABEL" "$TMP/cards.txt" || fail "card lacks how to report"
+
+step "tell: grades in any case, typos refused with a suggestion"
+og tell "$STUDY" 1 --grade GOOD | grep -q "stored" || fail "tell --grade GOOD"
+if og tell "$STUDY" 2 --grade exellent 2>"$TMP/typo.err"; then fail "a typo was accepted"; fi
+grep -q "did you mean 'excellent'" "$TMP/typo.err" || fail "no suggestion: $(cat "$TMP/typo.err")"
+
+step "import: a bad row imports nothing"
+printf 'trial,outcome,note\n2,fair,slight pinholing\n3,Dull,\n4,brilliant,\n99,good,\n' >"$TMP/bad.csv"
+if og import "$STUDY" "$TMP/bad.csv" 2>"$TMP/bad.err"; then fail "a file with bad rows was imported"; fi
+grep -q "bad.csv:4: trial 4: outcome: 'brilliant' is not a grade" "$TMP/bad.err" || fail "line 4 not named: $(cat "$TMP/bad.err")"
+grep -q "bad.csv:5: trial 99: no such trial" "$TMP/bad.err" || fail "line 5 not named: $(cat "$TMP/bad.err")"
+grep -q "nothing imported" "$TMP/bad.err" || fail "no 'nothing imported'"
+[[ $(og study trials "$STUDY" --state reported --json | "$PY" -c 'import json,sys; print(len(json.load(sys.stdin)))') -eq 1 ]] \
+  || fail "the refused import stored something"
+
+step "import --skip-bad imports the good rows"
+og import "$STUDY" "$TMP/bad.csv" --skip-bad >"$TMP/skip.out" 2>"$TMP/skip.err" || fail "import --skip-bad"
+grep -q "imported 2 outcomes; 0 already stored; 2 bad rows skipped" "$TMP/skip.out" || fail "$(cat "$TMP/skip.out")"
+
+step "importing a good file twice changes nothing the second time"
+printf '5,excellent,glassy\r\n6,cracked,"dunted, on cooling"\r\n1,good,\r\n' >"$TMP/good.csv"
+og import "$STUDY" "$TMP/good.csv" >"$TMP/good1.out" || fail "import good.csv"
+grep -q "imported 2 outcomes; 1 already stored" "$TMP/good1.out" || fail "$(cat "$TMP/good1.out")"
+og study trials "$STUDY" --csv >"$TMP/before.csv"
+og import "$STUDY" "$TMP/good.csv" >"$TMP/good2.out" || fail "import good.csv again"
+grep -q "imported 0 outcomes; 3 already stored" "$TMP/good2.out" || fail "$(cat "$TMP/good2.out")"
+og study trials "$STUDY" --csv >"$TMP/after.csv"
+cmp -s "$TMP/before.csv" "$TMP/after.csv" || fail "re-importing changed the stored trials"
+
+step "the stored outcomes are the file's"
+"$PY" - "$TMP/after.csv" <<'PY' || fail "stored outcomes differ"
+import csv, sys
+rows = {int(r["number"]): r for r in csv.DictReader(open(sys.argv[1], newline=""))}
+expect = {1: ("good", ""), 2: ("fair", "slight pinholing"), 3: ("dull", ""), 5: ("excellent", "glassy"),
+          6: ("cracked", "dunted, on cooling")}
+for n, (grade, note) in expect.items():
+    assert rows[n]["grade"] == grade and rows[n]["note"] == note, (n, rows[n])
+assert rows[4]["state"] == "leased", rows[4]
+PY
+
+kill -TERM "$OGIVED_PID"
+wait "$OGIVED_PID" || fail "ogived did not stop cleanly"
+OGIVED_PID=""
+echo "PASS"
