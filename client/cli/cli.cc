@@ -171,6 +171,35 @@ int RunStudyShow(const Invocation& inv) {
   return kExitOk;
 }
 
+int RunStudyWatch(const Invocation& inv) {
+  int code = 0;
+  std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
+  if (c == nullptr) return code;
+  const bool terminal = isatty(STDOUT_FILENO) == 1 && !inv.globals.json;
+  const absl::TimeZone zone = absl::LocalTimeZone();
+  v1::StudyDesign design;  // the stream's later views are brief (no design)
+  bool done = false;
+  absl::Status status = c->Watch(Arg(inv, 0), [&](const v1::StudyView& update) {
+    v1::StudyView view = update;
+    if (view.has_design()) {
+      design = view.design();
+    } else {
+      *view.mutable_design() = design;
+    }
+    if (inv.globals.json) {
+      Print(Json(update) + "\n");
+    } else if (terminal) {
+      Print("\x1b[H\x1b[2J" + WatchScreen(view, zone));  // home, clear screen, redraw
+    } else {
+      Print(WatchLine(view, zone));
+    }
+    done = view.status().phase() == v1::STUDY_PHASE_DONE;
+    return !done;
+  });
+  if (!status.ok()) return ServerError(inv, status);
+  return kExitOk;
+}
+
 int RunPhase(const Invocation& inv, v1::PhaseCommand command) {
   int code = 0;
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
@@ -496,7 +525,16 @@ constexpr char kStudyShowHelp[] =
     R"(Shows the study's objective, phase, generation, trial and outcome counts, the best trial
 with its candidate, and the search distribution in the parameters' units: mean and spread
 of each real and integer parameter, P(on) of each flag, the probabilities of each
-categorical parameter's options. --json prints the StudyView.
+categorical parameter's options; the step size and axis ratio; reports in the last hour
+and the workers seen in it. --json prints the StudyView.
+)";
+
+constexpr char kStudyWatchHelp[] =
+    R"(Follows the study live: on a terminal the screen is redrawn with the summary (as in
+'ogive study show') and a progress bar toward the trial budget each time something
+changes; otherwise one line per change (time, phase, generation, trials by state, best
+outcome, budget used). --json prints each StudyView as one line of JSON. Stops when the
+study is done, or on Ctrl-C.
 )";
 
 constexpr char kStudyPauseHelp[] =
@@ -590,6 +628,13 @@ std::vector<Command> MakeCommands() {
                       .min_positional = 1,
                       .max_positional = 1,
                       .run = RunStudyShow});
+  commands.push_back({.words = {"study", "watch"},
+                      .synopsis = "NAME",
+                      .summary = "follow a study live (redraws on a terminal, a line per change otherwise)",
+                      .details = kStudyWatchHelp,
+                      .min_positional = 1,
+                      .max_positional = 1,
+                      .run = RunStudyWatch});
   commands.push_back({.words = {"study", "pause"},
                       .synopsis = "NAME",
                       .summary = "stop handing out candidates (reports are still taken)",

@@ -325,6 +325,31 @@ TEST(ViewsTest, SummaryShowsTheDistributionInUserUnits) {
   EXPECT_THAT(text, HasSubstr("scores, lower is better"));
 }
 
+TEST(ViewsTest, ProgressBarFillsInProportion) {
+  EXPECT_EQ(ProgressBar(0, 120, 10), "[..........]  0/120 (0%)");
+  EXPECT_EQ(ProgressBar(60, 120, 10), "[#####.....]  60/120 (50%)");
+  EXPECT_EQ(ProgressBar(130, 120, 10), "[##########]  130/120 (100%)");  // past the budget: full
+}
+
+TEST(ViewsTest, SummaryAndWatchLinesShowRecentActivityAndBudget) {
+  v1::StudyView view;
+  view.set_name("kiln");
+  view.mutable_design()->set_trial_budget(120);
+  v1::StatusSummary* s = view.mutable_status();
+  s->set_reported(30);
+  s->set_reports_last_hour(12);
+  s->set_as_of_unix_ms(10'000'000);
+  v1::WorkerActivity* w = s->add_workers();
+  w->set_worker("kiln-2");
+  w->set_reports_last_hour(12);
+  w->set_last_seen_unix_ms(10'000'000 - 180'000);
+  const std::string summary = StudySummary(view);
+  EXPECT_THAT(summary, ::testing::HasSubstr("12 reports in the last hour; 1 worker seen"));
+  EXPECT_THAT(summary, ::testing::HasSubstr("kiln-2  12 reports, last seen 3 min ago"));
+  EXPECT_THAT(WatchLine(view, absl::UTCTimeZone()), ::testing::HasSubstr("budget 30/120"));
+  EXPECT_THAT(WatchScreen(view, absl::UTCTimeZone()), ::testing::HasSubstr("[##########"));
+}
+
 TEST(ViewsTest, TrialStateNames) {
   EXPECT_EQ(TrialStateFromName("lapsed"), v1::TRIAL_STATE_LAPSED);
   EXPECT_EQ(TrialStateFromName("Lapsed"), std::nullopt);

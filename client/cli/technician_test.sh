@@ -89,6 +89,23 @@ for n, (grade, note) in expect.items():
 assert rows[4]["state"] == "leased", rows[4]
 PY
 
+step "study watch prints a line per change and stops when the study is done"
+sed -e 's/name: "kiln-glaze"/name: "kiln-watch"/' -e '/target_grade/d' "$DESIGN" >"$TMP/watch.txtpb"
+og study create "$TMP/watch.txtpb" >/dev/null || fail "create kiln-watch"
+og ask kiln-watch -n 2 >/dev/null || fail "ask kiln-watch"
+timeout 20 "$OGIVE" study watch kiln-watch >"$TMP/watch.out" 2>"$TMP/watch.err" &
+WATCH_PID=$!
+sleep 0.5
+og tell kiln-watch 1 --grade fair >/dev/null || fail "tell kiln-watch 1"
+sleep 0.3
+og study finish kiln-watch >/dev/null || fail "study finish"
+wait "$WATCH_PID" || fail "study watch did not end cleanly: $(cat "$TMP/watch.err")"
+[[ $(wc -l <"$TMP/watch.out") -ge 3 ]] || fail "expected the first view and two changes: $(cat "$TMP/watch.out")"
+head -n 1 "$TMP/watch.out" | grep -q "leased 2 reported 0 .*budget 0/120" || fail "first line: $(head -n 1 "$TMP/watch.out")"
+grep -q "reported 1 .*budget 1/120" "$TMP/watch.out" || fail "no line for the report: $(cat "$TMP/watch.out")"
+tail -n 1 "$TMP/watch.out" | grep -q "done (stopped)" || fail "last line is not the done view: $(tail -n 1 "$TMP/watch.out")"
+og study show kiln-watch | grep -q "1 report in the last hour" || fail "study show lacks the activity line"
+
 kill -TERM "$OGIVED_PID"
 wait "$OGIVED_PID" || fail "ogived did not stop cleanly"
 OGIVED_PID=""

@@ -1,5 +1,7 @@
 #include "client/cli/views.h"
 
+#include <algorithm>
+
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "client/cli/format.h"
@@ -31,6 +33,28 @@ std::string OutcomeCell(const v1::Outcome& outcome) {
   }
   const std::string text = OutcomeText(outcome);
   return text.empty() ? "-" : text;
+}
+
+// "12 s", "4 min", "3 h" ago.
+std::string AgoText(int64_t ms) {
+  if (ms < 60'000) return absl::StrCat(std::max<int64_t>(0, ms / 1000), " s ago");
+  if (ms < 3'600'000) return absl::StrCat(ms / 60'000, " min ago");
+  return absl::StrCat(ms / 3'600'000, " h ago");
+}
+
+std::string ActivityText(const v1::StatusSummary& s) {
+  std::string out = absl::StrCat("activity      ", s.reports_last_hour(), " report",
+                                 s.reports_last_hour() == 1 ? "" : "s", " in the last hour; ", s.workers_size(),
+                                 " worker", s.workers_size() == 1 ? "" : "s", " seen\n");
+  constexpr int kShown = 8;
+  for (int i = 0; i < s.workers_size() && i < kShown; ++i) {
+    const v1::WorkerActivity& w = s.workers(i);
+    absl::StrAppend(&out, "                ", w.worker(), "  ", w.reports_last_hour(), " report",
+                    w.reports_last_hour() == 1 ? "" : "s", ", last seen ",
+                    AgoText(s.as_of_unix_ms() - w.last_seen_unix_ms()), "\n");
+  }
+  if (s.workers_size() > kShown) absl::StrAppend(&out, "                and ", s.workers_size() - kShown, " more\n");
+  return out;
 }
 
 std::string OrDash(absl::string_view text) { return text.empty() ? "-" : std::string(text); }
@@ -148,12 +172,44 @@ std::string StudySummary(const v1::StudyView& view) {
     const std::string rendered = table.Render();
     out += rendered.substr(rendered.find('\n') + 1);
   }
+  out += ActivityText(s);
   bool gaussian = false;
   for (const v1::Parameter& p : design.parameters()) gaussian |= p.has_real() || p.has_integer();
   if (gaussian || design.parameters().empty()) {
     absl::StrAppend(&out, "step size     ", FormatShort(s.step_size()), "   axis ratio ",
                     FormatShort(s.axis_ratio()), "\n");
   }
+  return out;
+}
+
+std::string ProgressBar(int64_t done, int64_t total, int width) {
+  const double fraction = total > 0 ? std::clamp(static_cast<double>(done) / static_cast<double>(total), 0.0, 1.0) : 0.0;
+  const int filled = static_cast<int>(fraction * width + 0.5);
+  return absl::StrCat("[", std::string(static_cast<size_t>(filled), '#'),
+                      std::string(static_cast<size_t>(width - filled), '.'), "]  ", done, "/", total, " (",
+                      static_cast<int>(fraction * 100), "%)");
+}
+
+std::string WatchLine(const v1::StudyView& view, absl::TimeZone zone) {
+  const v1::StatusSummary& s = view.status();
+  std::string line = absl::StrCat(FormatUnixMs(s.as_of_unix_ms(), zone), "  ", view.name(), "  ", PhaseWithReason(s),
+                                  "  generation ", s.generation(), "  leased ", s.leased(), " reported ",
+                                  s.reported(), " lapsed ", s.lapsed(), " voided ", s.voided(), "  best ",
+                                  BestText(s));
+  if (view.design().trial_budget() > 0) {
+    absl::StrAppend(&line, "  budget ", s.reported(), "/", view.design().trial_budget());
+  }
+  return line + "\n";
+}
+
+std::string WatchScreen(const v1::StudyView& view, absl::TimeZone zone) {
+  std::string out = absl::StrCat("ogive study watch ", view.name(), "    ", FormatUnixMs(view.status().as_of_unix_ms(), zone),
+                                 "    (Ctrl-C to stop)\n\n");
+  if (view.design().trial_budget() > 0) {
+    absl::StrAppend(&out, "budget        ", ProgressBar(view.status().reported(), view.design().trial_budget(), 40),
+                    "\n");
+  }
+  out += StudySummary(view);
   return out;
 }
 

@@ -28,6 +28,17 @@ std::string StudyListTable(const v1::ListStudiesResponse& studies);
 // distribution in user units.
 std::string StudySummary(const v1::StudyView& view);
 
+// "[#######.............]  45/120 (38%)": progress of `done` toward `total` (total > 0), `width`
+// cells wide.
+std::string ProgressBar(int64_t done, int64_t total, int width);
+
+// One line per update for `ogive study watch` when standard output is not a terminal: time,
+// phase, generation, trials by state, best outcome and progress toward the trial budget.
+std::string WatchLine(const v1::StudyView& view, absl::TimeZone zone);
+
+// The live screen of `ogive study watch` on a terminal: the summary and a progress bar.
+std::string WatchScreen(const v1::StudyView& view, absl::TimeZone zone);
+
 // Trials as an aligned table: number, state, generation, worker, outcome, late, use and one column
 // per parameter of `design`.
 std::string TrialsTable(const v1::StudyDesign& design, const std::vector<v1::Trial>& trials);

@@ -19,14 +19,40 @@ int64_t UnixMillis(absl::Time t) { return absl::ToUnixMillis(t); }
 
 StudyHost::StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store,
                      CommitWaiter* waiter, std::string create_request_id,
-                     absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests)
+                     absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests,
+                     std::function<absl::Time()> clock)
     : id_(id),
       design_(std::move(design)),
       create_request_id_(std::move(create_request_id)),
       store_(store),
       waiter_(waiter),
       study_(std::move(study)),
-      ask_requests_(std::move(ask_requests)) {}
+      ask_requests_(std::move(ask_requests)),
+      clock_(std::move(clock)) {
+  // Rebuild the recent activity from the stored reports (asks and renewals are not stored).
+  const absl::Time since = clock_() - absl::Hours(1);
+  std::vector<std::pair<absl::Time, std::string>> reports;
+  for (int64_t n = 1; n <= study_.trial_count(); ++n) {
+    const study::Trial& t = *study_.trial(n);
+    if (!t.outcome.has_value() || t.reported_at <= since) continue;
+    reports.emplace_back(t.reported_at, t.worker);
+  }
+  std::sort(reports.begin(), reports.end());
+  for (auto& [at, worker] : reports) {
+    absl::Time& seen = last_seen_[worker];
+    seen = std::max(seen, at);
+    recent_reports_.emplace_back(at, std::move(worker));
+  }
+}
+
+void StudyHost::NoteActivity(const std::string& worker, absl::Time now, int reports) {
+  absl::Time& seen = last_seen_[worker];
+  seen = std::max(seen, now);
+  for (int i = 0; i < reports; ++i) recent_reports_.emplace_back(now, worker);
+  const absl::Time since = now - absl::Hours(1);
+  while (!recent_reports_.empty() && recent_reports_.front().first <= since) recent_reports_.pop_front();
+  if (last_seen_.size() > 1000) absl::erase_if(last_seen_, [&](const auto& entry) { return entry.second <= since; });
+}
 
 StudyHost::Queued StudyHost::ApplyAndQueue(study::Change change, std::vector<storage::Event> events,
                                            std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request,
@@ -133,6 +159,7 @@ void StudyHost::Ask(int count, const std::string& worker, std::optional<absl::Du
       queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::move(ask_request), now);
     }
     for (int64_t n : numbers) *response.add_trials() = TrialView(*study_.trial(n));
+    NoteActivity(worker, now, 0);
   }
   ReplyAfterCommit(std::move(queued), std::move(response), std::move(reply));
 }
@@ -158,6 +185,9 @@ void StudyHost::Tell(const std::vector<study::Report>& reports, const std::strin
         events.push_back({"tell", r.trial, worker, r.late ? "late" : "", absl::ToUnixNanos(now)});
       }
     }
+    int stored = 0;
+    for (const study::ReportResult& r : plan->results) stored += r.status.ok() && !r.duplicate ? 1 : 0;
+    NoteActivity(worker, now, stored);
     queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::nullopt, now);
     response.set_generation(study_.engine().generation);
     response.set_phase(codec::PhaseToProto(study_.engine().phase));
@@ -176,6 +206,7 @@ absl::StatusOr<v1::RenewResponse> StudyHost::Renew(const std::vector<int64_t>& t
     if (!change.ok()) return change.status();
     queued = ApplyAndQueue(*std::move(change), {}, std::nullopt, now);
     for (int64_t n : trials) *response.add_trials() = TrialView(*study_.trial(n));
+    NoteActivity(worker, now, 0);
   }
   if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
   return response;
@@ -260,6 +291,29 @@ v1::StudyView StudyHost::ViewLocked(bool brief) const {
   s->set_pending(c.pending);
   s->set_consumed(c.consumed);
   s->set_too_stale(c.too_stale);
+  const absl::Time now = clock_();
+  const absl::Time since = now - absl::Hours(1);
+  s->set_as_of_unix_ms(UnixMillis(now));
+  absl::flat_hash_map<std::string, int64_t> reports_by_worker;
+  for (const auto& [at, worker] : recent_reports_) {
+    if (at <= since) continue;
+    s->set_reports_last_hour(s->reports_last_hour() + 1);
+    ++reports_by_worker[worker];
+  }
+  std::vector<std::pair<absl::Time, const std::string*>> seen;
+  for (const auto& [worker, at] : last_seen_) {
+    if (at > since) seen.emplace_back(at, &worker);
+  }
+  std::sort(seen.begin(), seen.end(), [](const auto& a, const auto& b) {
+    return a.first != b.first ? a.first > b.first : *a.second < *b.second;
+  });
+  for (const auto& [at, worker] : seen) {
+    v1::WorkerActivity* w = s->add_workers();
+    w->set_worker(*worker);
+    w->set_last_seen_unix_ms(UnixMillis(at));
+    auto it = reports_by_worker.find(*worker);
+    w->set_reports_last_hour(it == reports_by_worker.end() ? 0 : it->second);
+  }
   if (const study::Trial* best = study_.best()) *s->mutable_best() = TrialView(*best);
   const search::DistributionSummary summary = study_.distribution().Summary();
   const search::Space& space = study_.space();

@@ -17,6 +17,8 @@
 #define OGIVE_SERVER_SERVICE_STUDY_HOST_H_
 
 #include <cstdint>
+#include <deque>
+#include <functional>
 #include <memory>
 #include <optional>
 #include <string>
@@ -43,9 +45,11 @@ using Reply = absl::AnyInvocable<void(absl::StatusOr<Response>)>;
 class StudyHost {
  public:
   // A host for a study that was just created or loaded. `store` and `waiter` outlive the host.
+  // `clock` dates the activity shown in views (StatusSummary.workers, reports_last_hour).
   StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store, CommitWaiter* waiter,
             std::string create_request_id,
-            absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests);
+            absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests,
+            std::function<absl::Time()> clock = [] { return absl::Now(); });
 
   const std::string& name() const { return design_.name(); }
   const v1::StudyDesign& design() const { return design_; }  // immutable
@@ -97,6 +101,8 @@ class StudyHost {
   absl::Status Usable() const ABSL_SHARED_LOCKS_REQUIRED(mu_);
   v1::Trial TrialView(const study::Trial& t) const ABSL_SHARED_LOCKS_REQUIRED(mu_);
   v1::StudyView ViewLocked(bool brief) const ABSL_SHARED_LOCKS_REQUIRED(mu_);
+  // Records that `worker` asked, reported (`reports` stored) or renewed at `now`.
+  void NoteActivity(const std::string& worker, absl::Time now, int reports) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
 
   const int64_t id_;
   const v1::StudyDesign design_;
@@ -108,6 +114,10 @@ class StudyHost {
   study::Study study_ ABSL_GUARDED_BY(mu_);
   absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests_ ABSL_GUARDED_BY(mu_);
   int64_t version_ ABSL_GUARDED_BY(mu_) = 0;
+  const std::function<absl::Time()> clock_;
+  // Reports of the last hour or so (time, worker), oldest first, and when each worker was last seen.
+  std::deque<std::pair<absl::Time, std::string>> recent_reports_ ABSL_GUARDED_BY(mu_);
+  absl::flat_hash_map<std::string, absl::Time> last_seen_ ABSL_GUARDED_BY(mu_);
   int64_t chain_ ABSL_GUARDED_BY(mu_) = 1;          // the store chain of this host's writes
   absl::Status broken_ ABSL_GUARDED_BY(mu_);        // set when a reload failed
 };
