@@ -1,6 +1,11 @@
 // ogived: the ogive server. Serves many studies over gRPC from one SQLite file.
 //
-//   ogived [--db PATH] [--listen ADDRESS] [--max-message-bytes N] [--sweep-interval-seconds S]
+//   ogived [--db PATH] [--listen ADDRESS] [--max-message-bytes N] [--sweep-interval-seconds S] ...
+//   ogived token create|list|revoke --db PATH ...   (token_command.h)
+//
+// Every call needs a bearer token of the right role (authorizer.h) unless started with --no-auth,
+// which is allowed on loopback addresses only. The health service answers without a token; server
+// reflection is off unless --reflection is given.
 //
 // On start it restores every stored study exactly. On SIGTERM or SIGINT it reports NOT_SERVING on the
 // health service, stops accepting calls, lets in-flight calls finish (their commits included) and
@@ -10,6 +15,7 @@
 
 #include <atomic>
 #include <cerrno>
+#include <cmath>
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
@@ -25,7 +31,12 @@
 #include "grpcpp/ext/proto_server_reflection_plugin.h"
 #include "grpcpp/grpcpp.h"
 #include "grpcpp/health_check_service_interface.h"
+#include "server/admin_socket.h"
+#include "server/service/authorizer.h"
 #include "server/service/grpc_service.h"
+#include "server/service/token_admin.h"
+#include "server/service/token_admin_service.h"
+#include "server/token_command.h"
 #include "server/service/log.h"
 #include "server/service/registry.h"
 #include "storage/sqlite_store.h"
@@ -46,7 +57,18 @@ constexpr char kUsage[] =
     "  --max-reports-per-tell N    reports per Tell (default 1000)\n"
     "  --max-studies N             studies per server (default 10000)\n"
     "  --allow-insecure-remote     listen on a non-loopback address without TLS (plain text!)\n"
+    "  --max-requests-per-second-per-token R\n"
+    "                              requests one token may send per second, in bursts of up to\n"
+    "                              2R (default 200; 0 = no limit); beyond: RESOURCE_EXHAUSTED\n"
+    "  --no-auth                   accept calls without a token (loopback addresses only; for\n"
+    "                              development): no roles, no audit labels, no rate limit\n"
+    "  --reflection                serve gRPC server reflection (open to anyone who can connect;\n"
+    "                              it shows the service's schema, no data)\n"
     "  --help                      this text\n"
+    "\n"
+    "Every call needs 'authorization: Bearer <token>' with a token of the right role, unless\n"
+    "--no-auth. Tokens: ogived token create|list|revoke --db PATH (see 'ogived token --help').\n"
+    "The gRPC health service answers without a token.\n"
     "\n"
     "Candidates are suggestions: check them against your local safety rules before they drive\n"
     "equipment.\n";
@@ -56,7 +78,10 @@ struct Flags {
   std::string listen = "127.0.0.1:7075";
   double sweep_interval_seconds = 1.0;
   bool allow_insecure_remote = false;
+  bool no_auth = false;
+  bool reflection = false;
   ogive::service::ServiceLimits limits;
+  ogive::service::AuthOptions auth;
 };
 
 [[noreturn]] void Fail(const std::string& message) {
@@ -74,6 +99,14 @@ Flags ParseFlags(int argc, char** argv) {
     }
     if (arg == "--allow-insecure-remote") {
       flags.allow_insecure_remote = true;
+      continue;
+    }
+    if (arg == "--no-auth") {
+      flags.no_auth = true;
+      continue;
+    }
+    if (arg == "--reflection") {
+      flags.reflection = true;
       continue;
     }
     const size_t eq = arg.find('=');
@@ -101,6 +134,11 @@ Flags ParseFlags(int argc, char** argv) {
       integer(&flags.limits.max_reports_per_tell);
     } else if (name == "--max-studies") {
       integer(&flags.limits.max_studies);
+    } else if (name == "--max-requests-per-second-per-token") {
+      double& rate = flags.auth.max_requests_per_second_per_token;
+      if (!absl::SimpleAtod(value, &rate) || !std::isfinite(rate) || rate < 0) {
+        Fail(absl::StrCat(name, ": must be 0 (no limit) or a positive number, got '", value, "'"));
+      }
     } else if (name == "--sweep-interval-seconds") {
       if (!absl::SimpleAtod(value, &flags.sweep_interval_seconds) || !(flags.sweep_interval_seconds > 0)) {
         Fail(absl::StrCat(name, ": must be a positive number of seconds, got '", value, "'"));
@@ -117,6 +155,11 @@ Flags ParseFlags(int argc, char** argv) {
                       ": without TLS ogived listens on loopback only (127.0.0.1, [::1], localhost); pass "
                       "--allow-insecure-remote to serve other hosts in plain text"));
   }
+  if (flags.no_auth && !loopback) {
+    Fail(absl::StrCat("--no-auth: allowed only on a loopback address (127.0.0.1, [::1], localhost), not on ",
+                      flags.listen, "; create tokens with 'ogived token create'"));
+  }
+  flags.auth.require_tokens = !flags.no_auth;
   return flags;
 }
 
@@ -130,6 +173,7 @@ void OnSignal(int) {
 }  // namespace
 
 int main(int argc, char** argv) {
+  if (argc > 1 && std::string(argv[1]) == "token") return ogive::RunTokenCommand(argc - 1, argv + 1);
   const Flags flags = ParseFlags(argc, argv);
   // Lock-order checking is for tests; in the server it costs a graph update on every lock.
   absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
@@ -142,9 +186,34 @@ int main(int argc, char** argv) {
   if (absl::Status s = registry.LoadAll(); !s.ok()) Fail(absl::StrCat("cannot restore studies: ", s.message()));
   LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry.All().size())}});
 
-  ogive::service::OgiveService service(&registry, [] { return absl::Now(); });
+  absl::StatusOr<std::unique_ptr<ogive::service::Authorizer>> authorizer =
+      ogive::service::Authorizer::Create(store->get(), flags.auth, [] { return absl::Now(); });
+  if (!authorizer.ok()) Fail(absl::StrCat("cannot read the tokens: ", authorizer.status().message()));
+  if (flags.no_auth) {
+    LogLine({{"event", "auth"}, {"mode", "off"},
+             {"detail", "--no-auth: every call is accepted without a token (loopback only)"}});
+  } else {
+    const int valid = (*authorizer)->valid_tokens();
+    LogLine({{"event", "auth"}, {"mode", "tokens"}, {"valid_tokens", absl::StrCat(valid)},
+             {"max_requests_per_second_per_token", absl::StrCat(flags.auth.max_requests_per_second_per_token)},
+             {"detail", valid > 0 ? "" : absl::StrCat("no valid token yet: every call is refused until one is made "
+                                                      "with 'ogived token create --db ", flags.db, " ...'")}});
+  }
+  ogive::service::TokenAdmin token_admin(store->get(), [] { return absl::Now(); },
+                                         [&authorizer] { (void)(*authorizer)->Reload(); });
+  ogive::service::TokenAdminService token_admin_service(&token_admin);
+  absl::StatusOr<std::unique_ptr<grpc::Server>> admin_socket = ogive::StartAdminSocket(flags.db, &token_admin_service);
+  if (admin_socket.ok()) {
+    LogLine({{"event", "admin_socket"}, {"path", ogive::AdminSocketPath(flags.db)}});
+  } else {
+    LogLine({{"event", "admin_socket"}, {"code", absl::StatusCodeToString(admin_socket.status().code())},
+             {"detail", absl::StrCat(admin_socket.status().message(),
+                                     "; 'ogived token' works only while this server is stopped")}});
+  }
+
+  ogive::service::OgiveService service(&registry, authorizer->get(), [] { return absl::Now(); });
   grpc::EnableDefaultHealthCheckService(true);
-  grpc::reflection::InitProtoReflectionServerBuilderPlugin();
+  if (flags.reflection) grpc::reflection::InitProtoReflectionServerBuilderPlugin();
   grpc::ServerBuilder builder;
   int port = 0;
   builder.AddListeningPort(flags.listen, grpc::InsecureServerCredentials(), &port);
@@ -191,6 +260,11 @@ int main(int argc, char** argv) {
   server->GetHealthCheckService()->SetServingStatus(false);
   service.StopWatches();
   server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(10));
+  if (admin_socket.ok()) {
+    (*admin_socket)->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(2));
+    admin_socket->reset();
+    ::unlink(ogive::AdminSocketPath(flags.db).c_str());
+  }
   stop_sweeping.Notify();
   sweeper.join();
   store->reset();  // drains the writer: every acknowledged write is committed

@@ -1,17 +1,22 @@
-// OgiveService: the gRPC adapter of the handlers (handlers.h). Each method converts absl::Status to
-// grpc::Status (the codes are the same numbers), logs one structured line, and calls the handler
-// with the server's clock.
+// OgiveService: the gRPC adapter of the handlers (handlers.h). Each method first has the Authorizer
+// check the call's bearer token against the method and the study it names (nothing else happens for
+// a refused call), then converts absl::Status to grpc::Status (the codes are the same numbers), logs
+// one structured line (with the token's label, never the token), and calls the handler with the
+// server's clock and the label for the audit.
 //
-// Thread-safe; the registry outlives the service.
+// Thread-safe; the registry and the authorizer outlive the service.
 #ifndef OGIVE_SERVER_SERVICE_GRPC_SERVICE_H_
 #define OGIVE_SERVER_SERVICE_GRPC_SERVICE_H_
 
 #include <atomic>
 #include <functional>
+#include <string>
 
+#include "absl/status/statusor.h"
 #include "absl/time/time.h"
 #include "grpcpp/grpcpp.h"
 #include "ogive/v1/service.grpc.pb.h"
+#include "server/service/authorizer.h"
 #include "server/service/registry.h"
 
 namespace ogive::service {
@@ -21,7 +26,8 @@ grpc::Status ToGrpc(const absl::Status& status);
 class OgiveService final : public v1::Ogive::Service {
  public:
   using Clock = std::function<absl::Time()>;
-  OgiveService(Registry* registry, Clock clock) : registry_(registry), clock_(std::move(clock)) {}
+  OgiveService(Registry* registry, Authorizer* authorizer, Clock clock)
+      : registry_(registry), authorizer_(authorizer), clock_(std::move(clock)) {}
 
   // Ends every Watch stream at its next wake-up (used when draining).
   void StopWatches() { stopping_ = true; }
@@ -37,7 +43,11 @@ class OgiveService final : public v1::Ogive::Service {
   grpc::Status Watch(grpc::ServerContext*, const v1::WatchRequest*, grpc::ServerWriter<v1::StudyView>*) override;
 
  private:
+  // The Authorizer's verdict on this call; a refusal is logged here.
+  absl::StatusOr<Caller> Authorize(const grpc::ServerContext& context, Method method, const std::string& study);
+
   Registry* const registry_;
+  Authorizer* const authorizer_;
   const Clock clock_;
   std::atomic<bool> stopping_{false};
 };

@@ -1,5 +1,6 @@
 #include "server/service/handlers.h"
 
+#include <algorithm>
 #include <cmath>
 #include <optional>
 #include <string>
@@ -54,13 +55,18 @@ absl::StatusOr<v1::StudyView> GetStudy(Registry& registry, const v1::GetStudyReq
   return (*host)->View(false);
 }
 
-absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1::ListStudiesRequest&) {
+absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1::ListStudiesRequest&,
+                                                    const std::vector<std::string>& scope) {
   v1::ListStudiesResponse response;
-  for (const auto& host : registry.All()) *response.add_studies() = host->View(true);
+  for (const auto& host : registry.All()) {
+    if (!scope.empty() && std::find(scope.begin(), scope.end(), host->name()) == scope.end()) continue;
+    *response.add_studies() = host->View(true);
+  }
   return response;
 }
 
-absl::StatusOr<v1::AskResponse> Ask(Registry& registry, const v1::AskRequest& request, absl::Time now) {
+absl::StatusOr<v1::AskResponse> Ask(Registry& registry, const v1::AskRequest& request, absl::Time now,
+                                    const std::string& token_label) {
   const ServiceLimits& limits = registry.limits();
   if (request.count() < 1 || request.count() > limits.max_ask_count) {
     return absl::InvalidArgumentError(
@@ -72,10 +78,11 @@ absl::StatusOr<v1::AskResponse> Ask(Registry& registry, const v1::AskRequest& re
   if (!lease.ok()) return lease.status();
   absl::StatusOr<std::shared_ptr<StudyHost>> host = FindStudy(registry, request.study());
   if (!host.ok()) return host.status();
-  return (*host)->Ask(request.count(), request.worker(), *lease, request.request_id(), now);
+  return (*host)->Ask(request.count(), request.worker(), *lease, request.request_id(), now, token_label);
 }
 
-absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest& request, absl::Time now) {
+absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest& request, absl::Time now,
+                                      const std::string& token_label) {
   const ServiceLimits& limits = registry.limits();
   if (request.reports_size() < 1 || request.reports_size() > limits.max_reports_per_tell) {
     return absl::InvalidArgumentError(absl::StrCat("reports: must hold 1..", limits.max_reports_per_tell,
@@ -96,9 +103,9 @@ absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest&
     if (!outcome.ok()) {
       return absl::InvalidArgumentError(absl::StrCat("reports[", i, "].", outcome.status().message()));
     }
-    reports.push_back({r.trial(), *outcome, r.outcome().note()});
+    reports.push_back({r.trial(), *outcome, r.outcome().note(), token_label});
   }
-  return (*host)->Tell(reports, request.worker(), now);
+  return (*host)->Tell(reports, request.worker(), now, token_label);
 }
 
 absl::StatusOr<v1::RenewResponse> Renew(Registry& registry, const v1::RenewRequest& request, absl::Time now) {
@@ -148,7 +155,8 @@ absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::
   return response;
 }
 
-absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now) {
+absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now,
+                                       const std::string& token_label) {
   study::PhaseCommand command;
   switch (request.command()) {
     case v1::PHASE_COMMAND_PAUSE:
@@ -166,7 +174,7 @@ absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseReq
   }
   absl::StatusOr<std::shared_ptr<StudyHost>> host = FindStudy(registry, request.study());
   if (!host.ok()) return host.status();
-  return (*host)->SetPhase(command, now);
+  return (*host)->SetPhase(command, now, token_label);
 }
 
 }  // namespace ogive::service
