@@ -68,7 +68,7 @@ absl::Status Authorizer::Reload() {
 void Authorizer::RefreshIfOlderThan(absl::Time not_before) {
   {
     absl::ReaderMutexLock lock(&mu_);
-    if (loaded_at_ >= not_before) return;
+    if (loaded_at_ > not_before) return;
   }
   // One thread re-reads; the others go on with the copy they have (at most a refresh old).
   if (!reload_mu_.TryLock()) return;

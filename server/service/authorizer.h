@@ -92,7 +92,7 @@ class Authorizer {
  private:
   Authorizer(storage::Store* store, AuthOptions options, Clock clock);
 
-  // Re-reads the table if the copy was loaded before `not_before`, unless another thread is
+  // Re-reads the table if the copy was loaded at or before `not_before`, unless another thread is
   // re-reading it right now. Failures are logged; the old copy stays.
   void RefreshIfOlderThan(absl::Time not_before) ABSL_LOCKS_EXCLUDED(reload_mu_, mu_);
   // The stored token whose digest is `digest`, copied; nullopt if none.
