@@ -7,6 +7,7 @@
 #include <cstring>
 
 #include "absl/strings/str_cat.h"
+#include "server/without_reflection.h"
 
 namespace ogive {
 
@@ -32,6 +33,7 @@ absl::StatusOr<std::unique_ptr<grpc::Server>> StartAdminSocket(const std::string
   grpc::ServerBuilder builder;
   builder.AddListeningPort("unix:" + path, grpc::InsecureServerCredentials());
   builder.RegisterService(service);
+  builder.SetOption(std::make_unique<WithoutReflection>());
   // The socket is created by the bind inside BuildAndStart: with this mask it is never, even for a
   // moment, open to other users.
   const mode_t old_mask = ::umask(077);

@@ -37,6 +37,7 @@
 #include "server/service/token_admin.h"
 #include "server/service/token_admin_service.h"
 #include "server/token_command.h"
+#include "server/without_reflection.h"
 #include "server/service/log.h"
 #include "server/service/registry.h"
 #include "storage/sqlite_store.h"
@@ -215,6 +216,7 @@ int main(int argc, char** argv) {
   grpc::EnableDefaultHealthCheckService(true);
   if (flags.reflection) grpc::reflection::InitProtoReflectionServerBuilderPlugin();
   grpc::ServerBuilder builder;
+  if (!flags.reflection) builder.SetOption(std::make_unique<ogive::WithoutReflection>());
   int port = 0;
   builder.AddListeningPort(flags.listen, grpc::InsecureServerCredentials(), &port);
   builder.SetMaxReceiveMessageSize(flags.limits.max_message_bytes);
