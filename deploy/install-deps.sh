@@ -7,7 +7,7 @@ packages=(
   build-essential g++ cmake ninja-build pkg-config
   libgrpc++-dev protobuf-compiler-grpc libprotobuf-dev protobuf-compiler
   libeigen3-dev libabsl-dev libsqlite3-dev sqlite3
-  libgtest-dev libgmock-dev
+  libgtest-dev libgmock-dev libssl-dev
   python3-numpy python3-scipy python3-grpcio python3-protobuf
 )
 
