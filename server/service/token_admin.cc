@@ -38,8 +38,6 @@ v1::TokenInfo InfoOf(const storage::StoredToken& t) {
   return info;
 }
 
-}  // namespace
-
 absl::Status ValidateTokenLabel(const std::string& label) {
   if (label.empty() || static_cast<int>(label.size()) > kMaxTokenLabelBytes ||
       !std::all_of(label.begin(), label.end(), LabelCharacterOk)) {
@@ -48,6 +46,8 @@ absl::Status ValidateTokenLabel(const std::string& label) {
   }
   return absl::OkStatus();
 }
+
+}  // namespace
 
 TokenAdmin::TokenAdmin(storage::Store* store, Clock clock, std::function<void()> on_change)
     : store_(store), clock_(std::move(clock)), on_change_(std::move(on_change)) {}

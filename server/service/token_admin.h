@@ -39,9 +39,6 @@ class TokenAdmin {
   const std::function<void()> on_change_;
 };
 
-// The checks Create() makes on a label, exposed for the command line.
-absl::Status ValidateTokenLabel(const std::string& label);
-
 }  // namespace ogive::service
 
 #endif  // OGIVE_SERVER_SERVICE_TOKEN_ADMIN_H_
