@@ -2,6 +2,8 @@
 # The README's run command: a real ogived on an embedded SQLite file, eight `ogive work` workers running
 # a simulated flow solver (which sleeps a little and sometimes crashes), progress while they work, the
 # study's status at the end, and a clean server stop. Installs what is missing and builds first.
+# Tokens as in production: an admin token for the operator, a worker token limited to the study for the
+# workers (each outcome records its label).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
@@ -13,8 +15,15 @@ bin=build/ci
 workdir=$(mktemp -d -t ogive-demo.XXXXXX)
 port=$(/usr/bin/python3 -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0)); print(s.getsockname()[1])')
 server="127.0.0.1:${port}"
-ogive() { "${bin}/client/cli/ogive" --server "${server}" "$@"; }
+ogive() { "${bin}/client/cli/ogive" --server "${server}" --token-file "${workdir}/admin.token" "$@"; }
+worker_ogive() { "${bin}/client/cli/ogive" --server "${server}" --token-file "${workdir}/worker.token" "$@"; }
 
+umask 077  # the token files are for this user only
+"${bin}/server/ogived" token create --db "${workdir}/demo.db" --role admin --label demo-operator \
+  > "${workdir}/admin.token"
+"${bin}/server/ogived" token create --db "${workdir}/demo.db" --role worker --label solver-nodes \
+  --study solver-farm > "${workdir}/worker.token"
+"${bin}/server/ogived" token list --db "${workdir}/demo.db"
 "${bin}/server/ogived" --db "${workdir}/demo.db" --listen "${server}" 2> "${workdir}/ogived.log" &
 ogived_pid=$!
 cleanup() {
@@ -29,7 +38,7 @@ echo "== ogived is serving ${workdir}/demo.db on ${server}"
 ogive study create deploy/demo/solver-farm.txtpb
 echo "== 8 workers run the simulated solver (each trial sleeps 0.05-0.4 s; about 4% crash)"
 for w in $(seq 8); do
-  ogive work solver-farm --worker "node-${w}" -- "${bin}/tests/demo/ogive-demo-solver" \
+  worker_ogive work solver-farm --worker "node-${w}" -- "${bin}/tests/demo/ogive-demo-solver" \
     > "${workdir}/worker-${w}.out" 2> "${workdir}/worker-${w}.log" &
   worker_pids+=($!)
 done
@@ -55,9 +64,9 @@ import csv, sys
 rows = [r for r in csv.DictReader(sys.stdin) if r["outcome"] == "score"]
 rows.sort(key=lambda r: float(r["score"]))
 for r in rows[:5]:
-    print("  trial %4s  %7.3f min  relaxation=%.3f tolerance=%.2e mesh_level=%s preconditioner=%s reorder=%s" % (
+    print("  trial %4s  %7.3f min  relaxation=%.3f tolerance=%.2e mesh_level=%s preconditioner=%s reorder=%s  (by %s)" % (
         r["number"], float(r["score"]), float(r["relaxation"]), float(r["tolerance"]), r["mesh_level"],
-        r["preconditioner"], r["reorder"]))
+        r["preconditioner"], r["reorder"], r["reported_by"]))
 '
 echo
 echo "== stopping ogived (SIGTERM: drain, commit, exit 0)"

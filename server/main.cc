@@ -2,6 +2,11 @@
 //
 //   ogived [--db PATH] [--listen ADDRESS] [--tls-cert PEM --tls-key PEM [--tls-client-ca PEM]]
 //          [--max-... N] [--sweep-interval-seconds S]   (see --help)
+//   ogived token create|list|revoke --db PATH ...   (token_command.h)
+//
+// Every call needs a bearer token of the right role (authorizer.h) unless started with --no-auth,
+// which is allowed on loopback addresses only. The health service answers without a token; server
+// reflection is off unless --reflection is given.
 //
 // On start it restores every stored study exactly. On SIGTERM or SIGINT it reports NOT_SERVING on the
 // health service, stops accepting calls, lets in-flight calls finish (their commits included) and
@@ -11,6 +16,7 @@
 
 #include <atomic>
 #include <cerrno>
+#include <cmath>
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
@@ -27,10 +33,16 @@
 #include "grpcpp/ext/proto_server_reflection_plugin.h"
 #include "grpcpp/grpcpp.h"
 #include "grpcpp/health_check_service_interface.h"
+#include "server/admin_socket.h"
+#include "server/service/authorizer.h"
 #include "server/service/grpc_service.h"
 #include "server/service/log.h"
 #include "server/service/registry.h"
+#include "server/service/token_admin.h"
+#include "server/service/token_admin_service.h"
 #include "server/service/transport.h"
+#include "server/token_command.h"
+#include "server/without_reflection.h"
 #include "storage/sqlite_store.h"
 
 namespace {
@@ -48,9 +60,20 @@ constexpr char kUsage[] =
     "  --tls-key PEM               the private key of --tls-cert (unencrypted PEM)\n"
     "  --tls-client-ca PEM         require client certificates signed by these CAs (mutual TLS)\n"
     "  --allow-insecure-remote     listen on a non-loopback address without TLS (plain text!)\n"
+    "  --max-requests-per-second-per-token R\n"
+    "                              requests one token may send per second, in bursts of up to\n"
+    "                              2R (default 200; 0 = no limit); beyond: RESOURCE_EXHAUSTED\n"
+    "  --no-auth                   accept calls without a token (loopback addresses only; for\n"
+    "                              development): no roles, no audit labels, no rate limit\n"
+    "  --reflection                serve gRPC server reflection (open to anyone who can connect;\n"
+    "                              it shows the service's schema, no data)\n"
     "  --help                      this text\n"
     "\n"
     "Without --tls-cert ogived listens on loopback addresses only, unless --allow-insecure-remote.\n"
+    "\n"
+    "Every call needs 'authorization: Bearer <token>' with a token of the right role, unless\n"
+    "--no-auth. Tokens: ogived token create|list|revoke --db PATH (see 'ogived token --help').\n"
+    "The gRPC health service answers without a token.\n"
     "\n"
     "limits (beyond them a request gets RESOURCE_EXHAUSTED or INVALID_ARGUMENT):\n";
 
@@ -65,6 +88,9 @@ struct Flags {
   double sweep_interval_seconds = 1.0;
   ogive::service::TransportFlags transport;
   ogive::service::ServiceLimits limits;
+  bool no_auth = false;
+  bool reflection = false;
+  ogive::service::AuthOptions auth;
 };
 
 [[noreturn]] void Fail(const std::string& message) {
@@ -82,6 +108,14 @@ Flags ParseFlags(int argc, char** argv) {
     }
     if (arg == "--allow-insecure-remote") {
       flags.transport.allow_insecure_remote = true;
+      continue;
+    }
+    if (arg == "--no-auth") {
+      flags.no_auth = true;
+      continue;
+    }
+    if (arg == "--reflection") {
+      flags.reflection = true;
       continue;
     }
     const size_t eq = arg.find('=');
@@ -106,6 +140,11 @@ Flags ParseFlags(int argc, char** argv) {
       flags.transport.tls_client_ca_path = value;
     } else if (absl::Status s = ogive::service::SetLimitFromFlag(flags.limits, name, value); !absl::IsNotFound(s)) {
       if (!s.ok()) Fail(std::string(s.message()));
+    } else if (name == "--max-requests-per-second-per-token") {
+      double& rate = flags.auth.max_requests_per_second_per_token;
+      if (!absl::SimpleAtod(value, &rate) || !std::isfinite(rate) || rate < 0) {
+        Fail(absl::StrCat(name, ": must be 0 (no limit) or a positive number, got '", value, "'"));
+      }
     } else if (name == "--sweep-interval-seconds") {
       if (!absl::SimpleAtod(value, &flags.sweep_interval_seconds) || !(flags.sweep_interval_seconds > 0)) {
         Fail(absl::StrCat(name, ": must be a positive number of seconds, got '", value, "'"));
@@ -115,6 +154,11 @@ Flags ParseFlags(int argc, char** argv) {
     }
   }
   if (absl::Status s = flags.limits.Validate(); !s.ok()) Fail(std::string(s.message()));
+  if (flags.no_auth && !ogive::service::IsLoopbackAddress(flags.listen)) {
+    Fail(absl::StrCat("--no-auth: allowed only on a loopback address (127.0.0.1, [::1], localhost), not on ",
+                      flags.listen, "; create tokens with 'ogived token create'"));
+  }
+  flags.auth.require_tokens = !flags.no_auth;
   return flags;
 }
 
@@ -128,6 +172,7 @@ void OnSignal(int) {
 }  // namespace
 
 int main(int argc, char** argv) {
+  if (argc > 1 && std::string(argv[1]) == "token") return ogive::RunTokenCommand(argc - 1, argv + 1);
   const Flags flags = ParseFlags(argc, argv);
   // Certificates are checked before the database is opened: a bad file fails fast, naming its flag.
   absl::StatusOr<ogive::service::Transport> transport = ogive::service::ChooseTransport(flags.listen, flags.transport);
@@ -143,18 +188,43 @@ int main(int argc, char** argv) {
   if (absl::Status s = registry.LoadAll(); !s.ok()) Fail(absl::StrCat("cannot restore studies: ", s.message()));
   LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry.All().size())}});
 
-  ogive::service::OgiveService service(&registry, [] { return absl::Now(); });
+  absl::StatusOr<std::unique_ptr<ogive::service::Authorizer>> authorizer =
+      ogive::service::Authorizer::Create(store->get(), flags.auth, [] { return absl::Now(); });
+  if (!authorizer.ok()) Fail(absl::StrCat("cannot read the tokens: ", authorizer.status().message()));
+  if (flags.no_auth) {
+    LogLine({{"event", "auth"}, {"mode", "off"},
+             {"detail", "--no-auth: every call is accepted without a token (loopback only)"}});
+  } else {
+    const int valid = (*authorizer)->valid_tokens();
+    LogLine({{"event", "auth"}, {"mode", "tokens"}, {"valid_tokens", absl::StrCat(valid)},
+             {"max_requests_per_second_per_token", absl::StrCat(flags.auth.max_requests_per_second_per_token)},
+             {"detail", valid > 0 ? "" : absl::StrCat("no valid token yet: every call is refused until one is made "
+                                                      "with 'ogived token create --db ", flags.db, " ...'")}});
+  }
+  ogive::service::TokenAdmin token_admin(store->get(), [] { return absl::Now(); },
+                                         [&authorizer] { (void)(*authorizer)->Reload(); });
+  ogive::service::TokenAdminService token_admin_service(&token_admin);
+  absl::StatusOr<std::unique_ptr<grpc::Server>> admin_socket = ogive::StartAdminSocket(flags.db, &token_admin_service);
+  if (admin_socket.ok()) {
+    LogLine({{"event", "admin_socket"}, {"path", ogive::AdminSocketPath(flags.db)}});
+  } else {
+    LogLine({{"event", "admin_socket"}, {"code", absl::StatusCodeToString(admin_socket.status().code())},
+             {"detail", absl::StrCat(admin_socket.status().message(),
+                                     "; 'ogived token' works only while this server is stopped")}});
+  }
+
+  ogive::service::OgiveService service(&registry, authorizer->get(), [] { return absl::Now(); });
   grpc::EnableDefaultHealthCheckService(true);
-  grpc::reflection::InitProtoReflectionServerBuilderPlugin();
+  if (flags.reflection) grpc::reflection::InitProtoReflectionServerBuilderPlugin();
   grpc::ServerBuilder builder;
+  if (!flags.reflection) builder.SetOption(std::make_unique<ogive::WithoutReflection>());
   int port = 0;
   builder.AddListeningPort(flags.listen, transport->credentials, &port);
   builder.SetMaxReceiveMessageSize(flags.limits.max_message_bytes);
   // A port already in use is an error, not a port to share with another server.
   builder.AddChannelArgument(GRPC_ARG_ALLOW_REUSEPORT, 0);
-  // Handlers block until their commit, so many run at once. Let the sync server keep its threads as
-  // pollers instead of exiting and re-creating them (thread creation showed in profiles under 64
-  // clients; the measured gain was within noise).
+  // The synchronous methods (all but Ask and Tell) block until their commit, so several may run at
+  // once. Let the sync server keep its threads as pollers instead of exiting and re-creating them.
   builder.SetSyncServerOption(grpc::ServerBuilder::SyncServerOption::MIN_POLLERS, 4);
   builder.SetSyncServerOption(grpc::ServerBuilder::SyncServerOption::MAX_POLLERS, 512);
   builder.RegisterService(&service);
@@ -203,6 +273,11 @@ int main(int argc, char** argv) {
   server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(10));
   stop_sweeping.Notify();
   sweeper.join();
+  if (admin_socket.ok()) {
+    (*admin_socket)->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(2));
+    admin_socket->reset();
+    ::unlink(ogive::AdminSocketPath(flags.db).c_str());
+  }
   const ogive::storage::SqliteStore::Stats stats = (*store)->stats();
   store->reset();  // drains the writer: every acknowledged write is committed
   LogLine({{"event", "stopped"}, {"transactions", absl::StrCat(stats.transactions)},

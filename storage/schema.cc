@@ -61,10 +61,30 @@ CREATE TABLE events (
 CREATE INDEX events_by_study ON events (study_id, id);
 )sql";
 
+// Version 2: access tokens, and the label of the token behind each event.
+//
+// tokens.digest is the SHA-256 of a token (the token itself is never stored). tokens.studies lists
+// the study names a token is limited to, comma-separated (study names hold no commas), '' for every
+// study. revoked_at_ns is NULL while the token is valid. Labels are unique for ever, revoked tokens
+// included, so that an audit label names one token. events.token_label is '' for events written
+// without tokens and for every event stored before version 2.
+constexpr const char kVersion2[] = R"sql(
+CREATE TABLE tokens (
+  label TEXT PRIMARY KEY,
+  digest BLOB NOT NULL UNIQUE CHECK (length(digest) = 32),
+  role TEXT NOT NULL CHECK (role IN ('reader', 'worker', 'admin')),
+  studies TEXT NOT NULL,
+  created_at_ns INTEGER NOT NULL,
+  revoked_at_ns INTEGER
+);
+ALTER TABLE events ADD COLUMN token_label TEXT NOT NULL DEFAULT '';
+)sql";
+
 // Append new steps at the end (one line each, the SQL in a constant above). Never change a step
 // that has been released.
 constexpr const char* kMigrations[] = {
     kVersion1,
+    kVersion2,
 };
 
 absl::Status VersionMismatch(int64_t found, int64_t known, absl::string_view what) {

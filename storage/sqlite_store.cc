@@ -177,6 +177,9 @@ struct SqliteStore::WriterStatements {
   Statement* insert_generation = nullptr;
   Statement* insert_ask_request = nullptr;
   Statement* insert_event = nullptr;
+  Statement* token_exists = nullptr;
+  Statement* insert_token = nullptr;
+  Statement* revoke_token = nullptr;
 
   absl::Status Prepare(Connection& c) {
     const std::pair<const char*, std::pair<const char*, Statement**>> all[] = {
@@ -209,9 +212,17 @@ struct SqliteStore::WriterStatements {
          {"INSERT INTO ask_requests (study_id, request_id, trials) VALUES (?1, ?2, ?3)",
           &insert_ask_request}},
         {"insert event",
-         {"INSERT INTO events (study_id, at_ns, kind, trial, worker, message) "
-          "VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
+         {"INSERT INTO events (study_id, at_ns, kind, trial, worker, message, token_label) "
+          "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
           &insert_event}},
+        {"find token", {"SELECT 1 FROM tokens WHERE label = ?1", &token_exists}},
+        {"insert token",
+         {"INSERT INTO tokens (label, digest, role, studies, created_at_ns, revoked_at_ns) "
+          "VALUES (?1, ?2, ?3, ?4, ?5, NULL)",
+          &insert_token}},
+        {"revoke token",
+         {"UPDATE tokens SET revoked_at_ns = ?2 WHERE label = ?1 AND revoked_at_ns IS NULL",
+          &revoke_token}},
     };
     for (const auto& [name, entry] : all) {
       OGIVE_STORAGE_RETURN_IF_ERROR(PrepareInto(c, name, entry.first, entry.second));
@@ -234,6 +245,7 @@ struct SqliteStore::Reader {
   Statement* trials_page_in_state = nullptr;
   Statement* generations = nullptr;
   Statement* newest_events = nullptr;
+  Statement* tokens = nullptr;
   Statement* integrity_check = nullptr;
 
   absl::Status Prepare() {
@@ -264,9 +276,13 @@ struct SqliteStore::Reader {
          {"SELECT generation, summary FROM generations WHERE study_id = ?1 ORDER BY generation",
           &generations}},
         {"list events",
-         {"SELECT at_ns, kind, trial, worker, message FROM events WHERE study_id = ?1 "
-          "ORDER BY id DESC LIMIT ?2",
+         {"SELECT at_ns, kind, trial, worker, message, token_label FROM events "
+          "WHERE study_id = ?1 ORDER BY id DESC LIMIT ?2",
           &newest_events}},
+        {"list tokens",
+         {"SELECT label, digest, role, studies, created_at_ns, revoked_at_ns FROM tokens "
+          "ORDER BY label",
+          &tokens}},
         {"integrity check", {"PRAGMA integrity_check(20)", &integrity_check}},
     };
     for (const auto& [name, entry] : all) {
@@ -304,7 +320,19 @@ struct SqliteStore::EncodedWrite {
     int64_t created_at_ns = 0;
   };
 
-  std::optional<NewStudy> create;  // set for CreateStudy; everything below is for Commit
+  struct TokenChange {
+    std::string label;
+    bool revoke = false;       // false: insert the token below; true: revoke `label` at revoked_at_ns
+    std::string digest;        // insert only
+    std::string role;          // insert only
+    std::string studies;       // insert only: comma-separated
+    int64_t created_at_ns = 0;  // insert only
+    int64_t revoked_at_ns = 0;  // revoke only
+  };
+
+  std::optional<NewStudy> create;     // set for CreateStudy
+  std::optional<TokenChange> token;   // set for CreateToken and RevokeToken
+  // Everything below is for Commit.
   int64_t study_id = 0;
   int64_t chain = 0;
   absl::Status refusal;  // not OK: refused before queuing; fails in its place without being applied
@@ -321,7 +349,9 @@ struct SqliteStore::Job {
   Kind kind = Kind::kWrite;
   const EncodedWrite* write = nullptr;               // kWrite
   std::optional<SqliteConnectionSettings> settings;  // kInspect: out
-  int64_t created_id = 0;                            // kWrite of a new study: out
+  // kWrite, out: the id of a new study; for a revocation 1 when this write revoked the token, 0
+  // when it was revoked already.
+  int64_t created_id = 0;
   absl::Status status;                               // out
   absl::Notification done;
 };
@@ -601,8 +631,45 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
   for (Job* job : batch) job->done.Notify();  // after this the job may be gone
 }
 
+absl::Status SqliteStore::ApplyToken(const EncodedWrite& write, int64_t& revoked) {
+  WriterStatements& s = *writer_statements_;
+  const EncodedWrite::TokenChange& token = *write.token;
+  bool exists = false;
+  {
+    ResetOnExit reset(*s.token_exists);
+    s.token_exists->BindText(1, token.label);
+    absl::StatusOr<bool> row = s.token_exists->Step();
+    if (!row.ok()) return row.status();
+    exists = *row;
+  }
+  if (!token.revoke) {
+    const absl::Status taken = absl::AlreadyExistsError(absl::StrCat(
+        "label: a token labelled '", token.label, "' exists already (labels are never reused, revoked tokens included)"));
+    if (exists) return taken;
+    Statement& insert = *s.insert_token;
+    ResetOnExit reset(insert);
+    insert.BindText(1, token.label);
+    insert.BindBlob(2, token.digest);
+    insert.BindText(3, token.role);
+    insert.BindText(4, token.studies);
+    insert.BindInt64(5, token.created_at_ns);
+    absl::Status status = insert.Run();
+    if (absl::IsAlreadyExists(status)) return taken;  // the digest, by a chance of 2^-128
+    return status;
+  }
+  if (!exists) return absl::NotFoundError(absl::StrCat("label: no token labelled '", token.label, "'"));
+  Statement& revoke = *s.revoke_token;
+  ResetOnExit reset(revoke);
+  revoke.BindText(1, token.label);
+  revoke.BindInt64(2, token.revoked_at_ns);
+  OGIVE_STORAGE_RETURN_IF_ERROR(revoke.Run());
+  revoked = sqlite3_changes(writer_->db()) > 0 ? 1 : 0;
+  return absl::OkStatus();
+}
+
 absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id) {
   WriterStatements& s = *writer_statements_;
+  if (write.token.has_value()) return ApplyToken(write, created_id);
   if (write.create.has_value()) {
     const EncodedWrite::NewStudy& study = *write.create;
     const absl::Status taken =
@@ -702,6 +769,7 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id) 
     insert.BindInt64(4, event.trial);
     insert.BindText(5, event.worker);
     insert.BindText(6, event.message);
+    insert.BindText(7, event.token_label);
     OGIVE_STORAGE_RETURN_IF_ERROR(insert.Run());
   }
   return absl::OkStatus();
@@ -818,6 +886,78 @@ std::unique_ptr<PendingCommit> SqliteStore::CommitAsync(StudyWrite write) {
     encoded.refusal = checked;
   }
   return std::make_unique<Pending>(this, std::move(encoded));
+}
+
+// ---- Tokens ----
+
+absl::Status SqliteStore::CreateToken(const StoredToken& token) {
+  if (options_.read_only) return ReadOnlyError(path_);
+  if (token.label.empty()) return absl::InvalidArgumentError("label: must not be empty");
+  if (token.digest.size() != 32) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("digest: must be the 32 bytes of a SHA-256, got ", token.digest.size(), " bytes"));
+  }
+  if (token.role != "reader" && token.role != "worker" && token.role != "admin") {
+    return absl::InvalidArgumentError(
+        absl::StrCat("role: must be reader, worker or admin, got '", token.role, "'"));
+  }
+  for (const std::string& study : token.studies) {
+    if (study.empty() || study.find(',') != std::string::npos) {
+      return absl::InvalidArgumentError(
+          absl::StrCat("studies: '", study, "' is not a study name (empty, or holds a comma)"));
+    }
+  }
+  EncodedWrite write;
+  EncodedWrite::TokenChange& change = write.token.emplace();
+  change.label = token.label;
+  change.digest = token.digest;
+  change.role = token.role;
+  change.studies = absl::StrJoin(token.studies, ",");
+  change.created_at_ns = token.created_at_ns;
+  Job job;
+  job.write = &write;
+  Submit(job);
+  return job.status;
+}
+
+absl::StatusOr<bool> SqliteStore::RevokeToken(const std::string& label, int64_t at_ns) {
+  if (options_.read_only) return ReadOnlyError(path_);
+  if (label.empty()) return absl::InvalidArgumentError("label: must not be empty");
+  EncodedWrite write;
+  EncodedWrite::TokenChange& change = write.token.emplace();
+  change.label = label;
+  change.revoke = true;
+  change.revoked_at_ns = at_ns;
+  Job job;
+  job.write = &write;
+  Submit(job);
+  if (!job.status.ok()) return job.status;
+  return job.created_id == 1;
+}
+
+absl::StatusOr<std::vector<StoredToken>> SqliteStore::ListTokens() {
+  std::vector<StoredToken> tokens;
+  absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
+    tokens.clear();
+    Statement& query = *r.tokens;
+    ResetOnExit reset(query);
+    while (true) {
+      absl::StatusOr<bool> row = query.Step();
+      if (!row.ok()) return row.status();
+      if (!*row) break;
+      StoredToken& token = tokens.emplace_back();
+      token.label = std::string(query.ColumnText(0));
+      token.digest = std::string(query.ColumnBlob(1));
+      token.role = std::string(query.ColumnText(2));
+      const absl::string_view studies = query.ColumnText(3);
+      if (!studies.empty()) token.studies = absl::StrSplit(studies, ',');
+      token.created_at_ns = query.ColumnInt64(4);
+      if (!query.ColumnIsNull(5)) token.revoked_at_ns = query.ColumnInt64(5);
+    }
+    return absl::OkStatus();
+  });
+  if (!status.ok()) return status;
+  return tokens;
 }
 
 // ---- Reads ----
@@ -1003,6 +1143,7 @@ absl::StatusOr<std::vector<Event>> SqliteStore::ListEvents(int64_t study_id, int
       event.trial = query.ColumnInt64(2);
       event.worker = std::string(query.ColumnText(3));
       event.message = std::string(query.ColumnText(4));
+      event.token_label = std::string(query.ColumnText(5));
     }
     std::reverse(events.begin(), events.end());  // newest first from SQL, oldest first out
     return absl::OkStatus();

@@ -127,6 +127,9 @@ class SqliteStore final : public Store {
   absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t study_id) override;
   absl::StatusOr<std::vector<Event>> ListEvents(int64_t study_id, int limit) override;
   absl::StatusOr<int64_t> SizeBytes() override;
+  absl::Status CreateToken(const StoredToken& token) override;
+  absl::StatusOr<bool> RevokeToken(const std::string& label, int64_t at_ns) override;
+  absl::StatusOr<std::vector<StoredToken>> ListTokens() override;
 
   // Runs PRAGMA integrity_check on a read connection: OK when SQLite reports "ok", DATA_LOSS with
   // its first findings otherwise.
@@ -162,6 +165,8 @@ class SqliteStore final : public Store {
   void RunBatch(const std::vector<Job*>& batch);
   // Applies one write inside the open transaction (the caller wraps it in a savepoint).
   absl::Status Apply(const EncodedWrite& write, int64_t& created_id);
+  // Applies a token write; sets `revoked` as Job::created_id documents.
+  absl::Status ApplyToken(const EncodedWrite& write, int64_t& revoked);
 
   // Runs `read` on a free read connection inside BEGIN ... COMMIT.
   absl::Status ReadTransaction(absl::FunctionRef<absl::Status(Reader&)> read);

@@ -36,9 +36,20 @@ struct StoredStudy {
 struct Event {
   std::string kind;    // e.g. "ask", "tell", "update", "phase", "lapse", "restart"
   int64_t trial = 0;   // 0 when not about one trial
-  std::string worker;  // or token label
+  std::string worker;  // the worker the request named, if any
   std::string message;
   int64_t at_ns = 0;  // Unix nanoseconds
+  std::string token_label = "";  // the label of the token whose request wrote it (none: "")
+};
+
+// One access token as stored: its SHA-256 digest, never the token itself.
+struct StoredToken {
+  std::string label;                  // unique for ever (a revoked label is not reused)
+  std::string digest;                 // SHA-256 of the token, 32 bytes
+  std::string role;                   // "reader", "worker" or "admin"
+  std::vector<std::string> studies;   // the studies it is limited to; empty: every study
+  int64_t created_at_ns = 0;          // Unix nanoseconds
+  std::optional<int64_t> revoked_at_ns;  // set once revoked
 };
 
 // Everything one request changed in one study; committed as one transaction.
@@ -122,6 +133,30 @@ class Store {
 
   // Bytes the database occupies on disk (main file and write-ahead log).
   virtual absl::StatusOr<int64_t> SizeBytes() = 0;
+
+  // ---- Access tokens (the service hashes and checks them; the store keeps digests) ----
+  // A store without tokens answers UNIMPLEMENTED.
+
+  // Stores a new token. ALREADY_EXISTS when its label is taken (revoked tokens included);
+  // INVALID_ARGUMENT for a digest that is not 32 bytes, an unknown role or a malformed study name.
+  // Durable on return.
+  virtual absl::Status CreateToken(const StoredToken& token) {
+    (void)token;
+    return absl::UnimplementedError("this store keeps no tokens");
+  }
+
+  // Marks the token with `label` revoked at `at_ns`: true when this call revoked it, false when it
+  // was revoked already (the first time is kept). NOT_FOUND for an unknown label. Durable on return.
+  virtual absl::StatusOr<bool> RevokeToken(const std::string& label, int64_t at_ns) {
+    (void)label;
+    (void)at_ns;
+    return absl::UnimplementedError("this store keeps no tokens");
+  }
+
+  // Every token, revoked ones included, in label order. Reads committed data only.
+  virtual absl::StatusOr<std::vector<StoredToken>> ListTokens() {
+    return absl::UnimplementedError("this store keeps no tokens");
+  }
 };
 
 }  // namespace ogive::storage

@@ -550,8 +550,9 @@ candidates. This cannot be undone.
 )";
 
 constexpr char kStudyTrialsHelp[] =
-    R"(Lists the study's trials in number order: state, generation, worker, outcome, whether it
-came late, what the search made of it (pending, consumed, too_stale), and the candidate.
+    R"(Lists the study's trials in number order: state, generation, worker, outcome, who
+reported it (the label of the token used; '-' without tokens), whether it came late,
+what the search made of it (pending, consumed, too_stale), and the candidate.
 --csv prints CSV with a header row (RFC 4180 quoting); --json a JSON array of trials.
 )";
 

@@ -267,11 +267,12 @@ TEST(ViewsTest, TrialsCsvHasAHeaderAndOneRowPerTrial) {
   t.set_worker("node1:42");
   t.mutable_outcome()->mutable_void_();
   t.mutable_outcome()->set_note("the program exited with status 3, \"oops\"");
+  t.set_reported_by("farm-a");
   *t.mutable_candidate() = MixedCandidate();
   EXPECT_EQ(TrialsCsv(Design(kMixedDesign), {t}),
-            "number,state,generation,worker,outcome,score,grade,note,late,use,consumed_by,"
+            "number,state,generation,worker,outcome,score,grade,note,reported_by,late,use,consumed_by,"
             "peak-temp,passes,vacuum,gas\n"
-            "7,voided,2,node1:42,void,,,\"the program exited with status 3, \"\"oops\"\"\",false,,,"
+            "7,voided,2,node1:42,void,,,\"the program exited with status 3, \"\"oops\"\"\",farm-a,false,,,"
             "812.5,3,true,argon\n");
 }
 
@@ -281,8 +282,11 @@ TEST(ViewsTest, TrialsTableShowsOutcomesAndParameters) {
   t.set_state(v1::TRIAL_STATE_REPORTED);
   t.mutable_outcome()->set_score(3.25);
   t.set_use(v1::OUTCOME_USE_CONSUMED);
+  t.set_reported_by("kiln-operator");
   *t.mutable_candidate() = MixedCandidate();
   const std::string table = TrialsTable(Design(kMixedDesign), {t});
+  EXPECT_THAT(table, HasSubstr("REPORTED BY"));
+  EXPECT_THAT(table, HasSubstr("kiln-operator"));
   EXPECT_THAT(table, HasSubstr("peak-temp (degC)"));
   EXPECT_THAT(table, HasSubstr("score 3.25"));
   EXPECT_THAT(table, HasSubstr("consumed"));

@@ -33,7 +33,7 @@ og() { timeout 20 "$OGIVE" "$@"; }
 
 PORT=$("$PY" -c 'import socket;s=socket.socket();s.bind(("127.0.0.1",0));print(s.getsockname()[1])')
 export OGIVE_SERVER="127.0.0.1:$PORT"
-"$OGIVED" --db "$TMP/ogive.db" --listen "$OGIVE_SERVER" >"$TMP/ogived.log" 2>&1 &
+"$OGIVED" --db "$TMP/ogive.db" --listen "$OGIVE_SERVER" --no-auth >"$TMP/ogived.log" 2>&1 &
 OGIVED_PID=$!
 for _ in $(seq 100); do
   if og study list --timeout 1 >/dev/null 2>&1; then break; fi

@@ -214,8 +214,8 @@ std::string WatchScreen(const v1::StudyView& view, absl::TimeZone zone) {
 }
 
 std::string TrialsTable(const v1::StudyDesign& design, const std::vector<v1::Trial>& trials) {
-  std::vector<std::string> header = {"TRIAL", "STATE", "GEN", "WORKER", "OUTCOME", "LATE", "USE"};
-  std::vector<bool> right = {true, false, true, false, false, false, false};
+  std::vector<std::string> header = {"TRIAL", "STATE", "GEN", "WORKER", "OUTCOME", "REPORTED BY", "LATE", "USE"};
+  std::vector<bool> right = {true, false, true, false, false, false, false, false};
   for (const v1::Parameter& p : design.parameters()) {
     header.push_back(p.unit().empty() ? p.name() : absl::StrCat(p.name(), " (", p.unit(), ")"));
     right.push_back(p.has_real() || p.has_integer());
@@ -225,7 +225,8 @@ std::string TrialsTable(const v1::StudyDesign& design, const std::vector<v1::Tri
     std::vector<std::string> row = {
         absl::StrCat(t.number()),       std::string(TrialStateName(t.state())),
         absl::StrCat(t.generation()),   OrDash(t.worker()),
-        OutcomeCell(t.outcome()),       t.late() ? "late" : "-",
+        OutcomeCell(t.outcome()),       OrDash(t.reported_by()),
+        t.late() ? "late" : "-",
         OrDash(OutcomeUseName(t.use()))};
     for (const v1::Parameter& p : design.parameters()) {
       auto it = t.candidate().values().find(p.name());
@@ -237,9 +238,9 @@ std::string TrialsTable(const v1::StudyDesign& design, const std::vector<v1::Tri
 }
 
 std::string TrialsCsv(const v1::StudyDesign& design, const std::vector<v1::Trial>& trials) {
-  std::vector<std::string> header = {"number",  "state", "generation", "worker",
-                                     "outcome", "score", "grade",      "note",
-                                     "late",    "use",   "consumed_by"};
+  std::vector<std::string> header = {"number", "state", "generation", "worker",      "outcome",
+                                     "score",  "grade", "note",       "reported_by", "late",
+                                     "use",    "consumed_by"};
   for (const v1::Parameter& p : design.parameters()) header.push_back(p.name());
   std::string out = CsvRow(header);
   for (const v1::Trial& t : trials) {
@@ -253,6 +254,7 @@ std::string TrialsCsv(const v1::StudyDesign& design, const std::vector<v1::Trial
         o.has_score() ? FormatExact(o.score()) : "",
         o.has_grade() ? o.grade() : "",
         o.note(),
+        t.reported_by(),
         t.late() ? "true" : "false",
         std::string(OutcomeUseName(t.use())),
         t.use() == v1::OUTCOME_USE_CONSUMED ? absl::StrCat(t.consumed_by()) : ""};

@@ -3,7 +3,8 @@
 #
 #   work_test.sh PATH/TO/ogived PATH/TO/ogive
 #
-# Starts ogived on a temporary database and a free loopback port, creates a scored and a graded
+# Makes an admin token (sent from $OGIVE_TOKEN), starts ogived on a temporary database and a free
+# loopback port, creates a scored and a graded
 # study (one real, one integer, one flag, one categorical parameter) from text-format designs, and
 # runs the worker loop against programs that print a score, print a grade, print 'infeasible', print
 # something unreadable, exit non-zero, kill themselves with SIGKILL, and run until the worker gets
@@ -44,6 +45,10 @@ step() { echo "== $*"; }
 PORT=$("$PY" -c 'import socket;s=socket.socket();s.bind(("127.0.0.1",0));print(s.getsockname()[1])')
 export OGIVE_SERVER="127.0.0.1:$PORT"
 export TMPDIR="$TMP"  # candidate files go here, so the test can see that they are removed
+# Every call of the CLI below sends this admin token, read from $OGIVE_TOKEN.
+OGIVE_TOKEN=$(timeout 30 "$OGIVED" token create --db "$TMP/ogive.db" --role admin --label work-test \
+  2>"$TMP/token.log") || fail "token create: $(cat "$TMP/token.log")"
+export OGIVE_TOKEN
 "$OGIVED" --db "$TMP/ogive.db" --listen "$OGIVE_SERVER" --sweep-interval-seconds 0.2 \
   >"$TMP/ogived.log" 2>&1 &
 OGIVED_PID=$!

@@ -251,6 +251,20 @@ TEST(StudyCodec, SnapshotThroughTheWireContinuesBitIdentically) {
             SnapshotToProto(restored->Snapshot()).SerializeAsString());
 }
 
+TEST(StudyCodec, TheReporterOfATrialRoundTrips) {
+  study::Trial t;
+  t.number = 4;
+  t.state = study::TrialState::kReported;
+  t.outcome = search::Outcome::Score(1.5);
+  t.reported_by = "farm-a";
+  v1::TrialRecord record;
+  ASSERT_TRUE(record.ParseFromString(TrialToProto(t).SerializeAsString()));
+  EXPECT_EQ(record.reported_by(), "farm-a");
+  absl::StatusOr<study::Trial> back = TrialFromProto(record);
+  ASSERT_TRUE(back.ok()) << back.status();
+  EXPECT_EQ(back->reported_by, "farm-a");
+}
+
 TEST(StudyCodec, DesignEngineSettings) {
   v1::StudyDesign design = ParseDesign(kMixedDesign);
   design.set_lease_seconds(90);

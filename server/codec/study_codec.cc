@@ -145,6 +145,7 @@ v1::TrialRecord TrialToProto(const study::Trial& t) {
     }
   }
   r.set_note(t.note);
+  r.set_reported_by(t.reported_by);
   r.set_reported_at_ns(Nanos(t.reported_at));
   r.set_report_sequence(t.report_sequence);
   r.set_late(t.late);
@@ -186,6 +187,7 @@ absl::StatusOr<study::Trial> TrialFromProto(const v1::TrialRecord& r) {
       return absl::DataLossError(absl::StrCat("trial ", r.number(), ": unknown outcome kind"));
   }
   t.note = r.note();
+  t.reported_by = r.reported_by();
   t.reported_at = FromNanos(r.reported_at_ns());
   t.report_sequence = r.report_sequence();
   t.late = r.late();

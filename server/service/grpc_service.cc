@@ -1,8 +1,10 @@
 #include "server/service/grpc_service.h"
 
 #include <string>
+#include <vector>
 
 #include "absl/strings/str_cat.h"
+#include "absl/strings/string_view.h"
 #include "server/service/handlers.h"
 #include "server/service/log.h"
 #include "server/service/validation.h"
@@ -13,11 +15,21 @@ namespace {
 std::string CodeName(const absl::Status& s) { return absl::StatusCodeToString(s.code()); }
 
 template <typename Response>
-grpc::Status Finish(const char* method, const std::string& study, const std::string& worker,
+grpc::Status Finish(const char* method, const std::string& study, const std::string& worker, const Caller& caller,
                     absl::StatusOr<Response> result, Response* out, std::string detail = "") {
-  LogLine({{"event", method}, {"study", study}, {"worker", worker}, {"code", CodeName(result.status())},
+  LogLine({{"event", method}, {"study", study}, {"worker", worker}, {"token", caller.label},
+           {"code", CodeName(result.status())},
            {"detail", result.ok() ? detail : std::string(result.status().message())}});
   if (!result.ok()) return ToGrpc(result.status());
+  *out = *std::move(result);
+  return grpc::Status::OK;
+}
+
+// Reads answer without a log line when they succeed (they are many and change nothing).
+template <typename Response>
+grpc::Status FinishRead(const char* method, const std::string& study, const Caller& caller,
+                        absl::StatusOr<Response> result, Response* out) {
+  if (!result.ok()) return Finish(method, study, "", caller, std::move(result), out);
   *out = *std::move(result);
   return grpc::Status::OK;
 }
@@ -29,90 +41,131 @@ grpc::Status ToGrpc(const absl::Status& status) {
   return grpc::Status(static_cast<grpc::StatusCode>(status.code()), std::string(status.message()));
 }
 
-grpc::Status OgiveService::CreateStudy(grpc::ServerContext*, const v1::CreateStudyRequest* request,
+absl::StatusOr<Caller> OgiveService::Authorize(const grpc::ServerContextBase& context, Method method,
+                                               const std::string& study) {
+  std::vector<absl::string_view> authorization;
+  const auto range = context.client_metadata().equal_range("authorization");
+  for (auto it = range.first; it != range.second; ++it) {
+    authorization.emplace_back(it->second.data(), it->second.size());
+  }
+  absl::StatusOr<Caller> caller = authorizer_->Check(authorization, method, study);
+  if (!caller.ok()) {
+    LogLine({{"event", "refused"}, {"method", MethodName(method)}, {"study", study}, {"peer", context.peer()},
+             {"code", CodeName(caller.status())}, {"detail", std::string(caller.status().message())}});
+  }
+  return caller;
+}
+
+grpc::Status OgiveService::CreateStudy(grpc::ServerContext* context, const v1::CreateStudyRequest* request,
                                        v1::StudyView* response) {
-  return Finish("create", request->design().name(), "", service::CreateStudy(*registry_, *request),
+  absl::StatusOr<Caller> caller = Authorize(*context, Method::kCreateStudy, request->design().name());
+  if (!caller.ok()) return ToGrpc(caller.status());
+  return Finish("create", request->design().name(), "", *caller, service::CreateStudy(*registry_, *request),
                 response);
 }
 
-grpc::Status OgiveService::GetStudy(grpc::ServerContext*, const v1::GetStudyRequest* request,
+grpc::Status OgiveService::GetStudy(grpc::ServerContext* context, const v1::GetStudyRequest* request,
                                     v1::StudyView* response) {
-  absl::StatusOr<v1::StudyView> result = service::GetStudy(*registry_, *request);
-  if (!result.ok()) return Finish("get", request->study(), "", std::move(result), response);
-  *response = *std::move(result);
-  return grpc::Status::OK;
+  absl::StatusOr<Caller> caller = Authorize(*context, Method::kGetStudy, request->study());
+  if (!caller.ok()) return ToGrpc(caller.status());
+  return FinishRead("get", request->study(), *caller, service::GetStudy(*registry_, *request), response);
 }
 
-grpc::Status OgiveService::ListStudies(grpc::ServerContext*, const v1::ListStudiesRequest* request,
+grpc::Status OgiveService::ListStudies(grpc::ServerContext* context, const v1::ListStudiesRequest* request,
                                        v1::ListStudiesResponse* response) {
-  absl::StatusOr<v1::ListStudiesResponse> result = service::ListStudies(*registry_, *request);
-  if (!result.ok()) return ToGrpc(result.status());
-  *response = *std::move(result);
-  return grpc::Status::OK;
+  absl::StatusOr<Caller> caller = Authorize(*context, Method::kListStudies, "");
+  if (!caller.ok()) return ToGrpc(caller.status());
+  return FinishRead("list_studies", "", *caller, service::ListStudies(*registry_, *request, caller->studies),
+                    response);
 }
 
 grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context, const v1::AskRequest* request,
                                              v1::AskResponse* response) {
   grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
+  absl::StatusOr<Caller> caller = Authorize(*context, Method::kAsk, request->study());
+  if (!caller.ok()) {
+    reactor->Finish(ToGrpc(caller.status()));
+    return reactor;
+  }
   // `request` and `response` stay valid until the reactor finishes.
-  service::Ask(*registry_, *request, clock_(), [reactor, request, response](absl::StatusOr<v1::AskResponse> result) {
-    std::string trials;
-    if (result.ok()) {
-      for (const v1::Trial& t : result->trials()) absl::StrAppend(&trials, trials.empty() ? "" : ",", t.number());
-    }
-    reactor->Finish(
-        Finish("ask", request->study(), request->worker(), std::move(result), response, "trials=" + trials));
-  });
+  service::Ask(*registry_, *request, clock_(), caller->label,
+               [reactor, request, response, who = *caller](absl::StatusOr<v1::AskResponse> result) {
+                 std::string trials;
+                 if (result.ok()) {
+                   for (const v1::Trial& t : result->trials()) {
+                     absl::StrAppend(&trials, trials.empty() ? "" : ",", t.number());
+                   }
+                 }
+                 reactor->Finish(Finish("ask", request->study(), request->worker(), who, std::move(result), response,
+                                        "trials=" + trials));
+               });
   return reactor;
 }
 
 grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* context, const v1::TellRequest* request,
                                               v1::TellResponse* response) {
   grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
-  service::Tell(*registry_, *request, clock_(), [reactor, request, response](absl::StatusOr<v1::TellResponse> result) {
-    std::string detail;
-    if (result.ok()) {
-      for (const v1::ReportResult& r : result->results()) {
-        absl::StrAppend(&detail, detail.empty() ? "" : ",", r.trial(), ":",
-                        absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())),
-                        r.duplicate() ? "(dup)" : "", r.late() ? "(late)" : "");
-      }
-    }
-    reactor->Finish(Finish("tell", request->study(), request->worker(), std::move(result), response, detail));
-  });
+  absl::StatusOr<Caller> caller = Authorize(*context, Method::kTell, request->study());
+  if (!caller.ok()) {
+    reactor->Finish(ToGrpc(caller.status()));
+    return reactor;
+  }
+  service::Tell(*registry_, *request, clock_(), caller->label,
+                [reactor, request, response, who = *caller](absl::StatusOr<v1::TellResponse> result) {
+                  std::string detail;
+                  if (result.ok()) {
+                    for (const v1::ReportResult& r : result->results()) {
+                      absl::StrAppend(&detail, detail.empty() ? "" : ",", r.trial(), ":",
+                                      absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())),
+                                      r.duplicate() ? "(dup)" : "", r.late() ? "(late)" : "");
+                    }
+                  }
+                  reactor->Finish(
+                      Finish("tell", request->study(), request->worker(), who, std::move(result), response, detail));
+                });
   return reactor;
 }
 
-grpc::Status OgiveService::Renew(grpc::ServerContext*, const v1::RenewRequest* request,
+grpc::Status OgiveService::Renew(grpc::ServerContext* context, const v1::RenewRequest* request,
                                  v1::RenewResponse* response) {
-  return Finish("renew", request->study(), request->worker(), service::Renew(*registry_, *request, clock_()),
-                response);
+  absl::StatusOr<Caller> caller = Authorize(*context, Method::kRenew, request->study());
+  if (!caller.ok()) return ToGrpc(caller.status());
+  return Finish("renew", request->study(), request->worker(), *caller,
+                service::Renew(*registry_, *request, clock_()), response);
 }
 
-grpc::Status OgiveService::ListTrials(grpc::ServerContext*, const v1::ListTrialsRequest* request,
+grpc::Status OgiveService::ListTrials(grpc::ServerContext* context, const v1::ListTrialsRequest* request,
                                       v1::ListTrialsResponse* response) {
-  absl::StatusOr<v1::ListTrialsResponse> result = service::ListTrials(*registry_, *request);
-  if (!result.ok()) return Finish("list_trials", request->study(), "", std::move(result), response);
-  *response = *std::move(result);
-  return grpc::Status::OK;
+  absl::StatusOr<Caller> caller = Authorize(*context, Method::kListTrials, request->study());
+  if (!caller.ok()) return ToGrpc(caller.status());
+  return FinishRead("list_trials", request->study(), *caller, service::ListTrials(*registry_, *request), response);
 }
 
-grpc::Status OgiveService::SetPhase(grpc::ServerContext*, const v1::SetPhaseRequest* request,
+grpc::Status OgiveService::SetPhase(grpc::ServerContext* context, const v1::SetPhaseRequest* request,
                                     v1::StudyView* response) {
-  return Finish("set_phase", request->study(), "", service::SetPhase(*registry_, *request, clock_()), response,
+  absl::StatusOr<Caller> caller = Authorize(*context, Method::kSetPhase, request->study());
+  if (!caller.ok()) return ToGrpc(caller.status());
+  return Finish("set_phase", request->study(), "", *caller,
+                service::SetPhase(*registry_, *request, clock_(), caller->label), response,
                 v1::PhaseCommand_Name(request->command()));
 }
 
 grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRequest* request,
                                  grpc::ServerWriter<v1::StudyView>* writer) {
+  absl::StatusOr<Caller> caller = Authorize(*context, Method::kWatch, request->study());
+  if (!caller.ok()) return ToGrpc(caller.status());
   if (absl::Status s = ValidateWatch(*request, registry_->limits()); !s.ok()) return ToGrpc(s);
   absl::StatusOr<std::shared_ptr<StudyHost>> host = registry_->Find(request->study());
   if (!host.ok()) return ToGrpc(host.status());
   int64_t version = (*host)->version();
   if (!writer->Write((*host)->View(false))) return grpc::Status::OK;
-  // Wake up at least every 200 ms to notice a cancelled call or a draining server. The view after the
-  // change that ended the study is the last one sent.
+  // Wake up at least every 200 ms to notice a cancelled call, a draining server or a revoked token.
+  // The view after the change that ended the study is the last one sent.
   while (!context->IsCancelled() && !stopping_ && !(*host)->done()) {
+    if (!authorizer_->StillValid(caller->label)) {
+      return ToGrpc(absl::UnauthenticatedError(
+          absl::StrCat("authorization: the token '", caller->label, "' was revoked during the watch")));
+    }
     const int64_t now_version = (*host)->WaitForChange(version, absl::Now() + absl::Milliseconds(200));
     if (now_version == version) continue;
     version = now_version;

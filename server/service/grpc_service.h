@@ -1,19 +1,24 @@
-// OgiveService: the gRPC adapter of the handlers (handlers.h). Each method converts absl::Status to
-// grpc::Status (the codes are the same numbers), logs one structured line, and calls the handler
-// with the server's clock. Ask and Tell, the calls workers make all day, use gRPC's callback API:
-// the reply is finished from the CommitWaiter once the write committed, so no gRPC thread waits for
-// an fsync. The other methods are synchronous.
+// OgiveService: the gRPC adapter of the handlers (handlers.h). Each method first has the Authorizer
+// check the call's bearer token against the method and the study it names (nothing else happens for
+// a refused call), then converts absl::Status to grpc::Status (the codes are the same numbers), logs
+// one structured line (with the token's label, never the token), and calls the handler with the
+// server's clock and the label for the audit. Ask and Tell, the calls workers make all day, use
+// gRPC's callback API: the reply is finished from the CommitWaiter once the write committed, so no
+// gRPC thread waits for an fsync. The other methods are synchronous.
 //
-// Thread-safe; the registry outlives the service.
+// Thread-safe; the registry and the authorizer outlive the service.
 #ifndef OGIVE_SERVER_SERVICE_GRPC_SERVICE_H_
 #define OGIVE_SERVER_SERVICE_GRPC_SERVICE_H_
 
 #include <atomic>
 #include <functional>
+#include <string>
 
+#include "absl/status/statusor.h"
 #include "absl/time/time.h"
 #include "grpcpp/grpcpp.h"
 #include "ogive/v1/service.grpc.pb.h"
+#include "server/service/authorizer.h"
 #include "server/service/registry.h"
 
 namespace ogive::service {
@@ -24,7 +29,8 @@ class OgiveService final
     : public v1::Ogive::WithCallbackMethod_Ask<v1::Ogive::WithCallbackMethod_Tell<v1::Ogive::Service>> {
  public:
   using Clock = std::function<absl::Time()>;
-  OgiveService(Registry* registry, Clock clock) : registry_(registry), clock_(std::move(clock)) {}
+  OgiveService(Registry* registry, Authorizer* authorizer, Clock clock)
+      : registry_(registry), authorizer_(authorizer), clock_(std::move(clock)) {}
 
   // Ends every Watch stream at its next wake-up (used when draining).
   void StopWatches() { stopping_ = true; }
@@ -40,7 +46,11 @@ class OgiveService final
   grpc::Status Watch(grpc::ServerContext*, const v1::WatchRequest*, grpc::ServerWriter<v1::StudyView>*) override;
 
  private:
+  // The Authorizer's verdict on this call; a refusal is logged here.
+  absl::StatusOr<Caller> Authorize(const grpc::ServerContextBase& context, Method method, const std::string& study);
+
   Registry* const registry_;
+  Authorizer* const authorizer_;
   const Clock clock_;
   std::atomic<bool> stopping_{false};
 };

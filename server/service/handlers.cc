@@ -1,5 +1,6 @@
 #include "server/service/handlers.h"
 
+#include <algorithm>
 #include <cmath>
 #include <optional>
 #include <string>
@@ -51,23 +52,29 @@ absl::StatusOr<v1::StudyView> GetStudy(Registry& registry, const v1::GetStudyReq
   return (*host)->View(false);
 }
 
-absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1::ListStudiesRequest&) {
+absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1::ListStudiesRequest&,
+                                                    const std::vector<std::string>& scope) {
   v1::ListStudiesResponse response;
-  for (const auto& host : registry.All()) *response.add_studies() = host->View(true);
+  for (const auto& host : registry.All()) {
+    if (!scope.empty() && std::find(scope.begin(), scope.end(), host->name()) == scope.end()) continue;
+    *response.add_studies() = host->View(true);
+  }
   return response;
 }
 
-void Ask(Registry& registry, const v1::AskRequest& request, absl::Time now, Reply<v1::AskResponse> reply) {
+void Ask(Registry& registry, const v1::AskRequest& request, absl::Time now, const std::string& token_label,
+         Reply<v1::AskResponse> reply) {
   if (absl::Status s = ValidateAsk(request, registry.limits()); !s.ok()) return reply(s);
   absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
   if (!host.ok()) return reply(host.status());
   (*host)->Ask(request.count(), request.worker(), LeaseOf(request.lease_seconds()), request.request_id(), now,
-               [host = *host, reply = std::move(reply)](absl::StatusOr<v1::AskResponse> r) mutable {
+               token_label, [host = *host, reply = std::move(reply)](absl::StatusOr<v1::AskResponse> r) mutable {
                  reply(std::move(r));  // `host` stays alive until the reply is out
                });
 }
 
-void Tell(Registry& registry, const v1::TellRequest& request, absl::Time now, Reply<v1::TellResponse> reply) {
+void Tell(Registry& registry, const v1::TellRequest& request, absl::Time now, const std::string& token_label,
+          Reply<v1::TellResponse> reply) {
   if (absl::Status s = ValidateTell(request, registry.limits()); !s.ok()) return reply(s);
   absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
   if (!host.ok()) return reply(host.status());
@@ -79,22 +86,24 @@ void Tell(Registry& registry, const v1::TellRequest& request, absl::Time now, Re
     if (!outcome.ok()) {
       return reply(absl::InvalidArgumentError(absl::StrCat("reports[", i, "].", outcome.status().message())));
     }
-    reports.push_back({r.trial(), *outcome, r.outcome().note()});
+    reports.push_back({r.trial(), *outcome, r.outcome().note(), token_label});
   }
-  (*host)->Tell(reports, request.worker(), now,
+  (*host)->Tell(reports, request.worker(), now, token_label,
                 [host = *host, reply = std::move(reply)](absl::StatusOr<v1::TellResponse> r) mutable {
                   reply(std::move(r));
                 });
 }
 
-absl::StatusOr<v1::AskResponse> Ask(Registry& registry, const v1::AskRequest& request, absl::Time now) {
+absl::StatusOr<v1::AskResponse> Ask(Registry& registry, const v1::AskRequest& request, absl::Time now,
+                                    const std::string& token_label) {
   return AwaitReply<v1::AskResponse>(
-      [&](Reply<v1::AskResponse> reply) { Ask(registry, request, now, std::move(reply)); });
+      [&](Reply<v1::AskResponse> reply) { Ask(registry, request, now, token_label, std::move(reply)); });
 }
 
-absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest& request, absl::Time now) {
+absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest& request, absl::Time now,
+                                      const std::string& token_label) {
   return AwaitReply<v1::TellResponse>(
-      [&](Reply<v1::TellResponse> reply) { Tell(registry, request, now, std::move(reply)); });
+      [&](Reply<v1::TellResponse> reply) { Tell(registry, request, now, token_label, std::move(reply)); });
 }
 
 absl::StatusOr<v1::RenewResponse> Renew(Registry& registry, const v1::RenewRequest& request, absl::Time now) {
@@ -129,7 +138,8 @@ absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::
   return response;
 }
 
-absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now) {
+absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now,
+                                       const std::string& token_label) {
   if (absl::Status s = ValidateSetPhase(request, registry.limits()); !s.ok()) return s;
   study::PhaseCommand command;
   switch (request.command()) {
@@ -148,7 +158,7 @@ absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseReq
   }
   absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
   if (!host.ok()) return host.status();
-  return (*host)->SetPhase(command, now);
+  return (*host)->SetPhase(command, now, token_label);
 }
 
 }  // namespace ogive::service

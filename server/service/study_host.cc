@@ -56,7 +56,7 @@ void StudyHost::NoteActivity(const std::string& worker, absl::Time now, int repo
 
 StudyHost::Queued StudyHost::ApplyAndQueue(study::Change change, std::vector<storage::Event> events,
                                            std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request,
-                                           absl::Time now) {
+                                           absl::Time now, const std::string& token_label) {
   storage::StudyWrite write;
   write.study_id = id_;
   write.chain = chain_;
@@ -78,6 +78,7 @@ StudyHost::Queued StudyHost::ApplyAndQueue(study::Change change, std::vector<sto
                       absl::ToUnixNanos(now)});
   }
   write.ask_request = ask_request;
+  for (storage::Event& event : events) event.token_label = token_label;
   write.events = std::move(events);
   study_.Apply(std::move(change));
   if (ask_request.has_value()) ask_requests_.insert(*std::move(ask_request));
@@ -133,7 +134,8 @@ absl::Status StudyHost::AfterCommit(int64_t chain, absl::Status committed) {
 absl::Status StudyHost::Usable() const { return broken_; }
 
 void StudyHost::Ask(int count, const std::string& worker, std::optional<absl::Duration> lease,
-                    const std::string& request_id, absl::Time now, Reply<v1::AskResponse> reply) {
+                    const std::string& request_id, absl::Time now, const std::string& token_label,
+                    Reply<v1::AskResponse> reply) {
   Queued queued;
   v1::AskResponse response;
   {
@@ -156,7 +158,7 @@ void StudyHost::Ask(int count, const std::string& worker, std::optional<absl::Du
       for (int64_t n : numbers) events.push_back({"ask", n, worker, "", absl::ToUnixNanos(now)});
       std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request;
       if (!request_id.empty()) ask_request = std::make_pair(request_id, numbers);
-      queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::move(ask_request), now);
+      queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::move(ask_request), now, token_label);
     }
     for (int64_t n : numbers) *response.add_trials() = TrialView(*study_.trial(n));
     NoteActivity(worker, now, 0);
@@ -165,7 +167,7 @@ void StudyHost::Ask(int count, const std::string& worker, std::optional<absl::Du
 }
 
 void StudyHost::Tell(const std::vector<study::Report>& reports, const std::string& worker, absl::Time now,
-                     Reply<v1::TellResponse> reply) {
+                     const std::string& token_label, Reply<v1::TellResponse> reply) {
   Queued queued;
   v1::TellResponse response;
   {
@@ -188,7 +190,7 @@ void StudyHost::Tell(const std::vector<study::Report>& reports, const std::strin
     int stored = 0;
     for (const study::ReportResult& r : plan->results) stored += r.status.ok() && !r.duplicate ? 1 : 0;
     NoteActivity(worker, now, stored);
-    queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::nullopt, now);
+    queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::nullopt, now, token_label);
     response.set_generation(study_.engine().generation);
     response.set_phase(codec::PhaseToProto(study_.engine().phase));
   }
@@ -204,7 +206,7 @@ absl::StatusOr<v1::RenewResponse> StudyHost::Renew(const std::vector<int64_t>& t
     if (absl::Status s = Usable(); !s.ok()) return s;
     absl::StatusOr<study::Change> change = study_.PlanRenew(trials, worker, lease, now);
     if (!change.ok()) return change.status();
-    queued = ApplyAndQueue(*std::move(change), {}, std::nullopt, now);
+    queued = ApplyAndQueue(*std::move(change), {}, std::nullopt, now, "");
     for (int64_t n : trials) *response.add_trials() = TrialView(*study_.trial(n));
     NoteActivity(worker, now, 0);
   }
@@ -212,7 +214,8 @@ absl::StatusOr<v1::RenewResponse> StudyHost::Renew(const std::vector<int64_t>& t
   return response;
 }
 
-absl::StatusOr<v1::StudyView> StudyHost::SetPhase(study::PhaseCommand command, absl::Time now) {
+absl::StatusOr<v1::StudyView> StudyHost::SetPhase(study::PhaseCommand command, absl::Time now,
+                                                  const std::string& token_label) {
   Queued queued;
   v1::StudyView view;
   {
@@ -220,7 +223,7 @@ absl::StatusOr<v1::StudyView> StudyHost::SetPhase(study::PhaseCommand command, a
     if (absl::Status s = Usable(); !s.ok()) return s;
     absl::StatusOr<study::Change> change = study_.PlanSetPhase(command, now);
     if (!change.ok()) return change.status();
-    queued = ApplyAndQueue(*std::move(change), {}, std::nullopt, now);
+    queued = ApplyAndQueue(*std::move(change), {}, std::nullopt, now, token_label);
     view = ViewLocked(false);
   }
   if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
@@ -240,7 +243,7 @@ absl::StatusOr<int> StudyHost::Sweep(absl::Time now) {
     for (const study::Trial& t : change.trials) {
       events.push_back({"lapse", t.number, t.worker, "", absl::ToUnixNanos(now)});
     }
-    queued = ApplyAndQueue(std::move(change), std::move(events), std::nullopt, now);
+    queued = ApplyAndQueue(std::move(change), std::move(events), std::nullopt, now, "");
   }
   if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
   return lapsed;
@@ -258,6 +261,7 @@ v1::Trial StudyHost::TrialView(const study::Trial& t) const {
     *v.mutable_outcome() = codec::OutcomeToProto(*t.outcome, design_.objective());
     v.mutable_outcome()->set_note(t.note);
     v.set_reported_at_unix_ms(UnixMillis(t.reported_at));
+    v.set_reported_by(t.reported_by);
   }
   v.set_late(t.late);
   v.set_use(codec::OutcomeUseToProto(t.use));

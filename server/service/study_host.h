@@ -56,14 +56,19 @@ class StudyHost {
   int64_t id() const { return id_; }
   const std::string& create_request_id() const { return create_request_id_; }
 
+  // The write methods take the label of the caller's token (empty without tokens) and store it with
+  // the events they write; a phase change they cause records it too.
+
   // Ask: `count` trials for `worker`. A request id seen before returns the trials it returned then.
   void Ask(int count, const std::string& worker, std::optional<absl::Duration> lease, const std::string& request_id,
-           absl::Time now, Reply<v1::AskResponse> reply);
+           absl::Time now, const std::string& token_label, Reply<v1::AskResponse> reply);
+  // Each report's reported_by is stored with its trial.
   void Tell(const std::vector<study::Report>& reports, const std::string& worker, absl::Time now,
-            Reply<v1::TellResponse> reply);
+            const std::string& token_label, Reply<v1::TellResponse> reply);
   absl::StatusOr<v1::RenewResponse> Renew(const std::vector<int64_t>& trials, const std::string& worker,
                                           std::optional<absl::Duration> lease, absl::Time now);
-  absl::StatusOr<v1::StudyView> SetPhase(study::PhaseCommand command, absl::Time now);
+  absl::StatusOr<v1::StudyView> SetPhase(study::PhaseCommand command, absl::Time now,
+                                         const std::string& token_label = "");
   // Lapses expired leases; returns how many lapsed.
   absl::StatusOr<int> Sweep(absl::Time now);
 
@@ -86,10 +91,11 @@ class StudyHost {
     std::unique_ptr<storage::PendingCommit> pending;
     int64_t chain = 0;
   };
-  // Applies `change` to memory and queues its write (with the extra log lines). Caller holds mu_.
+  // Applies `change` to memory and queues its write (with the extra log lines, every one of them
+  // carrying `token_label`). Caller holds mu_.
   Queued ApplyAndQueue(study::Change change, std::vector<storage::Event> events,
-                       std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request, absl::Time now)
-      ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
+                       std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request, absl::Time now,
+                       const std::string& token_label) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Waits for a queued write outside mu_; after a failure reloads the study from the store.
   absl::Status Await(Queued queued) ABSL_LOCKS_EXCLUDED(mu_);
   // Await's second half: what to report once the write of `chain` ended with `committed`.

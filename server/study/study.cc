@@ -183,6 +183,7 @@ class Study::Planner {
     leased_.erase(t.number);
     t.outcome = report.outcome;
     t.note = report.note;
+    t.reported_by = report.reported_by;
     t.reported_at = now_;
     t.report_sequence = ++engine_.report_sequence;
     if (!report.outcome.informative()) {

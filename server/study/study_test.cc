@@ -464,6 +464,25 @@ TEST(StudyTellTest, DuplicatesDifferentOutcomesAndUnknownTrials) {
   EXPECT_EQ(study.trial(3)->report_sequence, 3);
 }
 
+TEST(StudyTellTest, TheReporterIsStoredAndADuplicateKeepsTheFirst) {
+  Study study = SmallStudy();
+  const absl::Time t = Origin();
+  ASSERT_TRUE(study.Ask(2, "w", std::nullopt, t).ok());
+  Report first = MakeReport(1, search::Outcome::Score(0.5));
+  first.reported_by = "farm-a";
+  ASSERT_TRUE(study.Tell({&first, 1}, t + absl::Seconds(1)).ok());
+  EXPECT_EQ(study.trial(1)->reported_by, "farm-a");
+  EXPECT_EQ(study.trial(2)->reported_by, "");
+  Report again = first;
+  again.reported_by = "farm-b";
+  absl::StatusOr<std::vector<ReportResult>> results = study.Tell({&again, 1}, t + absl::Seconds(2));
+  ASSERT_TRUE(results.ok());
+  EXPECT_TRUE((*results)[0].duplicate);
+  EXPECT_EQ(study.trial(1)->reported_by, "farm-a");
+  // It is part of the snapshot.
+  EXPECT_EQ(study.Snapshot().trials[0].reported_by, "farm-a");
+}
+
 TEST(StudyTellTest, EmptyTellIsInvalidArgument) {
   Study study = SmallStudy();
   absl::StatusOr<std::vector<ReportResult>> results = study.Tell({}, Origin());

@@ -159,6 +159,7 @@ inline void ExpectSameTrial(const Trial& a, const Trial& b) {
     EXPECT_TRUE(SameOutcome(*a.outcome, *b.outcome));
   }
   EXPECT_EQ(a.note, b.note);
+  EXPECT_EQ(a.reported_by, b.reported_by);
   EXPECT_EQ(a.reported_at, b.reported_at);
   EXPECT_EQ(a.report_sequence, b.report_sequence);
   EXPECT_EQ(a.late, b.late);

@@ -39,6 +39,7 @@ struct Trial {
   absl::Time lease_deadline;
   std::optional<search::Outcome> outcome;  // once reported (void included)
   std::string note;
+  std::string reported_by;      // the label of the token that reported it ("" without tokens)
   absl::Time reported_at;
   int64_t report_sequence = 0;  // order of arrival of reports within the study (1, 2, ...)
   bool late = false;            // reported after its lease lapsed
@@ -51,6 +52,7 @@ struct Report {
   int64_t trial = 0;
   search::Outcome outcome;
   std::string note;
+  std::string reported_by = "";  // the label of the token that sent it, for the audit (none: "")
 };
 
 // What became of one report.

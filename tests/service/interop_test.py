@@ -3,12 +3,14 @@
 
     /usr/bin/python3 interop_test.py --ogived PATH/TO/ogived --proto-dir REPO/proto
 
-Generates the Python messages and stubs of ogive/v1/*.proto into a temporary directory, starts
-ogived on a temporary database and a free loopback port, and with Debian's grpcio: checks the
-standard health service, creates a study, asks, tells (a score and a void), reads the status
-(GetStudy) and the trial list (ListTrials), checks that a NaN score is refused naming the report,
-watches the study, and stops ogived with SIGTERM while the Watch stream is open: it must exit 0
-within a few seconds.
+Generates the Python messages and stubs of ogive/v1/*.proto into a temporary directory, makes an
+admin token with `ogived token create`, starts ogived on a temporary database and a free loopback
+port, and with Debian's grpcio: checks the standard health service (without a token), that a call
+without a token is refused with UNAUTHENTICATED, creates a study, asks, tells (a score and a void),
+reads the status (GetStudy) and the trial list (ListTrials, with the token's label as reported_by),
+checks that a NaN score is refused naming the report, watches the study, and stops ogived with
+SIGTERM while the Watch stream is open: it must exit 0 within a few seconds. Every call but the
+health check carries `authorization: Bearer <token>`, added by a client interceptor.
 
 The stubs come from protoc (Debian package protobuf-compiler) with grpc_python_plugin
 (protobuf-compiler-grpc). grpc_tools.protoc from Debian's python3-grpc-tools is not used: it
@@ -70,6 +72,33 @@ def generate_stubs(proto_dir, out_dir, protoc, plugin):
     return service_pb2, service_pb2_grpc, study_pb2
 
 
+def bearer_interceptor(grpc, token):
+    """A client interceptor that adds `authorization: Bearer <token>` to every call."""
+    metadata = (("authorization", "Bearer " + token),)
+
+    class Bearer(grpc.UnaryUnaryClientInterceptor, grpc.UnaryStreamClientInterceptor):
+        def _details(self, details):
+            return details._replace(metadata=tuple(details.metadata or ()) + metadata)
+
+        def intercept_unary_unary(self, continuation, details, request):
+            return continuation(self._details(details), request)
+
+        def intercept_unary_stream(self, continuation, details, request):
+            return continuation(self._details(details), request)
+
+    return Bearer()
+
+
+def make_token(ogived, db, label):
+    """`ogived token create` on the database file before the server starts; returns the token."""
+    result = subprocess.run([ogived, "token", "create", "--db", db, "--role", "admin", "--label", label],
+                            capture_output=True, text=True, timeout=30)
+    check(result.returncode == 0, "ogived token create failed: %s" % result.stderr.strip())
+    token = result.stdout.strip()
+    check(token.startswith("ogt_") and "\n" not in token, "token create printed %r" % result.stdout)
+    return token
+
+
 def free_port():
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))
@@ -101,9 +130,11 @@ def run(args, tmp):
     timeout = CALL_TIMEOUT_S
 
     target = "127.0.0.1:%d" % free_port()
+    db = os.path.join(tmp, "interop.db")
+    token = make_token(args.ogived, db, "interop")
     log = open(os.path.join(tmp, "ogived.log"), "w")
     server = subprocess.Popen(
-        [args.ogived, "--db", os.path.join(tmp, "interop.db"), "--listen", target,
+        [args.ogived, "--db", db, "--listen", target,
          "--sweep-interval-seconds", "0.2"],
         stdout=log, stderr=subprocess.STDOUT)
     try:
@@ -117,7 +148,15 @@ def run(args, tmp):
                 break
             time.sleep(0.1)
         check(health_status(channel) == 1, "health service does not answer SERVING")
-        stub = service_pb2_grpc.OgiveStub(channel)
+        try:
+            service_pb2_grpc.OgiveStub(channel).ListStudies(service_pb2.ListStudiesRequest(),
+                                                            timeout=timeout)
+            raise TestFailure("a call without a token was accepted")
+        except grpc.RpcError as e:
+            check(e.code() == grpc.StatusCode.UNAUTHENTICATED, "no token: %s" % e.code())
+            check("Bearer" in e.details(), "no token message: %s" % e.details())
+        stub = service_pb2_grpc.OgiveStub(
+            grpc.intercept_channel(channel, bearer_interceptor(grpc, token)))
 
         # CreateStudy: every parameter kind.
         design = study_pb2.StudyDesign(name="interop", seed=5, population_size=4,
@@ -197,7 +236,8 @@ def run(args, tmp):
         t1, t2, t3 = list(page.trials) + list(rest.trials)
         check(t1.state == study_pb2.TRIAL_STATE_REPORTED and t1.outcome.score == 4.5
               and t1.outcome.note == "from python"
-              and t1.use == study_pb2.OUTCOME_USE_PENDING, "trial 1 %s" % t1)
+              and t1.use == study_pb2.OUTCOME_USE_PENDING
+              and t1.reported_by == "interop", "trial 1 %s" % t1)
         check(t2.state == study_pb2.TRIAL_STATE_VOIDED and t2.outcome.WhichOneof("kind") == "void"
               and t2.outcome.note == "no run", "trial 2 %s" % t2)
         check(t3.state == study_pb2.TRIAL_STATE_LEASED and not t3.HasField("outcome"),

@@ -3,7 +3,8 @@
 #
 #   ogived_process_test.sh PATH/TO/ogived PATH/TO/ogive
 #
-# Checks that ogived refuses an unknown option and a file that is not a database (status 2). Starts
+# Checks that ogived refuses an unknown option and a file that is not a database (status 2). Makes an
+# admin token (`ogived token create`; every CLI call below sends it with --token-file), starts
 # ogived on a temporary database and a free loopback port, creates a study with the CLI, asks
 # and tells a few trials, and checks that the server's own sweeper lapses an expired lease. Then two
 # workers run ask/tell loops (one tells at once, one "evaluates" for a while between ask and tell)
@@ -48,7 +49,8 @@ fail() {
 }
 step() { echo "== $*"; }
 
-ogive() { timeout 30 "$OGIVE" --server "$SERVER" --timeout 5 "$@"; }
+TOKEN_FILE="$TMP/admin.token"
+ogive() { timeout 30 "$OGIVE" --server "$SERVER" --timeout 5 --token-file "$TOKEN_FILE" "$@"; }
 
 free_port() {
   "$PY" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0))
@@ -61,7 +63,7 @@ start_server() {
   "$OGIVED" --db "$DB" --listen "$SERVER" --sweep-interval-seconds 0.2 >>"$TMP/ogived.log" 2>&1 &
   OGIVED_PID=$!
   for _ in $(seq 100); do
-    if timeout 5 "$OGIVE" --server "$SERVER" --timeout 1 study list >/dev/null 2>&1; then
+    if timeout 5 "$OGIVE" --server "$SERVER" --timeout 1 --token-file "$TOKEN_FILE" study list >/dev/null 2>&1; then
       return 0
     fi
     kill -0 "$OGIVED_PID" 2>/dev/null || fail "ogived exited at start"
@@ -124,7 +126,9 @@ timeout 10 "$OGIVED" --db "$TMP/garbage.db" --listen "127.0.0.1:$(free_port)" >"
 grep -q "garbage.db" "$TMP/garbage.out" || fail "garbage database: $(cat "$TMP/garbage.out")"
 
 # ---- Start, create, a few trials ----
-step "start ogived"
+step "make an admin token and start ogived"
+timeout 30 "$OGIVED" token create --db "$DB" --role admin --label process-test >"$TOKEN_FILE" \
+  2>"$TMP/token.log" || fail "token create: $(cat "$TMP/token.log")"
 start_server
 cat >"$TMP/design.txtpb" <<'EOF'
 name: "process"

@@ -123,7 +123,13 @@ class LoopbackServer {
     store_ = *std::move(store);
     registry_ = std::make_unique<service::Registry>(store_.get(), limits_);
     if (absl::Status s = registry_->LoadAll(); !s.ok()) return s;
-    service_ = std::make_unique<service::OgiveService>(registry_.get(), [] { return absl::Now(); });
+    service::AuthOptions open;
+    open.require_tokens = false;  // as `ogived --no-auth`; auth_test checks tokens
+    absl::StatusOr<std::unique_ptr<service::Authorizer>> authorizer =
+        service::Authorizer::Create(nullptr, open, [] { return absl::Now(); });
+    if (!authorizer.ok()) return authorizer.status();
+    authorizer_ = *std::move(authorizer);
+    service_ = std::make_unique<service::OgiveService>(registry_.get(), authorizer_.get(), [] { return absl::Now(); });
     grpc::EnableDefaultHealthCheckService(true);
     grpc::ServerBuilder builder;
     port_ = 0;
@@ -145,6 +151,7 @@ class LoopbackServer {
     }
     server_.reset();
     service_.reset();
+    authorizer_.reset();
     registry_.reset();
     store_.reset();  // drains the writer
   }
@@ -167,6 +174,7 @@ class LoopbackServer {
   int port_ = 0;
   std::unique_ptr<storage::SqliteStore> store_;
   std::unique_ptr<service::Registry> registry_;
+  std::unique_ptr<service::Authorizer> authorizer_;
   std::unique_ptr<service::OgiveService> service_;
   std::unique_ptr<grpc::Server> server_;
 };

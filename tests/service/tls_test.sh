@@ -137,7 +137,7 @@ start() {
   local name=$1 port
   shift
   port=$(free_port)
-  "$OGIVED" --db "$TMP/$name.db" --listen "127.0.0.1:$port" "$@" >"$TMP/$name.log" 2>&1 &
+  "$OGIVED" --db "$TMP/$name.db" --listen "127.0.0.1:$port" --no-auth "$@" >"$TMP/$name.log" 2>&1 &
   PIDS+=($!)
   printf -v "ADDR_$name" '%s' "127.0.0.1:$port"
   for _ in $(seq 100); do

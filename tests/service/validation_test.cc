@@ -29,6 +29,7 @@
 #include "grpcpp/grpcpp.h"
 #include "gtest/gtest.h"
 #include "ogive/v1/service.pb.h"
+#include "server/service/authorizer.h"
 #include "server/service/grpc_service.h"
 #include "server/service/handlers.h"
 #include "server/service/limits.h"
@@ -562,7 +563,11 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
       {"watch: bad study",
        [](service::Registry& r) {
          // Refused before anything is written to the stream, so no writer is needed.
-         service::OgiveService service(&r, [] { return absl::Now(); });
+         service::AuthOptions open;
+         open.require_tokens = false;
+         std::unique_ptr<service::Authorizer> authorizer =
+             *service::Authorizer::Create(nullptr, open, [] { return absl::Now(); });
+         service::OgiveService service(&r, authorizer.get(), [] { return absl::Now(); });
          grpc::ServerContext context;
          v1::WatchRequest request;
          request.set_study(std::string(25, 'w'));
