@@ -1,10 +1,11 @@
 // ogived: the ogive server. Serves many studies over gRPC from one SQLite file.
 //
 //   ogived [--db PATH] [--listen ADDRESS] [--max-message-bytes N] [--sweep-interval-seconds S]
+//          [--read-only] ...
 //
 // On start it restores every stored study exactly. On SIGTERM or SIGINT it reports NOT_SERVING on the
-// health service, stops accepting calls, lets in-flight calls finish (their commits included) and
-// exits 0.
+// health service, refuses new calls (UNAVAILABLE), lets in-flight calls finish (their commits
+// included, for at most 10 s), closes its connections and exits 0.
 #include <signal.h>
 #include <unistd.h>
 
@@ -46,6 +47,8 @@ constexpr char kUsage[] =
     "  --max-reports-per-tell N    reports per Tell (default 1000)\n"
     "  --max-studies N             studies per server (default 10000)\n"
     "  --allow-insecure-remote     listen on a non-loopback address without TLS (plain text!)\n"
+    "  --read-only                 serve a database file that cannot be written: reads only,\n"
+    "                              every write is refused (FAILED_PRECONDITION), no lease sweeps\n"
     "  --help                      this text\n"
     "\n"
     "Candidates are suggestions: check them against your local safety rules before they drive\n"
@@ -56,6 +59,7 @@ struct Flags {
   std::string listen = "127.0.0.1:7075";
   double sweep_interval_seconds = 1.0;
   bool allow_insecure_remote = false;
+  bool read_only = false;
   ogive::service::ServiceLimits limits;
 };
 
@@ -74,6 +78,10 @@ Flags ParseFlags(int argc, char** argv) {
     }
     if (arg == "--allow-insecure-remote") {
       flags.allow_insecure_remote = true;
+      continue;
+    }
+    if (arg == "--read-only") {
+      flags.read_only = true;
       continue;
     }
     const size_t eq = arg.find('=');
@@ -135,12 +143,19 @@ int main(int argc, char** argv) {
   absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
   using ogive::service::LogLine;
 
+  ogive::storage::SqliteStore::Options store_options;
+  store_options.read_only = flags.read_only;
   absl::StatusOr<std::unique_ptr<ogive::storage::SqliteStore>> store =
-      ogive::storage::SqliteStore::Open(flags.db, ogive::storage::SqliteStore::Options());
-  if (!store.ok()) Fail(absl::StrCat("cannot open database '", flags.db, "': ", store.status().message()));
+      ogive::storage::SqliteStore::Open(flags.db, store_options);
+  if (!store.ok()) {
+    const bool not_writable = !flags.read_only && store.status().message().find("not writable") != std::string::npos;
+    Fail(absl::StrCat("cannot open database '", flags.db, "': ", store.status().message(),
+                      not_writable ? " (ogived --read-only serves it for reading)" : ""));
+  }
   ogive::service::Registry registry(store->get(), flags.limits);
   if (absl::Status s = registry.LoadAll(); !s.ok()) Fail(absl::StrCat("cannot restore studies: ", s.message()));
-  LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry.All().size())}});
+  LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry.All().size())},
+           {"mode", flags.read_only ? "read-only" : "read-write"}});
 
   ogive::service::OgiveService service(&registry, [] { return absl::Now(); });
   grpc::EnableDefaultHealthCheckService(true);
@@ -171,6 +186,7 @@ int main(int argc, char** argv) {
 
   absl::Notification stop_sweeping;
   std::thread sweeper([&] {
+    if (flags.read_only) return;  // lapses are writes
     while (!stop_sweeping.WaitForNotificationWithTimeout(absl::Seconds(flags.sweep_interval_seconds))) {
       for (const auto& host : registry.All()) {
         absl::StatusOr<int> lapsed = host->Sweep(absl::Now());
@@ -190,7 +206,11 @@ int main(int argc, char** argv) {
   LogLine({{"event", "draining"}});
   server->GetHealthCheckService()->SetServingStatus(false);
   service.StopWatches();
-  server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(10));
+  // Let the calls in flight finish (their commits included) while new ones are refused, then close
+  // every connection: gRPC's own shutdown would also wait, up to its deadline, for idle clients to
+  // close theirs, and a blocking client that is not in a call notices only every few seconds.
+  if (!service.Drain(absl::Seconds(10))) LogLine({{"event", "draining"}, {"detail", "calls still running after 10 s are cancelled"}});
+  server->Shutdown(std::chrono::system_clock::now() + std::chrono::milliseconds(200));
   stop_sweeping.Notify();
   sweeper.join();
   store->reset();  // drains the writer: every acknowledged write is committed

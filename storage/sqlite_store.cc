@@ -63,7 +63,7 @@ bool Parse(absl::string_view bytes, google::protobuf::MessageLite& message) {
 
 absl::Status ReadOnlyError(const std::string& path) {
   return absl::FailedPreconditionError(
-      absl::StrCat("store on '", path, "' was opened read-only; it takes no writes"));
+      absl::StrCat("database '", path, "' is open read-only; it takes no writes"));
 }
 
 // Sets up one connection and reads every setting back: a setting SQLite silently ignored would

@@ -7,6 +7,7 @@
 #include <memory>
 #include <utility>
 
+#include "absl/time/clock.h"
 #include "server/base/check.h"
 
 namespace ogive::testing {
@@ -193,7 +194,7 @@ FaultVfs& FaultVfs::Get(const std::string& name) {
 FaultVfs::FaultVfs(std::string name) : name_(std::move(name)) {}
 
 void FaultVfs::Arm(const FaultRule& rule) {
-  OGIVE_CHECK(rule.error != SQLITE_OK && rule.after >= 0 &&
+  OGIVE_CHECK((rule.error != SQLITE_OK || rule.delay > absl::ZeroDuration()) && rule.after >= 0 &&
               (rule.times >= 0 || rule.times == FaultRule::kForever));
   absl::MutexLock lock(&mu_);
   armed_ = true;
@@ -223,13 +224,19 @@ int64_t FaultVfs::calls(FaultOp op, FaultFile file) const {
 
 int FaultVfs::Decide(FaultOp op, FaultFile file) {
   calls_[static_cast<int>(op)][FileIndex(file)].fetch_add(1);
-  absl::MutexLock lock(&mu_);
-  if (!armed_ || rule_.op != op || (rule_.file != FaultFile::kAny && rule_.file != file)) return 0;
-  ++matched_;
-  if (matched_ <= rule_.after) return 0;
-  if (rule_.times != FaultRule::kForever && matched_ > rule_.after + rule_.times) return 0;
-  ++injected_;
-  return rule_.error;
+  absl::Duration delay;
+  {
+    absl::MutexLock lock(&mu_);
+    if (!armed_ || rule_.op != op || (rule_.file != FaultFile::kAny && rule_.file != file)) return 0;
+    ++matched_;
+    if (matched_ <= rule_.after) return 0;
+    if (rule_.times != FaultRule::kForever && matched_ > rule_.after + rule_.times) return 0;
+    ++injected_;
+    if (rule_.error != 0) return rule_.error;
+    delay = rule_.delay;
+  }
+  absl::SleepFor(delay);  // outside the lock: other files go on meanwhile
+  return 0;
 }
 
 }  // namespace ogive::testing

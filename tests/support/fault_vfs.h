@@ -19,6 +19,7 @@
 
 #include "absl/base/thread_annotations.h"
 #include "absl/synchronization/mutex.h"
+#include "absl/time/time.h"
 
 namespace ogive::testing {
 
@@ -29,14 +30,16 @@ enum class FaultOp { kWrite, kSync, kTruncate };
 enum class FaultFile { kAny, kMainDb, kWal };
 
 // Fails calls number after+1 .. after+times among the calls that match `op` and `file` (counted
-// from the moment the rule is armed), returning `error` without touching the file.
+// from the moment the rule is armed), returning `error` without touching the file; or, with error
+// 0, holds each of them for `delay` and then makes it (a slow disk).
 struct FaultRule {
   static constexpr int64_t kForever = -1;
   FaultOp op = FaultOp::kWrite;
   FaultFile file = FaultFile::kWal;
   int64_t after = 0;   // matching calls let through before the first failure, >= 0
   int64_t times = 1;   // failures, then the rule lets everything through; kForever: until Clear()
-  int error = 0;       // an SQLite result code, e.g. SQLITE_IOERR_WRITE; not SQLITE_OK
+  int error = 0;       // an SQLite result code, e.g. SQLITE_IOERR_WRITE; 0 for a delay
+  absl::Duration delay = absl::ZeroDuration();  // when error is 0; > 0
 };
 
 class FaultVfs {
@@ -57,14 +60,15 @@ class FaultVfs {
 
   // Calls that matched the armed rule since it was armed (failed ones included).
   int64_t matched() const;
-  // Calls the armed rule failed since it was armed.
+  // Calls the armed rule failed (or held) since it was armed.
   int64_t injected() const;
   // Every call of `op` on `file` made through this VFS since the process started (for sizing a
   // rule: how many log writes one commit makes).
   int64_t calls(FaultOp op, FaultFile file) const;
 
   // Consulted by the file methods: the result code to return instead of making a call of `op` on
-  // a file of role `file` (never kAny), or 0 to make it. Counts the call.
+  // a file of role `file` (never kAny), or 0 to make it (after the rule's delay, if any). Counts
+  // the call.
   int Decide(FaultOp op, FaultFile file);
 
  private:

@@ -178,6 +178,8 @@ std::unique_ptr<client::Client> OgivedProcess::NewClient(client::ClientOptions o
       std::move(options));
 }
 
+std::vector<std::string> OgivedProcess::CliFlags() const { return {"--server", target_}; }
+
 std::string OgivedProcess::LogTail(int lines) const {
   std::ifstream in(options_.log_path);
   std::stringstream all;

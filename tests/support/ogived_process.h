@@ -71,6 +71,9 @@ class OgivedProcess {
   std::unique_ptr<client::Client> NewClient(client::ClientOptions options) const;
   std::unique_ptr<client::Client> NewClient() const { return NewClient(ClientOptions()); }
 
+  // The global flags that point the `ogive` command at this server.
+  std::vector<std::string> CliFlags() const;
+
   // The last `lines` lines of the log, for failure messages.
   std::string LogTail(int lines = 40) const;
 
