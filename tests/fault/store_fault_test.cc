@@ -282,6 +282,55 @@ INSTANTIATE_TEST_SUITE_P(
                               "disk I/O error", true}),
     [](const ::testing::TestParamInfo<Failure>& param) { return std::string(param.param.name); });
 
+// A commit whose fsync failed leaves its frames in the log; the next commit writes over them. After
+// a crash right after that next commit, the file holds it and nothing of the failed one, even when
+// the failed one was longer (its tail no longer chains onto the log's checksums).
+TEST_F(StoreFaultFixture, TheCommitAfterAFailedFsyncReplacesItInTheLog) {
+  FaultVfs& vfs = FaultVfs::Get(kVfs);
+  int64_t id = 0;
+  {
+    std::unique_ptr<SqliteStore> store = Open();
+    ASSERT_NE(store, nullptr);
+    absl::StatusOr<int64_t> created = store->CreateStudy("kiln", Design(), Engine(1), "create-1");
+    ASSERT_TRUE(created.ok()) << created.status();
+    id = *created;
+  }
+  int points = 0;
+  for (int64_t k = 0, n = 1;; ++k, ++n) {
+    SCOPED_TRACE(absl::StrCat("fsync ", k + 1, ", write ", n));
+    std::fflush(nullptr);
+    const pid_t child = fork();
+    if (child == 0) {
+      SqliteStoreOptions options;
+      options.vfs = vfs.name();
+      absl::StatusOr<std::unique_ptr<SqliteStore>> store = SqliteStore::Open(path_, options);
+      if (!store.ok()) _exit(2);
+      vfs.Arm({FaultOp::kSync, FaultFile::kWal, k, 1, SQLITE_IOERR_FSYNC});
+      // A long record (several pages), then the same write short.
+      const absl::Status failed = (*store)->Commit(WriteNumber(id, n, 3000));
+      if (failed.ok()) _exit(1);  // the commit made no more than k fsyncs
+      vfs.Clear();
+      _exit((*store)->Commit(WriteNumber(id, n, 2)).ok() ? 0 : 3);  // then die at once
+    }
+    int wstatus = 0;
+    ASSERT_EQ(waitpid(child, &wstatus, 0), child);
+    ASSERT_TRUE(WIFEXITED(wstatus));
+    std::unique_ptr<SqliteStore> store = Open();
+    ASSERT_NE(store, nullptr);
+    EXPECT_TRUE(store->CheckIntegrity().ok());
+    absl::StatusOr<StoredStudy> study = store->LoadStudy(id);
+    ASSERT_TRUE(study.ok()) << study.status();
+    ASSERT_EQ(study->snapshot.trials_size(), n);
+    if (WEXITSTATUS(wstatus) == 1) break;  // stored long: every fsync point is covered
+    ASSERT_EQ(WEXITSTATUS(wstatus), 0);
+    ++points;
+    EXPECT_EQ(study->snapshot.trials(static_cast<int>(n - 1)).internal_size(), 2)
+        << "the failed commit's record came back";
+    EXPECT_EQ(PartsOf(*store, id, n), 4);
+  }
+  EXPECT_GE(points, 1);
+}
+
 // A checkpoint copies the log into the main file after a commit; when it cannot write the main
 // file, the commits before it are still durable in the log and must be acknowledged as such.
 TEST_F(StoreFaultFixture, AFailingCheckpointDoesNotFailTheCommitsItFollows) {
