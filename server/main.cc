@@ -148,7 +148,8 @@ int main(int argc, char** argv) {
   absl::StatusOr<std::unique_ptr<ogive::storage::SqliteStore>> store =
       ogive::storage::SqliteStore::Open(flags.db, store_options);
   if (!store.ok()) {
-    const bool not_writable = !flags.read_only && store.status().message().find("not writable") != std::string::npos;
+    const bool not_writable =
+        !flags.read_only && store.status().message().find("not writable") != std::string::npos;
     Fail(absl::StrCat("cannot open database '", flags.db, "': ", store.status().message(),
                       not_writable ? " (ogived --read-only serves it for reading)" : ""));
   }

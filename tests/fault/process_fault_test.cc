@@ -5,7 +5,9 @@
 // - a full disk, for real (a small tmpfs filled up; skipped where mounting is not allowed — the
 //   same path beneath SQLite is covered by commit_failure_test): writes fail with UNAVAILABLE naming
 //   the database, reads go on, a killed server restarts and serves reads, and writes work again
-//   once space is freed; the file passes integrity_check throughout;
+//   once space is freed; the file passes integrity_check throughout. A tmpfs rather than SQLite's
+//   PRAGMA max_page_count: the kernel's ENOSPC then reaches SQLite's unix VFS as on a real disk
+//   (max_page_count would only exercise a page-count check SQLite makes before any I/O);
 // - a database file ogived may not write (run as uid 65534 on a root-owned file): a clear refusal
 //   to start; with --read-only it serves reads and refuses writes; the file is left unchanged.
 //
@@ -130,7 +132,8 @@ StoredStudyState CheckFile(const std::string& db, const std::string& study,
   EXPECT_TRUE(inspector.ok()) << inspector.status();
   if (!inspector.ok()) return {};
   absl::StatusOr<std::string> integrity = inspector->IntegrityCheck();
-  EXPECT_TRUE(integrity.ok() && *integrity == "ok") << (integrity.ok() ? *integrity : integrity.status().ToString());
+  EXPECT_TRUE(integrity.ok() && *integrity == "ok")
+      << (integrity.ok() ? *integrity : integrity.status().ToString());
   absl::StatusOr<StoredStudyState> stored = inspector->ReadStudy(study);
   EXPECT_TRUE(stored.ok()) << stored.status();
   if (!stored.ok()) return {};
