@@ -210,7 +210,9 @@ int main(int argc, char** argv) {
   // Let the calls in flight finish (their commits included) while new ones are refused, then close
   // every connection: gRPC's own shutdown would also wait, up to its deadline, for idle clients to
   // close theirs, and a blocking client that is not in a call notices only every few seconds.
-  if (!service.Drain(absl::Seconds(10))) LogLine({{"event", "draining"}, {"detail", "calls still running after 10 s are cancelled"}});
+  if (!service.Drain(absl::Seconds(10))) {
+    LogLine({{"event", "draining"}, {"detail", "calls still running after 10 s are cancelled"}});
+  }
   server->Shutdown(std::chrono::system_clock::now() + std::chrono::milliseconds(200));
   stop_sweeping.Notify();
   sweeper.join();

@@ -4,7 +4,6 @@
 
 #include <cstddef>
 #include <map>
-#include <memory>
 #include <utility>
 
 #include "absl/time/clock.h"
