@@ -67,7 +67,12 @@ absl::Status Client::Call(grpc::Status (v1::Ogive::Stub::*method)(grpc::ClientCo
     last = FromGrpc(((*stub_).*method)(&context, request, response));
     if (last.code() != absl::StatusCode::kUnavailable) return last;
     if (attempt < options_.max_attempts) {
-      absl::SleepFor(backoff);
+      // Wait out the backoff while the channel reconnects. A blocking client whose calls fail at
+      // once polls its connection only every 5 s (gRPC's backup poller), so without this a
+      // restarted server is found seconds late.
+      const absl::Time until = absl::Now() + backoff;
+      channel_->WaitForConnected(absl::ToChronoTime(until));
+      absl::SleepFor(until - absl::Now());
       backoff = std::min(2 * backoff, options_.max_backoff);
     }
   }

@@ -1,7 +1,8 @@
 // Client: a typed C++ client of the ogive service for workers, tools and tests.
 //
 // Every call has a deadline (ClientOptions::call_timeout). Calls that fail with UNAVAILABLE — the only
-// code worth retrying — are retried with exponential backoff up to ClientOptions::max_attempts; writes
+// code worth retrying — are retried with exponential backoff up to ClientOptions::max_attempts (the
+// channel reconnects during the backoff, so a restarted server is found at once); writes
 // are safe to retry: Ask carries a request id chosen once per call, Tell and Renew are idempotent by
 // trial number (the same outcome twice is accepted once).
 //

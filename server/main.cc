@@ -1,7 +1,7 @@
 // ogived: the ogive server. Serves many studies over gRPC from one SQLite file.
 //
 //   ogived [--db PATH] [--listen ADDRESS] [--tls-cert PEM --tls-key PEM [--tls-client-ca PEM]]
-//          [--max-... N] [--sweep-interval-seconds S]   (see --help)
+//          [--max-... N] [--sweep-interval-seconds S] [--read-only]   (see --help)
 //   ogived token create|list|revoke --db PATH ...   (token_command.h)
 //
 // Every call needs a bearer token of the right role (authorizer.h) unless started with --no-auth,
@@ -9,8 +9,8 @@
 // reflection is off unless --reflection is given.
 //
 // On start it restores every stored study exactly. On SIGTERM or SIGINT it reports NOT_SERVING on the
-// health service, stops accepting calls, lets in-flight calls finish (their commits included) and
-// exits 0.
+// health service, refuses new calls (UNAVAILABLE), lets in-flight calls finish (their commits
+// included, for at most 10 s), closes its connections and exits 0.
 #include <signal.h>
 #include <unistd.h>
 
@@ -67,6 +67,8 @@ constexpr char kUsage[] =
     "                              development): no roles, no audit labels, no rate limit\n"
     "  --reflection                serve gRPC server reflection (open to anyone who can connect;\n"
     "                              it shows the service's schema, no data)\n"
+    "  --read-only                 serve a database file that cannot be written: reads only,\n"
+    "                              every write is refused (FAILED_PRECONDITION), no lease sweeps\n"
     "  --help                      this text\n"
     "\n"
     "Without --tls-cert ogived listens on loopback addresses only, unless --allow-insecure-remote.\n"
@@ -87,6 +89,7 @@ struct Flags {
   std::string listen = "127.0.0.1:7075";
   double sweep_interval_seconds = 1.0;
   ogive::service::TransportFlags transport;
+  bool read_only = false;
   ogive::service::ServiceLimits limits;
   bool no_auth = false;
   bool reflection = false;
@@ -116,6 +119,10 @@ Flags ParseFlags(int argc, char** argv) {
     }
     if (arg == "--reflection") {
       flags.reflection = true;
+      continue;
+    }
+    if (arg == "--read-only") {
+      flags.read_only = true;
       continue;
     }
     const size_t eq = arg.find('=');
@@ -181,12 +188,20 @@ int main(int argc, char** argv) {
   absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
   using ogive::service::LogLine;
 
+  ogive::storage::SqliteStore::Options store_options;
+  store_options.read_only = flags.read_only;
   absl::StatusOr<std::unique_ptr<ogive::storage::SqliteStore>> store =
-      ogive::storage::SqliteStore::Open(flags.db, ogive::storage::SqliteStore::Options());
-  if (!store.ok()) Fail(absl::StrCat("cannot open database '", flags.db, "': ", store.status().message()));
+      ogive::storage::SqliteStore::Open(flags.db, store_options);
+  if (!store.ok()) {
+    const bool not_writable =
+        !flags.read_only && store.status().message().find("not writable") != std::string::npos;
+    Fail(absl::StrCat("cannot open database '", flags.db, "': ", store.status().message(),
+                      not_writable ? " (ogived --read-only serves it for reading)" : ""));
+  }
   ogive::service::Registry registry(store->get(), flags.limits);
   if (absl::Status s = registry.LoadAll(); !s.ok()) Fail(absl::StrCat("cannot restore studies: ", s.message()));
-  LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry.All().size())}});
+  LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry.All().size())},
+           {"mode", flags.read_only ? "read-only" : "read-write"}});
 
   absl::StatusOr<std::unique_ptr<ogive::service::Authorizer>> authorizer =
       ogive::service::Authorizer::Create(store->get(), flags.auth, [] { return absl::Now(); });
@@ -251,6 +266,7 @@ int main(int argc, char** argv) {
 
   absl::Notification stop_sweeping;
   std::thread sweeper([&] {
+    if (flags.read_only) return;  // lapses are writes
     while (!stop_sweeping.WaitForNotificationWithTimeout(absl::Seconds(flags.sweep_interval_seconds))) {
       for (const auto& host : registry.All()) {
         absl::StatusOr<int> lapsed = host->Sweep(absl::Now());
@@ -270,7 +286,13 @@ int main(int argc, char** argv) {
   LogLine({{"event", "draining"}});
   server->GetHealthCheckService()->SetServingStatus(false);
   service.StopWatches();
-  server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(10));
+  // Let the calls in flight finish (their commits included) while new ones are refused, then close
+  // every connection: gRPC's own shutdown would also wait, up to its deadline, for idle clients to
+  // close theirs, and a blocking client that is not in a call notices only every few seconds.
+  if (!service.Drain(absl::Seconds(10))) {
+    LogLine({{"event", "draining"}, {"detail", "calls still running after 10 s are cancelled"}});
+  }
+  server->Shutdown(std::chrono::system_clock::now() + std::chrono::milliseconds(200));
   stop_sweeping.Notify();
   sweeper.join();
   if (admin_socket.ok()) {

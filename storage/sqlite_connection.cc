@@ -115,12 +115,13 @@ void Statement::Reset() {
 }
 
 absl::StatusOr<std::unique_ptr<Connection>> Connection::Open(const std::string& path,
-                                                             bool read_only, int busy_timeout_ms) {
+                                                             bool read_only, int busy_timeout_ms,
+                                                             const std::string& vfs) {
   const int flags =
       (read_only ? SQLITE_OPEN_READONLY : SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE) |
       SQLITE_OPEN_NOMUTEX;
   sqlite3* db = nullptr;
-  const int rc = sqlite3_open_v2(path.c_str(), &db, flags, nullptr);
+  const int rc = sqlite3_open_v2(path.c_str(), &db, flags, vfs.empty() ? nullptr : vfs.c_str());
   if (rc != SQLITE_OK) {
     absl::Status status = SqliteStatus(rc, db, absl::StrCat("open '", path, "'"));
     sqlite3_close_v2(db);  // a handle is usually allocated even when opening fails

@@ -96,10 +96,12 @@ class ResetOnExit {
 // One SQLite connection and the statements prepared on it (finalized before the connection closes).
 class Connection {
  public:
-  // Opens `path` read-write (created if missing) or, with read_only, SQLITE_OPEN_READONLY. Sets the
-  // busy timeout and turns on extended result codes. Errors are mapped by SqliteStatus().
+  // Opens `path` read-write (created if missing) or, with read_only, SQLITE_OPEN_READONLY, through
+  // the VFS named `vfs` (empty: SQLite's default). Sets the busy timeout and turns on extended
+  // result codes. Errors are mapped by SqliteStatus().
   static absl::StatusOr<std::unique_ptr<Connection>> Open(const std::string& path, bool read_only,
-                                                          int busy_timeout_ms);
+                                                          int busy_timeout_ms,
+                                                          const std::string& vfs = "");
   ~Connection();
   Connection(const Connection&) = delete;
   Connection& operator=(const Connection&) = delete;

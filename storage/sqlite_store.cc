@@ -63,7 +63,7 @@ bool Parse(absl::string_view bytes, google::protobuf::MessageLite& message) {
 
 absl::Status ReadOnlyError(const std::string& path) {
   return absl::FailedPreconditionError(
-      absl::StrCat("store on '", path, "' was opened read-only; it takes no writes"));
+      absl::StrCat("database '", path, "' is open read-only; it takes no writes"));
 }
 
 // Sets up one connection and reads every setting back: a setting SQLite silently ignored would
@@ -150,6 +150,10 @@ absl::Status SqliteStoreOptions::Validate() const {
   if (reader_connections < 1) {
     return absl::InvalidArgumentError(
         absl::StrCat("reader_connections: must be >= 1, got ", reader_connections));
+  }
+  if (!vfs.empty() && sqlite3_vfs_find(vfs.c_str()) == nullptr) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("vfs: no sqlite3 VFS is registered as '", vfs, "'"));
   }
   return absl::OkStatus();
 }
@@ -356,6 +360,19 @@ struct SqliteStore::Job {
   absl::Notification done;
 };
 
+absl::Status SqliteStore::NameTheFile(absl::Status status) const {
+  switch (status.code()) {
+    case absl::StatusCode::kUnavailable:
+    case absl::StatusCode::kDataLoss:
+    case absl::StatusCode::kInternal:
+      break;
+    default:
+      return status;  // about the write itself (refused, not found, taken), not about the file
+  }
+  return absl::Status(status.code(),
+                      absl::StrCat("database '", path_, "': ", status.message()));
+}
+
 // ---- Open and close ----
 
 SqliteStore::SqliteStore(std::string path, Options options)
@@ -372,7 +389,7 @@ absl::StatusOr<std::unique_ptr<SqliteStore>> SqliteStore::Open(const std::string
 
   if (!options.read_only) {
     absl::StatusOr<std::unique_ptr<Connection>> writer =
-        Connection::Open(path, /*read_only=*/false, options.busy_timeout_ms);
+        Connection::Open(path, /*read_only=*/false, options.busy_timeout_ms, options.vfs);
     if (!writer.ok()) return writer.status();
     store->writer_ = *std::move(writer);
     if (store->writer_->ReadOnly()) {
@@ -405,7 +422,7 @@ absl::StatusOr<std::unique_ptr<SqliteStore>> SqliteStore::Open(const std::string
     auto reader = std::make_unique<Reader>();
     reader->index = i;
     absl::StatusOr<std::unique_ptr<Connection>> connection =
-        Connection::Open(path, /*read_only=*/true, options.busy_timeout_ms);
+        Connection::Open(path, /*read_only=*/true, options.busy_timeout_ms, options.vfs);
     if (!connection.ok()) return connection.status();
     reader->connection = *std::move(connection);
     if (i == 0 && options.read_only) {
@@ -605,6 +622,7 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
       if (!job->status.ok() && job->write->chain != 0) {
         broken_chains_.insert({job->write->study_id, job->write->chain});
       }
+      job->status = NameTheFile(std::move(job->status));
       if (job->status.ok()) {
         ++committed;
       } else {

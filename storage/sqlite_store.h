@@ -60,6 +60,9 @@ struct SqliteStoreOptions {
   // Opens the file for reading only (inspection, backups, a file that is not writable): no writer
   // connection and no migration; Commit and CreateStudy fail with FAILED_PRECONDITION.
   bool read_only = false;
+  // The sqlite3 VFS every connection opens the files with, by its registered name; empty for
+  // SQLite's default. Tests pass a fault-injecting VFS here (tests/support/fault_vfs.h).
+  std::string vfs;
 
   // INVALID_ARGUMENT naming the field, its value and the rule when a value is out of range.
   absl::Status Validate() const;
@@ -163,6 +166,9 @@ class SqliteStore final : public Store {
   bool Enqueue(Job& job);
   void WriterLoop();
   void RunBatch(const std::vector<Job*>& batch);
+  // `status` with the database file named in its message when it is about the file (UNAVAILABLE,
+  // DATA_LOSS, INTERNAL): an operator reading a client's error must know which file failed.
+  absl::Status NameTheFile(absl::Status status) const;
   // Applies one write inside the open transaction (the caller wraps it in a savepoint).
   absl::Status Apply(const EncodedWrite& write, int64_t& created_id);
   // Applies a token write; sets `revoked` as Job::created_id documents.

@@ -659,8 +659,10 @@ TEST_F(SqliteStoreTest, LockedDatabaseIsUnavailableAndReadsKeepWorking) {
   write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED)};
   {
     WriteLockHolder lock(path_);
+    // The message names the file, for the operator who reads it on a client.
     EXPECT_THAT(store->Commit(write),
-                StatusIs(absl::StatusCode::kUnavailable, HasSubstr("locked")));
+                StatusIs(absl::StatusCode::kUnavailable,
+                         testing::AllOf(HasSubstr("locked"), HasSubstr(path_))));
     EXPECT_THAT(store->CreateStudy("beta", MakeDesign("beta"), MakeEngine(0.0), "r"),
                 StatusIs(absl::StatusCode::kUnavailable, HasSubstr("write transaction")));
     // Reads do not wait for a writer.

@@ -3,7 +3,11 @@
 // (protobuf messages of study.proto) but none of the math.
 //
 // Durability contract: when Commit() or CreateStudy() returns OK, the data is on disk (the
-// transaction committed with synchronous=FULL). A write either commits whole or not at all.
+// transaction committed with synchronous=FULL). A write either commits whole or not at all; a
+// failed write is not stored, with one exception: when the fsync of its commit failed and the
+// process dies before the next commit, a restart may find it stored, whole (SQLite finds the
+// complete transaction in its log). Callers treat that as a reply that was lost: every write of
+// the service is safe to retry.
 // Implementations are thread-safe: any thread may call any method; writes are serialized
 // internally, reads do not wait for writes of other studies.
 #ifndef OGIVE_STORAGE_STORE_H_
@@ -100,8 +104,8 @@ class Store {
 
   // Commits one study write. Many concurrent Commit() calls share one transaction and one fsync
   // (group commit); each returns only after the transaction holding its write committed. On error
-  // nothing of this write is stored: UNAVAILABLE when the database is busy or the disk failed (the
-  // caller may retry), INVALID_ARGUMENT if the write holds a NaN or infinity where a number is
+  // nothing of this write is stored (see the top of this file): UNAVAILABLE, naming the database
+  // file, when it is locked by another program, the disk failed or is full (the caller may retry), INVALID_ARGUMENT if the write holds a NaN or infinity where a number is
   // stored in a column (SQLite would store NaN as NULL), NOT_FOUND for an unknown study id.
   virtual absl::Status Commit(StudyWrite write) { return CommitAsync(std::move(write))->Wait(); }
 

@@ -36,6 +36,38 @@ grpc::Status FinishRead(const char* method, const std::string& study, const Call
 
 }  // namespace
 
+class OgiveService::CallScope {
+ public:
+  explicit CallScope(OgiveService* service) : service_(service) {
+    absl::MutexLock lock(&service_->calls_mu_);
+    admitted_ = !service_->draining_;
+    if (admitted_) ++service_->calls_in_flight_;
+  }
+  ~CallScope() {
+    if (!admitted_) return;
+    absl::MutexLock lock(&service_->calls_mu_);
+    --service_->calls_in_flight_;
+  }
+  CallScope(const CallScope&) = delete;
+  CallScope& operator=(const CallScope&) = delete;
+
+  bool admitted() const { return admitted_; }
+  static grpc::Status Refusal() {
+    return grpc::Status(grpc::StatusCode::UNAVAILABLE, "ogived is stopping; retry the call");
+  }
+
+ private:
+  OgiveService* const service_;
+  bool admitted_ = false;
+};
+
+bool OgiveService::Drain(absl::Duration timeout) {
+  absl::MutexLock lock(&calls_mu_);
+  draining_ = true;
+  auto idle = [this]() ABSL_EXCLUSIVE_LOCKS_REQUIRED(calls_mu_) { return calls_in_flight_ == 0; };
+  return calls_mu_.AwaitWithTimeout(absl::Condition(&idle), timeout);
+}
+
 grpc::Status ToGrpc(const absl::Status& status) {
   if (status.ok()) return grpc::Status::OK;
   return grpc::Status(static_cast<grpc::StatusCode>(status.code()), std::string(status.message()));
@@ -58,6 +90,8 @@ absl::StatusOr<Caller> OgiveService::Authorize(const grpc::ServerContextBase& co
 
 grpc::Status OgiveService::CreateStudy(grpc::ServerContext* context, const v1::CreateStudyRequest* request,
                                        v1::StudyView* response) {
+  CallScope scope(this);
+  if (!scope.admitted()) return CallScope::Refusal();
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kCreateStudy, request->design().name());
   if (!caller.ok()) return ToGrpc(caller.status());
   return Finish("create", request->design().name(), "", *caller, service::CreateStudy(*registry_, *request),
@@ -66,6 +100,8 @@ grpc::Status OgiveService::CreateStudy(grpc::ServerContext* context, const v1::C
 
 grpc::Status OgiveService::GetStudy(grpc::ServerContext* context, const v1::GetStudyRequest* request,
                                     v1::StudyView* response) {
+  CallScope scope(this);
+  if (!scope.admitted()) return CallScope::Refusal();
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kGetStudy, request->study());
   if (!caller.ok()) return ToGrpc(caller.status());
   return FinishRead("get", request->study(), *caller, service::GetStudy(*registry_, *request), response);
@@ -73,6 +109,8 @@ grpc::Status OgiveService::GetStudy(grpc::ServerContext* context, const v1::GetS
 
 grpc::Status OgiveService::ListStudies(grpc::ServerContext* context, const v1::ListStudiesRequest* request,
                                        v1::ListStudiesResponse* response) {
+  CallScope scope(this);
+  if (!scope.admitted()) return CallScope::Refusal();
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kListStudies, "");
   if (!caller.ok()) return ToGrpc(caller.status());
   return FinishRead("list_studies", "", *caller, service::ListStudies(*registry_, *request, caller->studies),
@@ -82,6 +120,12 @@ grpc::Status OgiveService::ListStudies(grpc::ServerContext* context, const v1::L
 grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context, const v1::AskRequest* request,
                                              v1::AskResponse* response) {
   grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
+  // Counted in flight until the reactor finishes (the reply continuation owns the scope).
+  auto scope = std::make_unique<CallScope>(this);
+  if (!scope->admitted()) {
+    reactor->Finish(CallScope::Refusal());
+    return reactor;
+  }
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kAsk, request->study());
   if (!caller.ok()) {
     reactor->Finish(ToGrpc(caller.status()));
@@ -89,7 +133,8 @@ grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context
   }
   // `request` and `response` stay valid until the reactor finishes.
   service::Ask(*registry_, *request, clock_(), caller->label,
-               [reactor, request, response, who = *caller](absl::StatusOr<v1::AskResponse> result) {
+               [reactor, request, response, who = *caller,
+                scope = std::move(scope)](absl::StatusOr<v1::AskResponse> result) {
                  std::string trials;
                  if (result.ok()) {
                    for (const v1::Trial& t : result->trials()) {
@@ -105,13 +150,19 @@ grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context
 grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* context, const v1::TellRequest* request,
                                               v1::TellResponse* response) {
   grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
+  auto scope = std::make_unique<CallScope>(this);
+  if (!scope->admitted()) {
+    reactor->Finish(CallScope::Refusal());
+    return reactor;
+  }
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kTell, request->study());
   if (!caller.ok()) {
     reactor->Finish(ToGrpc(caller.status()));
     return reactor;
   }
   service::Tell(*registry_, *request, clock_(), caller->label,
-                [reactor, request, response, who = *caller](absl::StatusOr<v1::TellResponse> result) {
+                [reactor, request, response, who = *caller,
+                 scope = std::move(scope)](absl::StatusOr<v1::TellResponse> result) {
                   std::string detail;
                   if (result.ok()) {
                     for (const v1::ReportResult& r : result->results()) {
@@ -128,6 +179,8 @@ grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* contex
 
 grpc::Status OgiveService::Renew(grpc::ServerContext* context, const v1::RenewRequest* request,
                                  v1::RenewResponse* response) {
+  CallScope scope(this);
+  if (!scope.admitted()) return CallScope::Refusal();
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kRenew, request->study());
   if (!caller.ok()) return ToGrpc(caller.status());
   return Finish("renew", request->study(), request->worker(), *caller,
@@ -136,6 +189,8 @@ grpc::Status OgiveService::Renew(grpc::ServerContext* context, const v1::RenewRe
 
 grpc::Status OgiveService::ListTrials(grpc::ServerContext* context, const v1::ListTrialsRequest* request,
                                       v1::ListTrialsResponse* response) {
+  CallScope scope(this);
+  if (!scope.admitted()) return CallScope::Refusal();
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kListTrials, request->study());
   if (!caller.ok()) return ToGrpc(caller.status());
   return FinishRead("list_trials", request->study(), *caller, service::ListTrials(*registry_, *request), response);
@@ -143,6 +198,8 @@ grpc::Status OgiveService::ListTrials(grpc::ServerContext* context, const v1::Li
 
 grpc::Status OgiveService::SetPhase(grpc::ServerContext* context, const v1::SetPhaseRequest* request,
                                     v1::StudyView* response) {
+  CallScope scope(this);
+  if (!scope.admitted()) return CallScope::Refusal();
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kSetPhase, request->study());
   if (!caller.ok()) return ToGrpc(caller.status());
   return Finish("set_phase", request->study(), "", *caller,
@@ -152,6 +209,8 @@ grpc::Status OgiveService::SetPhase(grpc::ServerContext* context, const v1::SetP
 
 grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRequest* request,
                                  grpc::ServerWriter<v1::StudyView>* writer) {
+  CallScope scope(this);
+  if (!scope.admitted()) return CallScope::Refusal();
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kWatch, request->study());
   if (!caller.ok()) return ToGrpc(caller.status());
   if (absl::Status s = ValidateWatch(*request, registry_->limits()); !s.ok()) return ToGrpc(s);

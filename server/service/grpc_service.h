@@ -14,7 +14,9 @@
 #include <functional>
 #include <string>
 
+#include "absl/base/thread_annotations.h"
 #include "absl/status/statusor.h"
+#include "absl/synchronization/mutex.h"
 #include "absl/time/time.h"
 #include "grpcpp/grpcpp.h"
 #include "ogive/v1/service.grpc.pb.h"
@@ -35,6 +37,12 @@ class OgiveService final
   // Ends every Watch stream at its next wake-up (used when draining).
   void StopWatches() { stopping_ = true; }
 
+  // For a stop: from now on every new call is refused with UNAVAILABLE (the client retries, and
+  // finds the restarted server); waits until the calls in flight have returned, at most `timeout`.
+  // True when none is left. Lets ogived close its connections at once afterwards, instead of
+  // waiting for idle clients to notice the server's goaway.
+  bool Drain(absl::Duration timeout);
+
   grpc::Status CreateStudy(grpc::ServerContext*, const v1::CreateStudyRequest*, v1::StudyView*) override;
   grpc::Status GetStudy(grpc::ServerContext*, const v1::GetStudyRequest*, v1::StudyView*) override;
   grpc::Status ListStudies(grpc::ServerContext*, const v1::ListStudiesRequest*, v1::ListStudiesResponse*) override;
@@ -48,11 +56,15 @@ class OgiveService final
  private:
   // The Authorizer's verdict on this call; a refusal is logged here.
   absl::StatusOr<Caller> Authorize(const grpc::ServerContextBase& context, Method method, const std::string& study);
+  class CallScope;  // counts one call in flight, unless draining
 
   Registry* const registry_;
   Authorizer* const authorizer_;
   const Clock clock_;
   std::atomic<bool> stopping_{false};
+  absl::Mutex calls_mu_;
+  int64_t calls_in_flight_ ABSL_GUARDED_BY(calls_mu_) = 0;
+  bool draining_ ABSL_GUARDED_BY(calls_mu_) = false;
 };
 
 }  // namespace ogive::service
