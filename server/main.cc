@@ -1,7 +1,7 @@
 // ogived: the ogive server. Serves many studies over gRPC from one SQLite file.
 //
 //   ogived [--db PATH] [--listen ADDRESS] [--tls-cert PEM --tls-key PEM [--tls-client-ca PEM]]
-//          [--max-... N] [--sweep-interval-seconds S]   (see --help)
+//          [--metrics-listen ADDRESS] [--max-... N] [--sweep-interval-seconds S]   (see --help)
 //
 // On start it restores every stored study exactly. On SIGTERM or SIGINT it reports NOT_SERVING on the
 // health service, stops accepting calls, lets in-flight calls finish (their commits included) and
@@ -27,9 +27,12 @@
 #include "grpcpp/ext/proto_server_reflection_plugin.h"
 #include "grpcpp/grpcpp.h"
 #include "grpcpp/health_check_service_interface.h"
+#include "server/metrics/metric_registry.h"
+#include "server/metrics/metrics_http_server.h"
 #include "server/service/grpc_service.h"
 #include "server/service/log.h"
 #include "server/service/registry.h"
+#include "server/service/service_metrics.h"
 #include "server/service/transport.h"
 #include "storage/sqlite_store.h"
 
@@ -47,6 +50,9 @@ constexpr char kUsage[] =
     "  --tls-cert PEM              serve TLS with this certificate chain (server's certificate first)\n"
     "  --tls-key PEM               the private key of --tls-cert (unencrypted PEM)\n"
     "  --tls-client-ca PEM         require client certificates signed by these CAs (mutual TLS)\n"
+    "  --metrics-listen ADDRESS    serve Prometheus metrics over HTTP on host:port at /metrics\n"
+    "                              (default: off; plain HTTP, loopback only unless\n"
+    "                              --allow-insecure-remote)\n"
     "  --allow-insecure-remote     listen on a non-loopback address without TLS (plain text!)\n"
     "  --help                      this text\n"
     "\n"
@@ -62,6 +68,7 @@ constexpr char kSafety[] =
 struct Flags {
   std::string db = "ogive.db";
   std::string listen = "127.0.0.1:7075";
+  std::string metrics_listen;  // empty: no metrics endpoint
   double sweep_interval_seconds = 1.0;
   ogive::service::TransportFlags transport;
   ogive::service::ServiceLimits limits;
@@ -98,6 +105,9 @@ Flags ParseFlags(int argc, char** argv) {
       flags.db = value;
     } else if (name == "--listen") {
       flags.listen = value;
+    } else if (name == "--metrics-listen") {
+      if (value.empty()) Fail("--metrics-listen: needs host:port (e.g. 127.0.0.1:7076)");
+      flags.metrics_listen = value;
     } else if (name == "--tls-cert") {
       flags.transport.tls_cert_path = value;
     } else if (name == "--tls-key") {
@@ -132,18 +142,34 @@ int main(int argc, char** argv) {
   // Certificates are checked before the database is opened: a bad file fails fast, naming its flag.
   absl::StatusOr<ogive::service::Transport> transport = ogive::service::ChooseTransport(flags.listen, flags.transport);
   if (!transport.ok()) Fail(std::string(transport.status().message()));
+  // The metrics endpoint is plain HTTP: the same loopback rule as a plaintext gRPC port.
+  if (!flags.metrics_listen.empty() && !ogive::service::IsLoopbackAddress(flags.metrics_listen) &&
+      !flags.transport.allow_insecure_remote) {
+    Fail(absl::StrCat("--metrics-listen '", flags.metrics_listen,
+                      "': metrics are plain HTTP; a non-loopback address needs --allow-insecure-remote"));
+  }
   // Lock-order checking is for tests; in the server it costs a graph update on every lock.
   absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
   using ogive::service::LogLine;
 
+  // Counted whether or not they are served: the cost is a few atomic adds per request. Declared
+  // before the store, whose writer thread reports each transaction to them until it stops.
+  ogive::metrics::MetricRegistry metric_registry;
+  ogive::service::ServiceMetrics metrics(&metric_registry, absl::Now());
+  ogive::storage::SqliteStore::Options store_options;
+  store_options.on_transaction = [&metrics](const ogive::storage::SqliteTransactionReport& report) {
+    metrics.ObserveTransaction(report);
+  };
   absl::StatusOr<std::unique_ptr<ogive::storage::SqliteStore>> store =
-      ogive::storage::SqliteStore::Open(flags.db, ogive::storage::SqliteStore::Options());
+      ogive::storage::SqliteStore::Open(flags.db, store_options);
   if (!store.ok()) Fail(absl::StrCat("cannot open database '", flags.db, "': ", store.status().message()));
-  ogive::service::Registry registry(store->get(), flags.limits);
+  ogive::service::Registry registry(store->get(), flags.limits, &metrics);
   if (absl::Status s = registry.LoadAll(); !s.ok()) Fail(absl::StrCat("cannot restore studies: ", s.message()));
   LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry.All().size())}});
+  metrics.CollectStudies(&registry);
+  metrics.CollectStore(store->get());
 
-  ogive::service::OgiveService service(&registry, [] { return absl::Now(); });
+  ogive::service::OgiveService service(&registry, [] { return absl::Now(); }, &metrics);
   grpc::EnableDefaultHealthCheckService(true);
   grpc::reflection::InitProtoReflectionServerBuilderPlugin();
   grpc::ServerBuilder builder;
@@ -170,6 +196,19 @@ int main(int argc, char** argv) {
     LogLine({{"event", "insecure"}, {"tls", tls_mode},
              {"detail", "no TLS on a non-loopback address (--allow-insecure-remote): requests and results cross "
                         "the network in plain text"}});
+  }
+
+  std::unique_ptr<ogive::metrics::MetricsHttpServer> metrics_server;
+  if (!flags.metrics_listen.empty()) {
+    absl::StatusOr<std::unique_ptr<ogive::metrics::MetricsHttpServer>> started =
+        ogive::metrics::MetricsHttpServer::Start(flags.metrics_listen, &metric_registry);
+    if (!started.ok()) {
+      server->Shutdown();
+      Fail(std::string(started.status().message()));
+    }
+    metrics_server = *std::move(started);
+    LogLine({{"event", "metrics_listening"}, {"address", flags.metrics_listen},
+             {"port", absl::StrCat(metrics_server->port())}, {"path", "/metrics"}});
   }
 
   if (pipe(signal_pipe) != 0) Fail("pipe failed");
@@ -203,6 +242,7 @@ int main(int argc, char** argv) {
   server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(10));
   stop_sweeping.Notify();
   sweeper.join();
+  if (metrics_server != nullptr) metrics_server->Stop();  // its collectors read the store
   const ogive::storage::SqliteStore::Stats stats = (*store)->stats();
   store->reset();  // drains the writer: every acknowledged write is committed
   LogLine({{"event", "stopped"}, {"transactions", absl::StrCat(stats.transactions)},

@@ -29,47 +29,65 @@ grpc::Status ToGrpc(const absl::Status& status) {
   return grpc::Status(static_cast<grpc::StatusCode>(status.code()), std::string(status.message()));
 }
 
+grpc::Status OgiveService::Counted(const char* method, Steady::time_point start, grpc::Status status) const {
+  if (metrics_ != nullptr) {
+    metrics_->ObserveRequest(method, static_cast<absl::StatusCode>(status.error_code()),
+                             std::chrono::duration<double>(Steady::now() - start).count());
+  }
+  return status;
+}
+
 grpc::Status OgiveService::CreateStudy(grpc::ServerContext*, const v1::CreateStudyRequest* request,
                                        v1::StudyView* response) {
-  return Finish("create", request->design().name(), "", service::CreateStudy(*registry_, *request),
-                response);
+  const Steady::time_point start = Steady::now();
+  return Counted("CreateStudy", start,
+                 Finish("create", request->design().name(), "", service::CreateStudy(*registry_, *request), response));
 }
 
 grpc::Status OgiveService::GetStudy(grpc::ServerContext*, const v1::GetStudyRequest* request,
                                     v1::StudyView* response) {
+  const Steady::time_point start = Steady::now();
   absl::StatusOr<v1::StudyView> result = service::GetStudy(*registry_, *request);
-  if (!result.ok()) return Finish("get", request->study(), "", std::move(result), response);
+  if (!result.ok()) return Counted("GetStudy", start, Finish("get", request->study(), "", std::move(result), response));
   *response = *std::move(result);
-  return grpc::Status::OK;
+  return Counted("GetStudy", start, grpc::Status::OK);
 }
 
 grpc::Status OgiveService::ListStudies(grpc::ServerContext*, const v1::ListStudiesRequest* request,
                                        v1::ListStudiesResponse* response) {
+  const Steady::time_point start = Steady::now();
   absl::StatusOr<v1::ListStudiesResponse> result = service::ListStudies(*registry_, *request);
-  if (!result.ok()) return ToGrpc(result.status());
+  if (!result.ok()) return Counted("ListStudies", start, ToGrpc(result.status()));
   *response = *std::move(result);
-  return grpc::Status::OK;
+  return Counted("ListStudies", start, grpc::Status::OK);
 }
 
 grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context, const v1::AskRequest* request,
                                              v1::AskResponse* response) {
+  const Steady::time_point start = Steady::now();
   grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
   // `request` and `response` stay valid until the reactor finishes.
-  service::Ask(*registry_, *request, clock_(), [reactor, request, response](absl::StatusOr<v1::AskResponse> result) {
-    std::string trials;
-    if (result.ok()) {
-      for (const v1::Trial& t : result->trials()) absl::StrAppend(&trials, trials.empty() ? "" : ",", t.number());
-    }
-    reactor->Finish(
-        Finish("ask", request->study(), request->worker(), std::move(result), response, "trials=" + trials));
-  });
+  service::Ask(*registry_, *request, clock_(),
+               [this, start, reactor, request, response](absl::StatusOr<v1::AskResponse> result) {
+                 std::string trials;
+                 if (result.ok()) {
+                   for (const v1::Trial& t : result->trials()) {
+                     absl::StrAppend(&trials, trials.empty() ? "" : ",", t.number());
+                   }
+                 }
+                 reactor->Finish(Counted("Ask", start,
+                                         Finish("ask", request->study(), request->worker(), std::move(result),
+                                                response, "trials=" + trials)));
+               });
   return reactor;
 }
 
 grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* context, const v1::TellRequest* request,
                                               v1::TellResponse* response) {
+  const Steady::time_point start = Steady::now();
   grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
-  service::Tell(*registry_, *request, clock_(), [reactor, request, response](absl::StatusOr<v1::TellResponse> result) {
+  service::Tell(*registry_, *request, clock_(), [this, start, reactor, request,
+                                                 response](absl::StatusOr<v1::TellResponse> result) {
     std::string detail;
     if (result.ok()) {
       for (const v1::ReportResult& r : result->results()) {
@@ -78,38 +96,47 @@ grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* contex
                         r.duplicate() ? "(dup)" : "", r.late() ? "(late)" : "");
       }
     }
-    reactor->Finish(Finish("tell", request->study(), request->worker(), std::move(result), response, detail));
+    reactor->Finish(
+        Counted("Tell", start, Finish("tell", request->study(), request->worker(), std::move(result), response, detail)));
   });
   return reactor;
 }
 
 grpc::Status OgiveService::Renew(grpc::ServerContext*, const v1::RenewRequest* request,
                                  v1::RenewResponse* response) {
-  return Finish("renew", request->study(), request->worker(), service::Renew(*registry_, *request, clock_()),
-                response);
+  const Steady::time_point start = Steady::now();
+  return Counted("Renew", start,
+                 Finish("renew", request->study(), request->worker(), service::Renew(*registry_, *request, clock_()),
+                        response));
 }
 
 grpc::Status OgiveService::ListTrials(grpc::ServerContext*, const v1::ListTrialsRequest* request,
                                       v1::ListTrialsResponse* response) {
+  const Steady::time_point start = Steady::now();
   absl::StatusOr<v1::ListTrialsResponse> result = service::ListTrials(*registry_, *request);
-  if (!result.ok()) return Finish("list_trials", request->study(), "", std::move(result), response);
+  if (!result.ok()) {
+    return Counted("ListTrials", start, Finish("list_trials", request->study(), "", std::move(result), response));
+  }
   *response = *std::move(result);
-  return grpc::Status::OK;
+  return Counted("ListTrials", start, grpc::Status::OK);
 }
 
 grpc::Status OgiveService::SetPhase(grpc::ServerContext*, const v1::SetPhaseRequest* request,
                                     v1::StudyView* response) {
-  return Finish("set_phase", request->study(), "", service::SetPhase(*registry_, *request, clock_()), response,
-                v1::PhaseCommand_Name(request->command()));
+  const Steady::time_point start = Steady::now();
+  return Counted("SetPhase", start,
+                 Finish("set_phase", request->study(), "", service::SetPhase(*registry_, *request, clock_()),
+                        response, v1::PhaseCommand_Name(request->command())));
 }
 
 grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRequest* request,
                                  grpc::ServerWriter<v1::StudyView>* writer) {
-  if (absl::Status s = ValidateWatch(*request, registry_->limits()); !s.ok()) return ToGrpc(s);
+  const Steady::time_point start = Steady::now();
+  if (absl::Status s = ValidateWatch(*request, registry_->limits()); !s.ok()) return Counted("Watch", start, ToGrpc(s));
   absl::StatusOr<std::shared_ptr<StudyHost>> host = registry_->Find(request->study());
-  if (!host.ok()) return ToGrpc(host.status());
+  if (!host.ok()) return Counted("Watch", start, ToGrpc(host.status()));
   int64_t version = (*host)->version();
-  if (!writer->Write((*host)->View(false))) return grpc::Status::OK;
+  if (!writer->Write((*host)->View(false))) return Counted("Watch", start, grpc::Status::OK);
   // Wake up at least every 200 ms to notice a cancelled call or a draining server. The view after the
   // change that ended the study is the last one sent.
   while (!context->IsCancelled() && !stopping_ && !(*host)->done()) {
@@ -118,7 +145,7 @@ grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRe
     version = now_version;
     if (!writer->Write((*host)->View(true))) break;
   }
-  return grpc::Status::OK;
+  return Counted("Watch", start, grpc::Status::OK);
 }
 
 }  // namespace ogive::service

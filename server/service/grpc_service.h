@@ -2,19 +2,22 @@
 // grpc::Status (the codes are the same numbers), logs one structured line, and calls the handler
 // with the server's clock. Ask and Tell, the calls workers make all day, use gRPC's callback API:
 // the reply is finished from the CommitWaiter once the write committed, so no gRPC thread waits for
-// an fsync. The other methods are synchronous.
+// an fsync. The other methods are synchronous. Each method's finished call is counted in the
+// metrics in one place: when its status is returned, or for Ask and Tell when the reactor finishes.
 //
-// Thread-safe; the registry outlives the service.
+// Thread-safe; the registry and the metrics outlive the service.
 #ifndef OGIVE_SERVER_SERVICE_GRPC_SERVICE_H_
 #define OGIVE_SERVER_SERVICE_GRPC_SERVICE_H_
 
 #include <atomic>
+#include <chrono>
 #include <functional>
 
 #include "absl/time/time.h"
 #include "grpcpp/grpcpp.h"
 #include "ogive/v1/service.grpc.pb.h"
 #include "server/service/registry.h"
+#include "server/service/service_metrics.h"
 
 namespace ogive::service {
 
@@ -24,7 +27,9 @@ class OgiveService final
     : public v1::Ogive::WithCallbackMethod_Ask<v1::Ogive::WithCallbackMethod_Tell<v1::Ogive::Service>> {
  public:
   using Clock = std::function<absl::Time()>;
-  OgiveService(Registry* registry, Clock clock) : registry_(registry), clock_(std::move(clock)) {}
+  // `metrics` may be null: nothing is counted.
+  OgiveService(Registry* registry, Clock clock, ServiceMetrics* metrics = nullptr)
+      : registry_(registry), clock_(std::move(clock)), metrics_(metrics) {}
 
   // Ends every Watch stream at its next wake-up (used when draining).
   void StopWatches() { stopping_ = true; }
@@ -40,8 +45,13 @@ class OgiveService final
   grpc::Status Watch(grpc::ServerContext*, const v1::WatchRequest*, grpc::ServerWriter<v1::StudyView>*) override;
 
  private:
+  using Steady = std::chrono::steady_clock;
+  // Counts one finished call of `method` that arrived at `start`; returns `status`.
+  grpc::Status Counted(const char* method, Steady::time_point start, grpc::Status status) const;
+
   Registry* const registry_;
   const Clock clock_;
+  ServiceMetrics* const metrics_;
   std::atomic<bool> stopping_{false};
 };
 
