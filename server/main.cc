@@ -2,6 +2,7 @@
 //
 //   ogived [--db PATH] [--listen ADDRESS] [--tls-cert PEM --tls-key PEM [--tls-client-ca PEM]]
 //          [--metrics-listen ADDRESS] [--max-... N] [--sweep-interval-seconds S]   (see --help)
+//   ogived backup --db PATH --to FILE   (a consistent copy of a live database; backup_command.h)
 //
 // On start it restores every stored study exactly. On SIGTERM or SIGINT it reports NOT_SERVING on the
 // health service, stops accepting calls, lets in-flight calls finish (their commits included) and
@@ -27,6 +28,7 @@
 #include "grpcpp/ext/proto_server_reflection_plugin.h"
 #include "grpcpp/grpcpp.h"
 #include "grpcpp/health_check_service_interface.h"
+#include "server/backup_command.h"
 #include "server/metrics/metric_registry.h"
 #include "server/metrics/metrics_http_server.h"
 #include "server/service/grpc_service.h"
@@ -40,6 +42,7 @@ namespace {
 
 constexpr char kUsage[] =
     "usage: ogived [options]\n"
+    "       ogived backup --db PATH --to FILE   (copy a live database safely; see ogived backup --help)\n"
     "\n"
     "Serves ogive studies over gRPC from one SQLite database file.\n"
     "\n"
@@ -138,6 +141,7 @@ void OnSignal(int) {
 }  // namespace
 
 int main(int argc, char** argv) {
+  if (argc >= 2 && std::strcmp(argv[1], "backup") == 0) return ogive::RunBackupCommand(argc - 2, argv + 2);
   const Flags flags = ParseFlags(argc, argv);
   // Certificates are checked before the database is opened: a bad file fails fast, naming its flag.
   absl::StatusOr<ogive::service::Transport> transport = ogive::service::ChooseTransport(flags.listen, flags.transport);
