@@ -65,8 +65,8 @@ constexpr char kUsage[] =
 
 constexpr char kSafety[] =
     "\n"
-    "Candidates are suggestions: check them against your local safety rules before they drive\n"
-    "equipment.\n";
+    "Candidates are suggestions: bounds are hard, but check every candidate against your local\n"
+    "safety rules and codes before it drives equipment.\n";
 
 struct Flags {
   std::string db = "ogive.db";
