@@ -9,7 +9,10 @@ packages=(
   libeigen3-dev libabsl-dev libsqlite3-dev sqlite3
   libgtest-dev libgmock-dev
   libssl-dev openssl
+  libcpp-httplib-dev
   python3-numpy python3-scipy python3-grpcio python3-protobuf
+  python3-prometheus-client python3-yaml
+  systemd
 )
 
 missing=()

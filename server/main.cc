@@ -1,7 +1,8 @@
 // ogived: the ogive server. Serves many studies over gRPC from one SQLite file.
 //
 //   ogived [--db PATH] [--listen ADDRESS] [--tls-cert PEM --tls-key PEM [--tls-client-ca PEM]]
-//          [--max-... N] [--sweep-interval-seconds S] [--read-only]   (see --help)
+//          [--metrics-listen ADDRESS] [--max-... N] [--sweep-interval-seconds S] [--read-only]   (see --help)
+//   ogived backup --db PATH --to FILE   (a consistent copy of a live database; backup_command.h)
 //   ogived token create|list|revoke --db PATH ...   (token_command.h)
 //
 // Every call needs a bearer token of the right role (authorizer.h) unless started with --no-auth,
@@ -34,10 +35,14 @@
 #include "grpcpp/grpcpp.h"
 #include "grpcpp/health_check_service_interface.h"
 #include "server/admin_socket.h"
+#include "server/backup_command.h"
+#include "server/metrics/metric_registry.h"
+#include "server/metrics/metrics_http_server.h"
 #include "server/service/authorizer.h"
 #include "server/service/grpc_service.h"
 #include "server/service/log.h"
 #include "server/service/registry.h"
+#include "server/service/service_metrics.h"
 #include "server/service/token_admin.h"
 #include "server/service/token_admin_service.h"
 #include "server/service/transport.h"
@@ -49,6 +54,7 @@ namespace {
 
 constexpr char kUsage[] =
     "usage: ogived [options]\n"
+    "       ogived backup --db PATH --to FILE   (copy a live database safely; see ogived backup --help)\n"
     "\n"
     "Serves ogive studies over gRPC from one SQLite database file.\n"
     "\n"
@@ -59,6 +65,9 @@ constexpr char kUsage[] =
     "  --tls-cert PEM              serve TLS with this certificate chain (server's certificate first)\n"
     "  --tls-key PEM               the private key of --tls-cert (unencrypted PEM)\n"
     "  --tls-client-ca PEM         require client certificates signed by these CAs (mutual TLS)\n"
+    "  --metrics-listen ADDRESS    serve Prometheus metrics over HTTP on host:port at /metrics\n"
+    "                              (default: off; plain HTTP, loopback only unless\n"
+    "                              --allow-insecure-remote)\n"
     "  --allow-insecure-remote     listen on a non-loopback address without TLS (plain text!)\n"
     "  --max-requests-per-second-per-token R\n"
     "                              requests one token may send per second, in bursts of up to\n"
@@ -81,12 +90,13 @@ constexpr char kUsage[] =
 
 constexpr char kSafety[] =
     "\n"
-    "Candidates are suggestions: check them against your local safety rules before they drive\n"
-    "equipment.\n";
+    "Candidates are suggestions: bounds are hard, but check every candidate against your local\n"
+    "safety rules and codes before it drives equipment.\n";
 
 struct Flags {
   std::string db = "ogive.db";
   std::string listen = "127.0.0.1:7075";
+  std::string metrics_listen;  // empty: no metrics endpoint
   double sweep_interval_seconds = 1.0;
   ogive::service::TransportFlags transport;
   bool read_only = false;
@@ -139,6 +149,9 @@ Flags ParseFlags(int argc, char** argv) {
       flags.db = value;
     } else if (name == "--listen") {
       flags.listen = value;
+    } else if (name == "--metrics-listen") {
+      if (value.empty()) Fail("--metrics-listen: needs host:port (e.g. 127.0.0.1:7076)");
+      flags.metrics_listen = value;
     } else if (name == "--tls-cert") {
       flags.transport.tls_cert_path = value;
     } else if (name == "--tls-key") {
@@ -180,16 +193,30 @@ void OnSignal(int) {
 
 int main(int argc, char** argv) {
   if (argc > 1 && std::string(argv[1]) == "token") return ogive::RunTokenCommand(argc - 1, argv + 1);
+  if (argc >= 2 && std::strcmp(argv[1], "backup") == 0) return ogive::RunBackupCommand(argc - 2, argv + 2);
   const Flags flags = ParseFlags(argc, argv);
   // Certificates are checked before the database is opened: a bad file fails fast, naming its flag.
   absl::StatusOr<ogive::service::Transport> transport = ogive::service::ChooseTransport(flags.listen, flags.transport);
   if (!transport.ok()) Fail(std::string(transport.status().message()));
+  // The metrics endpoint is plain HTTP: the same loopback rule as a plaintext gRPC port.
+  if (!flags.metrics_listen.empty() && !ogive::service::IsLoopbackAddress(flags.metrics_listen) &&
+      !flags.transport.allow_insecure_remote) {
+    Fail(absl::StrCat("--metrics-listen '", flags.metrics_listen,
+                      "': metrics are plain HTTP; a non-loopback address needs --allow-insecure-remote"));
+  }
   // Lock-order checking is for tests; in the server it costs a graph update on every lock.
   absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
   using ogive::service::LogLine;
 
+  // Counted whether or not they are served: the cost is a few atomic adds per request. Declared
+  // before the store, whose writer thread reports each transaction to them until it stops.
+  ogive::metrics::MetricRegistry metric_registry;
+  ogive::service::ServiceMetrics metrics(&metric_registry, absl::Now());
   ogive::storage::SqliteStore::Options store_options;
   store_options.read_only = flags.read_only;
+  store_options.on_transaction = [&metrics](const ogive::storage::SqliteTransactionReport& report) {
+    metrics.ObserveTransaction(report);
+  };
   absl::StatusOr<std::unique_ptr<ogive::storage::SqliteStore>> store =
       ogive::storage::SqliteStore::Open(flags.db, store_options);
   if (!store.ok()) {
@@ -198,10 +225,12 @@ int main(int argc, char** argv) {
     Fail(absl::StrCat("cannot open database '", flags.db, "': ", store.status().message(),
                       not_writable ? " (ogived --read-only serves it for reading)" : ""));
   }
-  ogive::service::Registry registry(store->get(), flags.limits);
+  ogive::service::Registry registry(store->get(), flags.limits, &metrics);
   if (absl::Status s = registry.LoadAll(); !s.ok()) Fail(absl::StrCat("cannot restore studies: ", s.message()));
   LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry.All().size())},
            {"mode", flags.read_only ? "read-only" : "read-write"}});
+  metrics.CollectStudies(&registry);
+  metrics.CollectStore(store->get());
 
   absl::StatusOr<std::unique_ptr<ogive::service::Authorizer>> authorizer =
       ogive::service::Authorizer::Create(store->get(), flags.auth, [] { return absl::Now(); });
@@ -228,7 +257,7 @@ int main(int argc, char** argv) {
                                      "; 'ogived token' works only while this server is stopped")}});
   }
 
-  ogive::service::OgiveService service(&registry, authorizer->get(), [] { return absl::Now(); });
+  ogive::service::OgiveService service(&registry, authorizer->get(), [] { return absl::Now(); }, &metrics);
   grpc::EnableDefaultHealthCheckService(true);
   if (flags.reflection) grpc::reflection::InitProtoReflectionServerBuilderPlugin();
   grpc::ServerBuilder builder;
@@ -255,6 +284,19 @@ int main(int argc, char** argv) {
     LogLine({{"event", "insecure"}, {"tls", tls_mode},
              {"detail", "no TLS on a non-loopback address (--allow-insecure-remote): requests and results cross "
                         "the network in plain text"}});
+  }
+
+  std::unique_ptr<ogive::metrics::MetricsHttpServer> metrics_server;
+  if (!flags.metrics_listen.empty()) {
+    absl::StatusOr<std::unique_ptr<ogive::metrics::MetricsHttpServer>> started =
+        ogive::metrics::MetricsHttpServer::Start(flags.metrics_listen, &metric_registry);
+    if (!started.ok()) {
+      server->Shutdown();
+      Fail(std::string(started.status().message()));
+    }
+    metrics_server = *std::move(started);
+    LogLine({{"event", "metrics_listening"}, {"address", flags.metrics_listen},
+             {"port", absl::StrCat(metrics_server->port())}, {"path", "/metrics"}});
   }
 
   if (pipe(signal_pipe) != 0) Fail("pipe failed");
@@ -300,6 +342,7 @@ int main(int argc, char** argv) {
     admin_socket->reset();
     ::unlink(ogive::AdminSocketPath(flags.db).c_str());
   }
+  if (metrics_server != nullptr) metrics_server->Stop();  // its collectors read the store
   const ogive::storage::SqliteStore::Stats stats = (*store)->stats();
   store->reset();  // drains the writer: every acknowledged write is committed
   LogLine({{"event", "stopped"}, {"transactions", absl::StrCat(stats.transactions)},

@@ -10,6 +10,7 @@
 #include <sqlite3.h>
 
 #include <algorithm>
+#include <chrono>
 #include <cmath>
 #include <filesystem>
 #include <system_error>
@@ -560,6 +561,7 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
   int64_t committed = 0;
   int64_t failed = 0;
   bool transaction_failed = false;
+  const std::chrono::steady_clock::time_point started = std::chrono::steady_clock::now();
   if (!writes.empty()) {
     absl::Status begun = RunOnce(*s.begin);
     if (!begun.ok()) {
@@ -646,7 +648,14 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
     stats_.active_writes = 0;
     stats_.failed_writes += failed;
   }
+  SqliteTransactionReport report;
+  report.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();
+  report.writes = static_cast<int64_t>(writes.size());
+  report.committed_writes = committed;
+  report.committed = !transaction_failed;
   for (Job* job : batch) job->done.Notify();  // after this the job may be gone
+  // After the callers were woken, so that their replies do not wait for the report.
+  if (report.writes > 0 && options_.on_transaction) options_.on_transaction(report);
 }
 
 absl::Status SqliteStore::ApplyToken(const EncodedWrite& write, int64_t& revoked) {

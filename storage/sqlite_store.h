@@ -24,6 +24,7 @@
 
 #include <cstdint>
 #include <deque>
+#include <functional>
 #include <memory>
 #include <optional>
 #include <string>
@@ -44,6 +45,14 @@ namespace internal {
 class Connection;
 }  // namespace internal
 
+// What one write transaction did, for SqliteStoreOptions::on_transaction.
+struct SqliteTransactionReport {
+  double seconds = 0.0;   // from BEGIN IMMEDIATE until COMMIT returned (the fsync included)
+  int64_t writes = 0;     // writes the transaction held
+  int64_t committed_writes = 0;  // of them, stored
+  bool committed = false;  // false: BEGIN or COMMIT failed and nothing of it was stored
+};
+
 // How a SqliteStore opens and runs its database.
 struct SqliteStoreOptions {
   // At most this many writes share one transaction (and its fsync). >= 1.
@@ -63,6 +72,9 @@ struct SqliteStoreOptions {
   // The sqlite3 VFS every connection opens the files with, by its registered name; empty for
   // SQLite's default. Tests pass a fault-injecting VFS here (tests/support/fault_vfs.h).
   std::string vfs;
+  // Called on the writer thread after every write transaction, outside the store's locks (metrics
+  // use it); it delays the next transaction, so keep it short. May be empty.
+  std::function<void(const SqliteTransactionReport&)> on_transaction;
 
   // INVALID_ARGUMENT naming the field, its value and the rule when a value is out of range.
   absl::Status Validate() const;

@@ -27,6 +27,7 @@
 #include "absl/status/status.h"
 #include "absl/status/statusor.h"
 #include "absl/strings/str_cat.h"
+#include "absl/synchronization/mutex.h"
 #include "absl/time/clock.h"
 #include "absl/time/time.h"
 #include "gmock/gmock.h"
@@ -1191,6 +1192,52 @@ TEST_F(SqliteStoreTest, SizeBytesCountsTheFileAndTheLog) {
   std::error_code error;
   const auto main_size = static_cast<int64_t>(std::filesystem::file_size(path_, error));
   EXPECT_GE(*large, main_size);
+}
+
+// on_transaction reports every write transaction once, with its writes and a duration; the reports
+// add up to the store's counters.
+TEST_F(SqliteStoreTest, OnTransactionReportsEveryTransaction) {
+  absl::Mutex mu;
+  std::vector<SqliteTransactionReport> reports;
+  SqliteStore::Options options;
+  options.on_transaction = [&](const SqliteTransactionReport& r) {
+    absl::MutexLock lock(&mu);
+    reports.push_back(r);
+  };
+  std::unique_ptr<SqliteStore> store = OpenStore(options);
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  std::vector<std::thread> threads;
+  for (int t = 0; t < 4; ++t) {
+    threads.emplace_back([&, t] {
+      for (int i = 0; i < 25; ++i) {
+        StudyWrite write;
+        write.study_id = id;
+        write.trials = {MakeTrial(i * 4 + t + 1, v1::TRIAL_STATE_LEASED)};
+        EXPECT_THAT(store->Commit(std::move(write)), IsOk());
+      }
+    });
+  }
+  for (std::thread& thread : threads) thread.join();
+  StudyWrite unknown;
+  unknown.study_id = id + 1000;  // NOT_FOUND: refused inside its transaction, which still commits
+  EXPECT_FALSE(store->Commit(std::move(unknown)).ok());
+  const SqliteStore::Stats stats = store->stats();
+  store.reset();  // the writer thread is gone: no report can still arrive
+  int64_t writes = 0, committed = 0;
+  for (const SqliteTransactionReport& r : reports) {
+    EXPECT_TRUE(r.committed);
+    EXPECT_GE(r.writes, 1);
+    EXPECT_LE(r.committed_writes, r.writes);
+    EXPECT_GT(r.seconds, 0.0);
+    EXPECT_LT(r.seconds, 10.0);
+    writes += r.writes;
+    committed += r.committed_writes;
+  }
+  EXPECT_EQ(static_cast<int64_t>(reports.size()), stats.transactions);
+  EXPECT_EQ(writes, 1 + 100 + 1);  // the study, the trials, the refused write
+  EXPECT_EQ(committed, stats.committed_writes);
+  EXPECT_EQ(committed, 1 + 100);
 }
 
 }  // namespace

@@ -88,52 +88,70 @@ absl::StatusOr<Caller> OgiveService::Authorize(const grpc::ServerContextBase& co
   return caller;
 }
 
+grpc::Status OgiveService::Counted(const char* method, Steady::time_point start, grpc::Status status) const {
+  if (metrics_ != nullptr) {
+    metrics_->ObserveRequest(method, static_cast<absl::StatusCode>(status.error_code()),
+                             std::chrono::duration<double>(Steady::now() - start).count());
+  }
+  return status;
+}
+
 grpc::Status OgiveService::CreateStudy(grpc::ServerContext* context, const v1::CreateStudyRequest* request,
                                        v1::StudyView* response) {
-  CallScope scope(this);
-  if (!scope.admitted()) return CallScope::Refusal();
-  absl::StatusOr<Caller> caller = Authorize(*context, Method::kCreateStudy, request->design().name());
-  if (!caller.ok()) return ToGrpc(caller.status());
-  return Finish("create", request->design().name(), "", *caller, service::CreateStudy(*registry_, *request),
-                response);
+  const Steady::time_point start = Steady::now();
+  return Counted("CreateStudy", start, [&]() -> grpc::Status {
+    CallScope scope(this);
+    if (!scope.admitted()) return CallScope::Refusal();
+    absl::StatusOr<Caller> caller = Authorize(*context, Method::kCreateStudy, request->design().name());
+    if (!caller.ok()) return ToGrpc(caller.status());
+    return Finish("create", request->design().name(), "", *caller, service::CreateStudy(*registry_, *request),
+                  response);
+  }());
 }
 
 grpc::Status OgiveService::GetStudy(grpc::ServerContext* context, const v1::GetStudyRequest* request,
                                     v1::StudyView* response) {
-  CallScope scope(this);
-  if (!scope.admitted()) return CallScope::Refusal();
-  absl::StatusOr<Caller> caller = Authorize(*context, Method::kGetStudy, request->study());
-  if (!caller.ok()) return ToGrpc(caller.status());
-  return FinishRead("get", request->study(), *caller, service::GetStudy(*registry_, *request), response);
+  const Steady::time_point start = Steady::now();
+  return Counted("GetStudy", start, [&]() -> grpc::Status {
+    CallScope scope(this);
+    if (!scope.admitted()) return CallScope::Refusal();
+    absl::StatusOr<Caller> caller = Authorize(*context, Method::kGetStudy, request->study());
+    if (!caller.ok()) return ToGrpc(caller.status());
+    return FinishRead("get", request->study(), *caller, service::GetStudy(*registry_, *request), response);
+  }());
 }
 
 grpc::Status OgiveService::ListStudies(grpc::ServerContext* context, const v1::ListStudiesRequest* request,
                                        v1::ListStudiesResponse* response) {
-  CallScope scope(this);
-  if (!scope.admitted()) return CallScope::Refusal();
-  absl::StatusOr<Caller> caller = Authorize(*context, Method::kListStudies, "");
-  if (!caller.ok()) return ToGrpc(caller.status());
-  return FinishRead("list_studies", "", *caller, service::ListStudies(*registry_, *request, caller->studies),
-                    response);
+  const Steady::time_point start = Steady::now();
+  return Counted("ListStudies", start, [&]() -> grpc::Status {
+    CallScope scope(this);
+    if (!scope.admitted()) return CallScope::Refusal();
+    absl::StatusOr<Caller> caller = Authorize(*context, Method::kListStudies, "");
+    if (!caller.ok()) return ToGrpc(caller.status());
+    return FinishRead("list_studies", "", *caller, service::ListStudies(*registry_, *request, caller->studies),
+                      response);
+  }());
 }
 
 grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context, const v1::AskRequest* request,
                                              v1::AskResponse* response) {
+  const Steady::time_point start = Steady::now();
   grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
   // Counted in flight until the reactor finishes (the reply continuation owns the scope).
   auto scope = std::make_unique<CallScope>(this);
   if (!scope->admitted()) {
-    reactor->Finish(CallScope::Refusal());
+    reactor->Finish(Counted("Ask", start, CallScope::Refusal()));
     return reactor;
   }
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kAsk, request->study());
   if (!caller.ok()) {
-    reactor->Finish(ToGrpc(caller.status()));
+    reactor->Finish(Counted("Ask", start, ToGrpc(caller.status())));
     return reactor;
   }
   // `request` and `response` stay valid until the reactor finishes.
   service::Ask(*registry_, *request, clock_(), caller->label,
-               [reactor, request, response, who = *caller,
+               [this, start, reactor, request, response, who = *caller,
                 scope = std::move(scope)](absl::StatusOr<v1::AskResponse> result) {
                  std::string trials;
                  if (result.ok()) {
@@ -141,27 +159,29 @@ grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context
                      absl::StrAppend(&trials, trials.empty() ? "" : ",", t.number());
                    }
                  }
-                 reactor->Finish(Finish("ask", request->study(), request->worker(), who, std::move(result), response,
-                                        "trials=" + trials));
+                 reactor->Finish(Counted("Ask", start,
+                                         Finish("ask", request->study(), request->worker(), who, std::move(result),
+                                                response, "trials=" + trials)));
                });
   return reactor;
 }
 
 grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* context, const v1::TellRequest* request,
                                               v1::TellResponse* response) {
+  const Steady::time_point start = Steady::now();
   grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
   auto scope = std::make_unique<CallScope>(this);
   if (!scope->admitted()) {
-    reactor->Finish(CallScope::Refusal());
+    reactor->Finish(Counted("Tell", start, CallScope::Refusal()));
     return reactor;
   }
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kTell, request->study());
   if (!caller.ok()) {
-    reactor->Finish(ToGrpc(caller.status()));
+    reactor->Finish(Counted("Tell", start, ToGrpc(caller.status())));
     return reactor;
   }
   service::Tell(*registry_, *request, clock_(), caller->label,
-                [reactor, request, response, who = *caller,
+                [this, start, reactor, request, response, who = *caller,
                  scope = std::move(scope)](absl::StatusOr<v1::TellResponse> result) {
                   std::string detail;
                   if (result.ok()) {
@@ -171,51 +191,62 @@ grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* contex
                                       r.duplicate() ? "(dup)" : "", r.late() ? "(late)" : "");
                     }
                   }
-                  reactor->Finish(
-                      Finish("tell", request->study(), request->worker(), who, std::move(result), response, detail));
+                  reactor->Finish(Counted("Tell", start,
+                                          Finish("tell", request->study(), request->worker(), who, std::move(result),
+                                                 response, detail)));
                 });
   return reactor;
 }
 
 grpc::Status OgiveService::Renew(grpc::ServerContext* context, const v1::RenewRequest* request,
                                  v1::RenewResponse* response) {
-  CallScope scope(this);
-  if (!scope.admitted()) return CallScope::Refusal();
-  absl::StatusOr<Caller> caller = Authorize(*context, Method::kRenew, request->study());
-  if (!caller.ok()) return ToGrpc(caller.status());
-  return Finish("renew", request->study(), request->worker(), *caller,
-                service::Renew(*registry_, *request, clock_()), response);
+  const Steady::time_point start = Steady::now();
+  return Counted("Renew", start, [&]() -> grpc::Status {
+    CallScope scope(this);
+    if (!scope.admitted()) return CallScope::Refusal();
+    absl::StatusOr<Caller> caller = Authorize(*context, Method::kRenew, request->study());
+    if (!caller.ok()) return ToGrpc(caller.status());
+    return Finish("renew", request->study(), request->worker(), *caller,
+                  service::Renew(*registry_, *request, clock_()), response);
+  }());
 }
 
 grpc::Status OgiveService::ListTrials(grpc::ServerContext* context, const v1::ListTrialsRequest* request,
                                       v1::ListTrialsResponse* response) {
-  CallScope scope(this);
-  if (!scope.admitted()) return CallScope::Refusal();
-  absl::StatusOr<Caller> caller = Authorize(*context, Method::kListTrials, request->study());
-  if (!caller.ok()) return ToGrpc(caller.status());
-  return FinishRead("list_trials", request->study(), *caller, service::ListTrials(*registry_, *request), response);
+  const Steady::time_point start = Steady::now();
+  return Counted("ListTrials", start, [&]() -> grpc::Status {
+    CallScope scope(this);
+    if (!scope.admitted()) return CallScope::Refusal();
+    absl::StatusOr<Caller> caller = Authorize(*context, Method::kListTrials, request->study());
+    if (!caller.ok()) return ToGrpc(caller.status());
+    return FinishRead("list_trials", request->study(), *caller, service::ListTrials(*registry_, *request), response);
+  }());
 }
 
 grpc::Status OgiveService::SetPhase(grpc::ServerContext* context, const v1::SetPhaseRequest* request,
                                     v1::StudyView* response) {
-  CallScope scope(this);
-  if (!scope.admitted()) return CallScope::Refusal();
-  absl::StatusOr<Caller> caller = Authorize(*context, Method::kSetPhase, request->study());
-  if (!caller.ok()) return ToGrpc(caller.status());
-  return Finish("set_phase", request->study(), "", *caller,
-                service::SetPhase(*registry_, *request, clock_(), caller->label), response,
-                v1::PhaseCommand_Name(request->command()));
+  const Steady::time_point start = Steady::now();
+  return Counted("SetPhase", start, [&]() -> grpc::Status {
+    CallScope scope(this);
+    if (!scope.admitted()) return CallScope::Refusal();
+    absl::StatusOr<Caller> caller = Authorize(*context, Method::kSetPhase, request->study());
+    if (!caller.ok()) return ToGrpc(caller.status());
+    return Finish("set_phase", request->study(), "", *caller,
+                  service::SetPhase(*registry_, *request, clock_(), caller->label), response,
+                  v1::PhaseCommand_Name(request->command()));
+  }());
 }
 
 grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRequest* request,
                                  grpc::ServerWriter<v1::StudyView>* writer) {
+  const Steady::time_point start = Steady::now();
   CallScope scope(this);
   if (!scope.admitted()) return CallScope::Refusal();
   absl::StatusOr<Caller> caller = Authorize(*context, Method::kWatch, request->study());
   if (!caller.ok()) return ToGrpc(caller.status());
   if (absl::Status s = ValidateWatch(*request, registry_->limits()); !s.ok()) return ToGrpc(s);
   absl::StatusOr<std::shared_ptr<StudyHost>> host = registry_->Find(request->study());
-  if (!host.ok()) return ToGrpc(host.status());
+  if (!host.ok()) return Counted("Watch", start, ToGrpc(host.status()));
   int64_t version = (*host)->version();
   if (!writer->Write((*host)->View(false))) return grpc::Status::OK;
   // Wake up at least every 200 ms to notice a cancelled call, a draining server or a revoked token.
@@ -230,7 +261,7 @@ grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRe
     version = now_version;
     if (!writer->Write((*host)->View(true))) break;
   }
-  return grpc::Status::OK;
+  return Counted("Watch", start, grpc::Status::OK);
 }
 
 }  // namespace ogive::service

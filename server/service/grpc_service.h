@@ -4,13 +4,16 @@
 // one structured line (with the token's label, never the token), and calls the handler with the
 // server's clock and the label for the audit. Ask and Tell, the calls workers make all day, use
 // gRPC's callback API: the reply is finished from the CommitWaiter once the write committed, so no
-// gRPC thread waits for an fsync. The other methods are synchronous.
+// gRPC thread waits for an fsync. The other methods are synchronous. Each method's finished call is
+// counted in the metrics in one place: when its status is returned, or for Ask and Tell when the
+// reactor finishes.
 //
-// Thread-safe; the registry and the authorizer outlive the service.
+// Thread-safe; the registry, the authorizer and the metrics outlive the service.
 #ifndef OGIVE_SERVER_SERVICE_GRPC_SERVICE_H_
 #define OGIVE_SERVER_SERVICE_GRPC_SERVICE_H_
 
 #include <atomic>
+#include <chrono>
 #include <functional>
 #include <string>
 
@@ -22,6 +25,7 @@
 #include "ogive/v1/service.grpc.pb.h"
 #include "server/service/authorizer.h"
 #include "server/service/registry.h"
+#include "server/service/service_metrics.h"
 
 namespace ogive::service {
 
@@ -31,8 +35,9 @@ class OgiveService final
     : public v1::Ogive::WithCallbackMethod_Ask<v1::Ogive::WithCallbackMethod_Tell<v1::Ogive::Service>> {
  public:
   using Clock = std::function<absl::Time()>;
-  OgiveService(Registry* registry, Authorizer* authorizer, Clock clock)
-      : registry_(registry), authorizer_(authorizer), clock_(std::move(clock)) {}
+  // `metrics` may be null: nothing is counted.
+  OgiveService(Registry* registry, Authorizer* authorizer, Clock clock, ServiceMetrics* metrics = nullptr)
+      : registry_(registry), authorizer_(authorizer), clock_(std::move(clock)), metrics_(metrics) {}
 
   // Ends every Watch stream at its next wake-up (used when draining).
   void StopWatches() { stopping_ = true; }
@@ -57,10 +62,14 @@ class OgiveService final
   // The Authorizer's verdict on this call; a refusal is logged here.
   absl::StatusOr<Caller> Authorize(const grpc::ServerContextBase& context, Method method, const std::string& study);
   class CallScope;  // counts one call in flight, unless draining
+  using Steady = std::chrono::steady_clock;
+  // Counts one finished call of `method` that arrived at `start`; returns `status`.
+  grpc::Status Counted(const char* method, Steady::time_point start, grpc::Status status) const;
 
   Registry* const registry_;
   Authorizer* const authorizer_;
   const Clock clock_;
+  ServiceMetrics* const metrics_;
   std::atomic<bool> stopping_{false};
   absl::Mutex calls_mu_;
   int64_t calls_in_flight_ ABSL_GUARDED_BY(calls_mu_) = 0;

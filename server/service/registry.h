@@ -21,9 +21,13 @@
 
 namespace ogive::service {
 
+class ServiceMetrics;
+
 class Registry {
  public:
-  Registry(storage::Store* store, ServiceLimits limits) : store_(store), limits_(limits) {}
+  // `metrics` may be null (nothing is counted); it outlives the registry.
+  Registry(storage::Store* store, ServiceLimits limits, ServiceMetrics* metrics = nullptr)
+      : store_(store), limits_(limits), metrics_(metrics) {}
 
   // Restores every stored study exactly (same generation, same next candidate). DATA_LOSS names the
   // study that could not be restored.
@@ -43,6 +47,7 @@ class Registry {
  private:
   storage::Store* const store_;
   const ServiceLimits limits_;
+  ServiceMetrics* const metrics_;
   mutable absl::Mutex mu_;
   absl::btree_map<std::string, std::shared_ptr<StudyHost>> studies_ ABSL_GUARDED_BY(mu_);
   // Last, so it is destroyed first: its remaining continuations still reach the hosts.

@@ -8,6 +8,7 @@
 #include "server/codec/design_codec.h"
 #include "server/codec/state_codec.h"
 #include "server/codec/study_codec.h"
+#include "server/service/service_metrics.h"
 
 namespace ogive::service {
 namespace {
@@ -19,13 +20,14 @@ int64_t UnixMillis(absl::Time t) { return absl::ToUnixMillis(t); }
 
 StudyHost::StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store,
                      CommitWaiter* waiter, std::string create_request_id,
-                     absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests,
+                     absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests, ServiceMetrics* metrics,
                      std::function<absl::Time()> clock)
     : id_(id),
       design_(std::move(design)),
       create_request_id_(std::move(create_request_id)),
       store_(store),
       waiter_(waiter),
+      metrics_(metrics),
       study_(std::move(study)),
       ask_requests_(std::move(ask_requests)),
       clock_(std::move(clock)) {
@@ -80,23 +82,24 @@ StudyHost::Queued StudyHost::ApplyAndQueue(study::Change change, std::vector<sto
   write.ask_request = ask_request;
   for (storage::Event& event : events) event.token_label = token_label;
   write.events = std::move(events);
+  ChangeTally tally = TallyChange(study_, change);
   study_.Apply(std::move(change));
   if (ask_request.has_value()) ask_requests_.insert(*std::move(ask_request));
   ++version_;
-  return Queued{store_->CommitAsync(std::move(write)), chain_};
+  return Queued{store_->CommitAsync(std::move(write)), chain_, tally};
 }
 
 absl::Status StudyHost::Await(Queued queued) {
   const absl::Status committed = queued.pending->Wait();
-  return AfterCommit(queued.chain, committed);
+  return AfterCommit(queued.chain, queued.tally, committed);
 }
 
 template <typename Response>
 void StudyHost::ReplyAfterCommit(Queued queued, Response response, Reply<Response> reply) {
   waiter_->Add(std::move(queued.pending),
-               [this, chain = queued.chain, response = std::move(response),
+               [this, chain = queued.chain, tally = queued.tally, response = std::move(response),
                 reply = std::move(reply)](absl::Status committed) mutable {
-                 const absl::Status status = AfterCommit(chain, std::move(committed));
+                 const absl::Status status = AfterCommit(chain, tally, std::move(committed));
                  if (status.ok()) {
                    reply(std::move(response));
                  } else {
@@ -105,8 +108,11 @@ void StudyHost::ReplyAfterCommit(Queued queued, Response response, Reply<Respons
                });
 }
 
-absl::Status StudyHost::AfterCommit(int64_t chain, absl::Status committed) {
-  if (committed.ok()) return committed;
+absl::Status StudyHost::AfterCommit(int64_t chain, const ChangeTally& tally, absl::Status committed) {
+  if (committed.ok()) {
+    if (metrics_ != nullptr && !tally.empty()) metrics_->ObserveCommitted(tally);
+    return committed;
+  }
   absl::MutexLock lock(&mu_);
   if (chain != chain_) return committed;  // another request reloaded already
   // Memory ran ahead of disk: go back to what the store holds.
@@ -149,7 +155,7 @@ void StudyHost::Ask(int count, const std::string& worker, std::optional<absl::Du
       storage::StudyWrite barrier;
       barrier.study_id = id_;
       barrier.chain = chain_;
-      queued = Queued{store_->CommitAsync(std::move(barrier)), chain_};
+      queued = Queued{store_->CommitAsync(std::move(barrier)), chain_, ChangeTally{}};
     } else {
       absl::StatusOr<study::AskPlan> plan = study_.PlanAsk(count, worker, lease, now);
       if (!plan.ok()) return reply(plan.status());
@@ -399,6 +405,11 @@ int64_t StudyHost::WaitForChange(int64_t version, absl::Time deadline) const {
 int64_t StudyHost::version() const {
   absl::ReaderMutexLock lock(&mu_);
   return version_;
+}
+
+StudyGauges StudyHost::Gauges() const {
+  absl::ReaderMutexLock lock(&mu_);
+  return {study_.counts(), study_.engine().phase, study_.engine().generation};
 }
 
 bool StudyHost::done() const {

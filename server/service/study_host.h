@@ -31,6 +31,7 @@
 #include "absl/time/time.h"
 #include "ogive/v1/service.pb.h"
 #include "ogive/v1/study.pb.h"
+#include "server/service/change_tally.h"
 #include "server/service/commit_waiter.h"
 #include "server/study/study.h"
 #include "storage/store.h"
@@ -42,13 +43,23 @@ namespace ogive::service {
 template <typename Response>
 using Reply = absl::AnyInvocable<void(absl::StatusOr<Response>)>;
 
+class ServiceMetrics;
+
+// A study's counts for metrics, read cheaply (no distribution summary).
+struct StudyGauges {
+  study::TrialCounts counts;
+  study::Phase phase = study::Phase::kOpen;
+  int64_t generation = 0;
+};
+
 class StudyHost {
  public:
-  // A host for a study that was just created or loaded. `store` and `waiter` outlive the host.
-  // `clock` dates the activity shown in views (StatusSummary.workers, reports_last_hour).
+  // A host for a study that was just created or loaded. `store`, `waiter` and `metrics` (may be null:
+  // nothing is counted) outlive the host. `clock` dates the activity shown in views
+  // (StatusSummary.workers, reports_last_hour).
   StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store, CommitWaiter* waiter,
             std::string create_request_id,
-            absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests,
+            absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests, ServiceMetrics* metrics = nullptr,
             std::function<absl::Time()> clock = [] { return absl::Now(); });
 
   const std::string& name() const { return design_.name(); }
@@ -84,12 +95,14 @@ class StudyHost {
   int64_t WaitForChange(int64_t version, absl::Time deadline) const;
   int64_t version() const;
   bool done() const;
+  StudyGauges Gauges() const;
 
  private:
   // A queued write of this host and the chain it belongs to.
   struct Queued {
     std::unique_ptr<storage::PendingCommit> pending;
     int64_t chain = 0;
+    ChangeTally tally;  // what the change did, counted once it committed
   };
   // Applies `change` to memory and queues its write (with the extra log lines, every one of them
   // carrying `token_label`). Caller holds mu_.
@@ -98,8 +111,9 @@ class StudyHost {
                        const std::string& token_label) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
   // Waits for a queued write outside mu_; after a failure reloads the study from the store.
   absl::Status Await(Queued queued) ABSL_LOCKS_EXCLUDED(mu_);
-  // Await's second half: what to report once the write of `chain` ended with `committed`.
-  absl::Status AfterCommit(int64_t chain, absl::Status committed) ABSL_LOCKS_EXCLUDED(mu_);
+  // Await's second half: what to report once the write of `chain` ended with `committed`; counts
+  // `tally` if it committed.
+  absl::Status AfterCommit(int64_t chain, const ChangeTally& tally, absl::Status committed) ABSL_LOCKS_EXCLUDED(mu_);
   // Replies `response` (or the failure) once `queued` committed, from the waiter's thread.
   template <typename Response>
   void ReplyAfterCommit(Queued queued, Response response, Reply<Response> reply) ABSL_LOCKS_EXCLUDED(mu_);
@@ -115,6 +129,7 @@ class StudyHost {
   const std::string create_request_id_;
   storage::Store* const store_;
   CommitWaiter* const waiter_;
+  ServiceMetrics* const metrics_;
 
   mutable absl::Mutex mu_;
   study::Study study_ ABSL_GUARDED_BY(mu_);
