@@ -97,6 +97,14 @@ grpc::Status OgiveService::ListTrials(grpc::ServerContext*, const v1::ListTrials
   return grpc::Status::OK;
 }
 
+grpc::Status OgiveService::ListGenerations(grpc::ServerContext*, const v1::ListGenerationsRequest* request,
+                                           v1::ListGenerationsResponse* response) {
+  absl::StatusOr<v1::ListGenerationsResponse> result = service::ListGenerations(*registry_, *request);
+  if (!result.ok()) return Finish("list_generations", request->study(), "", std::move(result), response);
+  *response = *std::move(result);
+  return grpc::Status::OK;
+}
+
 grpc::Status OgiveService::SetPhase(grpc::ServerContext*, const v1::SetPhaseRequest* request,
                                     v1::StudyView* response) {
   return Finish("set_phase", request->study(), "", service::SetPhase(*registry_, *request, clock_()), response,
