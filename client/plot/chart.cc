@@ -333,7 +333,7 @@ std::string RenderSvg(const Chart& c) {
               Escape(t.label), "</text>\n");
   }
   StrAppend(&out, "<rect x=\"", Px(f.left), "\" y=\"", Px(f.top), "\" width=\"", Px(f.right - f.left),
-            "\" height=\"", Px(f.bottom - f.top), "\" fill=\"none\" stroke=\"#9ca3af\"/>\n");
+            "\" height=\"", Px(f.bottom - f.top), "\" class=\"frame\" fill=\"none\" stroke=\"#9ca3af\"/>\n");
   StrAppend(&out, "<text x=\"", Px((f.left + f.right) / 2), "\" y=\"", Px(height - 8),
             "\" text-anchor=\"middle\" fill=\"#111827\">", Escape(c.x.label), "</text>\n");
   const double y_mid = (f.top + f.bottom) / 2;

@@ -3,8 +3,9 @@
 // with round-number ticks and grid lines, and the data clipped to the plot area. No scripts, no
 // external references; every piece of text is escaped. Pure: data in, SVG text out.
 //
-// Drawn elements carry classes the report's tests look for: the data group is <g class="data">, and
-// inside it "band" (path), "bar" (rect), "line" and "step" (polyline), "dots" and "rug" (path). A
+// Drawn elements carry classes the report's tests look for: the plot area's outline is
+// <rect class="frame">, the data group is <g class="data">, and inside it "band" (path), "bar"
+// (rect), "line" and "step" (polyline), "dots" and "rug" (path), "mark" (line). A
 // chart with nothing to draw shows its `empty_message` instead (class "empty").
 #ifndef OGIVE_CLIENT_PLOT_CHART_H_
 #define OGIVE_CLIENT_PLOT_CHART_H_
