@@ -164,7 +164,7 @@ absl::StatusOr<std::vector<v1::GenerationView>> Client::ListAllGenerations(const
   std::vector<v1::GenerationView> all;
   v1::ListGenerationsRequest request;
   request.set_study(study);
-  request.set_page_size(1000);
+  request.set_page_size(100);  // every server allows it: --max-page-size is at least 100
   while (true) {
     absl::StatusOr<v1::ListGenerationsResponse> page = ListGenerations(request);
     if (!page.ok()) return page.status();

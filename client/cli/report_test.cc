@@ -335,6 +335,22 @@ TEST(StudyReportHtml, AGradedStudyPlotsGradesOnTheirScale) {
   EXPECT_THAT(html, HasSubstr(">no update yet</text>"));
 }
 
+TEST(StudyReportHtml, AFreshStudySaysWhatIsMissingInEveryPlot) {
+  ReportInput in = MixedReport();
+  in.trials.clear();
+  in.generations.clear();
+  const std::string html = StudyReportHtml(in);
+  EXPECT_THAT(html, Not(HasSubstr("<g class=\"data\"")));
+  EXPECT_THAT(html, HasSubstr(">no scored or graded trial yet</text>"));
+  EXPECT_THAT(html, HasSubstr(">no trials yet</text>"));
+  EXPECT_THAT(html, HasSubstr("No informative outcome yet."));
+  int empty = 0;
+  for (size_t at = html.find("class=\"empty\""); at != std::string::npos; at = html.find("class=\"empty\"", at + 1)) {
+    ++empty;
+  }
+  EXPECT_EQ(empty, 10);
+}
+
 // ---- Export ----
 
 v1::StudyDesign ExportDesign() {
