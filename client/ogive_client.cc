@@ -159,6 +159,26 @@ absl::StatusOr<std::vector<v1::Trial>> Client::ListAllTrials(const std::string& 
   }
 }
 
+absl::StatusOr<v1::ListGenerationsResponse> Client::ListGenerations(const v1::ListGenerationsRequest& request) {
+  v1::ListGenerationsResponse response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::ListGenerations, request, &response); !s.ok()) return s;
+  return response;
+}
+
+absl::StatusOr<std::vector<v1::GenerationView>> Client::ListAllGenerations(const std::string& study) {
+  std::vector<v1::GenerationView> all;
+  v1::ListGenerationsRequest request;
+  request.set_study(study);
+  request.set_page_size(100);  // every server allows it: --max-page-size is at least 100
+  while (true) {
+    absl::StatusOr<v1::ListGenerationsResponse> page = ListGenerations(request);
+    if (!page.ok()) return page.status();
+    for (const v1::GenerationView& g : page->generations()) all.push_back(g);
+    if (page->next_page_token().empty()) return all;
+    request.set_page_token(page->next_page_token());
+  }
+}
+
 absl::StatusOr<v1::StudyView> Client::SetPhase(const std::string& study, v1::PhaseCommand command) {
   v1::SetPhaseRequest request;
   request.set_study(study);

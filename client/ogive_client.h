@@ -62,6 +62,9 @@ class Client {
   absl::StatusOr<std::vector<v1::Trial>> ListAllTrials(const std::string& study,
                                                        v1::TrialState state = v1::TRIAL_STATE_UNSPECIFIED);
   absl::StatusOr<v1::ListTrialsResponse> ListTrials(const v1::ListTrialsRequest& request);
+  // Every generation view (all pages), in generation order.
+  absl::StatusOr<std::vector<v1::GenerationView>> ListAllGenerations(const std::string& study);
+  absl::StatusOr<v1::ListGenerationsResponse> ListGenerations(const v1::ListGenerationsRequest& request);
   absl::StatusOr<v1::StudyView> SetPhase(const std::string& study, v1::PhaseCommand command);
   // Streams status updates to `on_view` until the study is done, `on_view` returns false, or the
   // stream fails. No deadline (a watch runs as long as it is wanted).

@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # The README's run command: a real ogived on an embedded SQLite file, eight `ogive work` workers running
 # a simulated flow solver (which sleeps a little and sometimes crashes), progress while they work, the
-# study's status at the end, and a clean server stop. Installs what is missing and builds first.
+# study's status at the end, its HTML report (var/demo-report.html) and its trials as CSV
+# (var/demo-trials.csv), and a clean server stop. Installs what is missing and builds first.
 # Tokens as in production: an admin token for the operator, a worker token limited to the study for the
 # workers (each outcome records its label).
 set -euo pipefail
@@ -68,6 +69,13 @@ for r in rows[:5]:
         r["number"], float(r["score"]), float(r["relaxation"]), float(r["tolerance"]), r["mesh_level"],
         r["preconditioner"], r["reorder"], r["reported_by"]))
 '
+echo
+echo "== the report"
+mkdir -p var
+ogive study report solver-farm -o var/demo-report.html
+ogive study export solver-farm --csv -o var/demo-trials.csv
+echo "report: $(pwd)/var/demo-report.html (open it in a browser)"
+echo "trials: $(pwd)/var/demo-trials.csv"
 echo
 echo "== stopping ogived (SIGTERM: drain, commit, exit 0)"
 kill -TERM "${ogived_pid}"

@@ -15,6 +15,13 @@ packages=(
   systemd
 )
 
+# With --report-tests: what the report's rendering test needs (tests/report/report_render_test.py):
+# headless Chromium, which is large (a few hundred MB), and PIL to count the screenshot's pixels.
+# Without chromium that test is skipped; deploy/check.sh asks for both.
+if [ "${1:-}" = "--report-tests" ]; then
+  packages+=(chromium python3-pil)
+fi
+
 missing=()
 for p in "${packages[@]}"; do
   if ! dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed"; then

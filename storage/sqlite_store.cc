@@ -249,6 +249,7 @@ struct SqliteStore::Reader {
   Statement* trials_page = nullptr;
   Statement* trials_page_in_state = nullptr;
   Statement* generations = nullptr;
+  Statement* generations_page = nullptr;
   Statement* newest_events = nullptr;
   Statement* tokens = nullptr;
   Statement* integrity_check = nullptr;
@@ -280,6 +281,10 @@ struct SqliteStore::Reader {
         {"list generations",
          {"SELECT generation, summary FROM generations WHERE study_id = ?1 ORDER BY generation",
           &generations}},
+        {"list generations after",
+         {"SELECT generation, summary FROM generations WHERE study_id = ?1 AND generation > ?2 "
+          "ORDER BY generation LIMIT ?3",
+          &generations_page}},
         {"list events",
          {"SELECT at_ns, kind, trial, worker, message, token_label FROM events "
           "WHERE study_id = ?1 ORDER BY id DESC LIMIT ?2",
@@ -1141,6 +1146,34 @@ absl::StatusOr<std::vector<v1::GenerationSummary>> SqliteStore::ListGenerations(
         return absl::DataLossError(absl::StrCat("study id ", study_id,
                                                 ": the summary of generation ",
                                                 r.generations->ColumnInt64(0), " does not parse"));
+      }
+    }
+    return absl::OkStatus();
+  });
+  if (!status.ok()) return status;
+  return generations;
+}
+
+absl::StatusOr<std::vector<v1::GenerationSummary>> SqliteStore::ListGenerationsAfter(int64_t study_id,
+                                                                                   int64_t after_generation,
+                                                                                   int limit) {
+  if (limit < 1) return absl::InvalidArgumentError(absl::StrCat("limit: must be >= 1, got ", limit));
+  std::vector<v1::GenerationSummary> generations;
+  absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
+    generations.clear();
+    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckStudy(study_id));
+    Statement& query = *r.generations_page;
+    ResetOnExit reset(query);
+    query.BindInt64(1, study_id);
+    query.BindInt64(2, after_generation);
+    query.BindInt64(3, limit);
+    while (true) {
+      absl::StatusOr<bool> row = query.Step();
+      if (!row.ok()) return row.status();
+      if (!*row) break;
+      if (!Parse(query.ColumnBlob(1), generations.emplace_back())) {
+        return absl::DataLossError(absl::StrCat("study id ", study_id, ": the summary of generation ",
+                                                query.ColumnInt64(0), " does not parse"));
       }
     }
     return absl::OkStatus();

@@ -140,6 +140,8 @@ class SqliteStore final : public Store {
   absl::StatusOr<TrialPage> ListTrials(int64_t study_id, std::optional<v1::TrialState> state,
                                        int64_t after_number, int limit) override;
   absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t study_id) override;
+  absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerationsAfter(int64_t study_id, int64_t after_generation,
+                                                                          int limit) override;
   absl::StatusOr<std::vector<Event>> ListEvents(int64_t study_id, int limit) override;
   absl::StatusOr<int64_t> SizeBytes() override;
   absl::Status CreateToken(const StoredToken& token) override;

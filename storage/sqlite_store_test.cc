@@ -363,6 +363,24 @@ TEST_F(SqliteStoreTest, CommitReplacesTrialsByNumberAndAppendsGenerationsAndEven
   for (int64_t g = 1; g <= 3; ++g) {
     EXPECT_EQ(Bytes((*generations)[static_cast<size_t>(g - 1)]), Bytes(MakeSummary(g)));
   }
+  // Pages: after generation 1, at most one; then the rest; the default over ListGenerations agrees.
+  absl::StatusOr<std::vector<v1::GenerationSummary>> page = store->ListGenerationsAfter(id, 1, 1);
+  ASSERT_THAT(page, IsOk());
+  ASSERT_THAT(*page, SizeIs(1));
+  EXPECT_EQ(Bytes((*page)[0]), Bytes(MakeSummary(2)));
+  page = store->ListGenerationsAfter(id, 2, 10);
+  ASSERT_THAT(page, IsOk());
+  ASSERT_THAT(*page, SizeIs(1));
+  EXPECT_EQ((*page)[0].generation(), 3);
+  page = store->Store::ListGenerationsAfter(id, 1, 1);
+  ASSERT_THAT(page, IsOk());
+  ASSERT_THAT(*page, SizeIs(1));
+  EXPECT_EQ(Bytes((*page)[0]), Bytes(MakeSummary(2)));
+  page = store->ListGenerationsAfter(id, 3, 10);
+  ASSERT_THAT(page, IsOk());
+  EXPECT_THAT(*page, SizeIs(0));
+  EXPECT_THAT(store->ListGenerationsAfter(id, 0, 0), StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("limit")));
+  EXPECT_THAT(store->ListGenerationsAfter(999, 0, 5), StatusIs(absl::StatusCode::kNotFound, HasSubstr("999")));
 
   absl::StatusOr<std::vector<Event>> events = store->ListEvents(id, 100);
   ASSERT_THAT(events, IsOk());

@@ -132,6 +132,24 @@ class Store {
   // The generation summaries of a study, in generation order.
   virtual absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t study_id) = 0;
 
+  // The generation summaries with generation > after_generation, in generation order, at most
+  // `limit` (>= 1, else INVALID_ARGUMENT). Reads committed data only. This default filters
+  // ListGenerations(); SqliteStore reads just the page.
+  virtual absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerationsAfter(int64_t study_id,
+                                                                                  int64_t after_generation,
+                                                                                  int limit) {
+    if (limit < 1) return absl::InvalidArgumentError("limit: must be >= 1");
+    absl::StatusOr<std::vector<v1::GenerationSummary>> all = ListGenerations(study_id);
+    if (!all.ok()) return all.status();
+    std::vector<v1::GenerationSummary> page;
+    for (v1::GenerationSummary& g : *all) {
+      if (g.generation() <= after_generation) continue;
+      if (static_cast<int>(page.size()) == limit) break;
+      page.push_back(std::move(g));
+    }
+    return page;
+  }
+
   // The event log of a study, oldest first, at most `limit` of the newest.
   virtual absl::StatusOr<std::vector<Event>> ListEvents(int64_t study_id, int limit) = 0;
 

@@ -20,6 +20,7 @@
 #include "client/cli/grade_match.h"
 #include "client/cli/import_plan.h"
 #include "client/cli/format.h"
+#include "client/cli/report_commands.h"
 #include "client/cli/views.h"
 #include "client/ogive_client.h"
 #include "google/protobuf/util/json_util.h"
@@ -667,6 +668,7 @@ std::vector<Command> MakeCommands() {
                       .min_positional = 1,
                       .max_positional = 1,
                       .run = RunStudyTrials});
+  for (Command& c : ReportCommands()) commands.push_back(std::move(c));
   commands.push_back(
       {.words = {"ask"},
        .synopsis = "NAME [-n N] [--worker ID] [--lease SECONDS]",
@@ -1044,6 +1046,10 @@ std::string DefaultWorker() {
     std::snprintf(host, sizeof host, "localhost");
   return absl::StrCat(host, ":", getpid());
 }
+
+absl::StatusOr<std::unique_ptr<client::Client>> ClientFor(const Invocation& inv) { return Connect(inv); }
+int CommandUsageError(const Command& command, absl::string_view message) { return UsageError(command, message); }
+int CommandServerError(const Invocation& inv, const absl::Status& status) { return ServerError(inv, status); }
 
 int Main(int argc, char** argv) {
   std::vector<std::string> args(argv + 1, argv + argc);

@@ -9,6 +9,7 @@
 #define OGIVE_CLIENT_CLI_CLI_H_
 
 #include <functional>
+#include <memory>
 #include <string>
 #include <vector>
 
@@ -19,6 +20,10 @@
 #include "client/cli/work.h"
 #include "client/client_tls.h"
 #include "ogive/v1/study.pb.h"
+
+namespace ogive::client {
+class Client;
+}  // namespace ogive::client
 
 namespace ogive::cli {
 
@@ -91,6 +96,13 @@ absl::StatusOr<WorkOptions> WorkOptionsFromArgs(const ParsedArgs& args,
 
 // "host:pid": the worker name used when --worker is not given.
 std::string DefaultWorker();
+
+// For commands defined in files of their own (report_commands.cc): the client the global options ask
+// for (INVALID_ARGUMENT naming the option when a TLS or token file cannot be used), and the messages
+// and exit codes of a usage error (kExitUsage) and a failed call (kExitServerError).
+absl::StatusOr<std::unique_ptr<client::Client>> ClientFor(const Invocation& inv);
+int CommandUsageError(const Command& command, absl::string_view message);
+int CommandServerError(const Invocation& inv, const absl::Status& status);
 
 // Runs `ogive` with `argc`/`argv`; returns the exit status.
 int Main(int argc, char** argv);

@@ -117,7 +117,7 @@ INSTANTIATE_TEST_SUITE_P(
     EveryRoleAndMethod, RoleTableTest,
     ::testing::Values(
         RoleCase{"reader", Method::kGetStudy, true}, RoleCase{"reader", Method::kListStudies, true},
-        RoleCase{"reader", Method::kListTrials, true}, RoleCase{"reader", Method::kWatch, true},
+        RoleCase{"reader", Method::kListTrials, true}, RoleCase{"reader", Method::kListGenerations, true}, RoleCase{"reader", Method::kWatch, true},
         RoleCase{"reader", Method::kAsk, false}, RoleCase{"reader", Method::kTell, false},
         RoleCase{"reader", Method::kRenew, false}, RoleCase{"reader", Method::kCreateStudy, false},
         RoleCase{"reader", Method::kSetPhase, false},

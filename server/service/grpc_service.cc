@@ -223,6 +223,19 @@ grpc::Status OgiveService::ListTrials(grpc::ServerContext* context, const v1::Li
   }());
 }
 
+grpc::Status OgiveService::ListGenerations(grpc::ServerContext* context, const v1::ListGenerationsRequest* request,
+                                           v1::ListGenerationsResponse* response) {
+  const Steady::time_point start = Steady::now();
+  return Counted("ListGenerations", start, [&]() -> grpc::Status {
+    CallScope scope(this);
+    if (!scope.admitted()) return CallScope::Refusal();
+    absl::StatusOr<Caller> caller = Authorize(*context, Method::kListGenerations, request->study());
+    if (!caller.ok()) return ToGrpc(caller.status());
+    return FinishRead("list_generations", request->study(), *caller, service::ListGenerations(*registry_, *request),
+                      response);
+  }());
+}
+
 grpc::Status OgiveService::SetPhase(grpc::ServerContext* context, const v1::SetPhaseRequest* request,
                                     v1::StudyView* response) {
   const Steady::time_point start = Steady::now();

@@ -55,6 +55,8 @@ class OgiveService final
   grpc::ServerUnaryReactor* Tell(grpc::CallbackServerContext*, const v1::TellRequest*, v1::TellResponse*) override;
   grpc::Status Renew(grpc::ServerContext*, const v1::RenewRequest*, v1::RenewResponse*) override;
   grpc::Status ListTrials(grpc::ServerContext*, const v1::ListTrialsRequest*, v1::ListTrialsResponse*) override;
+  grpc::Status ListGenerations(grpc::ServerContext*, const v1::ListGenerationsRequest*,
+                               v1::ListGenerationsResponse*) override;
   grpc::Status SetPhase(grpc::ServerContext*, const v1::SetPhaseRequest*, v1::StudyView*) override;
   grpc::Status Watch(grpc::ServerContext*, const v1::WatchRequest*, grpc::ServerWriter<v1::StudyView>*) override;
 

@@ -138,6 +138,26 @@ absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::
   return response;
 }
 
+absl::StatusOr<v1::ListGenerationsResponse> ListGenerations(Registry& registry,
+                                                            const v1::ListGenerationsRequest& request) {
+  if (absl::Status s = ValidateListGenerations(request, registry.limits()); !s.ok()) return s;
+  int64_t after = 0;
+  if (!request.page_token().empty() &&
+      (request.page_token()[0] != 'g' || !absl::SimpleAtoi(request.page_token().substr(1), &after) || after < 0)) {
+    return absl::InvalidArgumentError("page_token: not a token this server issued; pass next_page_token as is");
+  }
+  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
+  if (!host.ok()) return host.status();
+  int64_t next_after = 0;
+  absl::StatusOr<std::vector<v1::GenerationView>> views =
+      (*host)->Generations(after, request.page_size() == 0 ? 100 : request.page_size(), &next_after);
+  if (!views.ok()) return views.status();
+  v1::ListGenerationsResponse response;
+  for (v1::GenerationView& g : *views) *response.add_generations() = std::move(g);
+  if (next_after > 0) response.set_next_page_token(absl::StrCat("g", next_after));
+  return response;
+}
+
 absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now,
                                        const std::string& token_label) {
   if (absl::Status s = ValidateSetPhase(request, registry.limits()); !s.ok()) return s;

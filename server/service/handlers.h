@@ -39,6 +39,9 @@ absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest&
                                       const std::string& token_label = "");
 absl::StatusOr<v1::RenewResponse> Renew(Registry& registry, const v1::RenewRequest& request, absl::Time now);
 absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::ListTrialsRequest& request);
+// Generation views of a study from the store, in generation order, page by page.
+absl::StatusOr<v1::ListGenerationsResponse> ListGenerations(Registry& registry,
+                                                            const v1::ListGenerationsRequest& request);
 absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now,
                                        const std::string& token_label = "");
 

@@ -21,7 +21,7 @@ absl::Span<const LimitFlag> LimitFlags() {
       {"--max-description-bytes", "max_description_bytes", "a parameter's description",
        &L::max_description_bytes, 1},
       {"--max-studies", "max_studies", "studies per server", &L::max_studies, 1},
-      {"--max-page-size", "max_page_size", "trials per ListTrials page", &L::max_page_size, 100},
+      {"--max-page-size", "max_page_size", "trials or generations per list page", &L::max_page_size, 100},
       {"--max-lease-seconds", "max_lease_seconds", "longest lease", &L::max_lease_seconds, 1},
   };
   return kFlags;

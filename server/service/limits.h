@@ -28,7 +28,7 @@ struct ServiceLimits {
   int max_note_bytes = 4096;            // the note of a report
   int max_description_bytes = 1024;     // a parameter's description
   int max_studies = 10000;              // studies per server
-  int max_page_size = 1000;             // trials per ListTrials page
+  int max_page_size = 1000;             // trials per ListTrials page, generations per ListGenerations page
   int max_lease_seconds = 30 * 24 * 3600;  // longest lease, 30 days
 
   // INVALID_ARGUMENT naming the first field below its smallest allowed value (LimitFlag::min).

@@ -37,6 +37,8 @@ const char* MethodName(Method method) {
       return "Renew";
     case Method::kListTrials:
       return "ListTrials";
+    case Method::kListGenerations:
+      return "ListGenerations";
     case Method::kSetPhase:
       return "SetPhase";
     case Method::kWatch:
@@ -50,6 +52,7 @@ Role RequiredRole(Method method) {
     case Method::kGetStudy:
     case Method::kListStudies:
     case Method::kListTrials:
+    case Method::kListGenerations:
     case Method::kWatch:
       return Role::kReader;
     case Method::kAsk:

@@ -18,7 +18,18 @@ const char* RoleName(Role role);
 std::optional<Role> ParseRole(absl::string_view name);
 
 // The methods of ogive.v1.Ogive that carry a token check.
-enum class Method { kCreateStudy, kGetStudy, kListStudies, kAsk, kTell, kRenew, kListTrials, kSetPhase, kWatch };
+enum class Method {
+  kCreateStudy,
+  kGetStudy,
+  kListStudies,
+  kAsk,
+  kTell,
+  kRenew,
+  kListTrials,
+  kListGenerations,
+  kSetPhase,
+  kWatch
+};
 
 // The method's name as in service.proto ("Ask").
 const char* MethodName(Method method);

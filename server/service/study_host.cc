@@ -6,6 +6,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "server/codec/design_codec.h"
+#include "server/codec/marginal_codec.h"
 #include "server/codec/state_codec.h"
 #include "server/codec/study_codec.h"
 #include "server/service/service_metrics.h"
@@ -28,6 +29,7 @@ StudyHost::StudyHost(int64_t id, v1::StudyDesign design, study::Study study, sto
       store_(store),
       waiter_(waiter),
       metrics_(metrics),
+      space_(study.space()),
       study_(std::move(study)),
       ask_requests_(std::move(ask_requests)),
       clock_(std::move(clock)) {
@@ -326,54 +328,12 @@ v1::StudyView StudyHost::ViewLocked(bool brief) const {
   }
   if (const study::Trial* best = study_.best()) *s->mutable_best() = TrialView(*best);
   const search::DistributionSummary summary = study_.distribution().Summary();
-  const search::Space& space = study_.space();
   if (summary.gaussian) {
     s->set_step_size(summary.gaussian->sigma);
     s->set_axis_ratio(summary.gaussian->axis_ratio);
   }
-  int gaussian_k = 0, flag_k = 0, categorical_k = 0;
-  for (int i = 0; i < space.size(); ++i) {
-    const search::ParameterSpec& p = space.parameter(i);
-    v1::Marginal* m = s->add_marginals();
-    m->set_parameter(p.name);
-    m->set_unit(design_.parameters(i).unit());
-    switch (p.kind) {
-      case search::ParameterKind::kReal: {
-        const double u = summary.gaussian->mean[gaussian_k];
-        const double spread = summary.gaussian->spread[gaussian_k++];
-        m->set_low(p.low);
-        m->set_high(p.high);
-        if (p.log) {
-          const double span = std::log(p.high) - std::log(p.low);
-          const double mean = std::exp(std::log(p.low) + u * span);
-          m->set_mean(mean);
-          m->set_spread(mean * (std::exp(spread * span) - 1.0));
-        } else {
-          m->set_mean(p.low + u * (p.high - p.low));
-          m->set_spread(spread * (p.high - p.low));
-        }
-        break;
-      }
-      case search::ParameterKind::kInteger: {
-        const double w = static_cast<double>(p.integer_high - p.integer_low + 1);
-        m->set_low(static_cast<double>(p.integer_low));
-        m->set_high(static_cast<double>(p.integer_high));
-        m->set_mean(static_cast<double>(p.integer_low) - 0.5 + summary.gaussian->mean[gaussian_k] * w);
-        m->set_spread(summary.gaussian->spread[gaussian_k++] * w);
-        break;
-      }
-      case search::ParameterKind::kFlag:
-        m->add_probabilities(summary.flag_probabilities[flag_k++]);
-        break;
-      case search::ParameterKind::kCategorical: {
-        const Eigen::VectorXd& theta = summary.option_probabilities[categorical_k++];
-        for (size_t k = 0; k < p.options.size(); ++k) {
-          m->add_options(p.options[k]);
-          m->add_probabilities(theta[static_cast<int>(k)]);
-        }
-        break;
-      }
-    }
+  for (v1::Marginal& m : codec::MarginalsToProto(summary, study_.space(), design_)) {
+    *s->add_marginals() = std::move(m);
   }
   return view;
 }
@@ -391,6 +351,27 @@ std::vector<v1::Trial> StudyHost::Trials(std::optional<study::TrialState> state,
       break;
     }
     out.push_back(TrialView(t));
+  }
+  return out;
+}
+
+absl::StatusOr<std::vector<v1::GenerationView>> StudyHost::Generations(int64_t after, int limit,
+                                                                      int64_t* next_after) const {
+  *next_after = 0;
+  // The store's committed history: no lock needed (space_ and design_ never change).
+  absl::StatusOr<std::vector<v1::GenerationSummary>> stored = store_->ListGenerationsAfter(id_, after, limit + 1);
+  if (!stored.ok()) return stored.status();
+  std::vector<v1::GenerationView> out;
+  for (const v1::GenerationSummary& g : *stored) {
+    if (static_cast<int>(out.size()) == limit) {
+      *next_after = out.back().generation();
+      break;
+    }
+    absl::StatusOr<v1::GenerationView> view = codec::GenerationViewFromSummary(g, space_, design_);
+    if (!view.ok()) {
+      return absl::DataLossError(absl::StrCat("study '", name(), "': ", view.status().message()));
+    }
+    out.push_back(*std::move(view));
   }
   return out;
 }

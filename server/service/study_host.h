@@ -90,6 +90,12 @@ class StudyHost {
   std::vector<v1::Trial> Trials(std::optional<study::TrialState> state, int64_t after, int limit,
                                 int64_t* next_after) const;
 
+  // Views of the stored generation summaries with generation > after, at most limit, in generation
+  // order (committed updates only); sets *next_after to the last generation returned when more remain
+  // (0 otherwise). UNAVAILABLE when the store is busy; DATA_LOSS when a stored summary does not fit
+  // the study's parameters.
+  absl::StatusOr<std::vector<v1::GenerationView>> Generations(int64_t after, int limit, int64_t* next_after) const;
+
   // Blocks until the study changed after `version` (returns the new version) or `deadline` passed
   // (returns `version`).
   int64_t WaitForChange(int64_t version, absl::Time deadline) const;
@@ -130,6 +136,7 @@ class StudyHost {
   storage::Store* const store_;
   CommitWaiter* const waiter_;
   ServiceMetrics* const metrics_;
+  const search::Space space_;  // the study's space, never changed (readable without mu_)
 
   mutable absl::Mutex mu_;
   study::Study study_ ABSL_GUARDED_BY(mu_);

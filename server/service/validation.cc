@@ -449,6 +449,18 @@ absl::Status ValidateListTrials(const v1::ListTrialsRequest& request, const Serv
   return absl::OkStatus();
 }
 
+absl::Status ValidateListGenerations(const v1::ListGenerationsRequest& request, const ServiceLimits& limits) {
+  if (absl::Status s = ValidateStudyName("study", request.study(), limits); !s.ok()) return s;
+  if (request.page_size() < 0 || request.page_size() > limits.max_page_size) {
+    return Invalid("page_size",
+                   StrCat("must be 0 (100) or in 1..", limits.max_page_size, ", got ", request.page_size()));
+  }
+  if (request.page_token().size() > kMaxPageTokenBytes) {
+    return Invalid("page_token", "not a token this server issued; pass next_page_token as is");
+  }
+  return absl::OkStatus();
+}
+
 absl::Status ValidateSetPhase(const v1::SetPhaseRequest& request, const ServiceLimits& limits) {
   if (absl::Status s = ValidateStudyName("study", request.study(), limits); !s.ok()) return s;
   switch (request.command()) {

@@ -42,6 +42,7 @@ absl::Status ValidateAsk(const v1::AskRequest& request, const ServiceLimits& lim
 absl::Status ValidateTell(const v1::TellRequest& request, const ServiceLimits& limits);
 absl::Status ValidateRenew(const v1::RenewRequest& request, const ServiceLimits& limits);
 absl::Status ValidateListTrials(const v1::ListTrialsRequest& request, const ServiceLimits& limits);
+absl::Status ValidateListGenerations(const v1::ListGenerationsRequest& request, const ServiceLimits& limits);
 absl::Status ValidateSetPhase(const v1::SetPhaseRequest& request, const ServiceLimits& limits);
 absl::Status ValidateWatch(const v1::WatchRequest& request, const ServiceLimits& limits);
 

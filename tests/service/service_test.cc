@@ -728,6 +728,138 @@ TEST_F(ServiceTest, ListTrialsPagesThroughEveryTrialAndFiltersByState) {
               StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("state")));
 }
 
+// ---- The distribution's history ----
+
+TEST_F(ServiceTest, ListGenerationsShowsEveryUpdateInUserUnitsPageByPage) {
+  Create(MixedDesign("history"));
+  const int64_t start_ms = absl::ToUnixMillis(absl::Now());
+  // Eight sequential generations of λ = 6: ask a cohort, tell it, repeat (staleness 0 throughout).
+  for (int g = 0; g < 8; ++g) {
+    const v1::AskResponse asked = AskOk("history", 6);
+    std::vector<v1::Report> reports;
+    for (const v1::Trial& t : asked.trials()) reports.push_back(ScoreReport(t.number(), MixedScore(t.candidate())));
+    EXPECT_EQ(TellOk("history", reports).generation(), g + 1);
+  }
+  const int64_t end_ms = absl::ToUnixMillis(absl::Now());
+  absl::StatusOr<std::vector<v1::GenerationView>> all = client_->ListAllGenerations("history");
+  ASSERT_TRUE(all.ok()) << all.status();
+  ASSERT_EQ(all->size(), 8u);
+  for (size_t i = 0; i < all->size(); ++i) {
+    const v1::GenerationView& g = (*all)[i];
+    SCOPED_TRACE(g.generation());
+    EXPECT_EQ(g.generation(), static_cast<int64_t>(i + 1));
+    EXPECT_EQ(g.epoch(), 0);
+    EXPECT_EQ(g.population_size(), 6);
+    EXPECT_EQ(g.cohort_size(), 6);
+    EXPECT_EQ(g.mean_staleness(), 0);
+    EXPECT_EQ(g.max_staleness(), 0);
+    EXPECT_GT(g.step_size(), 0);
+    EXPECT_GE(g.axis_ratio(), 1);
+    EXPECT_GE(g.best_trial(), 1);
+    EXPECT_LE(g.best_trial(), 6 * g.generation());
+    EXPECT_GE(g.recorded_at_unix_ms(), start_ms);
+    EXPECT_LE(g.recorded_at_unix_ms(), end_ms);
+    ASSERT_EQ(g.marginals_size(), 5);
+    EXPECT_EQ(g.marginals(0).parameter(), "x");
+    EXPECT_EQ(g.marginals(0).low(), -5);
+    EXPECT_EQ(g.marginals(0).high(), 5);
+    EXPECT_GT(g.marginals(0).spread(), 0);
+    EXPECT_GT(g.marginals(1).mean(), 0);  // a log parameter's mean is a value of the range
+    EXPECT_EQ(g.marginals(2).low(), 1);
+    EXPECT_EQ(g.marginals(3).options_size(), 3);
+    EXPECT_EQ(g.marginals(4).probabilities_size(), 1);
+  }
+  // The last update is the current distribution: its view equals the status's, field for field.
+  const v1::StatusSummary status = Get("history").status();
+  const v1::GenerationView& last = all->back();
+  EXPECT_EQ(last.step_size(), status.step_size());
+  EXPECT_EQ(last.axis_ratio(), status.axis_ratio());
+  EXPECT_EQ(last.best_trial(), status.best().number());
+  ASSERT_EQ(status.marginals_size(), last.marginals_size());
+  for (int i = 0; i < status.marginals_size(); ++i) {
+    EXPECT_EQ(DeterministicBytes(status.marginals(i)), DeterministicBytes(last.marginals(i))) << i;
+  }
+
+  // Pages of 3: 3 + 3 + 2, the same views in the same order.
+  v1::ListGenerationsRequest request;
+  request.set_study("history");
+  request.set_page_size(3);
+  std::vector<int> page_sizes;
+  std::vector<std::string> paged;
+  for (int page = 0; page < 10; ++page) {
+    absl::StatusOr<v1::ListGenerationsResponse> response = client_->ListGenerations(request);
+    ASSERT_TRUE(response.ok()) << response.status();
+    page_sizes.push_back(response->generations_size());
+    for (const v1::GenerationView& g : response->generations()) paged.push_back(DeterministicBytes(g));
+    if (response->next_page_token().empty()) break;
+    request.set_page_token(response->next_page_token());
+  }
+  EXPECT_THAT(page_sizes, ElementsAre(3, 3, 2));
+  ASSERT_EQ(paged.size(), 8u);
+  for (size_t i = 0; i < paged.size(); ++i) EXPECT_EQ(paged[i], DeterministicBytes((*all)[i])) << i;
+
+  // A page ending at the last generation has no next page; refused tokens and sizes; unknown study.
+  request.clear_page_token();
+  request.set_page_size(8);
+  absl::StatusOr<v1::ListGenerationsResponse> exact = client_->ListGenerations(request);
+  ASSERT_TRUE(exact.ok()) << exact.status();
+  EXPECT_EQ(exact->generations_size(), 8);
+  EXPECT_EQ(exact->next_page_token(), "");
+  for (const char* token : {"garbage", "g", "g-1", "t3", "3"}) {
+    SCOPED_TRACE(token);
+    request.set_page_token(token);
+    EXPECT_THAT(client_->ListGenerations(request).status(),
+                StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("page_token")));
+  }
+  request.clear_page_token();
+  request.set_page_size(1001);
+  EXPECT_THAT(client_->ListGenerations(request).status(),
+              StatusIs(absl::StatusCode::kInvalidArgument, AllOf(HasSubstr("page_size"), HasSubstr("1..1000"))));
+  request.set_page_size(0);
+  request.set_study("nowhere");
+  EXPECT_THAT(client_->ListGenerations(request).status(),
+              StatusIs(absl::StatusCode::kNotFound, HasSubstr("nowhere")));
+
+  // The history is what the store holds: a restarted server lists the same views.
+  client_.reset();
+  server_->Stop();
+  ASSERT_TRUE(server_->Start().ok());
+  client_ = server_->NewClient();
+  absl::StatusOr<std::vector<v1::GenerationView>> again = client_->ListAllGenerations("history");
+  ASSERT_TRUE(again.ok()) << again.status();
+  ASSERT_EQ(again->size(), all->size());
+  for (size_t i = 0; i < all->size(); ++i) {
+    EXPECT_EQ(DeterministicBytes((*again)[i]), DeterministicBytes((*all)[i])) << i;
+  }
+}
+
+TEST_F(ServiceTest, ListGenerationsShowsTheStalenessOfConsumedOutcomes) {
+  v1::StudyDesign design = ScoredDesign("stale", {Real("a", 0, 1), Real("b", 0, 1)});
+  design.set_population_size(2);
+  design.set_staleness_limit(5);
+  Create(design);
+  // Trial 1 is held back from generation 0; trials 2 and 3 make generation 1 (never more than λ = 2
+  // out, so λ stays 2). Then trial 4 (from generation 1) and trial 1 (staleness 1) make generation 2.
+  ASSERT_EQ(AskOk("stale", 1).trials(0).number(), 1);
+  for (int k = 0; k < 2; ++k) {
+    const v1::AskResponse asked = AskOk("stale", 1);
+    TellOk("stale", {ScoreReport(asked.trials(0).number(), 2.0 + k)});
+  }
+  const v1::AskResponse fourth = AskOk("stale", 1);
+  ASSERT_EQ(fourth.trials(0).generation(), 1);
+  TellOk("stale", {ScoreReport(4, 4.0), ScoreReport(1, 0.1)});
+  absl::StatusOr<std::vector<v1::GenerationView>> all = client_->ListAllGenerations("stale");
+  ASSERT_TRUE(all.ok()) << all.status();
+  ASSERT_EQ(all->size(), 2u);
+  EXPECT_EQ((*all)[0].mean_staleness(), 0);
+  EXPECT_EQ((*all)[0].max_staleness(), 0);
+  EXPECT_EQ((*all)[0].best_trial(), 2);
+  EXPECT_EQ((*all)[1].cohort_size(), 2);
+  EXPECT_EQ((*all)[1].mean_staleness(), 0.5);
+  EXPECT_EQ((*all)[1].max_staleness(), 1);
+  EXPECT_EQ((*all)[1].best_trial(), 1);  // score 0.1
+}
+
 // ---- Watch ----
 
 TEST_F(ServiceTest, WatchSendsTheCurrentViewThenOneMessagePerChangeUntilCancelled) {

@@ -259,6 +259,13 @@ TEST_F(ValidationTest, TheBaseRequestsAreAcceptedAtTheLimits) {
   absl::StatusOr<v1::ListTrialsResponse> page = service::ListTrials(*registry_, list);
   ASSERT_TRUE(page.ok()) << page.status();
   EXPECT_EQ(page->trials_size(), 3);
+
+  v1::ListGenerationsRequest generations;
+  generations.set_study(ask.study());
+  generations.set_page_size(200);
+  absl::StatusOr<v1::ListGenerationsResponse> history = service::ListGenerations(*registry_, generations);
+  ASSERT_TRUE(history.ok()) << history.status();
+  EXPECT_EQ(history->generations_size(), 0);  // 3 outcomes, λ = 4: no update yet
 }
 
 TEST_F(ValidationTest, DesignFieldsAreRefusedNamingTheirPath) {
@@ -521,6 +528,14 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
       return StatusOf(service::ListTrials(r, request));
     };
   };
+  auto generations = [](std::function<void(v1::ListGenerationsRequest&)> mutate) {
+    return [mutate](service::Registry& r) {
+      v1::ListGenerationsRequest request;
+      request.set_study("base");
+      mutate(request);
+      return StatusOf(service::ListGenerations(r, request));
+    };
+  };
   auto phase = [](std::function<void(v1::SetPhaseRequest&)> mutate) {
     return [mutate](service::Registry& r) {
       v1::SetPhaseRequest request;
@@ -544,6 +559,27 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
       {"list: huge page token", list([](v1::ListTrialsRequest& l) { l.set_page_token("t" + std::string(100, '9')); }),
        kInvalid, {"page_token"}},
       {"list: bad study", list([](v1::ListTrialsRequest& l) { l.set_study("a b"); }), kInvalid, {"study"}},
+      {"generations: negative page size",
+       generations([](v1::ListGenerationsRequest& g) { g.set_page_size(-1); }), kInvalid,
+       {"page_size", "0 (100) or in 1..200", "got -1"}},
+      {"generations: page size beyond the limit",
+       generations([](v1::ListGenerationsRequest& g) { g.set_page_size(201); }), kInvalid,
+       {"page_size", "1..200", "got 201"}},
+      {"generations: a trial page token",
+       generations([](v1::ListGenerationsRequest& g) { g.set_page_token("t4"); }), kInvalid,
+       {"page_token", "next_page_token"}},
+      {"generations: negative page token",
+       generations([](v1::ListGenerationsRequest& g) { g.set_page_token("g-4"); }), kInvalid, {"page_token"}},
+      {"generations: huge page token",
+       generations([](v1::ListGenerationsRequest& g) { g.set_page_token("g" + std::string(100, '9')); }), kInvalid,
+       {"page_token", "not a token this server issued"}},
+      {"generations: bad study",
+       generations([](v1::ListGenerationsRequest& g) { g.set_study("base/2"); }), kInvalid,
+       {"study", "letters, digits"}},
+      {"generations: empty study", generations([](v1::ListGenerationsRequest& g) { g.set_study(""); }), kInvalid,
+       {"study", "must not be empty"}},
+      {"generations: unknown study", generations([](v1::ListGenerationsRequest& g) { g.set_study("nope"); }),
+       absl::StatusCode::kNotFound, {"nope"}},
       {"phase: unspecified command",
        phase([](v1::SetPhaseRequest& p) { p.set_command(v1::PHASE_COMMAND_UNSPECIFIED); }), kInvalid,
        {"command", "PHASE_COMMAND_PAUSE, PHASE_COMMAND_RESUME or PHASE_COMMAND_FINISH", "got 0"}},
