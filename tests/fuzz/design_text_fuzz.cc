@@ -1,7 +1,7 @@
 // Fuzz target: a design file as `ogive study create` reads it, protobuf text format or (when the
 // input starts with '{') JSON, parsed by the CLI's reader (client/cli/design_file.h), then the
-// server's checks (design_check.h). A design the reader accepts must also survive being written
-// back in its format and read again, unchanged.
+// server's checks (design_check.h). A design the reader accepts must survive the wire (serialized
+// and parsed as gRPC does) and being written back in its format and read again, unchanged.
 #include <cstddef>
 #include <cstdint>
 #include <string>
@@ -38,6 +38,14 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
     OGIVE_FUZZ_REQUIRE(design.status().code() == absl::StatusCode::kInvalidArgument, design.status().ToString());
     return 0;
   }
+
+  // What the CLI sends must reach the server as it is: the server's parse of the request is the
+  // wire's check (strings must be UTF-8, for one).
+  std::string wire;
+  OGIVE_FUZZ_REQUIRE(design->SerializeToString(&wire), "the design does not serialize");
+  ogive::v1::StudyDesign received;
+  OGIVE_FUZZ_REQUIRE(received.ParseFromString(wire) && SameDesign(*design, received),
+                     "a design the reader accepted does not survive the wire: ", design->ShortDebugString());
 
   std::string written;
   if (json) {

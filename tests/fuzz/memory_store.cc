@@ -32,15 +32,20 @@ absl::Status RoundTrip(const Message& in, Message& out, const std::string& what)
 absl::StatusOr<std::vector<storage::StoredStudy>> MemoryStore::LoadAll() {
   absl::ReaderMutexLock lock(&mu_);
   std::vector<storage::StoredStudy> all;
-  for (const auto& [id, data] : studies_) all.push_back(Load(data));
+  for (const auto& [id, data] : studies_) all.push_back(data.stored);
   return all;
 }
 
-storage::StoredStudy MemoryStore::Load(const StudyData& data) const {
-  storage::StoredStudy s = data.stored;
-  s.snapshot.clear_trials();
-  for (const auto& [number, record] : data.trials) *s.snapshot.add_trials() = record;
-  return s;
+const storage::StoredStudy* MemoryStore::Peek(int64_t study_id) const {
+  absl::ReaderMutexLock lock(&mu_);
+  auto it = studies_.find(study_id);
+  return it == studies_.end() ? nullptr : &it->second.stored;
+}
+
+const std::vector<v1::GenerationSummary>* MemoryStore::PeekGenerations(int64_t study_id) const {
+  absl::ReaderMutexLock lock(&mu_);
+  auto it = studies_.find(study_id);
+  return it == studies_.end() ? nullptr : &it->second.generations;
 }
 
 absl::StatusOr<int64_t> MemoryStore::CreateStudy(const std::string& name, const v1::StudyDesign& design,
@@ -95,11 +100,14 @@ absl::Status MemoryStore::Apply(storage::StudyWrite& write) {
   StudyData& data = it->second;
   const std::string where = absl::StrCat("study id ", write.study_id, ": ");
   std::vector<v1::TrialRecord> trials(write.trials.size());
+  int64_t count = data.stored.snapshot.trials_size();
   for (size_t i = 0; i < write.trials.size(); ++i) {
     const v1::TrialRecord& record = write.trials[i];
-    if (record.number() < 1) {
-      return absl::InvalidArgumentError(absl::StrCat(where, "trials[", i, "].number: must be >= 1"));
+    if (record.number() < 1 || record.number() > count + 1) {
+      return absl::InvalidArgumentError(absl::StrCat(where, "trials[", i, "].number: must be in 1..", count + 1,
+                                                     " (dense), got ", record.number()));
     }
+    if (record.number() == count + 1) ++count;
     if (!std::isfinite(record.score())) {
       return absl::InvalidArgumentError(absl::StrCat(where, "trials[", i, "].score: must be finite, got ", record.score()));
     }
@@ -132,7 +140,15 @@ absl::Status MemoryStore::Apply(storage::StudyWrite& write) {
     }
   }
 
-  for (v1::TrialRecord& record : trials) data.trials[record.number()] = std::move(record);
+  google::protobuf::RepeatedPtrField<v1::TrialRecord>& stored_trials = *data.stored.snapshot.mutable_trials();
+  for (v1::TrialRecord& record : trials) {
+    const int index = static_cast<int>(record.number() - 1);
+    if (index == stored_trials.size()) {
+      *stored_trials.Add() = std::move(record);
+    } else {
+      stored_trials[index] = std::move(record);
+    }
+  }
   v1::EngineState* stored_engine = data.stored.snapshot.mutable_engine();
   if (engine.has_value()) {
     v1::DistributionState kept = stored_engine->distribution();
@@ -152,13 +168,13 @@ absl::StatusOr<storage::TrialPage> MemoryStore::ListTrials(int64_t study_id, std
   auto it = studies_.find(study_id);
   if (it == studies_.end()) return absl::NotFoundError(absl::StrCat("study id ", study_id, ": no such study"));
   storage::TrialPage page;
-  for (auto t = it->second.trials.upper_bound(after_number); t != it->second.trials.end(); ++t) {
-    if (state.has_value() && t->second.state() != *state) continue;
+  for (const v1::TrialRecord& t : it->second.stored.snapshot.trials()) {
+    if (t.number() <= after_number || (state.has_value() && t.state() != *state)) continue;
     if (static_cast<int>(page.trials.size()) == limit) {
       page.next_after = page.trials.back().number();
       break;
     }
-    page.trials.push_back(t->second);
+    page.trials.push_back(t);
   }
   return page;
 }

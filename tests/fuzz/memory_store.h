@@ -3,7 +3,9 @@
 // was committed exactly as the real store would hand it back at start-up, refuses what the real store
 // refuses (a non-finite score, an empty or repeated ask request id, an unknown study), and follows
 // the same chain rule (once a write of a chain failed, every later write of that chain fails with
-// UNAVAILABLE). Commits complete at once; there is no disk and no fsync.
+// UNAVAILABLE). It is stricter in one way: trial numbers must be dense (a write may replace trial k
+// or add trial count + 1), as the study engine numbers them. Commits complete at once; there is no
+// disk and no fsync.
 //
 // Thread-safe (one mutex); the fuzz targets drive it from one thread.
 #ifndef OGIVE_TESTS_FUZZ_MEMORY_STORE_H_
@@ -44,15 +46,19 @@ class MemoryStore final : public storage::Store {
   // Writes stored so far (CreateStudy and Commit).
   int64_t committed_writes() const;
 
+  // Read access without copies, for a single-threaded caller: what the store holds for a study (as
+  // LoadAll would return it) and its generation summaries, valid and unchanged until the next write.
+  // nullptr for an unknown id.
+  const storage::StoredStudy* Peek(int64_t study_id) const;
+  const std::vector<v1::GenerationSummary>* PeekGenerations(int64_t study_id) const;
+
  private:
   struct StudyData {
-    storage::StoredStudy stored;                    // snapshot.trials is rebuilt from `trials` on load
-    std::map<int64_t, v1::TrialRecord> trials;      // by number
+    storage::StoredStudy stored;  // snapshot.trials(k) is trial k + 1
     std::vector<v1::GenerationSummary> generations;
     std::vector<storage::Event> events;
   };
   absl::Status Apply(storage::StudyWrite& write) ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_);
-  storage::StoredStudy Load(const StudyData& data) const ABSL_SHARED_LOCKS_REQUIRED(mu_);
 
   mutable absl::Mutex mu_;
   std::map<int64_t, StudyData> studies_ ABSL_GUARDED_BY(mu_);  // by id

@@ -84,29 +84,30 @@ void RequireStudyInvariants(const StudyModel& model, const storage::StoredStudy&
   std::set<int64_t> sequences;
   for (int k = 0; k < trials.size(); ++k) {
     const v1::TrialRecord& r = trials[k];
-    const std::string t = absl::StrCat("trial ", r.number(), " (", r.ShortDebugString(), ")");
-    OGIVE_FUZZ_REQUIRE(r.number() == k + 1, "trial records out of order at ", k, ": ", t);
+    // Only built when a check fails.
+    const auto t = [&r] { return absl::StrCat("trial ", r.number(), " (", r.ShortDebugString(), ")"); };
+    OGIVE_FUZZ_REQUIRE(r.number() == k + 1, "trial records out of order at ", k, ": ", t());
     RequireInternalInBounds(*model.space, r);
-    OGIVE_FUZZ_REQUIRE(r.generation() >= 0 && r.generation() <= engine.generation(), t);
-    OGIVE_FUZZ_REQUIRE(r.epoch() >= 0 && r.epoch() <= engine.epoch(), t);
+    OGIVE_FUZZ_REQUIRE(r.generation() >= 0 && r.generation() <= engine.generation(), t());
+    OGIVE_FUZZ_REQUIRE(r.epoch() >= 0 && r.epoch() <= engine.epoch(), t());
     const auto told = model.reported.find(r.number());
     const bool has_outcome = r.outcome_kind() != v1::OUTCOME_KIND_UNSPECIFIED;
     OGIVE_FUZZ_REQUIRE(has_outcome == (told != model.reported.end()), "stored outcome and what was told differ: ",
-                       t);
+                       t());
     if (has_outcome) {
-      OGIVE_FUZZ_REQUIRE(SameAsModel(told->second, r), "the stored outcome is not the one first told: ", t);
-      OGIVE_FUZZ_REQUIRE(r.report_sequence() >= 1 && sequences.insert(r.report_sequence()).second, t);
+      OGIVE_FUZZ_REQUIRE(SameAsModel(told->second, r), "the stored outcome is not the one first told: ", t());
+      OGIVE_FUZZ_REQUIRE(r.report_sequence() >= 1 && sequences.insert(r.report_sequence()).second, t());
       max_sequence = std::max(max_sequence, r.report_sequence());
     } else {
-      OGIVE_FUZZ_REQUIRE(r.report_sequence() == 0, t);
+      OGIVE_FUZZ_REQUIRE(r.report_sequence() == 0, t());
     }
-    OGIVE_FUZZ_REQUIRE(std::isfinite(r.score()), t);
+    OGIVE_FUZZ_REQUIRE(std::isfinite(r.score()), t());
     switch (r.state()) {
       case v1::TRIAL_STATE_LEASED:
       case v1::TRIAL_STATE_LAPSED:
-        OGIVE_FUZZ_REQUIRE(!has_outcome && r.use() == v1::OUTCOME_USE_UNSPECIFIED, t);
+        OGIVE_FUZZ_REQUIRE(!has_outcome && r.use() == v1::OUTCOME_USE_UNSPECIFIED, t());
         if (r.state() == v1::TRIAL_STATE_LAPSED) {
-          OGIVE_FUZZ_REQUIRE(r.lease_deadline_ns() <= absl::ToUnixNanos(now), "lapsed before its deadline: ", t);
+          OGIVE_FUZZ_REQUIRE(r.lease_deadline_ns() <= absl::ToUnixNanos(now), "lapsed before its deadline: ", t());
         }
         (r.state() == v1::TRIAL_STATE_LEASED ? leased : lapsed)++;
         break;
@@ -114,37 +115,37 @@ void RequireStudyInvariants(const StudyModel& model, const storage::StoredStudy&
         OGIVE_FUZZ_REQUIRE(r.outcome_kind() == v1::OUTCOME_KIND_INFEASIBLE ||
                                (r.outcome_kind() == v1::OUTCOME_KIND_SCORE && !model.order.graded) ||
                                (r.outcome_kind() == v1::OUTCOME_KIND_GRADE && model.order.graded),
-                           t);
+                           t());
         if (r.outcome_kind() == v1::OUTCOME_KIND_GRADE) {
-          OGIVE_FUZZ_REQUIRE(r.grade_index() >= 0 && r.grade_index() < model.order.grade_count, t);
+          OGIVE_FUZZ_REQUIRE(r.grade_index() >= 0 && r.grade_index() < model.order.grade_count, t());
         }
         OGIVE_FUZZ_REQUIRE(r.use() == v1::OUTCOME_USE_PENDING || r.use() == v1::OUTCOME_USE_CONSUMED ||
                                r.use() == v1::OUTCOME_USE_TOO_STALE,
-                           t);
+                           t());
         ++reported;
         break;
       case v1::TRIAL_STATE_VOIDED:
-        OGIVE_FUZZ_REQUIRE(r.outcome_kind() == v1::OUTCOME_KIND_VOID && r.use() == v1::OUTCOME_USE_UNSPECIFIED, t);
+        OGIVE_FUZZ_REQUIRE(r.outcome_kind() == v1::OUTCOME_KIND_VOID && r.use() == v1::OUTCOME_USE_UNSPECIFIED, t());
         ++voided;
         break;
       default:
-        OGIVE_FUZZ_REQUIRE(false, "unknown state: ", t);
+        OGIVE_FUZZ_REQUIRE(false, "unknown state: ", t());
     }
     if (r.late()) {
-      OGIVE_FUZZ_REQUIRE(has_outcome, "late without a report: ", t);
+      OGIVE_FUZZ_REQUIRE(has_outcome, "late without a report: ", t());
       ++late;
     }
     switch (r.use()) {
       case v1::OUTCOME_USE_PENDING:
         // Staleness only grows with updates, and every update drops what became too stale.
         OGIVE_FUZZ_REQUIRE(r.epoch() == engine.epoch() && engine.generation() - r.generation() <= staleness_limit,
-                           "a pending outcome is too stale to be used: ", t);
+                           "a pending outcome is too stale to be used: ", t());
         ++pending;
         break;
       case v1::OUTCOME_USE_CONSUMED:
         OGIVE_FUZZ_REQUIRE(r.consumed_by() > r.generation() && r.consumed_by() <= engine.generation() &&
                                r.consumed_by() - 1 - r.generation() <= staleness_limit,
-                           t);
+                           t());
         ++consumed;
         break;
       case v1::OUTCOME_USE_TOO_STALE:
@@ -153,7 +154,7 @@ void RequireStudyInvariants(const StudyModel& model, const storage::StoredStudy&
       default:
         break;
     }
-    if (r.use() != v1::OUTCOME_USE_CONSUMED) OGIVE_FUZZ_REQUIRE(r.consumed_by() == -1, t);
+    if (r.use() != v1::OUTCOME_USE_CONSUMED) OGIVE_FUZZ_REQUIRE(r.consumed_by() == -1, t());
   }
   OGIVE_FUZZ_REQUIRE(engine.report_sequence() == max_sequence &&
                          engine.report_sequence() == static_cast<int64_t>(sequences.size()),
@@ -236,33 +237,33 @@ void RequireStudyInvariants(const StudyModel& model, const storage::StoredStudy&
 }
 
 void RequireTrialViewMatches(const StudyModel& model, const v1::Trial& view, const v1::TrialRecord& record) {
-  const std::string t = absl::StrCat(view.ShortDebugString(), " vs stored ", record.ShortDebugString());
+  const auto t = [&] { return absl::StrCat(view.ShortDebugString(), " vs stored ", record.ShortDebugString()); };
   OGIVE_FUZZ_REQUIRE(view.number() == record.number() && view.state() == record.state() &&
                          view.use() == record.use() && view.consumed_by() == record.consumed_by() &&
                          view.generation() == record.generation() && view.worker() == record.worker() &&
                          view.late() == record.late() &&
                          view.lease_deadline_unix_ms() == record.lease_deadline_ns() / 1000000 -
                                                               (record.lease_deadline_ns() % 1000000 < 0 ? 1 : 0),
-                     t);
+                     t());
   RequireCandidateInDesign(view.candidate(), *model.design);
   const auto told = model.reported.find(record.number());
-  OGIVE_FUZZ_REQUIRE(view.has_outcome() == (told != model.reported.end()), t);
+  OGIVE_FUZZ_REQUIRE(view.has_outcome() == (told != model.reported.end()), t());
   if (!view.has_outcome()) return;
   const v1::Outcome& o = view.outcome();
   switch (told->second.kind) {
     case search::Outcome::Kind::kScore:
-      OGIVE_FUZZ_REQUIRE(o.has_score() && o.score() == told->second.score, t);
+      OGIVE_FUZZ_REQUIRE(o.has_score() && o.score() == told->second.score, t());
       break;
     case search::Outcome::Kind::kGrade:
       OGIVE_FUZZ_REQUIRE(o.has_grade() && o.grade() == model.design->objective().grade_scale().labels(
                                                                told->second.grade),
-                         t);
+                         t());
       break;
     case search::Outcome::Kind::kInfeasible:
-      OGIVE_FUZZ_REQUIRE(o.has_infeasible(), t);
+      OGIVE_FUZZ_REQUIRE(o.has_infeasible(), t());
       break;
     case search::Outcome::Kind::kVoid:
-      OGIVE_FUZZ_REQUIRE(o.has_void_(), t);
+      OGIVE_FUZZ_REQUIRE(o.has_void_(), t());
       break;
   }
 }

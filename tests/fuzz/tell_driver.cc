@@ -33,11 +33,12 @@ bool LeaseOk(double seconds, const service::ServiceLimits& limits) {
 }
 
 // The status a request gets; a refused one must say why.
-template <typename T>
-absl::StatusCode RequireCode(const absl::StatusOr<T>& got, absl::StatusCode expected, const std::string& request) {
-  OGIVE_FUZZ_REQUIRE(got.status().code() == expected, request, ": expected ", absl::StatusCodeToString(expected),
+// `request` describes the request, only when a check fails.
+template <typename T, typename Describe>
+absl::StatusCode RequireCode(const absl::StatusOr<T>& got, absl::StatusCode expected, const Describe& request) {
+  OGIVE_FUZZ_REQUIRE(got.status().code() == expected, request(), ": expected ", absl::StatusCodeToString(expected),
                      ", got ", got.status().ToString());
-  OGIVE_FUZZ_REQUIRE(got.ok() || !got.status().message().empty(), request, ": refused without a message");
+  OGIVE_FUZZ_REQUIRE(got.ok() || !got.status().message().empty(), request(), ": refused without a message");
   return got.status().code();
 }
 
@@ -147,26 +148,25 @@ void TellDriver::Run() {
 
 void TellDriver::Refresh() {
   OGIVE_FUZZ_REQUIRE(store_.failed_writes() == 0, "the store refused a write the service made");
-  absl::StatusOr<std::vector<storage::StoredStudy>> all = store_.LoadAll();
-  OGIVE_FUZZ_REQUIRE(all.ok() && all->size() == 1, "the store does not hold the study");
-  stored_ = std::move(all->front());
-  absl::StatusOr<std::vector<v1::GenerationSummary>> generations = store_.ListGenerations(stored_.id);
-  OGIVE_FUZZ_REQUIRE(generations.ok(), generations.status().ToString());
-  generations_ = *std::move(generations);
+  absl::StatusOr<std::shared_ptr<service::StudyHost>> host = registry_->Find(kStudy);
+  OGIVE_FUZZ_REQUIRE(host.ok(), host.status().ToString());
+  stored_ = store_.Peek((*host)->id());
+  generations_ = store_.PeekGenerations((*host)->id());
+  OGIVE_FUZZ_REQUIRE(stored_ != nullptr && generations_ != nullptr, "the store does not hold the study");
   v1::GetStudyRequest get;
   get.set_study(kStudy);
   absl::StatusOr<v1::StudyView> view = service::GetStudy(*registry_, get);
   OGIVE_FUZZ_REQUIRE(view.ok(), view.status().ToString());
-  RequireStudyInvariants(model_, stored_, generations_, *view, now_);
+  RequireStudyInvariants(model_, *stored_, *generations_, *view, now_);
 }
 
 const v1::TrialRecord* TellDriver::Record(int64_t number) const {
-  if (number < 1 || number > stored_.snapshot.trials_size()) return nullptr;
-  return &stored_.snapshot.trials(static_cast<int>(number - 1));
+  if (number < 1 || number > stored_->snapshot.trials_size()) return nullptr;
+  return &stored_->snapshot.trials(static_cast<int>(number - 1));
 }
 
 int64_t TellDriver::PickTrial() {
-  const int64_t total = stored_.snapshot.trials_size();
+  const int64_t total = stored_->snapshot.trials_size();
   const uint8_t b = in_.Byte();
   if (total == 0 || b >= 240) {
     const int64_t odd[] = {0, -1, total + 1, std::numeric_limits<int64_t>::max()};
@@ -222,9 +222,9 @@ void TellDriver::Ask() {
 
 std::optional<v1::AskResponse> TellDriver::SendAsk(const v1::AskRequest& r) {
   const service::ServiceLimits& limits = registry_->limits();
-  const v1::EngineState& engine = stored_.snapshot.engine();
-  const int64_t total = stored_.snapshot.trials_size();
-  const std::string what = absl::StrCat("ask ", r.ShortDebugString());
+  const v1::EngineState& engine = stored_->snapshot.engine();
+  const int64_t total = stored_->snapshot.trials_size();
+  const auto what = [&r] { return absl::StrCat("ask ", r.ShortDebugString()); };
   absl::StatusCode expected = absl::StatusCode::kOk;
   std::vector<int64_t> numbers;
   const bool retry = !r.request_id().empty() && ask_requests_.count(r.request_id()) > 0;
@@ -239,7 +239,7 @@ std::optional<v1::AskResponse> TellDriver::SendAsk(const v1::AskRequest& r) {
     int64_t n = r.count();
     if (design_.trial_budget() > 0) {
       int64_t outstanding = 0;
-      for (const v1::TrialRecord& t : stored_.snapshot.trials()) {
+      for (const v1::TrialRecord& t : stored_->snapshot.trials()) {
         if (t.state() == v1::TRIAL_STATE_LEASED && t.lease_deadline_ns() > absl::ToUnixNanos(now_)) ++outstanding;
       }
       const int64_t room = design_.trial_budget() - engine.informative() - outstanding;
@@ -253,21 +253,21 @@ std::optional<v1::AskResponse> TellDriver::SendAsk(const v1::AskRequest& r) {
   absl::StatusOr<v1::AskResponse> got = service::Ask(*registry_, r, now_);
   RequireCode(got, expected, what);
   if (!got.ok()) {
-    OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes, what, ": refused but stored something");
+    OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes, what(), ": refused but stored something");
     return std::nullopt;
   }
-  OGIVE_FUZZ_REQUIRE(got->trials_size() == static_cast<int>(numbers.size()), what, ": expected ", numbers.size(),
+  OGIVE_FUZZ_REQUIRE(got->trials_size() == static_cast<int>(numbers.size()), what(), ": expected ", numbers.size(),
                      " trials, got ", got->ShortDebugString());
   const int64_t deadline_ms = absl::ToUnixMillis(now_ + LeaseFor(r.lease_seconds()));
   for (int k = 0; k < got->trials_size(); ++k) {
     const v1::Trial& t = got->trials(k);
-    OGIVE_FUZZ_REQUIRE(t.number() == numbers[k], what, ": trial ", k, " is ", t.number(), ", expected ", numbers[k]);
+    OGIVE_FUZZ_REQUIRE(t.number() == numbers[k], what(), ": trial ", k, " is ", t.number(), ", expected ", numbers[k]);
     RequireCandidateInDesign(t.candidate(), design_);
     if (retry) continue;
     OGIVE_FUZZ_REQUIRE(t.state() == v1::TRIAL_STATE_LEASED && t.worker() == r.worker() &&
                            t.generation() == engine.generation() && t.lease_deadline_unix_ms() == deadline_ms &&
                            !t.has_outcome(),
-                       what, ": ", t.ShortDebugString(), " (deadline expected ", deadline_ms, ")");
+                       what(), ": ", t.ShortDebugString(), " (deadline expected ", deadline_ms, ")");
   }
   if (!retry && !r.request_id().empty()) ask_requests_[r.request_id()] = numbers;
   return *std::move(got);
@@ -288,7 +288,7 @@ void TellDriver::Tell() {
 
 void TellDriver::SendTell(const v1::TellRequest& r) {
   const service::ServiceLimits& limits = registry_->limits();
-  const std::string what = absl::StrCat("tell ", r.ShortDebugString().substr(0, 2000));
+  const auto what = [&r] { return absl::StrCat("tell ", r.ShortDebugString().substr(0, 2000)); };
   const auto& labels = design_.objective().grade_scale().labels();
   bool valid = r.reports_size() >= 1 && r.reports_size() <= limits.max_reports_per_tell &&
                static_cast<int>(r.worker().size()) <= limits.max_name_bytes;
@@ -320,44 +320,60 @@ void TellDriver::SendTell(const v1::TellRequest& r) {
     }
   }
 
+  // Each report's result, in order: later reports of a request see the earlier ones.
+  struct Expected {
+    absl::StatusCode code = absl::StatusCode::kOk;
+    bool duplicate = false;
+    bool late = false;
+  };
+  std::vector<Expected> expected(r.reports_size());
+  std::map<int64_t, search::Outcome> reported = model_.reported;
+  for (int k = 0; k < r.reports_size(); ++k) {
+    const int64_t number = r.reports(k).trial();
+    const v1::TrialRecord* before = Record(number);
+    const search::Outcome& outcome = outcomes[k];
+    if (before == nullptr) {
+      expected[k].code = absl::StatusCode::kNotFound;
+    } else if (const auto told = reported.find(number); told != reported.end()) {
+      const search::Outcome& first = told->second;
+      const bool same = first.kind == outcome.kind &&
+                        (first.kind != search::Outcome::Kind::kScore || first.score == outcome.score) &&
+                        (first.kind != search::Outcome::Kind::kGrade || first.grade == outcome.grade);
+      if (same) {
+        expected[k].duplicate = true;
+        expected[k].late = before->late() || before->state() == v1::TRIAL_STATE_LAPSED ||
+                           (before->state() == v1::TRIAL_STATE_LEASED &&
+                            before->lease_deadline_ns() <= absl::ToUnixNanos(now_));
+      } else {
+        expected[k].code = absl::StatusCode::kAlreadyExists;
+      }
+    } else {
+      expected[k].late = before->state() == v1::TRIAL_STATE_LAPSED ||
+                         (before->state() == v1::TRIAL_STATE_LEASED &&
+                          before->lease_deadline_ns() <= absl::ToUnixNanos(now_));
+      reported[number] = outcome;
+    }
+  }
+
   const int64_t writes = store_.committed_writes();
   absl::StatusOr<v1::TellResponse> got = service::Tell(*registry_, r, now_);
   RequireCode(got, valid ? absl::StatusCode::kOk : absl::StatusCode::kInvalidArgument, what);
   if (!got.ok()) {
-    OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes, what, ": refused but stored something");
+    OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes, what(), ": refused but stored something");
     return;
   }
-  OGIVE_FUZZ_REQUIRE(got->results_size() == r.reports_size(), what, ": ", got->ShortDebugString());
+  OGIVE_FUZZ_REQUIRE(got->results_size() == r.reports_size(), what(), ": ", got->ShortDebugString());
   for (int k = 0; k < r.reports_size(); ++k) {
-    const int64_t number = r.reports(k).trial();
     const v1::ReportResult& result = got->results(k);
-    const std::string at = absl::StrCat(what, ": report ", k, " -> ", result.ShortDebugString());
-    OGIVE_FUZZ_REQUIRE(result.trial() == number, at);
-    const v1::TrialRecord* before = Record(number);
-    if (before == nullptr) {
-      OGIVE_FUZZ_REQUIRE(CodeOf(result.code()) == absl::StatusCode::kNotFound, at);
-      continue;
-    }
-    const search::Outcome& outcome = outcomes[k];
-    const auto told = model_.reported.find(number);
-    if (told != model_.reported.end()) {
-      const search::Outcome& first = told->second;
-      const bool same = first.kind == outcome.kind && (first.kind != search::Outcome::Kind::kScore ||
-                                                       first.score == outcome.score) &&
-                        (first.kind != search::Outcome::Kind::kGrade || first.grade == outcome.grade);
-      OGIVE_FUZZ_REQUIRE(same ? result.code() == 0 && result.duplicate()
-                              : CodeOf(result.code()) == absl::StatusCode::kAlreadyExists && !result.duplicate(),
-                         at, same ? " (expected a duplicate)" : " (expected ALREADY_EXISTS)");
-      continue;
-    }
-    const bool late = before->state() == v1::TRIAL_STATE_LAPSED ||
-                      (before->state() == v1::TRIAL_STATE_LEASED &&
-                       before->lease_deadline_ns() <= absl::ToUnixNanos(now_));
-    OGIVE_FUZZ_REQUIRE(result.code() == 0 && !result.duplicate() && result.late() == late, at, " (late expected ",
-                       late, ")");
-    model_.reported[number] = outcome;
+    const Expected& e = expected[k];
+    OGIVE_FUZZ_REQUIRE(result.trial() == r.reports(k).trial() && CodeOf(result.code()) == e.code &&
+                           (e.code != absl::StatusCode::kOk || (result.duplicate() == e.duplicate &&
+                                                                result.late() == e.late)),
+                       what(), ": report ", k, " -> ", result.ShortDebugString(), "; expected ",
+                       absl::StatusCodeToString(e.code), e.duplicate ? " duplicate" : "", e.late ? " late" : "");
   }
-  OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes + 1, what, ": one write expected");
+  model_.reported = std::move(reported);
+  OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes + 1, what(), ": one write expected");
 }
 
 void TellDriver::AskAndTellCohort() {
@@ -404,7 +420,7 @@ void TellDriver::Renew() {
   r.set_worker(in_.Pick(kWorkers));
   r.set_lease_seconds(in_.Pick(kLeaseSeconds));
   const service::ServiceLimits& limits = registry_->limits();
-  const std::string what = absl::StrCat("renew ", r.ShortDebugString());
+  const auto what = [&r] { return absl::StrCat("renew ", r.ShortDebugString()); };
 
   absl::StatusCode expected = absl::StatusCode::kOk;
   if (n < 1 || static_cast<int>(r.worker().size()) > limits.max_name_bytes || !LeaseOk(r.lease_seconds(), limits)) {
@@ -425,15 +441,15 @@ void TellDriver::Renew() {
   absl::StatusOr<v1::RenewResponse> got = service::Renew(*registry_, r, now_);
   RequireCode(got, expected, what);
   if (!got.ok()) {
-    OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes, what, ": refused but stored something");
+    OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes, what(), ": refused but stored something");
     return;
   }
   const int64_t deadline_ms = absl::ToUnixMillis(now_ + LeaseFor(r.lease_seconds()));
-  OGIVE_FUZZ_REQUIRE(got->trials_size() == n, what, ": ", got->ShortDebugString());
+  OGIVE_FUZZ_REQUIRE(got->trials_size() == n, what(), ": ", got->ShortDebugString());
   for (const v1::Trial& t : got->trials()) {
     OGIVE_FUZZ_REQUIRE(t.state() == v1::TRIAL_STATE_LEASED && t.worker() == r.worker() &&
                            t.lease_deadline_unix_ms() == deadline_ms,
-                       what, ": ", t.ShortDebugString());
+                       what(), ": ", t.ShortDebugString());
   }
 }
 
@@ -441,7 +457,7 @@ void TellDriver::Sweep() {
   now_ += absl::Seconds(in_.Pick(kAdvanceSeconds));
   if (in_.Bit()) return;  // time passes without a sweep; the next request lapses what ran out
   int64_t expected = 0;
-  for (const v1::TrialRecord& t : stored_.snapshot.trials()) {
+  for (const v1::TrialRecord& t : stored_->snapshot.trials()) {
     if (t.state() == v1::TRIAL_STATE_LEASED && t.lease_deadline_ns() <= absl::ToUnixNanos(now_)) ++expected;
   }
   absl::StatusOr<std::shared_ptr<service::StudyHost>> host = registry_->Find(kStudy);
@@ -456,7 +472,7 @@ void TellDriver::SetPhase() {
   r.set_study(kStudy);
   r.set_command(in_.Pick({v1::PHASE_COMMAND_UNSPECIFIED, v1::PHASE_COMMAND_PAUSE, v1::PHASE_COMMAND_RESUME,
                           v1::PHASE_COMMAND_FINISH, static_cast<v1::PhaseCommand>(7)}));
-  const v1::EngineState& engine = stored_.snapshot.engine();
+  const v1::EngineState& engine = stored_->snapshot.engine();
   const bool done = engine.phase() == v1::STUDY_PHASE_DONE;
   absl::StatusCode expected = absl::StatusCode::kOk;
   v1::StudyPhase phase = engine.phase();
@@ -477,15 +493,15 @@ void TellDriver::SetPhase() {
     default:
       expected = absl::StatusCode::kInvalidArgument;
   }
-  const std::string what = absl::StrCat("set phase ", r.ShortDebugString());
+  const auto what = [&r] { return absl::StrCat("set phase ", r.ShortDebugString()); };
   const int64_t writes = store_.committed_writes();
   absl::StatusOr<v1::StudyView> got = service::SetPhase(*registry_, r, now_);
   RequireCode(got, expected, what);
   if (!got.ok()) {
-    OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes, what, ": refused but stored something");
+    OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes, what(), ": refused but stored something");
     return;
   }
-  OGIVE_FUZZ_REQUIRE(got->status().phase() == phase && got->status().reason() == reason, what, ": ",
+  OGIVE_FUZZ_REQUIRE(got->status().phase() == phase && got->status().reason() == reason, what(), ": ",
                      got->status().ShortDebugString());
 }
 
@@ -502,10 +518,10 @@ void TellDriver::ListTrials() {
                                                    absl::SimpleAtoi(r.page_token().substr(1), &after) && after >= 0);
   const bool valid = r.page_size() >= 0 && r.page_size() <= registry_->limits().max_page_size && token_ok &&
                      v1::TrialState_IsValid(r.state());
-  const std::string what = absl::StrCat("list trials ", r.ShortDebugString());
+  const auto what = [&r] { return absl::StrCat("list trials ", r.ShortDebugString()); };
 
   std::vector<const v1::TrialRecord*> expected;
-  for (const v1::TrialRecord& t : stored_.snapshot.trials()) {
+  for (const v1::TrialRecord& t : stored_->snapshot.trials()) {
     if (t.number() > after && (r.state() == v1::TRIAL_STATE_UNSPECIFIED || t.state() == r.state())) {
       expected.push_back(&t);
     }
@@ -516,16 +532,16 @@ void TellDriver::ListTrials() {
     RequireCode(got, valid ? absl::StatusCode::kOk : absl::StatusCode::kInvalidArgument, what);
     if (!got.ok()) return;
     const int limit = r.page_size() == 0 ? 100 : r.page_size();
-    OGIVE_FUZZ_REQUIRE(got->trials_size() <= limit, what, ": page of ", got->trials_size());
+    OGIVE_FUZZ_REQUIRE(got->trials_size() <= limit, what(), ": page of ", got->trials_size());
     for (const v1::Trial& t : got->trials()) {
-      OGIVE_FUZZ_REQUIRE(seen < expected.size(), what, ": more trials than stored");
+      OGIVE_FUZZ_REQUIRE(seen < expected.size(), what(), ": more trials than stored");
       RequireTrialViewMatches(model_, t, *expected[seen++]);
     }
     if (got->next_page_token().empty()) break;
-    OGIVE_FUZZ_REQUIRE(page < 1000 && got->trials_size() > 0, what, ": pages do not end");
+    OGIVE_FUZZ_REQUIRE(page < 1000 && got->trials_size() > 0, what(), ": pages do not end");
     r.set_page_token(got->next_page_token());
   }
-  OGIVE_FUZZ_REQUIRE(seen == expected.size(), what, ": listed ", seen, " of ", expected.size(), " trials");
+  OGIVE_FUZZ_REQUIRE(seen == expected.size(), what(), ": listed ", seen, " of ", expected.size(), " trials");
 }
 
 void TellDriver::Restart() {

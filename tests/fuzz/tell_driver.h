@@ -55,7 +55,7 @@ class TellDriver {
   // Sends an ask (or a tell) after predicting its answer; returns the response when it succeeded.
   std::optional<v1::AskResponse> SendAsk(const v1::AskRequest& request);
   void SendTell(const v1::TellRequest& request);
-  // Loads what the store holds into stored_ / generations_ and checks the invariants.
+  // Points stored_ and generations_ at what the store holds and checks the invariants.
   void Refresh();
   const v1::TrialRecord* Record(int64_t number) const;
   int64_t PickTrial();
@@ -69,8 +69,10 @@ class TellDriver {
   std::optional<search::Space> space_;
   StudyModel model_;
   absl::Time now_;
-  storage::StoredStudy stored_;  // the store's copy after the last request
-  std::vector<v1::GenerationSummary> generations_;
+  // The store's copy of the study after the last request; it changes with the next write, so every
+  // prediction is made before its request is sent.
+  const storage::StoredStudy* stored_ = nullptr;
+  const std::vector<v1::GenerationSummary>* generations_ = nullptr;
   std::map<std::string, std::vector<int64_t>> ask_requests_;  // request id -> trials it returned
 };
 
