@@ -8,6 +8,7 @@ packages=(
   libgrpc++-dev protobuf-compiler-grpc libprotobuf-dev protobuf-compiler
   libeigen3-dev libabsl-dev libsqlite3-dev sqlite3
   libgtest-dev libgmock-dev
+  clang libclang-rt-14-dev  # the `fuzz` preset: clang++ with libFuzzer and its sanitizer runtimes
   python3-numpy python3-scipy python3-grpcio python3-protobuf
 )
 
