@@ -570,7 +570,7 @@ TEST(DesignFileTest, RefusesStringsThatAreNotUtf8) {
       ParseDesign("d.txtpb", "name: \"x\"\nparameters { name: \"t\" unit: \"\xb0" "C\" }\n");
   ASSERT_FALSE(d.ok());
   EXPECT_EQ(d.status().code(), absl::StatusCode::kInvalidArgument);
-  EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.txtpb:2:29: byte 0xb0 is not UTF-8"));
+  EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.txtpb:2:31: byte 0xb0 is not UTF-8"));
   d = ParseDesign("d.json", "{\"name\": \"caf\xe9\"}");
   ASSERT_FALSE(d.ok());
   EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.json:1:14: byte 0xe9"));
