@@ -816,7 +816,9 @@ absl::StatusOr<int64_t> SqliteStore::CreateStudy(const std::string& name,
   if (options_.read_only) return ReadOnlyError(path_);
   if (name.empty()) return absl::InvalidArgumentError("name: must not be empty");
   EncodedWrite write;
-  EncodedWrite::NewStudy& study = write.create.emplace();
+  // Constructed here and moved in: clang decides whether a nested struct with default member
+  // initializers is default-constructible before it has read them, and refuses emplace().
+  EncodedWrite::NewStudy& study = write.create.emplace(EncodedWrite::NewStudy{});
   study.name = name;
   study.request_id = request_id;
   study.created_at_ns = absl::ToUnixNanos(absl::Now());

@@ -654,6 +654,32 @@ TEST(DesignFileTest, TextErrorsNameFileLineAndColumn) {
   EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.txtpb:3:1: "));
 }
 
+// Found by the design_text fuzz target: a description saved in Latin-1, or written with an octal
+// escape, was accepted here and then refused by the server's gRPC layer with no hint of where.
+TEST(DesignFileTest, RefusesStringsThatAreNotUtf8) {
+  absl::StatusOr<v1::StudyDesign> d =
+      ParseDesign("d.txtpb", "name: \"x\"\nparameters { name: \"t\" unit: \"\xb0" "C\" }\n");
+  ASSERT_FALSE(d.ok());
+  EXPECT_EQ(d.status().code(), absl::StatusCode::kInvalidArgument);
+  EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.txtpb:2:31: byte 0xb0 is not UTF-8"));
+  d = ParseDesign("d.json", "{\"name\": \"caf\xe9\"}");
+  ASSERT_FALSE(d.ok());
+  EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.json:1:14: byte 0xe9"));
+
+  d = ParseDesign("d.txtpb", "name: \"x\"\nparameters { name: \"t\" description: \"\\260C\" flag {} }\n");
+  ASSERT_FALSE(d.ok());
+  EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.txtpb: parameters[0].description: "));
+  d = ParseDesign("d.txtpb", "name: \"x\" start { values { key: \"k\" value { categorical: \"\\xed\\xa0\\x80\" } } }");
+  ASSERT_FALSE(d.ok());
+  EXPECT_THAT(std::string(d.status().message()), HasSubstr("start.values[0].value.categorical"));
+
+  // Well-formed multi-byte text is fine, in the file and from escapes.
+  d = ParseDesign("d.txtpb", "name: \"x\"\nparameters { name: \"t\" unit: \"\xc2\xb0" "C\" description: \"\\342\\202\\254\" }\n");
+  ASSERT_TRUE(d.ok()) << d.status();
+  EXPECT_EQ(d->parameters(0).unit(), "\xc2\xb0" "C");
+  EXPECT_EQ(d->parameters(0).description(), "\xe2\x82\xac");
+}
+
 TEST(DesignFileTest, ReadsJson) {
   absl::StatusOr<v1::StudyDesign> d = ParseDesign("d.json", R"({
     "name": "anneal",

@@ -1,8 +1,10 @@
 #include "client/cli/design_file.h"
 
+#include <algorithm>
 #include <cerrno>
 #include <cstdio>
 #include <cstring>
+#include <optional>
 #include <vector>
 
 #include "absl/strings/ascii.h"
@@ -10,7 +12,9 @@
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
+#include "google/protobuf/descriptor.h"
 #include "google/protobuf/io/tokenizer.h"
+#include "google/protobuf/message.h"
 #include "google/protobuf/text_format.h"
 #include "google/protobuf/util/json_util.h"
 
@@ -376,6 +380,91 @@ absl::StatusOr<v1::StudyDesign> ParseJson(absl::string_view file_name, absl::str
       absl::StrCat(file_name, ":", at.line, ":", at.column, ": ", message));
 }
 
+// ---- UTF-8 ----
+//
+// A design's strings travel in proto3 `string` fields, which must hold UTF-8: the server's gRPC
+// layer refuses a request with anything else, and its error says nothing of where. So the reader
+// refuses such a design itself, pointing at the byte (a file saved in Latin-1, say) or naming the
+// field (a text-format escape such as "\351" makes the same bytes from plain ASCII).
+
+// Length of the well-formed UTF-8 sequence starting at s[i] (RFC 3629: shortest form, no
+// surrogates, at most U+10FFFF), or 0 if none starts there.
+size_t Utf8SequenceLength(absl::string_view s, size_t i) {
+  const auto byte = [&s](size_t k) { return static_cast<unsigned char>(s[k]); };
+  const unsigned char b0 = byte(i);
+  if (b0 < 0x80) return 1;
+  size_t length = 0;
+  unsigned char low = 0x80, high = 0xBF;  // allowed range of the second byte
+  if (b0 >= 0xC2 && b0 <= 0xDF) {
+    length = 2;
+  } else if (b0 >= 0xE0 && b0 <= 0xEF) {
+    length = 3;
+    if (b0 == 0xE0) low = 0xA0;   // no overlong forms
+    if (b0 == 0xED) high = 0x9F;  // no surrogates
+  } else if (b0 >= 0xF0 && b0 <= 0xF4) {
+    length = 4;
+    if (b0 == 0xF0) low = 0x90;
+    if (b0 == 0xF4) high = 0x8F;  // at most U+10FFFF
+  } else {
+    return 0;
+  }
+  if (i + length > s.size()) return 0;
+  if (byte(i + 1) < low || byte(i + 1) > high) return 0;
+  for (size_t k = 2; k < length; ++k) {
+    if (byte(i + k) < 0x80 || byte(i + k) > 0xBF) return 0;
+  }
+  return length;
+}
+
+// Offset of the first byte that does not start a well-formed sequence, if any.
+std::optional<size_t> FirstNonUtf8(absl::string_view s) {
+  for (size_t i = 0; i < s.size();) {
+    const size_t n = Utf8SequenceLength(s, i);
+    if (n == 0) return i;
+    i += n;
+  }
+  return std::nullopt;
+}
+
+absl::Status CheckFileIsUtf8(absl::string_view file_name, absl::string_view contents) {
+  const std::optional<size_t> at = FirstNonUtf8(contents);
+  if (!at.has_value()) return absl::OkStatus();
+  const size_t newline = *at == 0 ? absl::string_view::npos : contents.rfind('\n', *at - 1);
+  const size_t line = 1 + std::count(contents.begin(), contents.begin() + *at, '\n');
+  const size_t column = newline == absl::string_view::npos ? *at + 1 : *at - newline;
+  return absl::InvalidArgumentError(
+      absl::StrCat(file_name, ":", line, ":", column, ": byte 0x",
+                   absl::Hex(static_cast<unsigned char>(contents[*at]), absl::kZeroPad2),
+                   " is not UTF-8; save the design file as UTF-8"));
+}
+
+// The path of the first string field (in field order) that is not UTF-8, e.g.
+// "parameters[2].description", or nullopt.
+std::optional<std::string> NonUtf8Field(const google::protobuf::Message& message, const std::string& prefix) {
+  using google::protobuf::FieldDescriptor;
+  const google::protobuf::Reflection* reflection = message.GetReflection();
+  std::vector<const FieldDescriptor*> fields;
+  reflection->ListFields(message, &fields);
+  for (const FieldDescriptor* field : fields) {
+    const std::string name = prefix + field->name();
+    const int count = field->is_repeated() ? reflection->FieldSize(message, field) : 1;
+    for (int k = 0; k < count; ++k) {
+      const std::string at = field->is_repeated() ? absl::StrCat(name, "[", k, "]") : name;
+      if (field->type() == FieldDescriptor::TYPE_STRING) {
+        const std::string value = field->is_repeated() ? reflection->GetRepeatedString(message, field, k)
+                                                       : reflection->GetString(message, field);
+        if (FirstNonUtf8(value).has_value()) return at;
+      } else if (field->type() == FieldDescriptor::TYPE_MESSAGE) {
+        const google::protobuf::Message& inner = field->is_repeated()
+                                                     ? reflection->GetRepeatedMessage(message, field, k)
+                                                     : reflection->GetMessage(message, field);
+        if (std::optional<std::string> found = NonUtf8Field(inner, at + "."); found.has_value()) return found;
+      }
+    }
+  }
+  return std::nullopt;
+}
+
 }  // namespace
 
 bool IsJsonFileName(absl::string_view file_name) {
@@ -384,8 +473,15 @@ bool IsJsonFileName(absl::string_view file_name) {
 
 absl::StatusOr<v1::StudyDesign> ParseDesign(absl::string_view file_name,
                                             absl::string_view contents) {
-  return IsJsonFileName(file_name) ? ParseJson(file_name, contents)
-                                   : ParseText(file_name, contents);
+  if (absl::Status s = CheckFileIsUtf8(file_name, contents); !s.ok()) return s;
+  absl::StatusOr<v1::StudyDesign> design =
+      IsJsonFileName(file_name) ? ParseJson(file_name, contents) : ParseText(file_name, contents);
+  if (!design.ok()) return design;
+  if (std::optional<std::string> field = NonUtf8Field(*design, ""); field.has_value()) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        file_name, ": ", *field, ": an escape makes bytes that are not UTF-8; strings must be UTF-8"));
+  }
+  return design;
 }
 
 absl::StatusOr<v1::StudyDesign> ReadDesignFile(const std::string& path) {

@@ -19,8 +19,9 @@ bool IsJsonFileName(absl::string_view file_name);
 
 // Parses `contents`, read from `file_name` (which decides the format and names the file in errors).
 // INVALID_ARGUMENT "FILE:LINE:COLUMN: what is wrong" (lines and columns from 1) on a syntax error,
-// an unknown field, or a value of the wrong type. The design's rules (bounds, names) are the
-// server's to check.
+// an unknown field, a value of the wrong type, or a byte that is not UTF-8 (columns count bytes);
+// "FILE: FIELD: ..." when an escape puts bytes that are not UTF-8 into a string. The design's rules
+// (bounds, names) are the server's to check.
 absl::StatusOr<v1::StudyDesign> ParseDesign(absl::string_view file_name,
                                             absl::string_view contents);
 
