@@ -29,7 +29,9 @@ step() {
 # and fuzz-corpus tests included (at -O1 they take about two minutes in all). A UBSan finding is an
 # error, reported with its stack.
 asan_tests() {
-  UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 ctest --preset asan -j "$jobs" --timeout 1200
+  UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 \
+    LSAN_OPTIONS="suppressions=$PWD/deploy/lsan-suppressions.txt" \
+    ctest --preset asan -j "$jobs" --timeout 1200
 }
 
 step install-deps bash deploy/install-deps.sh --report-tests
