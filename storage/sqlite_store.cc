@@ -942,7 +942,7 @@ absl::Status SqliteStore::CreateToken(const StoredToken& token) {
     }
   }
   EncodedWrite write;
-  EncodedWrite::TokenChange& change = write.token.emplace();
+  EncodedWrite::TokenChange& change = write.token.emplace(EncodedWrite::TokenChange{});  // as NewStudy above, for clang
   change.label = token.label;
   change.digest = token.digest;
   change.role = token.role;
@@ -958,7 +958,7 @@ absl::StatusOr<bool> SqliteStore::RevokeToken(const std::string& label, int64_t 
   if (options_.read_only) return ReadOnlyError(path_);
   if (label.empty()) return absl::InvalidArgumentError("label: must not be empty");
   EncodedWrite write;
-  EncodedWrite::TokenChange& change = write.token.emplace();
+  EncodedWrite::TokenChange& change = write.token.emplace(EncodedWrite::TokenChange{});  // as NewStudy above, for clang
   change.label = label;
   change.revoke = true;
   change.revoked_at_ns = at_ns;
