@@ -90,6 +90,9 @@ TEST(MetricRegistryTest, ConcurrentUpdatesAndScrapesAddUp) {
   CounterFamily& counter = registry.AddCounter("c_total", "C.", {"thread"});
   HistogramFamily& histogram = registry.AddHistogram("h_seconds", "H.", {}, {0.5});
   constexpr int kThreads = 4, kPerThread = 20000;
+  // The series exist before the scraper starts, so every scrape sees them (a series made lazily by
+  // the first observation would be missing from a scrape that runs first).
+  histogram.WithLabels({});
   std::vector<std::thread> threads;
   for (int t = 0; t < kThreads; ++t) {
     threads.emplace_back([&, t] {
