@@ -1,5 +1,6 @@
 #include "storage/sqlite_store.h"
 
+#include <pthread.h>
 #include <fcntl.h>
 #include <sys/file.h>
 #include <unistd.h>
@@ -521,6 +522,7 @@ class SqliteStore::Pending final : public PendingCommit {
 };
 
 void SqliteStore::WriterLoop() {
+  pthread_setname_np(pthread_self(), "ogive-writer");  // named for top -H, perf and gdb
   std::vector<Job*> batch;
   while (true) {
     batch.clear();

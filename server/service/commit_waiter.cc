@@ -1,5 +1,7 @@
 #include "server/service/commit_waiter.h"
 
+#include <pthread.h>
+
 #include <utility>
 
 namespace ogive::service {
@@ -20,6 +22,7 @@ void CommitWaiter::Add(std::unique_ptr<storage::PendingCommit> pending, Continua
 }
 
 void CommitWaiter::Loop() {
+  pthread_setname_np(pthread_self(), "ogive-replies");  // named for top -H, perf and gdb
   std::deque<Item> taken;
   while (true) {
     {

@@ -1,15 +1,22 @@
 #include "server/service/log.h"
 
-#include <cstdio>
+#include <pthread.h>
 
+#include <unistd.h>
+
+#include <cerrno>
+#include <cstdint>
+#include <cstdlib>
+#include <thread>
+
+#include "absl/base/thread_annotations.h"
+#include "absl/strings/str_cat.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/time/clock.h"
 #include "absl/time/time.h"
 
 namespace ogive::service {
 namespace {
-
-absl::Mutex log_mutex(absl::kConstInit);
 
 void Append(std::string& line, std::string_view value) {
   const bool quote = value.empty() || value.find_first_of(" \"=\t\n") != std::string_view::npos;
@@ -25,6 +32,91 @@ void Append(std::string& line, std::string_view value) {
   line.push_back('"');
 }
 
+// Writes all of `bytes` to standard error; gives up on the rest at an error other than EINTR.
+void WriteAll(std::string_view bytes) {
+  while (!bytes.empty()) {
+    const ssize_t n = ::write(STDERR_FILENO, bytes.data(), bytes.size());
+    if (n < 0 && errno == EINTR) continue;
+    if (n <= 0) return;
+    bytes.remove_prefix(static_cast<size_t>(n));
+  }
+}
+
+// The queue and its writer thread. Made once and never destroyed, so that a line logged while the
+// process exits (from another thread, or an atexit handler) finds it alive.
+class LogQueue {
+ public:
+  static constexpr absl::Duration kGather = absl::Milliseconds(5);
+
+  static LogQueue& Get() {
+    static LogQueue* const queue = [] {
+      auto* q = new LogQueue();
+      std::atexit([] { Get().Flush(); });
+      return q;
+    }();
+    return *queue;
+  }
+
+  void Push(std::string line) {
+    absl::MutexLock lock(&mu_);
+    if (queued_.size() + line.size() > kMaxQueuedLogBytes) {
+      ++dropped_;
+      return;
+    }
+    if (dropped_ > 0) {
+      queued_.append(absl::StrCat("ts=", line.substr(3, 24), " event=log_dropped lines=", dropped_, "\n"));
+      dropped_ = 0;
+    }
+    queued_.append(line);
+    ++pushed_;
+  }
+
+  void Flush() {
+    struct Written {
+      const LogQueue* queue;
+      uint64_t target;
+      bool Done() const ABSL_NO_THREAD_SAFETY_ANALYSIS { return queue->written_ >= target; }
+    };
+    absl::MutexLock lock(&mu_);
+    flush_requested_ = true;
+    const Written written{this, pushed_};
+    mu_.AwaitWithTimeout(absl::Condition(&written, &Written::Done), absl::Seconds(2));
+  }
+
+ private:
+  LogQueue() { std::thread([this] { Loop(); }).detach(); }
+
+  void Loop() {
+    pthread_setname_np(pthread_self(), "ogive-log");  // named for top -H, perf and gdb
+    std::string taken;
+    while (true) {
+      uint64_t upto;
+      {
+        absl::MutexLock lock(&mu_);
+        mu_.Await(absl::Condition(
+            +[](LogQueue* q) ABSL_EXCLUSIVE_LOCKS_REQUIRED(q->mu_) { return !q->queued_.empty(); }, this));
+        // Let lines gather for a moment (one wake-up and one write for many), unless someone waits.
+        mu_.AwaitWithTimeout(absl::Condition(&flush_requested_), kGather);
+        flush_requested_ = false;
+        taken.swap(queued_);
+        upto = pushed_;
+      }
+      WriteAll(taken);
+      taken.clear();
+      if (taken.capacity() > (1 << 20)) taken.shrink_to_fit();
+      absl::MutexLock lock(&mu_);
+      written_ = upto;
+    }
+  }
+
+  absl::Mutex mu_;
+  std::string queued_ ABSL_GUARDED_BY(mu_);
+  uint64_t pushed_ ABSL_GUARDED_BY(mu_) = 0;   // lines queued so far
+  uint64_t written_ ABSL_GUARDED_BY(mu_) = 0;  // of those, lines written
+  uint64_t dropped_ ABSL_GUARDED_BY(mu_) = 0;  // lines refused since the last one queued
+  bool flush_requested_ ABSL_GUARDED_BY(mu_) = false;
+};
+
 }  // namespace
 
 void LogLine(std::initializer_list<std::pair<std::string_view, std::string>> fields) {
@@ -36,8 +128,9 @@ void LogLine(std::initializer_list<std::pair<std::string_view, std::string>> fie
     Append(line, value);
   }
   line.push_back('\n');
-  absl::MutexLock lock(&log_mutex);
-  std::fputs(line.c_str(), stderr);
+  LogQueue::Get().Push(std::move(line));
 }
+
+void FlushLog() { LogQueue::Get().Flush(); }
 
 }  // namespace ogive::service

@@ -1,8 +1,15 @@
 // Structured log lines on standard error: `ts=2026-12-01T22:50:01.123Z event=tell study=kiln trial=12
 // worker=node-3 code=OK`. Keys are stable; values with spaces are quoted. Never log a token.
+//
+// A request never waits for standard error: LogLine formats the line and queues it, and one thread
+// of the log's own writes what is queued, many lines per write(2). If standard error stops taking
+// lines (a full pipe nobody reads), the queue keeps at most kMaxQueuedLogBytes and the lines beyond
+// are counted and reported by a later `event=log_dropped lines=N` line. Queued lines are written
+// before the process exits normally (std::exit or a return from main); FlushLog writes them earlier.
 #ifndef OGIVE_SERVER_SERVICE_LOG_H_
 #define OGIVE_SERVER_SERVICE_LOG_H_
 
+#include <cstddef>
 #include <initializer_list>
 #include <string>
 #include <string_view>
@@ -10,8 +17,14 @@
 
 namespace ogive::service {
 
-// Writes one line atomically (lines from different threads never interleave).
+inline constexpr size_t kMaxQueuedLogBytes = 8 << 20;
+
+// Queues one line; lines from different threads never interleave and keep the order of the calls.
 void LogLine(std::initializer_list<std::pair<std::string_view, std::string>> fields);
+
+// Returns once every line queued before the call is written (or after 2 s if standard error does
+// not take them).
+void FlushLog();
 
 }  // namespace ogive::service
 

@@ -8,6 +8,10 @@
 // ratio = (ask+tell pairs per second) / (baseline calls per second / 2): how close a durable ask+tell
 // pair (every tell committed with synchronous=FULL) comes to two calls that do nothing.
 //
+// server_cpu_us_per_pair and client_cpu_us_per_pair: CPU time (user + system, from /proc) that ogived
+// and this harness used during the ask+tell phase, per pair; steadier than rates on a shared machine.
+// The server's is 0 with --server (another machine's process).
+//
 // Usage: ogive-bench-load --ogived PATH [--seconds T] [--clients 1,16,64,256]
 #include <signal.h>
 #include <sys/wait.h>
@@ -28,6 +32,7 @@
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
+#include "absl/synchronization/mutex.h"
 #include "client/ogive_client.h"
 #include "grpc/health/v1/health.grpc.pb.h"
 #include "grpcpp/grpcpp.h"
@@ -57,6 +62,24 @@ struct Measurement {
   double ask_p99_ms = 0, tell_p99_ms = 0;     // per call
   long errors = 0;
 };
+
+// CPU seconds (user + system) used so far by process `pid`, from /proc; 0 when it cannot be read.
+double ProcessCpuSeconds(pid_t pid) {
+  FILE* f = std::fopen(absl::StrCat("/proc/", pid, "/stat").c_str(), "r");
+  if (f == nullptr) return 0;
+  char buffer[1024];
+  const size_t n = std::fread(buffer, 1, sizeof(buffer) - 1, f);
+  std::fclose(f);
+  buffer[n] = '\0';
+  // Fields after the command name (which may hold spaces) start past its closing parenthesis; utime
+  // and stime are fields 14 and 15 of proc(5), the 12th and 13th after it.
+  const char* p = std::strrchr(buffer, ')');
+  if (p == nullptr) return 0;
+  std::vector<std::string> fields = absl::StrSplit(p + 2, ' ');
+  double utime = 0, stime = 0;
+  if (fields.size() < 13 || !absl::SimpleAtod(fields[11], &utime) || !absl::SimpleAtod(fields[12], &stime)) return 0;
+  return (utime + stime) / static_cast<double>(sysconf(_SC_CLK_TCK));
+}
 
 double Percentile(std::vector<double>& v, double q) {
   if (v.empty()) return 0;
@@ -165,6 +188,9 @@ double RunBaseline(const std::string& target, int clients, double seconds) {
 }  // namespace
 
 int main(int argc, char** argv) {
+  // As in ogived: Debian's Abseil checks lock order on every lock (gRPC's included) unless told not
+  // to, which would make the harness, not the server, the bottleneck.
+  absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
   std::string ogived;
   std::string existing;
   double seconds = 5;
@@ -228,14 +254,21 @@ int main(int argc, char** argv) {
               seconds);
   for (size_t k = 0; k < client_counts.size(); ++k) {
     const int n = client_counts[k];
+    const double server_cpu_before = server > 0 ? ProcessCpuSeconds(server) : 0;
+    const double client_cpu_before = ProcessCpuSeconds(getpid());
     const Measurement m = RunAskTell(target, "load", n, seconds);
+    const double pairs = m.pairs_per_s * seconds;
+    const double server_us_per_pair =
+        server > 0 && pairs > 0 ? (ProcessCpuSeconds(server) - server_cpu_before) / pairs * 1e6 : 0;
+    const double client_us_per_pair = pairs > 0 ? (ProcessCpuSeconds(getpid()) - client_cpu_before) / pairs * 1e6 : 0;
     const double baseline = RunBaseline(target, n, seconds);
     std::printf("%s\n    {\"clients\": %d, \"asks_per_s\": %.1f, \"tells_per_s\": %.1f, \"p50_ms\": %.3f, "
                 "\"p99_ms\": %.3f, \"max_ms\": %.3f, \"ask_p99_ms\": %.3f, \"tell_p99_ms\": %.3f, \"errors\": %ld, "
-                "\"baseline_calls_per_s\": %.1f, \"ratio\": %.3f}",
+                "\"baseline_calls_per_s\": %.1f, \"ratio\": %.3f, \"server_cpu_us_per_pair\": %.0f, "
+                "\"client_cpu_us_per_pair\": %.0f}",
                 k ? "," : "", n, m.pairs_per_s, m.pairs_per_s, m.p50_ms, m.p99_ms, m.max_ms, m.ask_p99_ms,
                 m.tell_p99_ms, m.errors, baseline,
-                m.pairs_per_s / (baseline / 2));
+                m.pairs_per_s / (baseline / 2), server_us_per_pair, client_us_per_pair);
     std::fflush(stdout);
   }
   std::printf("\n  ]\n}\n");
