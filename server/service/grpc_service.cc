@@ -1,6 +1,9 @@
 #include "server/service/grpc_service.h"
 
+#include <memory>
+#include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "absl/strings/str_cat.h"
@@ -96,63 +99,76 @@ grpc::Status OgiveService::Counted(const char* method, Steady::time_point start,
   return status;
 }
 
-grpc::Status OgiveService::CreateStudy(grpc::ServerContext* context, const v1::CreateStudyRequest* request,
-                                       v1::StudyView* response) {
+template <typename Body>
+grpc::Status OgiveService::Guarded(const char* name, const grpc::ServerContextBase& context, Method method,
+                                   const std::string& study, Body body) {
   const Steady::time_point start = Steady::now();
-  return Counted("CreateStudy", start, [&]() -> grpc::Status {
+  return Counted(name, start, [&]() -> grpc::Status {
     CallScope scope(this);
     if (!scope.admitted()) return CallScope::Refusal();
-    absl::StatusOr<Caller> caller = Authorize(*context, Method::kCreateStudy, request->design().name());
+    absl::StatusOr<Caller> caller = Authorize(context, method, study);
     if (!caller.ok()) return ToGrpc(caller.status());
-    return Finish("create", request->design().name(), "", *caller, service::CreateStudy(*registry_, *request),
-                  response);
+    return body(*caller);
   }());
+}
+
+struct OgiveService::Admission {
+  std::unique_ptr<CallScope> scope;  // held until the reactor finishes
+  Caller caller;
+};
+
+std::optional<OgiveService::Admission> OgiveService::Admit(const char* name, grpc::CallbackServerContext& context,
+                                                           Method method, const std::string& study,
+                                                           Steady::time_point start,
+                                                           grpc::ServerUnaryReactor* reactor) {
+  auto scope = std::make_unique<CallScope>(this);
+  if (!scope->admitted()) {
+    reactor->Finish(Counted(name, start, CallScope::Refusal()));
+    return std::nullopt;
+  }
+  absl::StatusOr<Caller> caller = Authorize(context, method, study);
+  if (!caller.ok()) {
+    reactor->Finish(Counted(name, start, ToGrpc(caller.status())));
+    return std::nullopt;
+  }
+  return Admission{std::move(scope), *std::move(caller)};
+}
+
+grpc::Status OgiveService::CreateStudy(grpc::ServerContext* context, const v1::CreateStudyRequest* request,
+                                       v1::StudyView* response) {
+  return Guarded("CreateStudy", *context, Method::kCreateStudy, request->design().name(), [&](const Caller& caller) {
+    return Finish("create", request->design().name(), "", caller, service::CreateStudy(*registry_, *request),
+                response);
+  });
 }
 
 grpc::Status OgiveService::GetStudy(grpc::ServerContext* context, const v1::GetStudyRequest* request,
                                     v1::StudyView* response) {
-  const Steady::time_point start = Steady::now();
-  return Counted("GetStudy", start, [&]() -> grpc::Status {
-    CallScope scope(this);
-    if (!scope.admitted()) return CallScope::Refusal();
-    absl::StatusOr<Caller> caller = Authorize(*context, Method::kGetStudy, request->study());
-    if (!caller.ok()) return ToGrpc(caller.status());
-    return FinishRead("get", request->study(), *caller, service::GetStudy(*registry_, *request), response);
-  }());
+  return Guarded("GetStudy", *context, Method::kGetStudy, request->study(), [&](const Caller& caller) {
+    return FinishRead("get", request->study(), caller, service::GetStudy(*registry_, *request), response);
+  });
 }
 
 grpc::Status OgiveService::ListStudies(grpc::ServerContext* context, const v1::ListStudiesRequest* request,
                                        v1::ListStudiesResponse* response) {
-  const Steady::time_point start = Steady::now();
-  return Counted("ListStudies", start, [&]() -> grpc::Status {
-    CallScope scope(this);
-    if (!scope.admitted()) return CallScope::Refusal();
-    absl::StatusOr<Caller> caller = Authorize(*context, Method::kListStudies, "");
-    if (!caller.ok()) return ToGrpc(caller.status());
-    return FinishRead("list_studies", "", *caller, service::ListStudies(*registry_, *request, caller->studies),
-                      response);
-  }());
+  return Guarded("ListStudies", *context, Method::kListStudies, "", [&](const Caller& caller) {
+    return FinishRead("list_studies", "", caller, service::ListStudies(*registry_, *request, caller.studies),
+                    response);
+  });
 }
 
 grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context, const v1::AskRequest* request,
                                              v1::AskResponse* response) {
   const Steady::time_point start = Steady::now();
   grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
-  // Counted in flight until the reactor finishes (the reply continuation owns the scope).
-  auto scope = std::make_unique<CallScope>(this);
-  if (!scope->admitted()) {
-    reactor->Finish(Counted("Ask", start, CallScope::Refusal()));
-    return reactor;
-  }
-  absl::StatusOr<Caller> caller = Authorize(*context, Method::kAsk, request->study());
-  if (!caller.ok()) {
-    reactor->Finish(Counted("Ask", start, ToGrpc(caller.status())));
-    return reactor;
-  }
-  // `request` and `response` stay valid until the reactor finishes.
-  service::Ask(*registry_, *request, clock_(), caller->label,
-               [this, start, reactor, request, response, who = *caller,
-                scope = std::move(scope)](absl::StatusOr<v1::AskResponse> result) {
+  std::optional<Admission> admitted = Admit("Ask", *context, Method::kAsk, request->study(), start, reactor);
+  if (!admitted.has_value()) return reactor;
+  // `request` and `response` stay valid until the reactor finishes; the reply continuation owns the
+  // admission, so the call counts as in flight until then.
+  const std::string label = admitted->caller.label;
+  service::Ask(*registry_, *request, clock_(), label,
+               [this, start, reactor, request, response,
+                admitted = *std::move(admitted)](absl::StatusOr<v1::AskResponse> result) {
                  std::string trials;
                  if (result.ok()) {
                    for (const v1::Trial& t : result->trials()) {
@@ -160,8 +176,8 @@ grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context
                    }
                  }
                  reactor->Finish(Counted("Ask", start,
-                                         Finish("ask", request->study(), request->worker(), who, std::move(result),
-                                                response, "trials=" + trials)));
+                                         Finish("ask", request->study(), request->worker(), admitted.caller,
+                                                std::move(result), response, "trials=" + trials)));
                });
   return reactor;
 }
@@ -170,19 +186,12 @@ grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* contex
                                               v1::TellResponse* response) {
   const Steady::time_point start = Steady::now();
   grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
-  auto scope = std::make_unique<CallScope>(this);
-  if (!scope->admitted()) {
-    reactor->Finish(Counted("Tell", start, CallScope::Refusal()));
-    return reactor;
-  }
-  absl::StatusOr<Caller> caller = Authorize(*context, Method::kTell, request->study());
-  if (!caller.ok()) {
-    reactor->Finish(Counted("Tell", start, ToGrpc(caller.status())));
-    return reactor;
-  }
-  service::Tell(*registry_, *request, clock_(), caller->label,
-                [this, start, reactor, request, response, who = *caller,
-                 scope = std::move(scope)](absl::StatusOr<v1::TellResponse> result) {
+  std::optional<Admission> admitted = Admit("Tell", *context, Method::kTell, request->study(), start, reactor);
+  if (!admitted.has_value()) return reactor;
+  const std::string label = admitted->caller.label;
+  service::Tell(*registry_, *request, clock_(), label,
+                [this, start, reactor, request, response,
+                 admitted = *std::move(admitted)](absl::StatusOr<v1::TellResponse> result) {
                   std::string detail;
                   if (result.ok()) {
                     for (const v1::ReportResult& r : result->results()) {
@@ -192,62 +201,42 @@ grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* contex
                     }
                   }
                   reactor->Finish(Counted("Tell", start,
-                                          Finish("tell", request->study(), request->worker(), who, std::move(result),
-                                                 response, detail)));
+                                          Finish("tell", request->study(), request->worker(), admitted.caller,
+                                                 std::move(result), response, detail)));
                 });
   return reactor;
 }
 
 grpc::Status OgiveService::Renew(grpc::ServerContext* context, const v1::RenewRequest* request,
                                  v1::RenewResponse* response) {
-  const Steady::time_point start = Steady::now();
-  return Counted("Renew", start, [&]() -> grpc::Status {
-    CallScope scope(this);
-    if (!scope.admitted()) return CallScope::Refusal();
-    absl::StatusOr<Caller> caller = Authorize(*context, Method::kRenew, request->study());
-    if (!caller.ok()) return ToGrpc(caller.status());
-    return Finish("renew", request->study(), request->worker(), *caller,
-                  service::Renew(*registry_, *request, clock_()), response);
-  }());
+  return Guarded("Renew", *context, Method::kRenew, request->study(), [&](const Caller& caller) {
+    return Finish("renew", request->study(), request->worker(), caller,
+                service::Renew(*registry_, *request, clock_()), response);
+  });
 }
 
 grpc::Status OgiveService::ListTrials(grpc::ServerContext* context, const v1::ListTrialsRequest* request,
                                       v1::ListTrialsResponse* response) {
-  const Steady::time_point start = Steady::now();
-  return Counted("ListTrials", start, [&]() -> grpc::Status {
-    CallScope scope(this);
-    if (!scope.admitted()) return CallScope::Refusal();
-    absl::StatusOr<Caller> caller = Authorize(*context, Method::kListTrials, request->study());
-    if (!caller.ok()) return ToGrpc(caller.status());
-    return FinishRead("list_trials", request->study(), *caller, service::ListTrials(*registry_, *request), response);
-  }());
+  return Guarded("ListTrials", *context, Method::kListTrials, request->study(), [&](const Caller& caller) {
+    return FinishRead("list_trials", request->study(), caller, service::ListTrials(*registry_, *request), response);
+  });
 }
 
 grpc::Status OgiveService::ListGenerations(grpc::ServerContext* context, const v1::ListGenerationsRequest* request,
                                            v1::ListGenerationsResponse* response) {
-  const Steady::time_point start = Steady::now();
-  return Counted("ListGenerations", start, [&]() -> grpc::Status {
-    CallScope scope(this);
-    if (!scope.admitted()) return CallScope::Refusal();
-    absl::StatusOr<Caller> caller = Authorize(*context, Method::kListGenerations, request->study());
-    if (!caller.ok()) return ToGrpc(caller.status());
-    return FinishRead("list_generations", request->study(), *caller, service::ListGenerations(*registry_, *request),
-                      response);
-  }());
+  return Guarded("ListGenerations", *context, Method::kListGenerations, request->study(), [&](const Caller& caller) {
+    return FinishRead("list_generations", request->study(), caller, service::ListGenerations(*registry_, *request),
+                    response);
+  });
 }
 
 grpc::Status OgiveService::SetPhase(grpc::ServerContext* context, const v1::SetPhaseRequest* request,
                                     v1::StudyView* response) {
-  const Steady::time_point start = Steady::now();
-  return Counted("SetPhase", start, [&]() -> grpc::Status {
-    CallScope scope(this);
-    if (!scope.admitted()) return CallScope::Refusal();
-    absl::StatusOr<Caller> caller = Authorize(*context, Method::kSetPhase, request->study());
-    if (!caller.ok()) return ToGrpc(caller.status());
-    return Finish("set_phase", request->study(), "", *caller,
-                  service::SetPhase(*registry_, *request, clock_(), caller->label), response,
-                  v1::PhaseCommand_Name(request->command()));
-  }());
+  return Guarded("SetPhase", *context, Method::kSetPhase, request->study(), [&](const Caller& caller) {
+    return Finish("set_phase", request->study(), "", caller,
+                service::SetPhase(*registry_, *request, clock_(), caller.label), response,
+                v1::PhaseCommand_Name(request->command()));
+  });
 }
 
 grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRequest* request,

@@ -15,6 +15,7 @@
 #include <atomic>
 #include <chrono>
 #include <functional>
+#include <optional>
 #include <string>
 
 #include "absl/base/thread_annotations.h"
@@ -67,6 +68,16 @@ class OgiveService final
   using Steady = std::chrono::steady_clock;
   // Counts one finished call of `method` that arrived at `start`; returns `status`.
   grpc::Status Counted(const char* method, Steady::time_point start, grpc::Status status) const;
+  // A synchronous method's frame: counted in flight (refused while draining), the caller checked,
+  // then `body(caller)`; latency and code counted under `name`.
+  template <typename Body>
+  grpc::Status Guarded(const char* name, const grpc::ServerContextBase& context, Method method,
+                       const std::string& study, Body body);
+  // A callback method's admission: the call counted in flight and its caller. Empty when refused,
+  // with the reactor already finished with the refusal.
+  struct Admission;
+  std::optional<Admission> Admit(const char* name, grpc::CallbackServerContext& context, Method method,
+                                 const std::string& study, Steady::time_point start, grpc::ServerUnaryReactor* reactor);
 
   Registry* const registry_;
   Authorizer* const authorizer_;

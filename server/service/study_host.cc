@@ -55,7 +55,12 @@ void StudyHost::NoteActivity(const std::string& worker, absl::Time now, int repo
   for (int i = 0; i < reports; ++i) recent_reports_.emplace_back(now, worker);
   const absl::Time since = now - absl::Hours(1);
   while (!recent_reports_.empty() && recent_reports_.front().first <= since) recent_reports_.pop_front();
-  if (last_seen_.size() > 1000) absl::erase_if(last_seen_, [&](const auto& entry) { return entry.second <= since; });
+  // Workers not seen for an hour are forgotten, in one pass a minute at most (not on every request
+  // once many workers were seen).
+  if (last_seen_.size() > 1000 && now >= next_forget_) {
+    absl::erase_if(last_seen_, [&](const auto& entry) { return entry.second <= since; });
+    next_forget_ = now + absl::Minutes(1);
+  }
 }
 
 StudyHost::Queued StudyHost::ApplyAndQueue(study::Change change, std::vector<storage::Event> events,
@@ -184,6 +189,7 @@ void StudyHost::Tell(const std::vector<study::Report>& reports, const std::strin
     absl::StatusOr<study::TellPlan> plan = study_.PlanTell(reports, now);
     if (!plan.ok()) return reply(plan.status());
     std::vector<storage::Event> events;
+    int stored = 0;
     for (const study::ReportResult& r : plan->results) {
       v1::ReportResult* out = response.add_results();
       out->set_trial(r.trial);
@@ -193,10 +199,9 @@ void StudyHost::Tell(const std::vector<study::Report>& reports, const std::strin
       out->set_late(r.late);
       if (r.status.ok() && !r.duplicate) {
         events.push_back({"tell", r.trial, worker, r.late ? "late" : "", absl::ToUnixNanos(now)});
+        ++stored;
       }
     }
-    int stored = 0;
-    for (const study::ReportResult& r : plan->results) stored += r.status.ok() && !r.duplicate ? 1 : 0;
     NoteActivity(worker, now, stored);
     queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::nullopt, now, token_label);
     response.set_generation(study_.engine().generation);

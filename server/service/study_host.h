@@ -146,6 +146,7 @@ class StudyHost {
   // Reports of the last hour or so (time, worker), oldest first, and when each worker was last seen.
   std::deque<std::pair<absl::Time, std::string>> recent_reports_ ABSL_GUARDED_BY(mu_);
   absl::flat_hash_map<std::string, absl::Time> last_seen_ ABSL_GUARDED_BY(mu_);
+  absl::Time next_forget_ ABSL_GUARDED_BY(mu_) = absl::InfinitePast();  // of last_seen_'s stale workers
   int64_t chain_ ABSL_GUARDED_BY(mu_) = 1;          // the store chain of this host's writes
   absl::Status broken_ ABSL_GUARDED_BY(mu_);        // set when a reload failed
 };

@@ -10,6 +10,7 @@
 #include "tests/fuzz/candidate_check.h"
 #include "tests/fuzz/memory_store.h"
 #include "tests/fuzz/require.h"
+#include "tests/support/status_activity.h"
 
 namespace ogive::fuzz {
 namespace {
@@ -111,9 +112,7 @@ void CheckDesign(const v1::StudyDesign& design) {
   // Recent activity (workers seen, reports in the last hour) is kept in memory and dated by the clock:
   // a restart rebuilds it from the stored reports only, so it is not compared.
   for (v1::StudyView* view : {&*before, &*after}) {
-    view->mutable_status()->clear_workers();
-    view->mutable_status()->clear_as_of_unix_ms();
-    view->mutable_status()->clear_reports_last_hour();
+    testing::ClearActivity(view->mutable_status());
   }
   OGIVE_FUZZ_REQUIRE(google::protobuf::util::MessageDifferencer::Equals(*before, *after),
                      "the study reloaded from the store differs:\n", before->ShortDebugString(), "\nvs\n",

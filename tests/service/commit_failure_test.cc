@@ -28,6 +28,7 @@
 #include "server/service/registry.h"
 #include "storage/sqlite_store.h"
 #include "tests/support/fault_vfs.h"
+#include "tests/support/status_activity.h"
 
 namespace ogive::service {
 namespace {
@@ -153,9 +154,7 @@ TEST(CommitFailureTest, AFailedCommitStoresNothingAndTheStudyKeepsServing) {
   ASSERT_TRUE(before.ok() && after.ok());
   // Recent activity is dated by the clock and asks are kept in memory only: not compared.
   for (v1::StudyView* compared : {&*before, &*after}) {
-    compared->mutable_status()->clear_workers();
-    compared->mutable_status()->clear_as_of_unix_ms();
-    compared->mutable_status()->clear_reports_last_hour();
+    testing::ClearActivity(compared->mutable_status());
   }
   // Compared as data: map fields (candidate values) serialize in no fixed order.
   EXPECT_TRUE(google::protobuf::util::MessageDifferencer::Equals(*before, *after))
@@ -276,9 +275,7 @@ class DiskFailureTest : public ::testing::TestWithParam<std::tuple<DiskFailure, 
     // Recent activity is dated by the clock and asks are kept in memory only: not compared.
     v1::StudyView va = a.view, vb = b.view;
     for (v1::StudyView* v : {&va, &vb}) {
-      v->mutable_status()->clear_workers();
-      v->mutable_status()->clear_as_of_unix_ms();
-      v->mutable_status()->clear_reports_last_hour();
+      testing::ClearActivity(v->mutable_status());
     }
     EXPECT_TRUE(Same(va, vb)) << va.DebugString() << "\nvs\n" << vb.DebugString();
     EXPECT_TRUE(Same(a.trials, b.trials));

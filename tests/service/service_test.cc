@@ -46,6 +46,7 @@
 #include "server/service/limits.h"
 #include "server/service/registry.h"
 #include "storage/sqlite_store.h"
+#include "tests/support/status_activity.h"
 
 namespace ogive {
 namespace {
@@ -69,9 +70,7 @@ MATCHER_P2(StatusIs, code, message_matcher, "") {
 // `view` without its recent activity (StatusSummary.workers, reports_last_hour, as_of_unix_ms),
 // which is dated by the server's clock and partly kept in memory only: for comparing views.
 v1::StudyView WithoutActivity(v1::StudyView view) {
-  view.mutable_status()->clear_workers();
-  view.mutable_status()->clear_as_of_unix_ms();
-  view.mutable_status()->clear_reports_last_hour();
+  testing::ClearActivity(view.mutable_status());
   return view;
 }
 
@@ -1047,9 +1046,7 @@ absl::StatusOr<v1::AskResponse> AskWithRequestId(client::Client& c, const std::s
 std::string TimelessStatus(const v1::StatusSummary& s) {
   v1::StatusSummary copy = s;
   copy.clear_best();
-  copy.clear_workers();
-  copy.clear_as_of_unix_ms();
-  copy.clear_reports_last_hour();
+  testing::ClearActivity(&copy);
   return DeterministicBytes(copy);
 }
 
