@@ -7,31 +7,12 @@
 #   technician_test.sh PATH/TO/ogived PATH/TO/ogive PATH/TO/kiln-firing.txtpb
 set -euo pipefail
 
-if [[ $# -ne 3 ]]; then
-  echo "usage: $0 OGIVED OGIVE KILN_DESIGN" >&2
-  exit 2
-fi
-OGIVED=$(realpath "$1")
-OGIVE=$(realpath "$2")
+source "$(dirname "$0")/../../tests/support/test_lib.sh" ogive-technician-test "$@"
 DESIGN=$(realpath "$3")
-PY=/usr/bin/python3
-
-TMP=$(mktemp -d "${TMPDIR:-/tmp}/ogive-technician-test.XXXXXX")
-OGIVED_PID=""
-cleanup() {
-  if [[ -n "$OGIVED_PID" ]] && kill -0 "$OGIVED_PID" 2>/dev/null; then kill -KILL "$OGIVED_PID" 2>/dev/null || true; fi
-  rm -rf "$TMP"
-}
-trap cleanup EXIT
-fail() {
-  echo "FAIL: $*" >&2
-  [[ -f "$TMP/ogived.log" ]] && tail -n 20 "$TMP/ogived.log" >&2
-  exit 1
-}
-step() { echo "== $*"; }
+FAIL_LOG_LINES=20
 og() { timeout 20 "$OGIVE" "$@"; }
 
-PORT=$("$PY" -c 'import socket;s=socket.socket();s.bind(("127.0.0.1",0));print(s.getsockname()[1])')
+PORT=$(free_port)
 export OGIVE_SERVER="127.0.0.1:$PORT"
 "$OGIVED" --db "$TMP/ogive.db" --listen "$OGIVE_SERVER" --no-auth >"$TMP/ogived.log" 2>&1 &
 OGIVED_PID=$!

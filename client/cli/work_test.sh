@@ -12,34 +12,8 @@
 # `--json`, and that ogived stops cleanly on SIGTERM. Every step is bounded in time.
 set -euo pipefail
 
-if [[ $# -ne 2 ]]; then
-  echo "usage: $0 OGIVED OGIVE" >&2
-  exit 2
-fi
-OGIVED=$(realpath "$1")
-OGIVE=$(realpath "$2")
-PY=/usr/bin/python3
-
-TMP=$(mktemp -d "${TMPDIR:-/tmp}/ogive-work-test.XXXXXX")
-OGIVED_PID=""
-cleanup() {
-  if [[ -n "$OGIVED_PID" ]] && kill -0 "$OGIVED_PID" 2>/dev/null; then
-    kill -KILL "$OGIVED_PID" 2>/dev/null || true
-  fi
-  rm -rf "$TMP"
-}
-trap cleanup EXIT
-
-fail() {
-  echo "FAIL: $*" >&2
-  for log in "$TMP"/*.log; do
-    [[ -f "$log" ]] || continue
-    echo "---- $log" >&2
-    tail -n 40 "$log" >&2
-  done
-  exit 1
-}
-step() { echo "== $*"; }
+source "$(dirname "$0")/../../tests/support/test_lib.sh" ogive-work-test "$@"
+FAIL_LOG_LINES=40
 
 # ---- Start the server ----
 PORT=$("$PY" -c 'import socket;s=socket.socket();s.bind(("127.0.0.1",0));print(s.getsockname()[1])')

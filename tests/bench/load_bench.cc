@@ -13,7 +13,10 @@
 // The server's is 0 with --server (another machine's process).
 //
 // Usage: ogive-bench-load --ogived PATH [--seconds T] [--clients 1,16,64,256]
+#include <arpa/inet.h>
+#include <netinet/in.h>
 #include <signal.h>
+#include <sys/socket.h>
 #include <sys/wait.h>
 #include <unistd.h>
 
@@ -24,6 +27,7 @@
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
+#include <filesystem>
 #include <string>
 #include <random>
 #include <thread>
@@ -44,15 +48,19 @@ using Clock = std::chrono::steady_clock;
 int FreePort() {
   // Let the kernel pick: bind to port 0, read it back, close. A race with another process taking the
   // port in between is possible but harmless for a benchmark (ogived would fail to start, loudly).
-  const std::string out = "/tmp/ogive-bench-port";
-  std::system(("/usr/bin/python3 -c 'import socket; s = socket.socket(); s.bind((\"127.0.0.1\", 0)); "
-               "print(s.getsockname()[1])' > " + out).c_str());
-  FILE* f = std::fopen(out.c_str(), "r");
+  const int fd = socket(AF_INET, SOCK_STREAM, 0);
+  if (fd < 0) return 0;
+  sockaddr_in address{};
+  address.sin_family = AF_INET;
+  address.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
+  address.sin_port = 0;
+  socklen_t length = sizeof address;
   int port = 0;
-  if (f != nullptr) {
-    if (std::fscanf(f, "%d", &port) != 1) port = 0;
-    std::fclose(f);
+  if (bind(fd, reinterpret_cast<sockaddr*>(&address), sizeof address) == 0 &&
+      getsockname(fd, reinterpret_cast<sockaddr*>(&address), &length) == 0) {
+    port = ntohs(address.sin_port);
   }
+  close(fd);
   return port;
 }
 
@@ -272,9 +280,15 @@ int main(int argc, char** argv) {
     std::fflush(stdout);
   }
   std::printf("\n  ]\n}\n");
-  if (server < 0) return 0;
+  if (server < 0) {
+    std::filesystem::remove_all(dir);
+    return 0;
+  }
   kill(server, SIGTERM);
   int status = 0;
   waitpid(server, &status, 0);
-  return WIFEXITED(status) && WEXITSTATUS(status) == 0 ? 0 : 1;
+  const bool clean_stop = WIFEXITED(status) && WEXITSTATUS(status) == 0;
+  // The database and log go with a clean stop; after a failed one the log is kept for a look.
+  if (clean_stop) std::filesystem::remove_all(dir);
+  return clean_stop ? 0 : 1;
 }

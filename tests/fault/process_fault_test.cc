@@ -57,13 +57,21 @@ using ::testing::IsEmpty;
 std::string g_ogived;  // from the command line
 std::string g_ogive;
 
-// A child process of the test (an `ogive work` worker), killed when the test ends.
+// A child process of the test (an `ogive work` worker), killed when the test ends. Its TMPDIR is
+// `tmpdir`, so that the candidate files a SIGKILLed worker leaves behind go with the test's directory.
 class Child {
  public:
-  explicit Child(std::vector<std::string> args, const std::string& log) {
+  Child(std::vector<std::string> args, const std::string& log, const std::string& tmpdir) {
     std::vector<char*> argv;
     for (std::string& a : args) argv.push_back(a.data());
     argv.push_back(nullptr);
+    std::vector<std::string> env_strings = {"TMPDIR=" + tmpdir};
+    for (char** e = environ; *e != nullptr; ++e) {
+      if (std::strncmp(*e, "TMPDIR=", 7) != 0) env_strings.emplace_back(*e);
+    }
+    std::vector<char*> envp;
+    for (std::string& e : env_strings) envp.push_back(e.data());
+    envp.push_back(nullptr);
     const int log_fd = open(log.c_str(), O_WRONLY | O_CREAT | O_APPEND | O_CLOEXEC, 0644);
     const pid_t parent = getpid();
     pid_ = fork();
@@ -72,7 +80,7 @@ class Child {
       if (getppid() != parent) _exit(127);
       dup2(log_fd, STDOUT_FILENO);
       dup2(log_fd, STDERR_FILENO);
-      execv(argv[0], argv.data());
+      execve(argv[0], argv.data(), envp.data());
       _exit(127);
     }
     close(log_fd);
@@ -192,7 +200,7 @@ TEST_F(ProcessFaultTest, KilledWorkersTrialsLapseAndLateDuplicateAndOutOfOrderTe
     for (const char* a : {"work", "lapse", "--parallel", "2", "--lease", "1", "--worker"}) args.push_back(a);
     args.push_back(absl::StrCat("w", i));
     for (const char* a : {"--", "/bin/sh", "-c", "sleep 0.6; echo \"$OGIVE_X0\""}) args.push_back(a);
-    workers.push_back(std::make_unique<Child>(args, absl::StrCat(dir_, "/w", i, ".log")));
+    workers.push_back(std::make_unique<Child>(args, absl::StrCat(dir_, "/w", i, ".log"), dir_));
   }
   auto trials = [&](v1::TrialState state) {
     absl::StatusOr<std::vector<v1::Trial>> all = client->ListAllTrials("lapse", state);

@@ -13,31 +13,9 @@
 # load serves too. Every step is bounded in time.
 set -euo pipefail
 
-if [[ $# -ne 2 ]]; then
-  echo "usage: $0 OGIVED OGIVE" >&2
-  exit 2
-fi
-OGIVED=$(realpath "$1")
-OGIVE=$(realpath "$2")
-PY=/usr/bin/python3
-
-TMP=$(mktemp -d "${TMPDIR:-/tmp}/ogive-backup-test.XXXXXX")
-OGIVED_PID=""
-WORKER_PID=""
-cleanup() {
-  [[ -n "$WORKER_PID" ]] && kill -KILL "$WORKER_PID" 2>/dev/null || true
-  if [[ -n "$OGIVED_PID" ]] && kill -0 "$OGIVED_PID" 2>/dev/null; then kill -KILL "$OGIVED_PID" 2>/dev/null || true; fi
-  rm -rf "$TMP"
-}
-trap cleanup EXIT
-fail() {
-  echo "FAIL: $*" >&2
-  [[ -f "$TMP/ogived.log" ]] && tail -n 20 "$TMP/ogived.log" >&2
-  exit 1
-}
-step() { echo "== $*"; }
+source "$(dirname "$0")/../../tests/support/test_lib.sh" ogive-backup-test "$@"
+FAIL_LOG_LINES=20
 ogive() { timeout 30 "$OGIVE" --server "$SERVER" --timeout 5 "$@"; }
-free_port() { "$PY" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0)); print(s.getsockname()[1])'; }
 first_number() { "$PY" -c 'import json,sys; print(json.load(sys.stdin)[0]["number"])'; }
 
 start_server() {  # DB
@@ -109,6 +87,7 @@ step "a second backup while a worker asks and tells"
     echo "$n" >>"$TMP/load.told"
   done
 ) &
+PIDS+=($!)
 WORKER_PID=$!
 for _ in $(seq 200); do
   [[ -f "$TMP/load.told" && $(wc -l <"$TMP/load.told") -ge 3 ]] && break

@@ -15,40 +15,8 @@
 # loopback and lets calls through on it. Every step is bounded in time.
 set -euo pipefail
 
-if [[ $# -ne 2 ]]; then
-  echo "usage: $0 OGIVED OGIVE" >&2
-  exit 2
-fi
-OGIVED=$(realpath "$1")
-OGIVE=$(realpath "$2")
-PY=/usr/bin/python3
-
-TMP=$(mktemp -d "${TMPDIR:-/tmp}/ogived-auth-test.XXXXXX")
+source "$(dirname "$0")/../../tests/support/test_lib.sh" ogived-auth-test "$@"
 DB="$TMP/auth.db"
-OGIVED_PID=""
-cleanup() {
-  if [[ -n "$OGIVED_PID" ]] && kill -0 "$OGIVED_PID" 2>/dev/null; then
-    kill -KILL "$OGIVED_PID" 2>/dev/null || true
-  fi
-  rm -rf "$TMP"
-}
-trap cleanup EXIT
-
-fail() {
-  echo "FAIL: $*" >&2
-  for log in "$TMP"/*.log; do
-    [[ -f "$log" ]] || continue
-    echo "---- $log" >&2
-    tail -n 30 "$log" >&2
-  done
-  exit 1
-}
-step() { echo "== $*"; }
-
-free_port() {
-  "$PY" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0))
-print(s.getsockname()[1])'
-}
 
 token() { timeout 30 "$OGIVED" token "$@"; }
 # `as_token FILE args...`: the CLI with the token in FILE ("" for none).

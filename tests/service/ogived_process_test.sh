@@ -15,47 +15,11 @@
 # PRAGMA integrity_check. Every step is bounded in time.
 set -euo pipefail
 
-if [[ $# -ne 2 ]]; then
-  echo "usage: $0 OGIVED OGIVE" >&2
-  exit 2
-fi
-OGIVED=$(realpath "$1")
-OGIVE=$(realpath "$2")
-PY=/usr/bin/python3
-
-TMP=$(mktemp -d "${TMPDIR:-/tmp}/ogived-process-test.XXXXXX")
+source "$(dirname "$0")/../../tests/support/test_lib.sh" ogived-process-test "$@"
 DB="$TMP/ogive.db"
-OGIVED_PID=""
-WORKER_PIDS=()
-cleanup() {
-  for pid in "${WORKER_PIDS[@]}"; do
-    kill -KILL "$pid" 2>/dev/null || true
-  done
-  if [[ -n "$OGIVED_PID" ]] && kill -0 "$OGIVED_PID" 2>/dev/null; then
-    kill -KILL "$OGIVED_PID" 2>/dev/null || true
-  fi
-  rm -rf "$TMP"
-}
-trap cleanup EXIT
-
-fail() {
-  echo "FAIL: $*" >&2
-  for log in "$TMP"/*.log; do
-    [[ -f "$log" ]] || continue
-    echo "---- $log" >&2
-    tail -n 30 "$log" >&2
-  done
-  exit 1
-}
-step() { echo "== $*"; }
 
 TOKEN_FILE="$TMP/admin.token"
 ogive() { timeout 30 "$OGIVE" --server "$SERVER" --timeout 5 --token-file "$TOKEN_FILE" "$@"; }
-
-free_port() {
-  "$PY" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0))
-print(s.getsockname()[1])'
-}
 
 # Starts ogived on $DB and a port that is free right now; waits until it answers.
 start_server() {
@@ -166,9 +130,9 @@ EOF
 # ---- SIGTERM while workers are mid-way ----
 step "two workers; SIGTERM right after the slow worker's ask"
 worker fast 0 &
-WORKER_PIDS+=($!)
+PIDS+=($!)
 worker slow 0.5 &
-WORKER_PIDS+=($!)
+PIDS+=($!)
 for _ in $(seq 200); do
   [[ $(lines "$TMP/slow.acked") -ge 2 && $(lines "$TMP/fast.acked") -ge 5 ]] && break
   sleep 0.05
@@ -181,7 +145,7 @@ for _ in $(seq 200); do
 done
 [[ $(lines "$TMP/slow.asked") -gt "$asked" ]] || fail "the slow worker asked no more"
 stop_server
-for pid in "${WORKER_PIDS[@]}"; do
+for pid in "${PIDS[@]}"; do
   for _ in $(seq 300); do
     kill -0 "$pid" 2>/dev/null || break
     sleep 0.1
@@ -189,7 +153,7 @@ for pid in "${WORKER_PIDS[@]}"; do
   kill -0 "$pid" 2>/dev/null && fail "a worker did not stop within 30 s of the server"
   wait "$pid" || true
 done
-WORKER_PIDS=()
+PIDS=()
 held=$(tail -n 1 "$TMP/slow.asked")
 if grep -q "^$held " "$TMP/slow.acked"; then
   fail "the slow worker's last trial $held was told although the server had stopped"

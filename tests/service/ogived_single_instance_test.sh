@@ -12,28 +12,7 @@
 # Both checks run; the test fails if either does. Every step is bounded in time.
 set -euo pipefail
 
-if [[ $# -ne 2 ]]; then
-  echo "usage: $0 OGIVED OGIVE" >&2
-  exit 2
-fi
-OGIVED=$(realpath "$1")
-OGIVE=$(realpath "$2")
-PY=/usr/bin/python3
-
-TMP=$(mktemp -d "${TMPDIR:-/tmp}/ogived-single-instance-test.XXXXXX")
-PIDS=()
-cleanup() {
-  for pid in "${PIDS[@]}"; do
-    kill -KILL "$pid" 2>/dev/null || true
-  done
-  rm -rf "$TMP"
-}
-trap cleanup EXIT
-
-free_port() {
-  "$PY" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0))
-print(s.getsockname()[1])'
-}
+source "$(dirname "$0")/../../tests/support/test_lib.sh" ogived-single-instance-test "$@"
 
 answers() { timeout 5 "$OGIVE" --server "$1" --timeout 1 study list >/dev/null 2>&1; }
 

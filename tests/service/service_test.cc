@@ -92,7 +92,7 @@ std::string TempDbPath(const std::string& name) {
 }
 
 void RemoveDb(const std::string& path) {
-  for (const char* suffix : {"", "-wal", "-shm", "-journal"}) {
+  for (const char* suffix : {"", "-wal", "-shm", "-journal", ".lock"}) {
     std::remove(absl::StrCat(path, suffix).c_str());
   }
 }

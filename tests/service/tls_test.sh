@@ -22,41 +22,9 @@
 # Every step is bounded in time; openssl needs the Debian package `openssl`.
 set -euo pipefail
 
-if [[ $# -ne 2 ]]; then
-  echo "usage: $0 OGIVED OGIVE" >&2
-  exit 2
-fi
-OGIVED=$(realpath "$1")
-OGIVE=$(realpath "$2")
-PY=/usr/bin/python3
+source "$(dirname "$0")/../../tests/support/test_lib.sh" ogive-tls-test "$@"
 command -v openssl >/dev/null || { echo "FAIL: openssl not found; apt-get install -y openssl" >&2; exit 1; }
-
-TMP=$(mktemp -d "${TMPDIR:-/tmp}/ogive-tls-test.XXXXXX")
 PKI="$TMP/pki"
-PIDS=()
-cleanup() {
-  for pid in "${PIDS[@]}"; do
-    kill -TERM "$pid" 2>/dev/null && wait "$pid" 2>/dev/null || true
-  done
-  rm -rf "$TMP"
-}
-trap cleanup EXIT
-
-fail() {
-  echo "FAIL: $*" >&2
-  for log in "$TMP"/*.log; do
-    [[ -f "$log" ]] || continue
-    echo "---- $log" >&2
-    tail -n 20 "$log" >&2
-  done
-  exit 1
-}
-step() { echo "== $*"; }
-
-free_port() {
-  "$PY" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0))
-print(s.getsockname()[1])'
-}
 
 # ---- Certificates (P-256 keys: quick to make) ----
 step "make a CA, a server and a client certificate with openssl"

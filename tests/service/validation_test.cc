@@ -159,7 +159,7 @@ class ValidationTest : public ::testing::Test {
   }
 
   void Remove() {
-    for (const char* suffix : {"", "-wal", "-shm", "-journal"}) std::remove(absl::StrCat(path_, suffix).c_str());
+    for (const char* suffix : {"", "-wal", "-shm", "-journal", ".lock"}) std::remove(absl::StrCat(path_, suffix).c_str());
   }
 
   // Everything stored: each study as the file holds it, and its event log.
