@@ -14,10 +14,13 @@ Processes are bounded in time and stopped by the fixture; nothing listens beyond
 import json
 import os
 import signal
-import socket
+import sys
 import subprocess
 import tempfile
 import time
+
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "support"))
+from ogive_testlib import TestFailure, check, free_port  # noqa: E402
 
 CALL_TIMEOUT_S = 60
 STUDY = "kiln-mix"
@@ -73,21 +76,6 @@ exec awk -v t="$OGIVE_TEMP" -v r="$OGIVE_REDUCE" 'BEGIN {
   if (d < 0.5) print "good"; else if (d < 1.5) print "FAIR"; else if (d < 3) print "poor"; else print "cracked"
 }'
 '''
-
-
-class TestFailure(Exception):
-    pass
-
-
-def check(condition, message):
-    if not condition:
-        raise TestFailure(message)
-
-
-def free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 class Ogived:

@@ -24,22 +24,15 @@ import math
 import os
 import shutil
 import signal
-import socket
 import subprocess
 import sys
 import tempfile
 import time
 
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "support"))
+from ogive_testlib import TestFailure, check, free_port  # noqa: E402
+
 CALL_TIMEOUT_S = 10
-
-
-class TestFailure(Exception):
-    pass
-
-
-def check(condition, message):
-    if not condition:
-        raise TestFailure(message)
 
 
 def require_packages(protoc, plugin):
@@ -97,12 +90,6 @@ def make_token(ogived, db, label):
     token = result.stdout.strip()
     check(token.startswith("ogt_") and "\n" not in token, "token create printed %r" % result.stdout)
     return token
-
-
-def free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 def health_status(channel):

@@ -24,7 +24,6 @@ import math
 import os
 import shutil
 import signal
-import socket
 import subprocess
 import sys
 import tempfile
@@ -33,6 +32,9 @@ import urllib.error
 import urllib.request
 
 from prometheus_client.parser import text_string_to_metric_families
+
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "support"))
+from ogive_testlib import TestFailure, check, free_port  # noqa: E402
 
 CALL_TIMEOUT_S = 20
 
@@ -60,21 +62,6 @@ EXPECTED_TYPES = {
     "ogive_store_size_bytes": "gauge",
 }
 ALLOWED_LABELS = {"method", "code", "kind", "study", "state", "phase", "le"}
-
-
-class TestFailure(Exception):
-    pass
-
-
-def check(condition, message):
-    if not condition:
-        raise TestFailure(message)
-
-
-def free_port():
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 class Run:
