@@ -108,6 +108,7 @@ struct Flags {
 };
 
 [[noreturn]] void Fail(const std::string& message) {
+  ogive::service::FlushLog();  // the log lines so far come before the reason for stopping
   std::fprintf(stderr, "ogived: %s\n", message.c_str());
   std::exit(2);
 }
