@@ -272,9 +272,9 @@ int main(int argc, char** argv) {
   // The synchronous methods (all but Ask and Tell) block until their commit, so several may run at
   // once. Let the sync server keep its threads as pollers instead of exiting and re-creating them.
   builder.SetSyncServerOption(grpc::ServerBuilder::SyncServerOption::MIN_POLLERS, 4);
+  builder.SetSyncServerOption(grpc::ServerBuilder::SyncServerOption::MAX_POLLERS, 512);
   // ogived serves no channelz service, so the per-call channelz counters would be kept for nobody.
   builder.AddChannelArgument(GRPC_ARG_ENABLE_CHANNELZ, 0);
-  builder.SetSyncServerOption(grpc::ServerBuilder::SyncServerOption::MAX_POLLERS, 512);
   builder.RegisterService(&service);
   std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
   if (server == nullptr || port == 0) Fail(absl::StrCat("cannot listen on '", flags.listen, "'"));

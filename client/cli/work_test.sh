@@ -16,7 +16,7 @@ source "$(dirname "$0")/../../tests/support/test_lib.sh" ogive-work-test "$@"
 FAIL_LOG_LINES=40
 
 # ---- Start the server ----
-PORT=$("$PY" -c 'import socket;s=socket.socket();s.bind(("127.0.0.1",0));print(s.getsockname()[1])')
+PORT=$(free_port)
 export OGIVE_SERVER="127.0.0.1:$PORT"
 export TMPDIR="$TMP"  # candidate files go here, so the test can see that they are removed
 # Every call of the CLI below sends this admin token, read from $OGIVE_TOKEN.

@@ -1,7 +1,6 @@
 #include "server/service/grpc_service.h"
 
 #include <memory>
-#include <optional>
 #include <string>
 #include <utility>
 #include <vector>
@@ -112,26 +111,32 @@ grpc::Status OgiveService::Guarded(const char* name, const grpc::ServerContextBa
   }());
 }
 
-struct OgiveService::Admission {
-  std::unique_ptr<CallScope> scope;  // held until the reactor finishes
-  Caller caller;
-};
-
-std::optional<OgiveService::Admission> OgiveService::Admit(const char* name, grpc::CallbackServerContext& context,
-                                                           Method method, const std::string& study,
-                                                           Steady::time_point start,
-                                                           grpc::ServerUnaryReactor* reactor) {
+template <typename Request, typename Response, typename Start, typename Describe>
+grpc::ServerUnaryReactor* OgiveService::ReplyAfterCommit(const char* name, const char* event, Method method,
+                                                         grpc::CallbackServerContext* context, const Request* request,
+                                                         Response* response, Start start_call, Describe describe) {
+  const Steady::time_point start = Steady::now();
+  grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
+  // Counted in flight until the reactor finishes: the reply continuation owns the scope.
   auto scope = std::make_unique<CallScope>(this);
   if (!scope->admitted()) {
     reactor->Finish(Counted(name, start, CallScope::Refusal()));
-    return std::nullopt;
+    return reactor;
   }
-  absl::StatusOr<Caller> caller = Authorize(context, method, study);
+  absl::StatusOr<Caller> caller = Authorize(*context, method, request->study());
   if (!caller.ok()) {
     reactor->Finish(Counted(name, start, ToGrpc(caller.status())));
-    return std::nullopt;
+    return reactor;
   }
-  return Admission{std::move(scope), *std::move(caller)};
+  const std::string label = caller->label;
+  // `request` and `response` stay valid until the reactor finishes.
+  start_call(label, [this, name, event, start, reactor, request, response, describe, who = *std::move(caller),
+                     scope = std::move(scope)](absl::StatusOr<Response> result) {
+    const std::string detail = result.ok() ? describe(*result) : "";
+    reactor->Finish(Counted(
+        name, start, Finish(event, request->study(), request->worker(), who, std::move(result), response, detail)));
+  });
+  return reactor;
 }
 
 grpc::Status OgiveService::CreateStudy(grpc::ServerContext* context, const v1::CreateStudyRequest* request,
@@ -159,52 +164,34 @@ grpc::Status OgiveService::ListStudies(grpc::ServerContext* context, const v1::L
 
 grpc::ServerUnaryReactor* OgiveService::Ask(grpc::CallbackServerContext* context, const v1::AskRequest* request,
                                              v1::AskResponse* response) {
-  const Steady::time_point start = Steady::now();
-  grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
-  std::optional<Admission> admitted = Admit("Ask", *context, Method::kAsk, request->study(), start, reactor);
-  if (!admitted.has_value()) return reactor;
-  // `request` and `response` stay valid until the reactor finishes; the reply continuation owns the
-  // admission, so the call counts as in flight until then.
-  const std::string label = admitted->caller.label;
-  service::Ask(*registry_, *request, clock_(), label,
-               [this, start, reactor, request, response,
-                admitted = *std::move(admitted)](absl::StatusOr<v1::AskResponse> result) {
-                 std::string trials;
-                 if (result.ok()) {
-                   for (const v1::Trial& t : result->trials()) {
-                     absl::StrAppend(&trials, trials.empty() ? "" : ",", t.number());
-                   }
-                 }
-                 reactor->Finish(Counted("Ask", start,
-                                         Finish("ask", request->study(), request->worker(), admitted.caller,
-                                                std::move(result), response, "trials=" + trials)));
-               });
-  return reactor;
+  return ReplyAfterCommit(
+      "Ask", "ask", Method::kAsk, context, request, response,
+      [&](const std::string& label, Reply<v1::AskResponse> reply) {
+        service::Ask(*registry_, *request, clock_(), label, std::move(reply));
+      },
+      [](const v1::AskResponse& asked) {
+        std::string trials;
+        for (const v1::Trial& t : asked.trials()) absl::StrAppend(&trials, trials.empty() ? "" : ",", t.number());
+        return "trials=" + trials;
+      });
 }
 
 grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* context, const v1::TellRequest* request,
                                               v1::TellResponse* response) {
-  const Steady::time_point start = Steady::now();
-  grpc::ServerUnaryReactor* reactor = context->DefaultReactor();
-  std::optional<Admission> admitted = Admit("Tell", *context, Method::kTell, request->study(), start, reactor);
-  if (!admitted.has_value()) return reactor;
-  const std::string label = admitted->caller.label;
-  service::Tell(*registry_, *request, clock_(), label,
-                [this, start, reactor, request, response,
-                 admitted = *std::move(admitted)](absl::StatusOr<v1::TellResponse> result) {
-                  std::string detail;
-                  if (result.ok()) {
-                    for (const v1::ReportResult& r : result->results()) {
-                      absl::StrAppend(&detail, detail.empty() ? "" : ",", r.trial(), ":",
-                                      absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())),
-                                      r.duplicate() ? "(dup)" : "", r.late() ? "(late)" : "");
-                    }
-                  }
-                  reactor->Finish(Counted("Tell", start,
-                                          Finish("tell", request->study(), request->worker(), admitted.caller,
-                                                 std::move(result), response, detail)));
-                });
-  return reactor;
+  return ReplyAfterCommit(
+      "Tell", "tell", Method::kTell, context, request, response,
+      [&](const std::string& label, Reply<v1::TellResponse> reply) {
+        service::Tell(*registry_, *request, clock_(), label, std::move(reply));
+      },
+      [](const v1::TellResponse& told) {
+        std::string detail;
+        for (const v1::ReportResult& r : told.results()) {
+          absl::StrAppend(&detail, detail.empty() ? "" : ",", r.trial(), ":",
+                          absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())),
+                          r.duplicate() ? "(dup)" : "", r.late() ? "(late)" : "");
+        }
+        return detail;
+      });
 }
 
 grpc::Status OgiveService::Renew(grpc::ServerContext* context, const v1::RenewRequest* request,

@@ -15,7 +15,6 @@
 #include <atomic>
 #include <chrono>
 #include <functional>
-#include <optional>
 #include <string>
 
 #include "absl/base/thread_annotations.h"
@@ -73,11 +72,13 @@ class OgiveService final
   template <typename Body>
   grpc::Status Guarded(const char* name, const grpc::ServerContextBase& context, Method method,
                        const std::string& study, Body body);
-  // A callback method's admission: the call counted in flight and its caller. Empty when refused,
-  // with the reactor already finished with the refusal.
-  struct Admission;
-  std::optional<Admission> Admit(const char* name, grpc::CallbackServerContext& context, Method method,
-                                 const std::string& study, Steady::time_point start, grpc::ServerUnaryReactor* reactor);
+  // A callback method (Ask, Tell): counted in flight (refused while draining), the caller checked,
+  // then `start_call(token_label, reply)`; `reply` finishes the call once the write committed,
+  // logging `event` with `describe(response)` as detail; latency and code counted under `name`.
+  template <typename Request, typename Response, typename Start, typename Describe>
+  grpc::ServerUnaryReactor* ReplyAfterCommit(const char* name, const char* event, Method method,
+                                             grpc::CallbackServerContext* context, const Request* request,
+                                             Response* response, Start start_call, Describe describe);
 
   Registry* const registry_;
   Authorizer* const authorizer_;

@@ -1,7 +1,6 @@
 #include "server/service/log.h"
 
 #include <pthread.h>
-
 #include <unistd.h>
 
 #include <cerrno>

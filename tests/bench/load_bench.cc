@@ -67,6 +67,7 @@ int FreePort() {
 }
 
 struct Measurement {
+  long pairs = 0;  // ask+tell pairs completed
   double pairs_per_s = 0;
   double p50_ms = 0, p99_ms = 0, max_ms = 0;  // per ask+tell pair
   double ask_p99_ms = 0, tell_p99_ms = 0;     // per call
@@ -185,7 +186,8 @@ Measurement RunAskTell(const std::string& target, const std::string& study, int 
     tells.insert(tells.end(), tell_latencies[c].begin(), tell_latencies[c].end());
     m.errors += errors[c];
   }
-  m.pairs_per_s = all.size() / elapsed;
+  m.pairs = static_cast<long>(all.size());
+  m.pairs_per_s = m.pairs / elapsed;
   m.max_ms = all.empty() ? 0 : *std::max_element(all.begin(), all.end());
   m.p99_ms = Percentile(all, 0.99);
   m.p50_ms = Percentile(all, 0.50);
@@ -300,7 +302,7 @@ int main(int argc, char** argv) {
     const double server_cpu_before = server > 0 ? ProcessCpuSeconds(server) : 0;
     const double client_cpu_before = ProcessCpuSeconds(getpid());
     const Measurement m = RunAskTell(target, "load", n, seconds);
-    const double pairs = m.pairs_per_s * seconds;
+    const double pairs = static_cast<double>(m.pairs);
     const double server_us_per_pair =
         server > 0 && pairs > 0 ? (ProcessCpuSeconds(server) - server_cpu_before) / pairs * 1e6 : 0;
     const double client_us_per_pair = pairs > 0 ? (ProcessCpuSeconds(getpid()) - client_cpu_before) / pairs * 1e6 : 0;
