@@ -131,10 +131,14 @@ grpc::ServerUnaryReactor* OgiveService::ReplyAfterCommit(const char* name, const
   const std::string label = caller->label;
   // `request` and `response` stay valid until the reactor finishes.
   start_call(label, [this, name, event, start, reactor, request, response, describe, who = *std::move(caller),
-                     scope = std::move(scope)](absl::StatusOr<Response> result) {
+                     scope = std::move(scope)](absl::StatusOr<Response> result) mutable {
     const std::string detail = result.ok() ? describe(*result) : "";
-    reactor->Finish(Counted(
-        name, start, Finish(event, request->study(), request->worker(), who, std::move(result), response, detail)));
+    const grpc::Status status = Counted(
+        name, start, Finish(event, request->study(), request->worker(), who, std::move(result), response, detail));
+    // Out of flight before the reactor finishes: once every reactor finished, the server may go, and
+    // this continuation may be destroyed later, on another thread.
+    scope.reset();
+    reactor->Finish(status);
   });
   return reactor;
 }
@@ -236,19 +240,21 @@ grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRe
   if (absl::Status s = ValidateWatch(*request, registry_->limits()); !s.ok()) return ToGrpc(s);
   absl::StatusOr<std::shared_ptr<StudyHost>> host = registry_->Find(request->study());
   if (!host.ok()) return Counted("Watch", start, ToGrpc(host.status()));
-  int64_t version = (*host)->version();
-  if (!writer->Write((*host)->View(false))) return grpc::Status::OK;
-  // Wake up at least every 200 ms to notice a cancelled call, a draining server or a revoked token.
-  // The view after the change that ended the study is the last one sent.
-  while (!context->IsCancelled() && !stopping_ && !(*host)->done()) {
-    if (!authorizer_->StillValid(caller->label)) {
-      return ToGrpc(absl::UnauthenticatedError(
-          absl::StrCat("authorization: the token '", caller->label, "' was revoked during the watch")));
+  // Each view comes with the version it shows, so no change is sent twice or missed. Wake up at
+  // least every 200 ms to notice a cancelled call, a draining server or a revoked token. The view
+  // after the change that ended the study is the last one sent.
+  int64_t version = 0;
+  v1::StudyView view = (*host)->View(/*brief=*/false, &version);
+  while (writer->Write(view) && view.status().phase() != v1::STUDY_PHASE_DONE) {
+    for (;;) {
+      if (context->IsCancelled() || stopping_) return Counted("Watch", start, grpc::Status::OK);
+      if (!authorizer_->StillValid(caller->label)) {
+        return ToGrpc(absl::UnauthenticatedError(
+            absl::StrCat("authorization: the token '", caller->label, "' was revoked during the watch")));
+      }
+      if ((*host)->WaitForChange(version, absl::Now() + absl::Milliseconds(200)) != version) break;
     }
-    const int64_t now_version = (*host)->WaitForChange(version, absl::Now() + absl::Milliseconds(200));
-    if (now_version == version) continue;
-    version = now_version;
-    if (!writer->Write((*host)->View(true))) break;
+    view = (*host)->View(/*brief=*/true, &version);
   }
   return Counted("Watch", start, grpc::Status::OK);
 }

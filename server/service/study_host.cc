@@ -282,8 +282,9 @@ v1::Trial StudyHost::TrialView(const study::Trial& t) const {
   return v;
 }
 
-v1::StudyView StudyHost::View(bool brief) const {
+v1::StudyView StudyHost::View(bool brief, int64_t* version) const {
   absl::ReaderMutexLock lock(&mu_);
+  if (version != nullptr) *version = version_;
   return ViewLocked(brief);
 }
 
@@ -396,11 +397,6 @@ int64_t StudyHost::version() const {
 StudyGauges StudyHost::Gauges() const {
   absl::ReaderMutexLock lock(&mu_);
   return {study_.counts(), study_.engine().phase, study_.engine().generation};
-}
-
-bool StudyHost::done() const {
-  absl::ReaderMutexLock lock(&mu_);
-  return study_.engine().phase == study::Phase::kDone;
 }
 
 }  // namespace ogive::service

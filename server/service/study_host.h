@@ -83,8 +83,9 @@ class StudyHost {
   // Lapses expired leases; returns how many lapsed.
   absl::StatusOr<int> Sweep(absl::Time now);
 
-  // The study's view; with the design unless `brief`.
-  v1::StudyView View(bool brief) const;
+  // The study's view; with the design unless `brief`. Sets *version (when given) to the version the
+  // view shows, read under the same lock.
+  v1::StudyView View(bool brief, int64_t* version = nullptr) const;
   // Trials with number > after, optionally of one state, at most limit; sets *next_after to the last
   // number returned when more remain (0 otherwise).
   std::vector<v1::Trial> Trials(std::optional<study::TrialState> state, int64_t after, int limit,
@@ -100,7 +101,6 @@ class StudyHost {
   // (returns `version`).
   int64_t WaitForChange(int64_t version, absl::Time deadline) const;
   int64_t version() const;
-  bool done() const;
   StudyGauges Gauges() const;
 
  private:
