@@ -247,6 +247,11 @@ def main():
                 break
             check(time.time() < deadline, "trial %d did not lapse" % lapsing)
             time.sleep(0.2)
+        # The lapse shows in the study as soon as the sweep applied it; the counter counts it once
+        # the sweep's write committed, which can come a moment later on a loaded machine.
+        while value(scrape(url)[1], "ogive_lapses", "_total") < 1:
+            check(time.time() < deadline, "ogive_lapses_total did not count the lapse of trial %d" % lapsing)
+            time.sleep(0.1)
         views = {name: json.loads(run.ogive("study", "show", name, "--json", method="GetStudy").stdout)
                  for name in ("scored", "graded")}
 
