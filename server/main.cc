@@ -227,11 +227,11 @@ int main(int argc, char** argv) {
     Fail(absl::StrCat("cannot open database '", flags.db, "': ", store.status().message(),
                       not_writable ? " (ogived --read-only serves it for reading)" : ""));
   }
-  ogive::service::Registry registry(store->get(), flags.limits, &metrics);
-  if (absl::Status s = registry.LoadAll(); !s.ok()) Fail(absl::StrCat("cannot restore studies: ", s.message()));
-  LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry.All().size())},
+  auto registry = std::make_unique<ogive::service::Registry>(store->get(), flags.limits, &metrics);
+  if (absl::Status s = registry->LoadAll(); !s.ok()) Fail(absl::StrCat("cannot restore studies: ", s.message()));
+  LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry->All().size())},
            {"mode", flags.read_only ? "read-only" : "read-write"}});
-  metrics.CollectStudies(&registry);
+  metrics.CollectStudies(registry.get());
   metrics.CollectStore(store->get());
 
   absl::StatusOr<std::unique_ptr<ogive::service::Authorizer>> authorizer =
@@ -259,7 +259,7 @@ int main(int argc, char** argv) {
                                      "; 'ogived token' works only while this server is stopped")}});
   }
 
-  ogive::service::OgiveService service(&registry, authorizer->get(), [] { return absl::Now(); }, &metrics);
+  ogive::service::OgiveService service(registry.get(), authorizer->get(), [] { return absl::Now(); }, &metrics);
   grpc::EnableDefaultHealthCheckService(true);
   if (flags.reflection) grpc::reflection::InitProtoReflectionServerBuilderPlugin();
   grpc::ServerBuilder builder;
@@ -315,7 +315,7 @@ int main(int argc, char** argv) {
     pthread_setname_np(pthread_self(), "ogive-sweeper");
     if (flags.read_only) return;  // lapses are writes
     while (!stop_sweeping.WaitForNotificationWithTimeout(absl::Seconds(flags.sweep_interval_seconds))) {
-      for (const auto& host : registry.All()) {
+      for (const auto& host : registry->All()) {
         absl::StatusOr<int> lapsed = host->Sweep(absl::Now());
         if (!lapsed.ok()) {
           LogLine({{"event", "sweep"}, {"study", host->name()}, {"code", absl::StatusCodeToString(lapsed.status().code())},
@@ -348,6 +348,7 @@ int main(int argc, char** argv) {
     ::unlink(ogive::AdminSocketPath(flags.db).c_str());
   }
   if (metrics_server != nullptr) metrics_server->Stop();  // its collectors read the store
+  registry.reset();  // its reply thread waits on the store's commits, so it goes first
   const ogive::storage::SqliteStore::Stats stats = (*store)->stats();
   store->reset();  // drains the writer: every acknowledged write is committed
   LogLine({{"event", "stopped"}, {"transactions", absl::StrCat(stats.transactions)},

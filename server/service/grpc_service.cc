@@ -136,7 +136,9 @@ grpc::ServerUnaryReactor* OgiveService::ReplyAfterCommit(const char* name, const
     const grpc::Status status = Counted(
         name, start, Finish(event, request->study(), request->worker(), who, std::move(result), response, detail));
     // Out of flight before the reactor finishes: once every reactor finished, the server may go, and
-    // this continuation may be destroyed later, on another thread.
+    // this continuation may be destroyed later, on another thread. A Drain() that returns in the
+    // microseconds between leaves this reply to the server's shutdown deadline (ogived: 200 ms); a
+    // reply cut off there is one a retry gets again (request ids, duplicate reports).
     scope.reset();
     reactor->Finish(status);
   });

@@ -143,7 +143,10 @@ class LoopbackServer {
   }
 
   void Stop() {
-    if (service_ != nullptr) service_->StopWatches();
+    if (service_ != nullptr) {
+      service_->StopWatches();
+      EXPECT_TRUE(service_->Drain(absl::Seconds(10))) << "calls still in flight after 10 s";
+    }
     if (server_ != nullptr) {
       server_->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(5));
       server_->Wait();
