@@ -234,31 +234,28 @@ grpc::Status OgiveService::SetPhase(grpc::ServerContext* context, const v1::SetP
 
 grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRequest* request,
                                  grpc::ServerWriter<v1::StudyView>* writer) {
-  const Steady::time_point start = Steady::now();
-  CallScope scope(this);
-  if (!scope.admitted()) return CallScope::Refusal();
-  absl::StatusOr<Caller> caller = Authorize(*context, Method::kWatch, request->study());
-  if (!caller.ok()) return ToGrpc(caller.status());
-  if (absl::Status s = ValidateWatch(*request, registry_->limits()); !s.ok()) return ToGrpc(s);
-  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry_->Find(request->study());
-  if (!host.ok()) return Counted("Watch", start, ToGrpc(host.status()));
-  // Each view comes with the version it shows, so no change is sent twice or missed. Wake up at
-  // least every 200 ms to notice a cancelled call, a draining server or a revoked token. The view
-  // after the change that ended the study is the last one sent.
-  int64_t version = 0;
-  v1::StudyView view = (*host)->View(/*brief=*/false, &version);
-  while (writer->Write(view) && view.status().phase() != v1::STUDY_PHASE_DONE) {
-    for (;;) {
-      if (context->IsCancelled() || stopping_) return Counted("Watch", start, grpc::Status::OK);
-      if (!authorizer_->StillValid(caller->label)) {
-        return ToGrpc(absl::UnauthenticatedError(
-            absl::StrCat("authorization: the token '", caller->label, "' was revoked during the watch")));
+  return Guarded("Watch", *context, Method::kWatch, request->study(), [&](const Caller& caller) -> grpc::Status {
+    if (absl::Status s = ValidateWatch(*request, registry_->limits()); !s.ok()) return ToGrpc(s);
+    absl::StatusOr<std::shared_ptr<StudyHost>> host = registry_->Find(request->study());
+    if (!host.ok()) return ToGrpc(host.status());
+    // Each view comes with the version it shows, so no change is sent twice or missed. Wake up at
+    // least every 200 ms to notice a cancelled call, a draining server or a revoked token. The view
+    // after the change that ended the study is the last one sent.
+    int64_t version = 0;
+    v1::StudyView view = (*host)->View(/*brief=*/false, &version);
+    while (writer->Write(view) && view.status().phase() != v1::STUDY_PHASE_DONE) {
+      for (;;) {
+        if (context->IsCancelled() || stopping_) return grpc::Status::OK;
+        if (!authorizer_->StillValid(caller.label)) {
+          return ToGrpc(absl::UnauthenticatedError(
+              absl::StrCat("authorization: the token '", caller.label, "' was revoked during the watch")));
+        }
+        if ((*host)->WaitForChange(version, absl::Now() + absl::Milliseconds(200)) != version) break;
       }
-      if ((*host)->WaitForChange(version, absl::Now() + absl::Milliseconds(200)) != version) break;
+      view = (*host)->View(/*brief=*/true, &version);
     }
-    view = (*host)->View(/*brief=*/true, &version);
-  }
-  return Counted("Watch", start, grpc::Status::OK);
+    return grpc::Status::OK;
+  });
 }
 
 }  // namespace ogive::service
