@@ -389,11 +389,6 @@ int64_t StudyHost::WaitForChange(int64_t version, absl::Time deadline) const {
   return version_;
 }
 
-int64_t StudyHost::version() const {
-  absl::ReaderMutexLock lock(&mu_);
-  return version_;
-}
-
 StudyGauges StudyHost::Gauges() const {
   absl::ReaderMutexLock lock(&mu_);
   return {study_.counts(), study_.engine().phase, study_.engine().generation};

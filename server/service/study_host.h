@@ -100,7 +100,6 @@ class StudyHost {
   // Blocks until the study changed after `version` (returns the new version) or `deadline` passed
   // (returns `version`).
   int64_t WaitForChange(int64_t version, absl::Time deadline) const;
-  int64_t version() const;
   StudyGauges Gauges() const;
 
  private:
