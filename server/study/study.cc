@@ -98,12 +98,14 @@ const char* DoneReasonName(DoneReason reason) {
   return "unknown";
 }
 
-// Computes one request's Change on top of the published state: changed trials live in an overlay,
-// the engine state and the index sets are copies. Nothing here touches the Study.
+// Computes one request's Change on top of the published state. Changed trials live in an overlay and
+// the engine state is a copy; the study's index sets are read, never copied: a trial is leased while
+// its state is kLeased and pending while its use is kPending (in the overlay when it changed), and the
+// planner counts how many entered or left each set. Nothing here touches the Study, and the cost of a
+// plan grows with what it changes, not with how many trials are out or pending.
 class Study::Planner {
  public:
-  Planner(const Study& study, absl::Time now)
-      : study_(study), now_(now), engine_(study.engine_), pending_(study.pending_), leased_(study.leased_) {}
+  Planner(const Study& study, absl::Time now) : study_(study), now_(now), engine_(study.engine_) {}
 
   const Trial* Get(int64_t number) const {
     if (auto it = overlay_.find(number); it != overlay_.end()) return &it->second;
@@ -115,17 +117,20 @@ class Study::Planner {
     return it->second;
   }
   EngineState& engine() { return engine_; }
-  int64_t outstanding() const { return static_cast<int64_t>(leased_.size()); }
+  int64_t outstanding() const { return static_cast<int64_t>(study_.leases_.size()) + leased_delta_; }
 
-  // Lapses every lease that ran out by now.
+  // Lapses every lease that ran out by now: the study's leases in deadline order, up to now (a lease
+  // this plan changed is judged by its trial as the plan sees it).
   void Sweep() {
     std::vector<int64_t> expired;
-    for (int64_t number : leased_) {
-      if (Get(number)->lease_deadline <= now_) expired.push_back(number);
+    for (const auto& [deadline, number] : study_.leases_) {
+      if (deadline > now_) break;
+      const Trial* t = Get(number);
+      if (t->state == TrialState::kLeased && t->lease_deadline <= now_) expired.push_back(number);
     }
     for (int64_t number : expired) {
       Mutable(number).state = TrialState::kLapsed;
-      leased_.erase(number);
+      --leased_delta_;
     }
   }
 
@@ -144,12 +149,12 @@ class Study::Planner {
       t.worker = worker;
       t.leased_at = now_;
       t.lease_deadline = now_ + lease;
-      leased_.insert(t.number);
+      ++leased_delta_;
       numbers.push_back(t.number);
       overlay_.emplace(t.number, std::move(t));
     }
     engine_.random = random.state();
-    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(leased_.size()));
+    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(outstanding()));
     return numbers;
   }
 
@@ -180,7 +185,7 @@ class Study::Planner {
     Trial& t = Mutable(report.trial);
     t.late = t.state == TrialState::kLapsed;
     result.late = t.late;
-    leased_.erase(t.number);
+    if (t.state == TrialState::kLeased) --leased_delta_;
     t.outcome = report.outcome;
     t.note = report.note;
     t.reported_by = report.reported_by;
@@ -197,7 +202,7 @@ class Study::Planner {
       t.use = Use::kTooStale;
     } else {
       t.use = Use::kPending;
-      pending_.insert({t.report_sequence, t.number});
+      added_pending_.push_back(t.number);  // its report_sequence is above every earlier one
     }
     const Trial* best = Get(engine_.best_trial);
     if (best == nullptr || search::CompareOutcomes(*t.outcome, *best->outcome, study_.order_) < 0) {
@@ -212,9 +217,12 @@ class Study::Planner {
     while (engine_.phase != Phase::kDone) {
       DropStale();
       const int lambda = engine_.distribution->population_size();
-      if (static_cast<int>(pending_.size()) < lambda) break;
+      if (PendingCount() < lambda) break;
       std::vector<int64_t> cohort;
-      for (auto it = pending_.begin(); static_cast<int>(cohort.size()) < lambda; ++it) cohort.push_back(it->second);
+      ForEachPending([&](int64_t number) {
+        cohort.push_back(number);
+        return static_cast<int>(cohort.size()) < lambda;
+      });
       Consume(cohort);
     }
     DropStale();  // also when the last update ended the study
@@ -223,11 +231,11 @@ class Study::Planner {
 
   void Lease(int64_t number, const std::string& worker, absl::Time deadline) {
     Trial& t = Mutable(number);
+    if (t.state != TrialState::kLeased) ++leased_delta_;
     t.state = TrialState::kLeased;
     t.worker = worker;
     t.lease_deadline = deadline;
-    leased_.insert(number);
-    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(leased_.size()));
+    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(outstanding()));
   }
 
   void SetPhase(Phase phase, DoneReason reason, std::string message) {
@@ -251,15 +259,35 @@ class Study::Planner {
     return t.epoch != engine_.epoch || engine_.generation - t.generation > study_.options_.staleness_limit;
   }
 
+  // Pending outcomes, oldest report first: the study's (less those this plan took out), then this
+  // plan's. `visit(number)` returns whether to go on.
+  template <typename Visit>
+  void ForEachPending(Visit visit) const {
+    for (const auto& [sequence, number] : study_.pending_) {
+      if (Get(number)->use == Use::kPending && !visit(number)) return;
+    }
+    for (int64_t number : added_pending_) {
+      if (Get(number)->use == Use::kPending && !visit(number)) return;
+    }
+  }
+  int PendingCount() const {
+    return static_cast<int>(study_.pending_.size() + added_pending_.size()) - pending_removed_;
+  }
+  // Takes a pending outcome out of the pending set, with its new use.
+  void Unpend(int64_t number, Use use) {
+    Trial& t = Mutable(number);
+    OGIVE_CHECK(t.use == Use::kPending);
+    t.use = use;
+    ++pending_removed_;
+  }
+
   void DropStale() {
-    std::vector<std::pair<int64_t, int64_t>> stale;
-    for (const auto& entry : pending_) {
-      if (TooStale(*Get(entry.second))) stale.push_back(entry);
-    }
-    for (const auto& entry : stale) {
-      pending_.erase(entry);
-      Mutable(entry.second).use = Use::kTooStale;
-    }
+    std::vector<int64_t> stale;
+    ForEachPending([&](int64_t number) {
+      if (TooStale(*Get(number))) stale.push_back(number);
+      return true;
+    });
+    for (int64_t number : stale) Unpend(number, Use::kTooStale);
   }
 
   void Consume(const std::vector<int64_t>& cohort) {
@@ -293,10 +321,8 @@ class Study::Planner {
     search::SearchDistribution next = *engine_.distribution;
     const absl::Status updated = next.Update(members, *spans);
     for (int64_t number : cohort) {
-      pending_.erase({Get(number)->report_sequence, number});
-      Trial& t = Mutable(number);
-      t.use = Use::kConsumed;
-      t.consumed_by = engine_.generation + 1;
+      Unpend(number, Use::kConsumed);
+      Mutable(number).consumed_by = engine_.generation + 1;
     }
     ++engine_.generation;
     engine_.flat_generations = flat ? engine_.flat_generations + 1 : 0;
@@ -336,7 +362,7 @@ class Study::Planner {
     if (study_.options_.adapt_population) lambda = std::max(lambda, engine_.peak_outstanding);
     lambda = std::clamp(lambda, 2, std::max(2, study_.options_.max_population_size));
     if (lambda != next.population_size()) next.SetPopulationSize(lambda);
-    engine_.peak_outstanding = static_cast<int>(leased_.size());
+    engine_.peak_outstanding = static_cast<int>(outstanding());
   }
 
   void RestartOrStop(const std::string& why) {
@@ -389,9 +415,10 @@ class Study::Planner {
   const Study& study_;
   const absl::Time now_;
   EngineState engine_;
-  std::set<std::pair<int64_t, int64_t>> pending_;
-  std::set<int64_t> leased_;
   std::map<int64_t, Trial> overlay_;
+  int64_t leased_delta_ = 0;            // leased trials now, less the study's
+  std::vector<int64_t> added_pending_;  // outcomes this plan made pending, in report order
+  int pending_removed_ = 0;             // pending outcomes this plan consumed or dropped
   std::vector<GenerationRecord> generations_;
   bool distribution_changed_ = false;
 };
@@ -643,13 +670,13 @@ void Study::Count(const Trial& t, int sign) {
 }
 
 void Study::Index(const Trial& t) {
-  if (t.state == TrialState::kLeased) leased_.insert(t.number);
+  if (t.state == TrialState::kLeased) leases_.insert({t.lease_deadline, t.number});
   if (t.use == Use::kPending) pending_.insert({t.report_sequence, t.number});
 }
 
 void Study::Unindex(const Trial& t) {
-  leased_.erase(t.number);
-  pending_.erase({t.report_sequence, t.number});
+  if (t.state == TrialState::kLeased) leases_.erase({t.lease_deadline, t.number});
+  if (t.use == Use::kPending) pending_.erase({t.report_sequence, t.number});
 }
 
 }  // namespace ogive::study

@@ -182,7 +182,7 @@ class Study {
   std::vector<Trial> trials_;  // trials_[k] has number k + 1
   TrialCounts counts_;
   std::set<std::pair<int64_t, int64_t>> pending_;  // (report_sequence, number) of pending outcomes
-  std::set<int64_t> leased_;                        // numbers of leased trials
+  std::set<std::pair<absl::Time, int64_t>> leases_;  // (lease_deadline, number) of leased trials, soonest first
 };
 
 }  // namespace ogive::study

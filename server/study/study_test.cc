@@ -346,6 +346,34 @@ TEST(StudySweepTest, LapsesOnlyExpiredLeases) {
   EXPECT_EQ(study.engine().generation, 0);
 }
 
+// Leases run out in deadline order, not trial order; a renewed lease is judged by its new deadline
+// and a reported trial no longer holds one.
+TEST(StudySweepTest, LapsesByDeadlineWhateverTheTrialOrder) {
+  Study study = SmallStudy();
+  const absl::Time t = Origin();
+  ASSERT_TRUE(study.Ask(1, "w", absl::Seconds(30), t).ok());  // trial 1: t + 30 s
+  ASSERT_TRUE(study.Ask(1, "w", absl::Seconds(10), t).ok());  // trial 2: t + 10 s
+  ASSERT_TRUE(study.Ask(1, "w", absl::Seconds(20), t).ok());  // trial 3: t + 20 s
+  ASSERT_TRUE(study.Ask(1, "w", absl::Seconds(5), t).ok());   // trial 4: t + 5 s, reported in time
+  const Report r = MakeReport(4, search::Outcome::Score(4.0));
+  ASSERT_TRUE(study.Tell({&r, 1}, t + absl::Seconds(1)).ok());
+  const int64_t two[] = {2};
+  ASSERT_TRUE(study.Renew(two, "w", absl::Seconds(40), t + absl::Seconds(5)).ok());  // trial 2: t + 45 s
+
+  EXPECT_EQ(study.Sweep(t + absl::Seconds(25)), 1);
+  EXPECT_EQ(study.trial(3)->state, TrialState::kLapsed);
+  EXPECT_EQ(study.trial(1)->state, TrialState::kLeased);
+  EXPECT_EQ(study.trial(2)->state, TrialState::kLeased);
+  EXPECT_EQ(study.Sweep(t + absl::Seconds(35)), 1);
+  EXPECT_EQ(study.trial(1)->state, TrialState::kLapsed);
+  EXPECT_EQ(study.trial(2)->state, TrialState::kLeased);
+  EXPECT_EQ(study.counts().leased, 1);
+  EXPECT_EQ(study.Sweep(t + absl::Seconds(45)), 1);
+  EXPECT_EQ(study.counts().leased, 0);
+  EXPECT_EQ(study.counts().lapsed, 3);
+  EXPECT_EQ(study.counts().reported, 1);
+}
+
 TEST(StudySweepTest, AskLapsesExpiredLeasesFirst) {
   Study study = SmallStudy();
   ASSERT_TRUE(study.Ask(2, "w", absl::Seconds(10), Origin()).ok());
