@@ -80,11 +80,35 @@ CREATE TABLE tokens (
 ALTER TABLE events ADD COLUMN token_label TEXT NOT NULL DEFAULT '';
 )sql";
 
+// Version 3: writes that touch fewer pages. Each commit used to write about twice the pages its
+// rows needed: ask_requests was keyed by (study_id, request_id), and request ids are random, so every
+// ask inserted into a different page of that index; trials_by_state moved an entry on every change of
+// a trial's state, for a query the server answers from memory. ask_requests is now kept in the order
+// of the asks (its rowid) with an index on (study_id, id) that grows at its end; uniqueness of a
+// study's request ids is the service's rule (it answers a repeated id from memory and never stores it
+// again), not the table's. trials_by_state goes: listing the trials of one state scans the study's
+// trials by number.
+constexpr const char kVersion3[] = R"sql(
+CREATE TABLE ask_requests_v3 (
+  id INTEGER PRIMARY KEY,
+  study_id INTEGER NOT NULL REFERENCES studies (id),
+  request_id TEXT NOT NULL,
+  trials TEXT NOT NULL
+);
+INSERT INTO ask_requests_v3 (study_id, request_id, trials)
+  SELECT study_id, request_id, trials FROM ask_requests ORDER BY study_id, request_id;
+DROP TABLE ask_requests;
+ALTER TABLE ask_requests_v3 RENAME TO ask_requests;
+CREATE INDEX ask_requests_by_study ON ask_requests (study_id, id);
+DROP INDEX trials_by_state;
+)sql";
+
 // Append new steps at the end (one line each, the SQL in a constant above). Never change a step
 // that has been released.
 constexpr const char* kMigrations[] = {
     kVersion1,
     kVersion2,
+    kVersion3,
 };
 
 absl::Status VersionMismatch(int64_t found, int64_t known, absl::string_view what) {

@@ -87,6 +87,17 @@ absl::Status Configure(Connection& connection, bool writer, bool read_only_store
           absl::StrCat("journal_mode: a reader sees '", *mode, "', expected wal"));
     }
   }
+  if (writer) {
+    // The savepoint of each write keeps its undo pages in a sub-journal: in memory, not in a temporary
+    // file that a large write would spill to (a write() per page, for data that is never kept).
+    OGIVE_STORAGE_RETURN_IF_ERROR(connection.Execute("PRAGMA temp_store = MEMORY", "set temp_store"));
+    absl::StatusOr<int64_t> temp_store = connection.QueryInt64("PRAGMA temp_store", "read temp_store");
+    if (!temp_store.ok()) return temp_store.status();
+    if (*temp_store != 2) {
+      return absl::FailedPreconditionError(
+          absl::StrCat("temp_store: set to MEMORY (2), but the connection reports ", *temp_store));
+    }
+  }
   OGIVE_STORAGE_RETURN_IF_ERROR(connection.Execute("PRAGMA synchronous = FULL", "set synchronous"));
   absl::StatusOr<int64_t> synchronous =
       connection.QueryInt64("PRAGMA synchronous", "read synchronous");
@@ -269,7 +280,7 @@ struct SqliteStore::Reader {
         {"load trials",
          {"SELECT number, record FROM trials WHERE study_id = ?1 ORDER BY number", &study_trials}},
         {"load ask requests",
-         {"SELECT request_id, trials FROM ask_requests WHERE study_id = ?1 ORDER BY request_id",
+         {"SELECT request_id, trials FROM ask_requests WHERE study_id = ?1 ORDER BY id",
           &study_ask_requests}},
         {"list trials",
          {"SELECT number, record FROM trials WHERE study_id = ?1 AND number > ?2 "
@@ -787,12 +798,7 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id) 
     s.insert_ask_request->BindInt64(1, id);
     s.insert_ask_request->BindText(2, write.ask_request->first);
     s.insert_ask_request->BindText(3, write.ask_request->second);
-    absl::Status status = s.insert_ask_request->Run();
-    if (absl::IsAlreadyExists(status)) {
-      return absl::AlreadyExistsError(absl::StrCat(
-          "study id ", id, ": ask request '", write.ask_request->first, "' is already stored"));
-    }
-    OGIVE_STORAGE_RETURN_IF_ERROR(status);
+    OGIVE_STORAGE_RETURN_IF_ERROR(s.insert_ask_request->Run());
   }
   for (const Event& event : write.events) {
     Statement& insert = *s.insert_event;

@@ -26,6 +26,7 @@
 
 #include "absl/status/status.h"
 #include "absl/status/statusor.h"
+#include "absl/strings/escaping.h"
 #include "absl/strings/str_cat.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/time/clock.h"
@@ -720,7 +721,9 @@ TEST_F(SqliteStoreTest, EveryConnectionIsWalWithSynchronousFull) {
   RawDb raw(path_);
   EXPECT_EQ(raw.Text("PRAGMA journal_mode"), "wal");
   EXPECT_EQ(raw.Text("PRAGMA user_version"), absl::StrCat(SqliteStore::schema_version()));
-  EXPECT_EQ(raw.Text("SELECT count(*) FROM sqlite_master WHERE name = 'trials_by_state'"), "1");
+  // Version 3's layout: ask requests in the order of the asks, no index by trial state.
+  EXPECT_EQ(raw.Text("SELECT count(*) FROM sqlite_master WHERE name = 'ask_requests_by_study'"), "1");
+  EXPECT_EQ(raw.Text("SELECT count(*) FROM sqlite_master WHERE name = 'trials_by_state'"), "0");
 }
 
 TEST_F(SqliteStoreTest, GroupCommitSharesTransactionsAndKeepsEveryWrite) {
@@ -917,23 +920,97 @@ TEST_F(SqliteStoreTest, ReopeningGivesTheSameDataAndTheLogIsFoldedOnClose) {
   EXPECT_GT(Create(*store, "gamma"), (*loaded)[1].id);
 }
 
-TEST_F(SqliteStoreTest, DuplicateAskRequestIsAlreadyExists) {
+TEST_F(SqliteStoreTest, AskRequestsLoadInTheOrderStoredAndAnEmptyIdIsRefused) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
   const int64_t id = Create(*store, "alpha");
-  StudyWrite write;
-  write.study_id = id;
-  write.ask_request = std::make_pair(std::string("req"), std::vector<int64_t>{1});
-  ASSERT_THAT(store->Commit(write), IsOk());
-  write.trials = {MakeTrial(9, v1::TRIAL_STATE_LEASED)};
-  EXPECT_THAT(store->Commit(write), StatusIs(absl::StatusCode::kAlreadyExists,
-                                             HasSubstr("ask request 'req' is already stored")));
+  for (const char* request : {"zeta", "alpha", "mid"}) {
+    StudyWrite write;
+    write.study_id = id;
+    write.ask_request = std::make_pair(std::string(request), std::vector<int64_t>{static_cast<int64_t>(request[0])});
+    ASSERT_THAT(store->Commit(write), IsOk());
+  }
+  absl::StatusOr<StoredStudy> loaded = store->LoadStudy(id);
+  ASSERT_THAT(loaded, IsOk());
+  EXPECT_THAT(loaded->ask_requests, ElementsAre(Pair("zeta", ElementsAre('z')), Pair("alpha", ElementsAre('a')),
+                                                Pair("mid", ElementsAre('m'))));
+
+  StudyWrite empty;
+  empty.study_id = id;
+  empty.trials = {MakeTrial(9, v1::TRIAL_STATE_LEASED)};
+  empty.ask_request = std::make_pair(std::string(), std::vector<int64_t>{9});
+  EXPECT_THAT(store->Commit(empty), StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("empty request id")));
   absl::StatusOr<TrialPage> page = store->ListTrials(id, std::nullopt, 0, 10);
   ASSERT_THAT(page, IsOk());
   EXPECT_TRUE(page->trials.empty());
-  write.ask_request->first.clear();
-  EXPECT_THAT(store->Commit(write),
-              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("empty request id")));
+}
+
+// A database written by a build at schema version 2 (ask requests keyed by id, trials indexed by
+// state) keeps every trial and ask request through the migration to version 3.
+TEST_F(SqliteStoreTest, MigrationToVersionThreeKeepsTrialsAndAskRequests) {
+  {
+    absl::StatusOr<std::unique_ptr<internal::Connection>> connection =
+        internal::Connection::Open(path_, /*read_only=*/false, 1000);
+    ASSERT_THAT(connection, IsOk());
+    ASSERT_THAT(internal::Migrate(**connection, internal::Migrations().first(2)), IsOk());
+    ASSERT_THAT((*connection)->Execute("PRAGMA journal_mode = WAL", "wal"), IsOk());
+  }
+  {
+    RawDb raw(path_);
+    v1::EngineState engine = MakeEngine(0.5);
+    const std::string distribution = Bytes(engine.distribution());
+    engine.clear_distribution();
+    engine.set_next_trial(4);
+    ASSERT_EQ(raw.Exec(absl::StrCat("INSERT INTO studies (id, name, design, engine, distribution, create_request_id, "
+                                    "created_at_ns) VALUES (7, 'alpha', X'", absl::BytesToHexString(Bytes(MakeDesign("alpha"))),
+                                    "', X'", absl::BytesToHexString(Bytes(engine)), "', X'",
+                                    absl::BytesToHexString(distribution), "', 'create-alpha', 1)")),
+              SQLITE_OK);
+    for (int64_t n = 1; n <= 3; ++n) {
+      const v1::TrialRecord trial = MakeTrial(n, n == 2 ? v1::TRIAL_STATE_REPORTED : v1::TRIAL_STATE_LEASED, 2.5);
+      ASSERT_EQ(raw.Exec(absl::StrCat("INSERT INTO trials (study_id, number, state, worker, reported_at_ns, score, "
+                                      "record) VALUES (7, ", n, ", ", trial.state(), ", '", trial.worker(), "', ",
+                                      trial.reported_at_ns(), ", NULL, X'", absl::BytesToHexString(Bytes(trial)), "')")),
+                SQLITE_OK);
+    }
+    ASSERT_EQ(raw.Exec("INSERT INTO ask_requests (study_id, request_id, trials) VALUES (7, 'r-b', '3'), "
+                       "(7, 'r-a', '1,2')"),
+              SQLITE_OK);
+    ASSERT_EQ(raw.Text("PRAGMA user_version"), "2");
+  }
+
+  std::unique_ptr<SqliteStore> store = OpenStore();  // migrates
+  ASSERT_NE(store, nullptr);
+  absl::StatusOr<StoredStudy> loaded = store->LoadStudy(7);
+  ASSERT_THAT(loaded, IsOk());
+  ASSERT_EQ(loaded->snapshot.trials_size(), 3);
+  for (int n = 1; n <= 3; ++n) {
+    EXPECT_EQ(Bytes(loaded->snapshot.trials(n - 1)),
+              Bytes(MakeTrial(n, n == 2 ? v1::TRIAL_STATE_REPORTED : v1::TRIAL_STATE_LEASED, 2.5)));
+  }
+  // The stored requests keep their trials (copied in request-id order), and a new one follows them.
+  EXPECT_THAT(loaded->ask_requests, ElementsAre(Pair("r-a", ElementsAre(1, 2)), Pair("r-b", ElementsAre(3))));
+  StudyWrite ask;
+  ask.study_id = 7;
+  ask.trials = {MakeTrial(4, v1::TRIAL_STATE_LEASED)};
+  ask.ask_request = std::make_pair(std::string("r-0"), std::vector<int64_t>{4});
+  ASSERT_THAT(store->Commit(ask), IsOk());
+  loaded = store->LoadStudy(7);
+  ASSERT_THAT(loaded, IsOk());
+  EXPECT_THAT(loaded->ask_requests, ElementsAre(Pair("r-a", ElementsAre(1, 2)), Pair("r-b", ElementsAre(3)),
+                                                Pair("r-0", ElementsAre(4))));
+  // Listing by state still works without the index.
+  absl::StatusOr<TrialPage> leased = store->ListTrials(7, v1::TRIAL_STATE_LEASED, 0, 10);
+  ASSERT_THAT(leased, IsOk());
+  ASSERT_THAT(leased->trials, SizeIs(3));
+  EXPECT_EQ(leased->trials[0].number(), 1);
+  EXPECT_EQ(leased->trials[1].number(), 3);
+  EXPECT_EQ(leased->trials[2].number(), 4);
+  store.reset();
+  RawDb raw(path_);
+  EXPECT_EQ(raw.Text("PRAGMA user_version"), "3");
+  EXPECT_EQ(raw.Text("SELECT count(*) FROM sqlite_master WHERE name = 'trials_by_state'"), "0");
+  EXPECT_EQ(raw.Text("PRAGMA integrity_check"), "ok");
 }
 
 TEST_F(SqliteStoreTest, NewerSchemaVersionIsRefusedNamingBothVersions) {

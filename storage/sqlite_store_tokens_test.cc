@@ -174,7 +174,7 @@ TEST_F(SqliteStoreTokensTest, AVersionOneDatabaseIsMigratedKeepingItsEvents) {
   sqlite3_stmt* stmt = nullptr;
   ASSERT_EQ(sqlite3_prepare_v2(db, "PRAGMA user_version", -1, &stmt, nullptr), SQLITE_OK);
   ASSERT_EQ(sqlite3_step(stmt), SQLITE_ROW);
-  EXPECT_EQ(sqlite3_column_int64(stmt, 0), 2);
+  EXPECT_EQ(sqlite3_column_int64(stmt, 0), SqliteStore::schema_version());
   sqlite3_finalize(stmt);
   sqlite3_close(db);
 }

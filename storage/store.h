@@ -32,7 +32,8 @@ struct StoredStudy {
   v1::StudyDesign design;
   v1::StudySnapshot snapshot;  // engine state (with its distribution) and every trial, by number
   std::string create_request_id;
-  // Ask request ids seen, with the trial numbers each returned (for idempotent retries).
+  // Ask request ids seen, with the trial numbers each returned (for idempotent retries), in the order
+  // they were stored.
   std::vector<std::pair<std::string, std::vector<int64_t>>> ask_requests;
 };
 
@@ -64,7 +65,9 @@ struct StudyWrite {
                                                       // `distribution` field is ignored here...
   std::optional<v1::DistributionState> distribution;  // ...and replaced only when this is set
   std::vector<v1::GenerationSummary> generations;     // appended
-  std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request;  // request id -> trials
+  // request id -> trials. Appended: the store does not look for an earlier write with the same id
+  // (that would cost an index lookup at a random place per ask); the caller stores each id once.
+  std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request;
   std::vector<Event> events;                          // appended
   // Writes of one study that carry the same non-zero chain depend on each other: they commit in the
   // order they were queued, and once one of them fails every later one fails too (UNAVAILABLE)

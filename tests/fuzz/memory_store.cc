@@ -3,6 +3,7 @@
 #include <cmath>
 
 #include "absl/strings/str_cat.h"
+#include "tests/fuzz/require.h"
 
 namespace ogive::fuzz {
 namespace {
@@ -133,10 +134,10 @@ absl::Status MemoryStore::Apply(storage::StudyWrite& write) {
   }
   if (write.ask_request.has_value()) {
     if (write.ask_request->first.empty()) return absl::InvalidArgumentError(where + "ask_request: empty request id");
+    // The real store appends without looking; storing an id twice would be the service's bug.
     for (const auto& [id, numbers] : data.stored.ask_requests) {
-      if (id == write.ask_request->first) {
-        return absl::AlreadyExistsError(absl::StrCat(where, "ask request '", id, "' is already stored"));
-      }
+      OGIVE_FUZZ_REQUIRE(id != write.ask_request->first, where, "ask request '", id,
+                         "' stored a second time (a retry must be answered from memory)");
     }
   }
 

@@ -1,7 +1,8 @@
 // MemoryStore: a Store that keeps everything in memory, for the fuzz targets and the tests built on
 // them. It stands in for the SQLite file (STYLE: fake the environment, not the logic): it keeps what
 // was committed exactly as the real store would hand it back at start-up, refuses what the real store
-// refuses (a non-finite score, an empty or repeated ask request id, an unknown study), and follows
+// refuses (a non-finite score, an empty ask request id, an unknown study), aborts where the service
+// broke a rule the real store leaves to it (an ask request id stored twice), and follows
 // the same chain rule (once a write of a chain failed, every later write of that chain fails with
 // UNAVAILABLE). It is stricter in one way: trial numbers must be dense (a write may replace trial k
 // or add trial count + 1), as the study engine numbers them. Commits complete at once; there is no
