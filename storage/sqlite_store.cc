@@ -579,9 +579,21 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
   int64_t committed = 0;
   int64_t failed = 0;
   bool transaction_failed = false;
+  bool isolated = false;
   const std::chrono::steady_clock::time_point started = std::chrono::steady_clock::now();
   if (!writes.empty()) {
     absl::Status begun = RunOnce(*s.begin);
+    // Almost every batch commits whole: try it without a savepoint per write first. When a write
+    // fails in the database, that attempt is rolled back and the batch runs again below, each write
+    // in a savepoint of its own, so that the failing write alone is undone.
+    bool applied_together = false;
+    if (begun.ok()) {
+      applied_together = ApplyTogether(writes);
+      if (!applied_together) {
+        isolated = true;
+        begun = RunOnce(*s.begin);
+      }
+    }
     if (!begun.ok()) {
       transaction_failed = true;
       for (Job* job : writes) {
@@ -591,7 +603,7 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
     }
     // The error that ended the whole transaction early, if one did.
     absl::Status lost;
-    for (size_t i = 0; !transaction_failed && i < writes.size(); ++i) {
+    for (size_t i = 0; !applied_together && !transaction_failed && i < writes.size(); ++i) {
       Job& job = *writes[i];
       const std::pair<int64_t, int64_t> chain{job.write->study_id, job.write->chain};
       if (!job.write->refusal.ok()) {
@@ -600,8 +612,7 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
         continue;
       }
       if (job.write->chain != 0 && broken_chains_.count(chain) > 0) {
-        job.status = absl::UnavailableError(absl::StrCat(
-            "study id ", chain.first, ": an earlier write of this study failed; nothing of this write was stored"));
+        job.status = BrokenChainError(chain.first);
         continue;
       }
       absl::Status status = RunOnce(*s.savepoint);
@@ -662,6 +673,7 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
         stats_.largest_batch = std::max(stats_.largest_batch, static_cast<int64_t>(writes.size()));
       }
     }
+    if (isolated) ++stats_.isolated_batches;
     stats_.committed_writes += committed;
     stats_.active_writes = 0;
     stats_.failed_writes += failed;
@@ -674,6 +686,36 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
   for (Job* job : batch) job->done.Notify();  // after this the job may be gone
   // After the callers were woken, so that their replies do not wait for the report.
   if (report.writes > 0 && options_.on_transaction) options_.on_transaction(report);
+}
+
+absl::Status SqliteStore::BrokenChainError(int64_t study_id) {
+  return absl::UnavailableError(absl::StrCat(
+      "study id ", study_id, ": an earlier write of this study failed; nothing of this write was stored"));
+}
+
+bool SqliteStore::ApplyTogether(const std::vector<Job*>& writes) {
+  std::vector<absl::Status> statuses(writes.size());
+  std::set<std::pair<int64_t, int64_t>> broken;  // chains broken by a refusal earlier in this batch
+  for (size_t i = 0; i < writes.size(); ++i) {
+    Job& job = *writes[i];
+    const std::pair<int64_t, int64_t> chain{job.write->study_id, job.write->chain};
+    if (!job.write->refusal.ok()) {
+      statuses[i] = job.write->refusal;
+      if (job.write->chain != 0) broken.insert(chain);
+      continue;
+    }
+    if (job.write->chain != 0 && (broken_chains_.count(chain) > 0 || broken.count(chain) > 0)) {
+      statuses[i] = BrokenChainError(chain.first);
+      continue;
+    }
+    if (!Apply(*job.write, job.created_id).ok()) {
+      if (writer_->InTransaction()) (void)RunOnce(*writer_statements_->rollback);
+      return false;
+    }
+  }
+  for (size_t i = 0; i < writes.size(); ++i) writes[i]->status = std::move(statuses[i]);
+  broken_chains_.insert(broken.begin(), broken.end());
+  return true;
 }
 
 absl::Status SqliteStore::ApplyToken(const EncodedWrite& write, int64_t& revoked) {

@@ -90,6 +90,8 @@ struct SqliteStoreStats {
   int64_t failed_transactions = 0;  // batches whose BEGIN or COMMIT failed (nothing of them stored)
   int64_t largest_batch = 0;        // most writes one transaction held
   int64_t group_commit_waits = 0;   // transactions that waited for their batch to grow
+  int64_t isolated_batches = 0;     // batches applied again write by write, each in a savepoint,
+                                    // after one of their writes failed in the database
   int64_t queued_writes = 0;        // writes waiting for the writer thread right now
   int64_t active_writes = 0;        // writes in the batch the writer thread is running right now
 
@@ -180,10 +182,17 @@ class SqliteStore final : public Store {
   bool Enqueue(Job& job);
   void WriterLoop();
   void RunBatch(const std::vector<Job*>& batch);
+  // Applies every write of `writes` in the open transaction, without a savepoint each, and sets their
+  // statuses (writes refused before queuing, or behind a broken chain, are skipped as in RunBatch).
+  // When a write fails in the database it rolls the transaction back, leaves every job as it was and
+  // returns false. Writer thread only.
+  bool ApplyTogether(const std::vector<Job*>& writes);
+  static absl::Status BrokenChainError(int64_t study_id);
   // `status` with the database file named in its message when it is about the file (UNAVAILABLE,
   // DATA_LOSS, INTERNAL): an operator reading a client's error must know which file failed.
   absl::Status NameTheFile(absl::Status status) const;
-  // Applies one write inside the open transaction (the caller wraps it in a savepoint).
+  // Applies one write inside the open transaction (in a savepoint of its own, or together with the
+  // rest of its batch: see ApplyTogether).
   absl::Status Apply(const EncodedWrite& write, int64_t& created_id);
   // Applies a token write; sets `revoked` as Job::created_id documents.
   absl::Status ApplyToken(const EncodedWrite& write, int64_t& revoked);

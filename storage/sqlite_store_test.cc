@@ -654,6 +654,8 @@ TEST_F(SqliteStoreTest, FailingWritesInABatchRollBackAloneAndOnlyTheirCallersSee
   EXPECT_EQ(after.largest_batch, 4);
   EXPECT_EQ(after.committed_writes - before.committed_writes, 3);
   EXPECT_EQ(after.failed_writes - before.failed_writes, 2);
+  // X committed whole; the batch of four was tried whole, then again write by write.
+  EXPECT_EQ(after.isolated_batches - before.isolated_batches, 1);
 
   absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
   ASSERT_THAT(loaded, IsOk());
@@ -761,6 +763,7 @@ TEST_F(SqliteStoreTest, GroupCommitSharesTransactionsAndKeepsEveryWrite) {
   const int64_t transactions = after.transactions - before.transactions;
   EXPECT_EQ(after.committed_writes - before.committed_writes, kCommits);
   EXPECT_EQ(after.failed_transactions, 0);
+  EXPECT_EQ(after.isolated_batches, 0);  // no write failed: every batch went in whole
   // With 16 writers waiting on fsyncs, most transactions carry several commits.
   EXPECT_LE(transactions, kCommits / 3);
   std::printf(

@@ -149,6 +149,9 @@ void ServiceMetrics::CollectStore(storage::SqliteStore* store) {
   counter("ogive_store_group_commit_waits_total",
           "Transactions that waited (at most the group commit window) for more writes to join.",
           &Stats::group_commit_waits);
+  counter("ogive_store_isolated_batches_total",
+          "Batches applied again write by write (a savepoint each) after one of their writes failed in the database.",
+          &Stats::isolated_batches);
   registry_->AddCollected("ogive_store_queued_writes", "Writes waiting for the writer thread or in its current batch.",
                           MetricType::kGauge, [store](std::vector<Sample>& out) {
                             const Stats s = store->stats();

@@ -58,6 +58,7 @@ EXPECTED_TYPES = {
     "ogive_store_failed_writes": "counter",
     "ogive_store_failed_transactions": "counter",
     "ogive_store_group_commit_waits": "counter",
+    "ogive_store_isolated_batches": "counter",
     "ogive_store_queued_writes": "gauge",
     "ogive_store_size_bytes": "gauge",
 }
