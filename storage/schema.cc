@@ -11,7 +11,8 @@ namespace {
 //
 // Blobs are serialized ogive.v1 messages: studies.design a StudyDesign; studies.engine an
 // EngineState without its distribution, which is studies.distribution (a DistributionState, NULL
-// when the engine has none) so that a commit can replace one without rewriting the other;
+// when the engine has none) so that a commit can replace one without the other (version 3 moves
+// both to tables of their own, since SQLite rewrites a whole row when one column changes);
 // trials.record a TrialRecord; generations.summary a GenerationSummary. trials.state, worker,
 // reported_at_ns and score copy fields of the record for queries (score is NULL unless the outcome
 // is a score). ask_requests.trials lists the trial numbers an ask returned, comma-separated
@@ -81,13 +82,19 @@ ALTER TABLE events ADD COLUMN token_label TEXT NOT NULL DEFAULT '';
 )sql";
 
 // Version 3: writes that touch fewer pages. Each commit used to write about twice the pages its
-// rows needed: ask_requests was keyed by (study_id, request_id), and request ids are random, so every
-// ask inserted into a different page of that index; trials_by_state moved an entry on every change of
-// a trial's state, for a query the server answers from memory. ask_requests is now kept in the order
-// of the asks (its rowid) with an index on (study_id, id) that grows at its end; uniqueness of a
-// study's request ids is the service's rule (it answers a repeated id from memory and never stores it
-// again), not the table's. trials_by_state goes: listing the trials of one state scans the study's
-// trials by number.
+// rows needed:
+// - ask_requests was keyed by (study_id, request_id), and request ids are random, so every ask
+//   inserted into a different page of that index. It is now kept in the order of the asks (its
+//   rowid), with an index on (study_id, id) that grows at its end. Uniqueness of a study's request
+//   ids is the service's rule (it answers a repeated id from memory and never stores it again), not
+//   the table's.
+// - trials_by_state moved an entry on every change of a trial's state, for a query the server answers
+//   from memory; it goes (listing one state scans the study's trials by number).
+// - SQLite rewrites a whole row when one column changes, so every ask and tell, which replaces the
+//   engine state, rewrote the study's design and distribution too (for a large design, many overflow
+//   pages). The engine state (small, replaced by every write) and the distribution (large, replaced
+//   by each update) get tables of their own, one row per study; studies keeps what never changes.
+//   study_distributions has no row for an engine without a distribution.
 constexpr const char kVersion3[] = R"sql(
 CREATE TABLE ask_requests_v3 (
   id INTEGER PRIMARY KEY,
@@ -101,6 +108,19 @@ DROP TABLE ask_requests;
 ALTER TABLE ask_requests_v3 RENAME TO ask_requests;
 CREATE INDEX ask_requests_by_study ON ask_requests (study_id, id);
 DROP INDEX trials_by_state;
+CREATE TABLE study_engines (
+  study_id INTEGER PRIMARY KEY REFERENCES studies (id),
+  engine BLOB NOT NULL
+);
+CREATE TABLE study_distributions (
+  study_id INTEGER PRIMARY KEY REFERENCES studies (id),
+  distribution BLOB NOT NULL
+);
+INSERT INTO study_engines (study_id, engine) SELECT id, engine FROM studies;
+INSERT INTO study_distributions (study_id, distribution)
+  SELECT id, distribution FROM studies WHERE distribution IS NOT NULL;
+ALTER TABLE studies DROP COLUMN engine;
+ALTER TABLE studies DROP COLUMN distribution;
 )sql";
 
 // Append new steps at the end (one line each, the SQL in a constant above). Never change a step

@@ -189,6 +189,7 @@ struct SqliteStore::WriterStatements {
   Statement* study_by_name = nullptr;
   Statement* insert_study = nullptr;
   Statement* upsert_trial = nullptr;
+  Statement* insert_engine = nullptr;
   Statement* update_engine = nullptr;
   Statement* update_distribution = nullptr;
   Statement* insert_generation = nullptr;
@@ -209,9 +210,9 @@ struct SqliteStore::WriterStatements {
         {"find study", {"SELECT 1 FROM studies WHERE id = ?1", &study_exists}},
         {"find study name", {"SELECT id FROM studies WHERE name = ?1", &study_by_name}},
         {"insert study",
-         {"INSERT INTO studies (name, design, engine, distribution, create_request_id, "
-          "created_at_ns) VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
+         {"INSERT INTO studies (name, design, create_request_id, created_at_ns) VALUES (?1, ?2, ?3, ?4)",
           &insert_study}},
+        {"insert engine", {"INSERT INTO study_engines (study_id, engine) VALUES (?1, ?2)", &insert_engine}},
         {"store trial",
          {"INSERT INTO trials (study_id, number, state, worker, reported_at_ns, score, record) "
           "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7) ON CONFLICT (study_id, number) DO UPDATE SET "
@@ -219,9 +220,11 @@ struct SqliteStore::WriterStatements {
           "reported_at_ns = excluded.reported_at_ns, score = excluded.score, "
           "record = excluded.record",
           &upsert_trial}},
-        {"store engine", {"UPDATE studies SET engine = ?2 WHERE id = ?1", &update_engine}},
+        {"store engine", {"UPDATE study_engines SET engine = ?2 WHERE study_id = ?1", &update_engine}},
         {"store distribution",
-         {"UPDATE studies SET distribution = ?2 WHERE id = ?1", &update_distribution}},
+         {"INSERT INTO study_distributions (study_id, distribution) VALUES (?1, ?2) "
+          "ON CONFLICT (study_id) DO UPDATE SET distribution = excluded.distribution",
+          &update_distribution}},
         {"insert generation",
          {"INSERT INTO generations (study_id, generation, summary) VALUES (?1, ?2, ?3)",
           &insert_generation}},
@@ -273,8 +276,9 @@ struct SqliteStore::Reader {
         {"end read", {"COMMIT", &commit}},
         {"abandon read", {"ROLLBACK", &rollback}},
         {"load studies",
-         {"SELECT id, name, design, engine, distribution, create_request_id FROM studies "
-          "ORDER BY id",
+         {"SELECT s.id, s.name, s.design, e.engine, d.distribution, s.create_request_id FROM studies s "
+          "LEFT JOIN study_engines e ON e.study_id = s.id LEFT JOIN study_distributions d ON d.study_id = s.id "
+          "ORDER BY s.id",
           &studies}},
         {"find study", {"SELECT 1 FROM studies WHERE id = ?1", &study_exists}},
         {"load trials",
@@ -768,32 +772,50 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id) 
       if (!row.ok()) return row.status();
       if (*row) return taken;
     }
-    Statement& insert = *s.insert_study;
-    ResetOnExit reset(insert);
-    insert.BindText(1, study.name);
-    insert.BindBlob(2, study.design);
-    insert.BindBlob(3, study.engine);
-    if (study.distribution.has_value()) {
-      insert.BindBlob(4, *study.distribution);
-    } else {
-      insert.BindNull(4);
+    {
+      Statement& insert = *s.insert_study;
+      ResetOnExit reset(insert);
+      insert.BindText(1, study.name);
+      insert.BindBlob(2, study.design);
+      insert.BindText(3, study.request_id);
+      insert.BindInt64(4, study.created_at_ns);
+      absl::Status status = insert.Run();
+      if (absl::IsAlreadyExists(status)) return taken;
+      if (!status.ok()) return status;
     }
-    insert.BindText(5, study.request_id);
-    insert.BindInt64(6, study.created_at_ns);
-    absl::Status status = insert.Run();
-    if (absl::IsAlreadyExists(status)) return taken;
-    if (!status.ok()) return status;
-    created_id = sqlite3_last_insert_rowid(writer_->db());
+    const int64_t id = sqlite3_last_insert_rowid(writer_->db());
+    {
+      ResetOnExit reset(*s.insert_engine);
+      s.insert_engine->BindInt64(1, id);
+      s.insert_engine->BindBlob(2, study.engine);
+      OGIVE_STORAGE_RETURN_IF_ERROR(s.insert_engine->Run());
+    }
+    if (study.distribution.has_value()) {
+      ResetOnExit reset(*s.update_distribution);
+      s.update_distribution->BindInt64(1, id);
+      s.update_distribution->BindBlob(2, *study.distribution);
+      OGIVE_STORAGE_RETURN_IF_ERROR(s.update_distribution->Run());
+    }
+    created_id = id;
     return absl::OkStatus();
   }
 
   const int64_t id = write.study_id;
-  {
+  const absl::Status unknown = absl::NotFoundError(absl::StrCat("study id ", id, " does not exist"));
+  // First, so that an unknown study is NOT_FOUND (not a foreign key failure of its rows): the engine
+  // state's row exists exactly when the study does.
+  if (write.engine.has_value()) {
+    ResetOnExit reset(*s.update_engine);
+    s.update_engine->BindInt64(1, id);
+    s.update_engine->BindBlob(2, *write.engine);
+    OGIVE_STORAGE_RETURN_IF_ERROR(s.update_engine->Run());
+    if (sqlite3_changes(writer_->db()) == 0) return unknown;
+  } else {
     ResetOnExit reset(*s.study_exists);
     s.study_exists->BindInt64(1, id);
     absl::StatusOr<bool> row = s.study_exists->Step();
     if (!row.ok()) return row.status();
-    if (!*row) return absl::NotFoundError(absl::StrCat("study id ", id, " does not exist"));
+    if (!*row) return unknown;
   }
   for (const EncodedWrite::Trial& trial : write.trials) {
     Statement& upsert = *s.upsert_trial;
@@ -810,12 +832,6 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id) 
     }
     upsert.BindBlob(7, trial.record);
     OGIVE_STORAGE_RETURN_IF_ERROR(upsert.Run());
-  }
-  if (write.engine.has_value()) {
-    ResetOnExit reset(*s.update_engine);
-    s.update_engine->BindInt64(1, id);
-    s.update_engine->BindBlob(2, *write.engine);
-    OGIVE_STORAGE_RETURN_IF_ERROR(s.update_engine->Run());
   }
   if (write.distribution.has_value()) {
     ResetOnExit reset(*s.update_distribution);
@@ -1086,6 +1102,9 @@ absl::StatusOr<std::vector<StoredStudy>> SqliteStore::LoadAll() {
           return absl::DataLossError(absl::StrCat(where, "the stored design does not parse"));
         }
         v1::EngineState& engine = *study.snapshot.mutable_engine();
+        if (r.studies->ColumnIsNull(3)) {
+          return absl::DataLossError(absl::StrCat(where, "no engine state is stored"));
+        }
         if (!Parse(r.studies->ColumnBlob(3), engine)) {
           return absl::DataLossError(absl::StrCat(where, "the stored engine state does not parse"));
         }

@@ -923,6 +923,22 @@ TEST_F(SqliteStoreTest, ReopeningGivesTheSameDataAndTheLogIsFoldedOnClose) {
   EXPECT_GT(Create(*store, "gamma"), (*loaded)[1].id);
 }
 
+TEST_F(SqliteStoreTest, UnknownStudyIsNotFoundWithOrWithoutAnEngineState) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t id = Create(*store, "alpha");
+  StudyWrite write;
+  write.study_id = id + 1;
+  write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED)};
+  write.events = {MakeEvent("ask", 1, "never stored")};
+  EXPECT_THAT(store->Commit(write), StatusIs(absl::StatusCode::kNotFound, HasSubstr("does not exist")));
+  write.engine = MakeEngine(0.25);
+  EXPECT_THAT(store->Commit(write), StatusIs(absl::StatusCode::kNotFound, HasSubstr("does not exist")));
+  RawDb raw(path_);
+  EXPECT_EQ(raw.Text("SELECT count(*) FROM trials"), "0");
+  EXPECT_EQ(raw.Text("SELECT count(*) FROM events"), "0");
+}
+
 TEST_F(SqliteStoreTest, AskRequestsLoadInTheOrderStoredAndAnEmptyIdIsRefused) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
@@ -986,6 +1002,10 @@ TEST_F(SqliteStoreTest, MigrationToVersionThreeKeepsTrialsAndAskRequests) {
   ASSERT_NE(store, nullptr);
   absl::StatusOr<StoredStudy> loaded = store->LoadStudy(7);
   ASSERT_THAT(loaded, IsOk());
+  EXPECT_EQ(Bytes(loaded->design), Bytes(MakeDesign("alpha")));
+  v1::EngineState expected_engine = MakeEngine(0.5);
+  expected_engine.set_next_trial(4);
+  EXPECT_EQ(Bytes(loaded->snapshot.engine()), Bytes(expected_engine));
   ASSERT_EQ(loaded->snapshot.trials_size(), 3);
   for (int n = 1; n <= 3; ++n) {
     EXPECT_EQ(Bytes(loaded->snapshot.trials(n - 1)),
@@ -1014,6 +1034,12 @@ TEST_F(SqliteStoreTest, MigrationToVersionThreeKeepsTrialsAndAskRequests) {
   EXPECT_EQ(raw.Text("PRAGMA user_version"), "3");
   EXPECT_EQ(raw.Text("SELECT count(*) FROM sqlite_master WHERE name = 'trials_by_state'"), "0");
   EXPECT_EQ(raw.Text("PRAGMA integrity_check"), "ok");
+  EXPECT_EQ(raw.Text("PRAGMA foreign_key_check"), "<no row>");
+  // The design stays with the study; the engine state and the distribution have rows of their own.
+  EXPECT_EQ(raw.Text("SELECT count(*) FROM pragma_table_info('studies') WHERE name IN ('engine', 'distribution')"),
+            "0");
+  EXPECT_EQ(raw.Text("SELECT count(*) FROM study_engines WHERE study_id = 7"), "1");
+  EXPECT_EQ(raw.Text("SELECT count(*) FROM study_distributions WHERE study_id = 7"), "1");
 }
 
 TEST_F(SqliteStoreTest, NewerSchemaVersionIsRefusedNamingBothVersions) {

@@ -81,7 +81,7 @@ absl::StatusOr<StoredStudyState> DbInspector::ReadStudy(const std::string& name)
   StoredStudyState state;
   int64_t id = 0;
   absl::Status status = Query(
-      db_, "SELECT id, engine FROM studies WHERE name = ?1",
+      db_, "SELECT s.id, e.engine FROM studies s JOIN study_engines e ON e.study_id = s.id WHERE s.name = ?1",
       [&](sqlite3_stmt* stmt) { sqlite3_bind_text(stmt, 1, name.c_str(), -1, SQLITE_TRANSIENT); },
       [&](sqlite3_stmt* stmt) {
         id = sqlite3_column_int64(stmt, 0);
