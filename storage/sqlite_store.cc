@@ -14,6 +14,7 @@
 #include <chrono>
 #include <cmath>
 #include <filesystem>
+#include <limits>
 #include <system_error>
 #include <utility>
 
@@ -46,17 +47,18 @@ absl::Status RunOnce(Statement& statement) {
   return statement.Run();
 }
 
-// Serialized with deterministic map order, so that equal messages are stored as equal bytes.
+// Serialized with deterministic map order, so that equal messages are stored as equal bytes. Sized
+// first and written into `out` in one piece (a growing string stream costs several times more on
+// the request path, where every ask and tell serializes its records).
 bool Serialize(const google::protobuf::MessageLite& message, std::string& out) {
-  out.clear();
-  bool ok = false;
-  {
-    google::protobuf::io::StringOutputStream stream(&out);
-    google::protobuf::io::CodedOutputStream coded(&stream);
-    coded.SetSerializationDeterministic(true);
-    ok = message.SerializeToCodedStream(&coded) && !coded.HadError();
-  }  // the coded stream trims `out` when it goes
-  return ok;
+  const size_t size = message.ByteSizeLong();
+  if (size > static_cast<size_t>(std::numeric_limits<int>::max())) return false;
+  out.resize(size);
+  google::protobuf::io::ArrayOutputStream array(out.data(), static_cast<int>(size));
+  google::protobuf::io::CodedOutputStream coded(&array);
+  coded.SetSerializationDeterministic(true);
+  message.SerializeWithCachedSizes(&coded);
+  return !coded.HadError() && static_cast<size_t>(coded.ByteCount()) == size;
 }
 
 bool Parse(absl::string_view bytes, google::protobuf::MessageLite& message) {
@@ -699,20 +701,33 @@ absl::Status SqliteStore::BrokenChainError(int64_t study_id) {
 
 bool SqliteStore::ApplyTogether(const std::vector<Job*>& writes) {
   std::vector<absl::Status> statuses(writes.size());
+  std::vector<bool> applied(writes.size(), false);
   std::set<std::pair<int64_t, int64_t>> broken;  // chains broken by a refusal earlier in this batch
   for (size_t i = 0; i < writes.size(); ++i) {
-    Job& job = *writes[i];
-    const std::pair<int64_t, int64_t> chain{job.write->study_id, job.write->chain};
-    if (!job.write->refusal.ok()) {
-      statuses[i] = job.write->refusal;
-      if (job.write->chain != 0) broken.insert(chain);
-      continue;
-    }
-    if (job.write->chain != 0 && (broken_chains_.count(chain) > 0 || broken.count(chain) > 0)) {
+    const EncodedWrite& write = *writes[i]->write;
+    const std::pair<int64_t, int64_t> chain{write.study_id, write.chain};
+    if (!write.refusal.ok()) {
+      statuses[i] = write.refusal;
+      if (write.chain != 0) broken.insert(chain);
+    } else if (write.chain != 0 && (broken_chains_.count(chain) > 0 || broken.count(chain) > 0)) {
       statuses[i] = BrokenChainError(chain.first);
-      continue;
+    } else {
+      applied[i] = true;
     }
-    if (!Apply(*job.write, job.created_id).ok()) {
+  }
+  // Each engine state replaces the one before: of a study's writes in this batch, only the last
+  // stores its engine state. (Its update also tells whether the study exists; if it does not, that
+  // write fails and the batch goes write by write.)
+  std::vector<EngineWrite> engine(writes.size(), EngineWrite::kStore);
+  std::set<int64_t> stored_later;
+  for (size_t i = writes.size(); i-- > 0;) {
+    const EncodedWrite& write = *writes[i]->write;
+    if (!applied[i] || !write.engine.has_value() || write.create.has_value() || write.token.has_value()) continue;
+    if (!stored_later.insert(write.study_id).second) engine[i] = EngineWrite::kStoredByALaterWrite;
+  }
+  for (size_t i = 0; i < writes.size(); ++i) {
+    if (!applied[i]) continue;
+    if (!Apply(*writes[i]->write, writes[i]->created_id, engine[i]).ok()) {
       if (writer_->InTransaction()) (void)RunOnce(*writer_statements_->rollback);
       return false;
     }
@@ -758,7 +773,7 @@ absl::Status SqliteStore::ApplyToken(const EncodedWrite& write, int64_t& revoked
   return absl::OkStatus();
 }
 
-absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id) {
+absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id, EngineWrite engine) {
   WriterStatements& s = *writer_statements_;
   if (write.token.has_value()) return ApplyToken(write, created_id);
   if (write.create.has_value()) {
@@ -804,7 +819,9 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id) 
   const absl::Status unknown = absl::NotFoundError(absl::StrCat("study id ", id, " does not exist"));
   // First, so that an unknown study is NOT_FOUND (not a foreign key failure of its rows): the engine
   // state's row exists exactly when the study does.
-  if (write.engine.has_value()) {
+  if (engine == EngineWrite::kStoredByALaterWrite) {
+    // Nothing to store or check here (see ApplyTogether).
+  } else if (write.engine.has_value()) {
     ResetOnExit reset(*s.update_engine);
     s.update_engine->BindInt64(1, id);
     s.update_engine->BindBlob(2, *write.engine);

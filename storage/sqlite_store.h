@@ -191,9 +191,13 @@ class SqliteStore final : public Store {
   // `status` with the database file named in its message when it is about the file (UNAVAILABLE,
   // DATA_LOSS, INTERNAL): an operator reading a client's error must know which file failed.
   absl::Status NameTheFile(absl::Status status) const;
+  // Whether Apply stores a write's engine state: kStoredByALaterWrite when a later write of the same
+  // study in the same transaction replaces it anyway (ApplyTogether only, where a failure of that
+  // later write fails the whole attempt).
+  enum class EngineWrite { kStore, kStoredByALaterWrite };
   // Applies one write inside the open transaction (in a savepoint of its own, or together with the
   // rest of its batch: see ApplyTogether).
-  absl::Status Apply(const EncodedWrite& write, int64_t& created_id);
+  absl::Status Apply(const EncodedWrite& write, int64_t& created_id, EngineWrite engine = EngineWrite::kStore);
   // Applies a token write; sets `revoked` as Job::created_id documents.
   absl::Status ApplyToken(const EncodedWrite& write, int64_t& revoked);
 

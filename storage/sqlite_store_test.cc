@@ -670,6 +670,66 @@ TEST_F(SqliteStoreTest, FailingWritesInABatchRollBackAloneAndOnlyTheirCallersSee
   EXPECT_EQ((*events)[0].message, "stored");
 }
 
+// A batch holding several writes of one study stores each write's rows and the engine state of its
+// last applied write (the engine states before it are replaced within the transaction); a write
+// refused before queuing does not count as the last.
+TEST_F(SqliteStoreTest, ABatchStoresTheEngineStateOfEachStudysLastAppliedWrite) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t alpha = Create(*store, "alpha");
+  const int64_t beta = Create(*store, "beta");
+  const SqliteStore::Stats before = store->stats();
+  auto write = [](int64_t study, int64_t next_trial, double score) {
+    StudyWrite w;
+    w.study_id = study;
+    w.chain = 5;  // a refusal in a chain takes its place in the queue
+    w.trials = {MakeTrial(next_trial - 1, v1::TRIAL_STATE_REPORTED, score)};
+    v1::EngineState engine = MakeEngine(0.5);
+    engine.set_next_trial(next_trial);
+    engine.set_report_sequence(next_trial * 10);
+    w.engine = engine;
+    return w;
+  };
+  std::vector<StudyWrite> writes = {write(alpha, 2, 1.0), write(beta, 2, 1.0), write(alpha, 3, 2.0),
+                                    write(beta, 3, std::nan("")),  // refused before queuing
+                                    write(alpha, 4, 3.0)};
+  std::vector<absl::Status> statuses(writes.size());
+  {
+    WriteLockHolder lock(path_);
+    // The first write waits alone for the lock; the others queue behind it and form one batch.
+    std::vector<std::thread> threads;
+    for (size_t i = 0; i < writes.size(); ++i) {
+      threads.emplace_back([&, i] { statuses[i] = store->Commit(writes[i]); });
+      ASSERT_TRUE(WaitFor([&] {
+        const SqliteStore::Stats s = store->stats();
+        return s.active_writes + s.queued_writes == static_cast<int64_t>(i + 1);
+      }));
+    }
+    lock.Release();
+    for (std::thread& thread : threads) thread.join();
+  }
+  EXPECT_THAT(statuses[0], IsOk());
+  EXPECT_THAT(statuses[1], IsOk());
+  EXPECT_THAT(statuses[2], IsOk());
+  EXPECT_THAT(statuses[3], StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("must be finite")));
+  EXPECT_THAT(statuses[4], IsOk());
+  const SqliteStore::Stats after = store->stats();
+  EXPECT_EQ(after.transactions - before.transactions, 2);
+  EXPECT_EQ(after.isolated_batches - before.isolated_batches, 0);
+
+  absl::StatusOr<StoredStudy> a = store->LoadStudy(alpha);
+  ASSERT_THAT(a, IsOk());
+  EXPECT_EQ(a->snapshot.engine().next_trial(), 4);
+  EXPECT_EQ(a->snapshot.engine().report_sequence(), 40);
+  EXPECT_EQ(a->snapshot.engine().distribution().population_size(), 6);  // the distribution is untouched
+  ASSERT_EQ(a->snapshot.trials_size(), 3);
+  EXPECT_EQ(a->snapshot.trials(2).score(), 3.0);
+  absl::StatusOr<StoredStudy> b = store->LoadStudy(beta);
+  ASSERT_THAT(b, IsOk());
+  EXPECT_EQ(b->snapshot.engine().next_trial(), 2);  // its last write was refused
+  EXPECT_EQ(b->snapshot.trials_size(), 1);
+}
+
 TEST_F(SqliteStoreTest, LockedDatabaseIsUnavailableAndReadsKeepWorking) {
   SqliteStore::Options options;
   options.busy_timeout_ms = 50;

@@ -116,10 +116,31 @@ class LogQueue {
   bool flush_requested_ ABSL_GUARDED_BY(mu_) = false;
 };
 
+// Appends `now` as 2026-12-01T22:50:01.123Z. The part up to the second is formatted once per second
+// and thread (absl::FormatTime costs a few microseconds; every ask and tell logs a line).
+void AppendTimestamp(std::string& line, absl::Time now) {
+  thread_local int64_t cached_second = INT64_MIN;
+  thread_local std::string cached;  // "2026-12-01T22:50:01"
+  const int64_t millis = absl::ToUnixMillis(now);
+  const int64_t second = millis >= 0 ? millis / 1000 : (millis - 999) / 1000;
+  if (second != cached_second) {
+    cached = absl::FormatTime("%Y-%m-%dT%H:%M:%S", absl::FromUnixSeconds(second), absl::UTCTimeZone());
+    cached_second = second;
+  }
+  const int64_t fraction = millis - second * 1000;
+  line.append(cached);
+  line.push_back('.');
+  line.push_back(static_cast<char>('0' + fraction / 100));
+  line.push_back(static_cast<char>('0' + fraction / 10 % 10));
+  line.push_back(static_cast<char>('0' + fraction % 10));
+  line.push_back('Z');
+}
+
 }  // namespace
 
 void LogLine(std::initializer_list<std::pair<std::string_view, std::string>> fields) {
-  std::string line = "ts=" + absl::FormatTime("%Y-%m-%dT%H:%M:%E3SZ", absl::Now(), absl::UTCTimeZone());
+  std::string line = "ts=";
+  AppendTimestamp(line, absl::Now());
   for (const auto& [key, value] : fields) {
     line.push_back(' ');
     line.append(key);

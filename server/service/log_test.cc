@@ -13,6 +13,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
 #include "absl/time/clock.h"
+#include "absl/time/time.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 
@@ -95,6 +96,36 @@ TEST(LogTest, LinesFromManyThreadsArriveWholeAndInOrderPerThread) {
     next[t] = i + 1;
   }
   EXPECT_EQ(seen, kThreads * kPerThread);
+}
+
+// The timestamp is UTC (RFC 3339, milliseconds), and lines across a change of second carry their own
+// second (the formatted second is reused within a second).
+TEST(LogTest, TimestampsAreUtcMillisecondsOfTheMomentTheLineWasMade) {
+  CapturedStderr captured;
+  std::vector<absl::Time> before, after;
+  for (int i = 0; i < 6; ++i) {
+    before.push_back(absl::Now());
+    LogLine({{"event", "clock"}, {"i", absl::StrCat(i)}});
+    after.push_back(absl::Now());
+    absl::SleepFor(absl::Milliseconds(230));  // six lines over more than one second
+  }
+  LogLine({{"event", "end_of_clock"}});
+  FlushLog();
+  int seen = 0;
+  for (const std::string& line : captured.DrainUntil("event=end_of_clock")) {
+    if (line.find("event=clock") == std::string::npos) continue;
+    ASSERT_THAT(line, StartsWith("ts="));
+    const std::string stamp = line.substr(3, line.find(' ') - 3);
+    ASSERT_EQ(stamp.size(), 24u) << line;  // 2026-12-01T22:50:01.123Z
+    absl::Time at;
+    std::string error;
+    ASSERT_TRUE(absl::ParseTime("%Y-%m-%dT%H:%M:%E3SZ", stamp, absl::UTCTimeZone(), &at, &error)) << stamp << error;
+    ASSERT_LT(seen, 6);
+    EXPECT_GE(at, absl::FromUnixMillis(absl::ToUnixMillis(before[seen]))) << stamp;
+    EXPECT_LE(at, after[seen]) << stamp;
+    ++seen;
+  }
+  EXPECT_EQ(seen, 6);
 }
 
 TEST(LogTest, StuckStderrNeitherBlocksNorLosesLinesSilently) {
