@@ -4,9 +4,11 @@
 // thread, the only connection that ever writes or checkpoints the file (the SQLite of Debian 12
 // predates the fix for a WAL corruption bug that needs two connections writing or checkpointing at
 // once). Group commit: a caller queues its write and blocks; the writer thread takes every queued
-// write (at most max_batch_writes), opens BEGIN IMMEDIATE, applies each write inside its own
-// SAVEPOINT (a write that fails rolls back alone and only its caller sees the error), commits once
-// with synchronous=FULL, and then wakes all of them. Under load the writer first lets a batch grow
+// write (at most max_batch_writes), opens BEGIN IMMEDIATE, applies the writes, commits once with
+// synchronous=FULL, and then wakes all of them. A write that fails fails alone: the batch is first
+// applied whole, and if one of its writes fails in the database it is rolled back and applied again
+// with each write inside its own SAVEPOINT, so that only the failing write is undone and only its
+// caller sees the error. Under load the writer first lets a batch grow
 // for a short window: it expects as many writes as the previous batch held plus those that queued
 // while it ran (callers woken by a commit tend to write again at once), and waits until that many
 // are queued or the window ends, so that one fsync serves more writes. A lone writer (the previous

@@ -13,7 +13,9 @@
 // and this harness used during the ask+tell phase, per pair; steadier than rates on a shared machine.
 // The server's is 0 with --server (another machine's process).
 //
-// Usage: ogive-bench-load --ogived PATH [--seconds T] [--clients 1,16,64,256]
+// Usage: ogive-bench-load --ogived PATH [--seconds T] [--clients 1,16,64,256] [--no-baseline]
+// (--no-baseline skips the health Check phase, for profiling the server's ask+tell path alone; it
+// prints baseline_calls_per_s and ratio as 0.)
 #include <arpa/inet.h>
 #include <netinet/in.h>
 #include <signal.h>
@@ -240,8 +242,10 @@ int main(int argc, char** argv) {
   std::string existing;
   double seconds = 5;
   std::vector<int> client_counts = {1, 16, 64, 256};
+  bool baseline_phase = true;
   for (int i = 1; i < argc; ++i) {
     const std::string arg = argv[i];
+    if (arg == "--no-baseline") baseline_phase = false;
     if (arg == "--ogived" && i + 1 < argc) ogived = argv[++i];
     if (arg == "--server" && i + 1 < argc) existing = argv[++i];  // a running server (for profiling)
     if (arg == "--seconds" && i + 1 < argc) seconds = std::atof(argv[++i]);
@@ -255,7 +259,8 @@ int main(int argc, char** argv) {
   }
   if (ogived.empty() == existing.empty()) {
     std::fprintf(stderr,
-                 "usage: ogive-bench-load (--ogived PATH | --server HOST:PORT) [--seconds T] [--clients 1,16,64,256]\n");
+                 "usage: ogive-bench-load (--ogived PATH | --server HOST:PORT) [--seconds T] [--clients 1,16,64,256] "
+                 "[--no-baseline]\n");
     return 2;
   }
   char dir_template[] = "/tmp/ogive-bench-load.XXXXXX";
@@ -306,14 +311,14 @@ int main(int argc, char** argv) {
     const double server_us_per_pair =
         server > 0 && pairs > 0 ? (ProcessCpuSeconds(server) - server_cpu_before) / pairs * 1e6 : 0;
     const double client_us_per_pair = pairs > 0 ? (ProcessCpuSeconds(getpid()) - client_cpu_before) / pairs * 1e6 : 0;
-    const double baseline = RunBaseline(target, n, seconds);
-    std::printf("%s\n    {\"clients\": %d, \"asks_per_s\": %.1f, \"tells_per_s\": %.1f, \"p50_ms\": %.3f, "
+    const double baseline = baseline_phase ? RunBaseline(target, n, seconds) : 0;
+    std::printf("%s\n    {\"clients\": %d, \"pairs\": %ld, \"asks_per_s\": %.1f, \"tells_per_s\": %.1f, \"p50_ms\": %.3f, "
                 "\"p99_ms\": %.3f, \"max_ms\": %.3f, \"ask_p99_ms\": %.3f, \"tell_p99_ms\": %.3f, \"errors\": %ld, "
                 "\"baseline_calls_per_s\": %.1f, \"ratio\": %.3f, \"server_cpu_us_per_pair\": %.0f, "
                 "\"client_cpu_us_per_pair\": %.0f}",
-                k ? "," : "", n, m.pairs_per_s, m.pairs_per_s, m.p50_ms, m.p99_ms, m.max_ms, m.ask_p99_ms,
+                k ? "," : "", n, m.pairs, m.pairs_per_s, m.pairs_per_s, m.p50_ms, m.p99_ms, m.max_ms, m.ask_p99_ms,
                 m.tell_p99_ms, m.errors, baseline,
-                m.pairs_per_s / (baseline / 2), server_us_per_pair, client_us_per_pair);
+                baseline > 0 ? m.pairs_per_s / (baseline / 2) : 0, server_us_per_pair, client_us_per_pair);
     std::fflush(stdout);
   }
   std::printf("\n  ]\n}\n");
