@@ -130,6 +130,7 @@ Measurement RunAskTell(const std::string& target, const std::string& study, int 
     threads.emplace_back([&, c] {
       grpc::ChannelArguments args;
       args.SetInt("ogive.client", c);  // distinct arguments: a channel (and connection) of its own
+      args.SetInt(GRPC_ARG_ENABLE_CHANNELZ, 0);  // as the ogive client library (nobody reads it)
       std::unique_ptr<ogive::v1::Ogive::Stub> stub =
           ogive::v1::Ogive::NewStub(grpc::CreateCustomChannel(target, grpc::InsecureChannelCredentials(), args));
       while (!go) std::this_thread::yield();
@@ -207,6 +208,7 @@ double RunBaseline(const std::string& target, int clients, double seconds) {
     threads.emplace_back([&, c] {
       grpc::ChannelArguments args;
       args.SetInt("ogive.client", c);
+      args.SetInt(GRPC_ARG_ENABLE_CHANNELZ, 0);
       auto stub = grpc::health::v1::Health::NewStub(
           grpc::CreateCustomChannel(target, grpc::InsecureChannelCredentials(), args));
       while (!go) std::this_thread::yield();
