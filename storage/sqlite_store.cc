@@ -816,7 +816,7 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id, 
   }
 
   const int64_t id = write.study_id;
-  const absl::Status unknown = absl::NotFoundError(absl::StrCat("study id ", id, " does not exist"));
+  auto unknown = [id] { return absl::NotFoundError(absl::StrCat("study id ", id, " does not exist")); };
   // First, so that an unknown study is NOT_FOUND (not a foreign key failure of its rows): the engine
   // state's row exists exactly when the study does.
   if (engine == EngineWrite::kStoredByALaterWrite) {
@@ -826,13 +826,13 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id, 
     s.update_engine->BindInt64(1, id);
     s.update_engine->BindBlob(2, *write.engine);
     OGIVE_STORAGE_RETURN_IF_ERROR(s.update_engine->Run());
-    if (sqlite3_changes(writer_->db()) == 0) return unknown;
+    if (sqlite3_changes(writer_->db()) == 0) return unknown();
   } else {
     ResetOnExit reset(*s.study_exists);
     s.study_exists->BindInt64(1, id);
     absl::StatusOr<bool> row = s.study_exists->Step();
     if (!row.ok()) return row.status();
-    if (!*row) return unknown;
+    if (!*row) return unknown();
   }
   for (const EncodedWrite::Trial& trial : write.trials) {
     Statement& upsert = *s.upsert_trial;
