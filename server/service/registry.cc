@@ -48,7 +48,7 @@ absl::Status Registry::LoadAll() {
         study::Study::Restore(built->space, built->order, built->distribution_options, built->study_options,
                               *std::move(snapshot));
     if (!restored.ok()) return absl::DataLossError(absl::StrCat("study '", s.name, "': ", restored.status().message()));
-    absl::flat_hash_map<std::string, std::vector<int64_t>> asks(s.ask_requests.begin(), s.ask_requests.end());
+    AskRequestIndex asks(s.ask_requests.begin(), s.ask_requests.end());
     studies_[s.name] = std::make_shared<StudyHost>(s.id, s.design, *std::move(restored), store_, &waiter_,
                                                    s.create_request_id, std::move(asks), metrics_);
   }
@@ -75,7 +75,7 @@ absl::StatusOr<std::shared_ptr<StudyHost>> Registry::Create(const v1::StudyDesig
                                                    codec::EngineStateToProto(created->engine()), request_id);
   if (!id.ok()) return id.status();
   auto host = std::make_shared<StudyHost>(*id, design, *std::move(created), store_, &waiter_, request_id,
-                                          absl::flat_hash_map<std::string, std::vector<int64_t>>{}, metrics_);
+                                          AskRequestIndex{}, metrics_);
   studies_[design.name()] = host;
   return host;
 }

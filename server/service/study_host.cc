@@ -21,7 +21,7 @@ int64_t UnixMillis(absl::Time t) { return absl::ToUnixMillis(t); }
 
 StudyHost::StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store,
                      CommitWaiter* waiter, std::string create_request_id,
-                     absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests, ServiceMetrics* metrics,
+                     AskRequestIndex ask_requests, ServiceMetrics* metrics,
                      std::function<absl::Time()> clock)
     : id_(id),
       design_(std::move(design)),

@@ -24,6 +24,7 @@
 #include <string>
 #include <vector>
 
+#include "absl/container/btree_map.h"
 #include "absl/container/flat_hash_map.h"
 #include "absl/functional/any_invocable.h"
 #include "absl/status/statusor.h"
@@ -43,6 +44,12 @@ namespace ogive::service {
 template <typename Response>
 using Reply = absl::AnyInvocable<void(absl::StatusOr<Response>)>;
 
+// The trial numbers each ask request id was answered with. Ordered, not hashed: it grows by one entry
+// per ask for the life of the study, and a hash table's growth would rehash every entry while the
+// host holds the study's lock (a stall of every request of the study, milliseconds at some ten
+// thousand asks).
+using AskRequestIndex = absl::btree_map<std::string, std::vector<int64_t>>;
+
 class ServiceMetrics;
 
 // A study's counts for metrics, read cheaply (no distribution summary).
@@ -59,7 +66,7 @@ class StudyHost {
   // (StatusSummary.workers, reports_last_hour).
   StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store, CommitWaiter* waiter,
             std::string create_request_id,
-            absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests, ServiceMetrics* metrics = nullptr,
+            AskRequestIndex ask_requests, ServiceMetrics* metrics = nullptr,
             std::function<absl::Time()> clock = [] { return absl::Now(); });
 
   const std::string& name() const { return design_.name(); }
@@ -139,7 +146,7 @@ class StudyHost {
 
   mutable absl::Mutex mu_;
   study::Study study_ ABSL_GUARDED_BY(mu_);
-  absl::flat_hash_map<std::string, std::vector<int64_t>> ask_requests_ ABSL_GUARDED_BY(mu_);
+  AskRequestIndex ask_requests_ ABSL_GUARDED_BY(mu_);
   int64_t version_ ABSL_GUARDED_BY(mu_) = 0;
   const std::function<absl::Time()> clock_;
   // Reports of the last hour or so (time, worker), oldest first, and when each worker was last seen.

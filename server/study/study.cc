@@ -1,6 +1,7 @@
 #include "server/study/study.h"
 
 #include <algorithm>
+#include <iterator>
 #include <map>
 #include <utility>
 
@@ -460,7 +461,7 @@ absl::StatusOr<Study> Study::Restore(search::Space space, search::OutcomeOrder o
   }
   Study study(std::move(space), order, std::move(distribution_options), std::move(options));
   study.engine_ = std::move(snapshot.engine);
-  study.trials_ = std::move(snapshot.trials);
+  study.trials_.assign(std::make_move_iterator(snapshot.trials.begin()), std::make_move_iterator(snapshot.trials.end()));
   for (size_t k = 0; k < study.trials_.size(); ++k) {
     const Trial& t = study.trials_[k];
     if (t.number != static_cast<int64_t>(k) + 1 || t.x.size() != study.space_.size()) {
@@ -636,7 +637,9 @@ const Trial* Study::trial(int64_t number) const {
   return &trials_[number - 1];
 }
 
-StudySnapshot Study::Snapshot() const { return StudySnapshot{engine_, trials_}; }
+StudySnapshot Study::Snapshot() const {
+  return StudySnapshot{engine_, std::vector<Trial>(trials_.begin(), trials_.end())};
+}
 
 void Study::Count(const Trial& t, int sign) {
   switch (t.state) {

@@ -4,6 +4,7 @@
 
 #include <cmath>
 #include <cstdint>
+#include <deque>
 #include <memory>
 #include <optional>
 #include <string>
@@ -117,6 +118,20 @@ TEST(StudyAskTest, TrialsAreNumberedAndLeasedFromNow) {
   EXPECT_EQ(study.counts().leased, 5);
   EXPECT_EQ(study.counts().total(), 5);
   EXPECT_EQ(study.engine().next_trial, 6);
+}
+
+// A study only appends trials, and the host applies each ask under the study's lock: growth must not
+// move the trials already there (a vector's reallocation copies them all, a stall of every request
+// that grows with the study). Checked by address: the first trial stays where it was.
+TEST(StudyAskTest, TrialsStayInPlaceAsTheStudyGrows) {
+  Study study = SmallStudy();
+  const absl::Time t = Origin();
+  ASSERT_TRUE(study.Ask(1, "w", std::nullopt, t).ok());
+  const Trial* first = study.trial(1);
+  for (int k = 0; k < 20; ++k) ASSERT_TRUE(study.Ask(1000, "w", std::nullopt, t).ok());
+  ASSERT_EQ(study.trial_count(), 20001);
+  EXPECT_EQ(study.trial(1), first);
+  EXPECT_EQ(study.trial(1)->number, 1);
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -448,7 +463,7 @@ TEST(StudyTellTest, DuplicatesDifferentOutcomesAndUnknownTrials) {
   const Report first[] = {MakeReport(1, search::Outcome::Score(0.5)),
                           MakeReport(2, search::Outcome::Void())};
   ASSERT_TRUE(study.Tell(first, t + absl::Seconds(1)).ok());
-  const std::vector<Trial> before = study.trials();
+  const std::deque<Trial> before = study.trials();
   const EngineState engine_before = study.engine();
 
   Report dup_with_other_note = MakeReport(1, search::Outcome::Score(0.5));
