@@ -2,7 +2,10 @@
 // on loopback for T seconds; in the same run the same harness calls the health service's Check RPC as
 // a no-op baseline. Prints one JSON object with one result per N. Every call (ask, tell and the
 // baseline's) goes through gRPC's callback API and is waited for on its client thread (CallAndWait).
-// Each client's channel is connected before the clock starts.
+// Each client's channel is connected before the clock starts, and each phase begins with a warm-up
+// (1 s by default) whose calls are made but not counted: the first calls on fresh connections and a
+// fresh server are slower for reasons of their own (common practice in load benchmarks); the
+// measured T seconds and the CPU times below start when the warm-up ends.
 //
 // p50_ms, p99_ms and max_ms are per ask+tell pair (what one worker waits per trial); ask_p99_ms and
 // tell_p99_ms per call.
@@ -14,7 +17,7 @@
 // and this harness used during the ask+tell phase, per pair; steadier than rates on a shared machine.
 // The server's is 0 with --server (another machine's process).
 //
-// Usage: ogive-bench-load --ogived PATH [--seconds T] [--clients 1,16,64,256] [--no-baseline]
+// Usage: ogive-bench-load --ogived PATH [--seconds T] [--warmup W] [--clients 1,16,64,256] [--no-baseline]
 // (--no-baseline skips the health Check phase, for profiling the server's ask+tell path alone; it
 // prints baseline_calls_per_s and ratio as 0.)
 #include <arpa/inet.h>
@@ -70,11 +73,12 @@ int FreePort() {
 }
 
 struct Measurement {
-  long pairs = 0;  // ask+tell pairs completed
+  long pairs = 0;  // ask+tell pairs begun after the warm-up and completed
   double pairs_per_s = 0;
   double p50_ms = 0, p99_ms = 0, max_ms = 0;  // per ask+tell pair
   double ask_p99_ms = 0, tell_p99_ms = 0;     // per call
   long errors = 0;
+  double server_cpu_s = 0, client_cpu_s = 0;  // during the measured part
 };
 
 // CPU seconds (user + system) used so far by process `pid`, from /proc; 0 when it cannot be read.
@@ -132,21 +136,32 @@ double Percentile(std::vector<double>& v, double q) {
   return v[k];
 }
 
-// Each client: Ask(1), Tell(score) until the deadline; latency per pair.
-Measurement RunAskTell(const std::string& target, const std::string& study, int clients, double seconds) {
+// When a phase's clients start, when its measured part begins (after the warm-up) and when it ends.
+struct Schedule {
+  Clock::time_point measured_from, end;
+  static Schedule After(double warmup, double seconds) {
+    const auto from =
+        Clock::now() + std::chrono::duration_cast<Clock::duration>(std::chrono::duration<double>(warmup));
+    return {from, from + std::chrono::duration_cast<Clock::duration>(std::chrono::duration<double>(seconds))};
+  }
+};
+
+// Each client: Ask(1), Tell(score) until the end; latency per pair begun after the warm-up. CPU times
+// of `server` (0 when not ours) and of this process are taken over the measured part.
+Measurement RunAskTell(const std::string& target, const std::string& study, int clients, double warmup,
+                       double seconds, pid_t server) {
   std::vector<std::vector<double>> latencies(clients), ask_latencies(clients), tell_latencies(clients);
   std::vector<long> errors(clients, 0);
   std::atomic<bool> go{false};
-  const auto deadline_after = std::chrono::duration<double>(seconds);
+  Schedule schedule;
   std::vector<std::thread> threads;
   for (int c = 0; c < clients; ++c) {
     threads.emplace_back([&, c] {
       std::unique_ptr<ogive::v1::Ogive::Stub> stub = ogive::v1::Ogive::NewStub(ConnectedChannel(target, c));
       while (!go) std::this_thread::yield();
-      const auto end = Clock::now() + std::chrono::duration_cast<Clock::duration>(deadline_after);
       const std::string worker = absl::StrCat("bench-", c);
       std::mt19937_64 rng(c + 1);
-      while (Clock::now() < end) {
+      while (Clock::now() < schedule.end) {
         const auto start = Clock::now();
         ogive::v1::AskRequest ask;
         ask.set_study(study);
@@ -180,18 +195,24 @@ Measurement RunAskTell(const std::string& target, const std::string& study, int 
           continue;
         }
         const auto told_at = Clock::now();
+        if (start < schedule.measured_from) continue;  // warm-up
         latencies[c].push_back(std::chrono::duration<double, std::milli>(told_at - start).count());
         ask_latencies[c].push_back(std::chrono::duration<double, std::milli>(asked_at - start).count());
         tell_latencies[c].push_back(std::chrono::duration<double, std::milli>(told_at - asked_at).count());
       }
     });
   }
-  const auto start = Clock::now();
+  schedule = Schedule::After(warmup, seconds);
   go = true;
+  std::this_thread::sleep_until(schedule.measured_from);
+  const double server_cpu_before = server > 0 ? ProcessCpuSeconds(server) : 0;
+  const double client_cpu_before = ProcessCpuSeconds(getpid());
   for (auto& t : threads) t.join();
-  const double elapsed = std::chrono::duration<double>(Clock::now() - start).count();
+  const double elapsed = std::chrono::duration<double>(Clock::now() - schedule.measured_from).count();
   std::vector<double> all, asks, tells;
   Measurement m;
+  m.server_cpu_s = server > 0 ? ProcessCpuSeconds(server) - server_cpu_before : 0;
+  m.client_cpu_s = ProcessCpuSeconds(getpid()) - client_cpu_before;
   for (int c = 0; c < clients; ++c) {
     all.insert(all.end(), latencies[c].begin(), latencies[c].end());
     asks.insert(asks.end(), ask_latencies[c].begin(), ask_latencies[c].end());
@@ -208,32 +229,34 @@ Measurement RunAskTell(const std::string& target, const std::string& study, int 
   return m;
 }
 
-// Each client calls grpc.health.v1.Health/Check until the deadline.
-double RunBaseline(const std::string& target, int clients, double seconds) {
+// Each client calls grpc.health.v1.Health/Check until the end; calls begun after the warm-up count.
+double RunBaseline(const std::string& target, int clients, double warmup, double seconds) {
   std::vector<long> calls(clients, 0);
   std::atomic<bool> go{false};
+  Schedule schedule;
   std::vector<std::thread> threads;
   for (int c = 0; c < clients; ++c) {
     threads.emplace_back([&, c] {
       auto stub = grpc::health::v1::Health::NewStub(ConnectedChannel(target, c));
       while (!go) std::this_thread::yield();
-      const auto end = Clock::now() + std::chrono::duration_cast<Clock::duration>(std::chrono::duration<double>(seconds));
       const grpc::health::v1::HealthCheckRequest request;
-      while (Clock::now() < end) {
+      while (Clock::now() < schedule.end) {
         grpc::health::v1::HealthCheckResponse response;
+        const auto start = Clock::now();
         // The same callback calls as the ask+tell loop, so that the ratio compares like with like.
         if (CallAndWait([&](grpc::ClientContext* context, auto done) {
               stub->async()->Check(context, &request, &response, std::move(done));
-            }).ok()) {
+            }).ok() &&
+            start >= schedule.measured_from) {
           ++calls[c];
         }
       }
     });
   }
-  const auto start = Clock::now();
+  schedule = Schedule::After(warmup, seconds);
   go = true;
   for (auto& t : threads) t.join();
-  const double elapsed = std::chrono::duration<double>(Clock::now() - start).count();
+  const double elapsed = std::chrono::duration<double>(Clock::now() - schedule.measured_from).count();
   long total = 0;
   for (long n : calls) total += n;
   return total / elapsed;
@@ -248,6 +271,7 @@ int main(int argc, char** argv) {
   std::string ogived;
   std::string existing;
   double seconds = 5;
+  double warmup = 1;
   std::vector<int> client_counts = {1, 16, 64, 256};
   bool baseline_phase = true;
   for (int i = 1; i < argc; ++i) {
@@ -256,6 +280,7 @@ int main(int argc, char** argv) {
     if (arg == "--ogived" && i + 1 < argc) ogived = argv[++i];
     if (arg == "--server" && i + 1 < argc) existing = argv[++i];  // a running server (for profiling)
     if (arg == "--seconds" && i + 1 < argc) seconds = std::atof(argv[++i]);
+    if (arg == "--warmup" && i + 1 < argc) warmup = std::max(0.0, std::atof(argv[++i]));
     if (arg == "--clients" && i + 1 < argc) {
       client_counts.clear();
       for (absl::string_view s : absl::StrSplit(argv[++i], ',')) {
@@ -266,7 +291,8 @@ int main(int argc, char** argv) {
   }
   if (ogived.empty() == existing.empty()) {
     std::fprintf(stderr,
-                 "usage: ogive-bench-load (--ogived PATH | --server HOST:PORT) [--seconds T] [--clients 1,16,64,256] "
+                 "usage: ogive-bench-load (--ogived PATH | --server HOST:PORT) [--seconds T] [--warmup W] "
+                 "[--clients 1,16,64,256] "
                  "[--no-baseline]\n");
     return 2;
   }
@@ -306,19 +332,16 @@ int main(int argc, char** argv) {
     if (server > 0) kill(server, SIGTERM);
     return 1;
   }
-  std::printf("{\n  \"benchmark\": \"ogive-bench-load\",\n  \"seconds\": %g,\n  \"synchronous\": \"FULL\",\n"
-              "  \"results\": [",
-              seconds);
+  std::printf("{\n  \"benchmark\": \"ogive-bench-load\",\n  \"seconds\": %g,\n  \"warmup_seconds\": %g,\n"
+              "  \"synchronous\": \"FULL\",\n  \"results\": [",
+              seconds, warmup);
   for (size_t k = 0; k < client_counts.size(); ++k) {
     const int n = client_counts[k];
-    const double server_cpu_before = server > 0 ? ProcessCpuSeconds(server) : 0;
-    const double client_cpu_before = ProcessCpuSeconds(getpid());
-    const Measurement m = RunAskTell(target, "load", n, seconds);
+    const Measurement m = RunAskTell(target, "load", n, warmup, seconds, server);
     const double pairs = static_cast<double>(m.pairs);
-    const double server_us_per_pair =
-        server > 0 && pairs > 0 ? (ProcessCpuSeconds(server) - server_cpu_before) / pairs * 1e6 : 0;
-    const double client_us_per_pair = pairs > 0 ? (ProcessCpuSeconds(getpid()) - client_cpu_before) / pairs * 1e6 : 0;
-    const double baseline = baseline_phase ? RunBaseline(target, n, seconds) : 0;
+    const double server_us_per_pair = pairs > 0 ? m.server_cpu_s / pairs * 1e6 : 0;
+    const double client_us_per_pair = pairs > 0 ? m.client_cpu_s / pairs * 1e6 : 0;
+    const double baseline = baseline_phase ? RunBaseline(target, n, warmup, seconds) : 0;
     std::printf("%s\n    {\"clients\": %d, \"pairs\": %ld, \"asks_per_s\": %.1f, \"tells_per_s\": %.1f, \"p50_ms\": %.3f, "
                 "\"p99_ms\": %.3f, \"max_ms\": %.3f, \"ask_p99_ms\": %.3f, \"tell_p99_ms\": %.3f, \"errors\": %ld, "
                 "\"baseline_calls_per_s\": %.1f, \"ratio\": %.3f, \"server_cpu_us_per_pair\": %.0f, "
