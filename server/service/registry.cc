@@ -63,19 +63,27 @@ absl::StatusOr<std::shared_ptr<StudyHost>> Registry::Create(const v1::StudyDesig
   absl::StatusOr<study::Study> created =
       study::Study::Create(built->space, built->order, built->distribution_options, built->study_options);
   if (!created.ok()) return created.status();
-  absl::MutexLock lock(&mu_);
-  if (auto it = studies_.find(design.name()); it != studies_.end()) {
-    if (!request_id.empty() && it->second->create_request_id() == request_id) return it->second;
-    return absl::AlreadyExistsError(absl::StrCat("design.name: a study named '", design.name(), "' already exists"));
-  }
-  if (static_cast<int>(studies_.size()) >= limits_.max_studies) {
-    return absl::ResourceExhaustedError(absl::StrCat("this server holds its limit of ", limits_.max_studies, " studies"));
+  // Creations are decided one at a time (once LoadAll is done only they add to studies_), so the
+  // check below still holds when the study is added after its commit; mu_ is held only to read and
+  // to add, so lookups never wait for a creation's fsync.
+  absl::MutexLock creating(&create_mu_);
+  {
+    absl::ReaderMutexLock lock(&mu_);
+    if (auto it = studies_.find(design.name()); it != studies_.end()) {
+      if (!request_id.empty() && it->second->create_request_id() == request_id) return it->second;
+      return absl::AlreadyExistsError(absl::StrCat("design.name: a study named '", design.name(), "' already exists"));
+    }
+    if (static_cast<int>(studies_.size()) >= limits_.max_studies) {
+      return absl::ResourceExhaustedError(
+          absl::StrCat("this server holds its limit of ", limits_.max_studies, " studies"));
+    }
   }
   absl::StatusOr<int64_t> id = store_->CreateStudy(design.name(), design,
                                                    codec::EngineStateToProto(created->engine()), request_id);
   if (!id.ok()) return id.status();
   auto host = std::make_shared<StudyHost>(*id, design, *std::move(created), store_, &waiter_, request_id,
                                           AskRequestIndex{}, metrics_);
+  absl::MutexLock lock(&mu_);
   studies_[design.name()] = host;
   return host;
 }

@@ -1,7 +1,7 @@
 // Registry: the studies one ogived serves, by name. Creates studies (validating the whole design),
 // loads every stored study at start, and hands out StudyHosts to the handlers.
 //
-// Thread-safe. Owns the hosts and the CommitWaiter their replies run on; the store outlives the
+// Thread-safe; a lookup never waits for a creation's commit. Owns the hosts and the CommitWaiter their replies run on; the store outlives the
 // registry.
 #ifndef OGIVE_SERVER_SERVICE_REGISTRY_H_
 #define OGIVE_SERVER_SERVICE_REGISTRY_H_
@@ -48,6 +48,7 @@ class Registry {
   storage::Store* const store_;
   const ServiceLimits limits_;
   ServiceMetrics* const metrics_;
+  absl::Mutex create_mu_ ABSL_ACQUIRED_BEFORE(mu_);  // held through a creation, its commit included
   mutable absl::Mutex mu_;
   absl::btree_map<std::string, std::shared_ptr<StudyHost>> studies_ ABSL_GUARDED_BY(mu_);
   // Last, so it is destroyed first: its remaining continuations still reach the hosts.
