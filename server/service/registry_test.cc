@@ -6,6 +6,7 @@
 
 #include <unistd.h>
 
+#include <atomic>
 #include <chrono>
 #include <filesystem>
 #include <future>
@@ -17,44 +18,29 @@
 #include "absl/synchronization/notification.h"
 #include "gtest/gtest.h"
 #include "storage/sqlite_store.h"
+#include "tests/support/forwarding_store.h"
 
 namespace ogive::service {
 namespace {
 
-class SlowCreateStore final : public storage::Store {
+class SlowCreateStore final : public testing::ForwardingStore {
  public:
-  explicit SlowCreateStore(storage::Store* real) : real_(real) {}
+  using ForwardingStore::ForwardingStore;
   // From now on CreateStudy waits in the store until Release().
   void Hold() { hold_ = true; }
   void Release() { released_.Notify(); }
   void WaitUntilACreationIsHeld() { entered_.WaitForNotification(); }
 
-  absl::StatusOr<std::vector<storage::StoredStudy>> LoadAll() override { return real_->LoadAll(); }
   absl::StatusOr<int64_t> CreateStudy(const std::string& name, const v1::StudyDesign& design,
                                       const v1::EngineState& engine, const std::string& request_id) override {
     if (hold_) {
       if (!entered_.HasBeenNotified()) entered_.Notify();
       released_.WaitForNotification();
     }
-    return real_->CreateStudy(name, design, engine, request_id);
+    return ForwardingStore::CreateStudy(name, design, engine, request_id);
   }
-  std::unique_ptr<storage::PendingCommit> CommitAsync(storage::StudyWrite write) override {
-    return real_->CommitAsync(std::move(write));
-  }
-  absl::StatusOr<storage::TrialPage> ListTrials(int64_t study_id, std::optional<v1::TrialState> state,
-                                                int64_t after_number, int limit) override {
-    return real_->ListTrials(study_id, state, after_number, limit);
-  }
-  absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t study_id) override {
-    return real_->ListGenerations(study_id);
-  }
-  absl::StatusOr<std::vector<storage::Event>> ListEvents(int64_t study_id, int limit) override {
-    return real_->ListEvents(study_id, limit);
-  }
-  absl::StatusOr<int64_t> SizeBytes() override { return real_->SizeBytes(); }
 
  private:
-  storage::Store* const real_;
   std::atomic<bool> hold_{false};
   absl::Notification entered_;
   absl::Notification released_;

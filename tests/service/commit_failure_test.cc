@@ -28,6 +28,7 @@
 #include "server/service/registry.h"
 #include "storage/sqlite_store.h"
 #include "tests/support/fault_vfs.h"
+#include "tests/support/forwarding_store.h"
 #include "tests/support/status_activity.h"
 
 namespace ogive::service {
@@ -36,34 +37,18 @@ namespace {
 // Delegates to a real store; when armed, the next write fails as a disk error would. The failed
 // write is passed on poisoned (a NaN the store refuses in its place), so that the store's chain rule
 // fails the writes queued behind it exactly as a real failure does.
-class FaultyStore final : public storage::Store {
+class FaultyStore final : public testing::ForwardingStore {
  public:
-  explicit FaultyStore(storage::Store* real) : real_(real) {}
+  using ForwardingStore::ForwardingStore;
   void FailNextCommit() { fail_next_ = true; }
 
-  absl::StatusOr<std::vector<storage::StoredStudy>> LoadAll() override { return real_->LoadAll(); }
-  absl::StatusOr<int64_t> CreateStudy(const std::string& name, const v1::StudyDesign& design,
-                                      const v1::EngineState& engine, const std::string& request_id) override {
-    return real_->CreateStudy(name, design, engine, request_id);
-  }
   std::unique_ptr<storage::PendingCommit> CommitAsync(storage::StudyWrite write) override {
-    if (!fail_next_) return real_->CommitAsync(std::move(write));
+    if (!fail_next_) return real()->CommitAsync(std::move(write));
     fail_next_ = false;
     write.trials.emplace_back().set_number(1);
     write.trials.back().set_score(std::nan(""));
-    return std::make_unique<Injected>(real_->CommitAsync(std::move(write)));
+    return std::make_unique<Injected>(real()->CommitAsync(std::move(write)));
   }
-  absl::StatusOr<storage::TrialPage> ListTrials(int64_t study_id, std::optional<v1::TrialState> state,
-                                                int64_t after_number, int limit) override {
-    return real_->ListTrials(study_id, state, after_number, limit);
-  }
-  absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t study_id) override {
-    return real_->ListGenerations(study_id);
-  }
-  absl::StatusOr<std::vector<storage::Event>> ListEvents(int64_t study_id, int limit) override {
-    return real_->ListEvents(study_id, limit);
-  }
-  absl::StatusOr<int64_t> SizeBytes() override { return real_->SizeBytes(); }
 
  private:
   class Injected final : public storage::PendingCommit {
@@ -78,7 +63,6 @@ class FaultyStore final : public storage::Store {
     std::unique_ptr<storage::PendingCommit> real_;
   };
 
-  storage::Store* real_;
   bool fail_next_ = false;
 };
 
