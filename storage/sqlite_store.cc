@@ -260,6 +260,7 @@ struct SqliteStore::Reader {
   Statement* commit = nullptr;
   Statement* rollback = nullptr;
   Statement* studies = nullptr;
+  Statement* study_by_id = nullptr;
   Statement* study_exists = nullptr;
   Statement* study_trials = nullptr;
   Statement* study_ask_requests = nullptr;
@@ -282,6 +283,11 @@ struct SqliteStore::Reader {
           "LEFT JOIN study_engines e ON e.study_id = s.id LEFT JOIN study_distributions d ON d.study_id = s.id "
           "ORDER BY s.id",
           &studies}},
+        {"load study",
+         {"SELECT s.id, s.name, s.design, e.engine, d.distribution, s.create_request_id FROM studies s "
+          "LEFT JOIN study_engines e ON e.study_id = s.id LEFT JOIN study_distributions d ON d.study_id = s.id "
+          "WHERE s.id = ?1",
+          &study_by_id}},
         {"find study", {"SELECT 1 FROM studies WHERE id = ?1", &study_exists}},
         {"load trials",
          {"SELECT number, record FROM trials WHERE study_id = ?1 ORDER BY number", &study_trials}},
@@ -1101,6 +1107,73 @@ absl::Status SqliteStore::ReadTransaction(absl::FunctionRef<absl::Status(Reader&
   return status;
 }
 
+namespace {
+
+// The study of the current row of a "load studies" or "load study" query: id, name, design, engine
+// state and distribution, create request id.
+absl::Status ReadStudyRow(Statement& row, StoredStudy& study) {
+  study.id = row.ColumnInt64(0);
+  study.name = std::string(row.ColumnText(1));
+  const std::string where = absl::StrCat("study '", study.name, "' (id ", study.id, "): ");
+  if (!Parse(row.ColumnBlob(2), study.design)) {
+    return absl::DataLossError(absl::StrCat(where, "the stored design does not parse"));
+  }
+  v1::EngineState& engine = *study.snapshot.mutable_engine();
+  if (row.ColumnIsNull(3)) return absl::DataLossError(absl::StrCat(where, "no engine state is stored"));
+  if (!Parse(row.ColumnBlob(3), engine)) {
+    return absl::DataLossError(absl::StrCat(where, "the stored engine state does not parse"));
+  }
+  if (!row.ColumnIsNull(4) && !Parse(row.ColumnBlob(4), *engine.mutable_distribution())) {
+    return absl::DataLossError(absl::StrCat(where, "the stored distribution does not parse"));
+  }
+  study.create_request_id = std::string(row.ColumnText(5));
+  return absl::OkStatus();
+}
+
+}  // namespace
+
+absl::Status SqliteStore::LoadTrialsAndAskRequests(Reader& r, StoredStudy& study) {
+  const std::string where = absl::StrCat("study '", study.name, "' (id ", study.id, "): ");
+  {
+    ResetOnExit reset(*r.study_trials);
+    r.study_trials->BindInt64(1, study.id);
+    while (true) {
+      absl::StatusOr<bool> row = r.study_trials->Step();
+      if (!row.ok()) return row.status();
+      if (!*row) break;
+      const int64_t number = r.study_trials->ColumnInt64(0);
+      v1::TrialRecord& record = *study.snapshot.add_trials();
+      if (!Parse(r.study_trials->ColumnBlob(1), record)) {
+        return absl::DataLossError(absl::StrCat(where, "the record of trial ", number, " does not parse"));
+      }
+      if (record.number() != number) {
+        return absl::DataLossError(
+            absl::StrCat(where, "the row of trial ", number, " holds the record of trial ", record.number()));
+      }
+    }
+  }
+  ResetOnExit reset(*r.study_ask_requests);
+  r.study_ask_requests->BindInt64(1, study.id);
+  while (true) {
+    absl::StatusOr<bool> row = r.study_ask_requests->Step();
+    if (!row.ok()) return row.status();
+    if (!*row) break;
+    auto& [request_id, trials] = study.ask_requests.emplace_back();
+    request_id = std::string(r.study_ask_requests->ColumnText(0));
+    const absl::string_view list = r.study_ask_requests->ColumnText(1);
+    if (list.empty()) continue;
+    for (absl::string_view item : absl::StrSplit(list, ',')) {
+      int64_t number = 0;
+      if (!absl::SimpleAtoi(item, &number)) {
+        return absl::DataLossError(
+            absl::StrCat(where, "ask request '", request_id, "': bad trial list '", list, "'"));
+      }
+      trials.push_back(number);
+    }
+  }
+  return absl::OkStatus();
+}
+
 absl::StatusOr<std::vector<StoredStudy>> SqliteStore::LoadAll() {
   std::vector<StoredStudy> studies;
   absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
@@ -1111,73 +1184,32 @@ absl::StatusOr<std::vector<StoredStudy>> SqliteStore::LoadAll() {
         absl::StatusOr<bool> row = r.studies->Step();
         if (!row.ok()) return row.status();
         if (!*row) break;
-        StoredStudy& study = studies.emplace_back();
-        study.id = r.studies->ColumnInt64(0);
-        study.name = std::string(r.studies->ColumnText(1));
-        const std::string where = absl::StrCat("study '", study.name, "' (id ", study.id, "): ");
-        if (!Parse(r.studies->ColumnBlob(2), study.design)) {
-          return absl::DataLossError(absl::StrCat(where, "the stored design does not parse"));
-        }
-        v1::EngineState& engine = *study.snapshot.mutable_engine();
-        if (r.studies->ColumnIsNull(3)) {
-          return absl::DataLossError(absl::StrCat(where, "no engine state is stored"));
-        }
-        if (!Parse(r.studies->ColumnBlob(3), engine)) {
-          return absl::DataLossError(absl::StrCat(where, "the stored engine state does not parse"));
-        }
-        if (!r.studies->ColumnIsNull(4) &&
-            !Parse(r.studies->ColumnBlob(4), *engine.mutable_distribution())) {
-          return absl::DataLossError(absl::StrCat(where, "the stored distribution does not parse"));
-        }
-        study.create_request_id = std::string(r.studies->ColumnText(5));
+        OGIVE_STORAGE_RETURN_IF_ERROR(ReadStudyRow(*r.studies, studies.emplace_back()));
       }
     }
-    for (StoredStudy& study : studies) {
-      const std::string where = absl::StrCat("study '", study.name, "' (id ", study.id, "): ");
-      {
-        ResetOnExit reset(*r.study_trials);
-        r.study_trials->BindInt64(1, study.id);
-        while (true) {
-          absl::StatusOr<bool> row = r.study_trials->Step();
-          if (!row.ok()) return row.status();
-          if (!*row) break;
-          const int64_t number = r.study_trials->ColumnInt64(0);
-          v1::TrialRecord& record = *study.snapshot.add_trials();
-          if (!Parse(r.study_trials->ColumnBlob(1), record)) {
-            return absl::DataLossError(
-                absl::StrCat(where, "the record of trial ", number, " does not parse"));
-          }
-          if (record.number() != number) {
-            return absl::DataLossError(absl::StrCat(where, "the row of trial ", number,
-                                                    " holds the record of trial ",
-                                                    record.number()));
-          }
-        }
-      }
-      ResetOnExit reset(*r.study_ask_requests);
-      r.study_ask_requests->BindInt64(1, study.id);
-      while (true) {
-        absl::StatusOr<bool> row = r.study_ask_requests->Step();
-        if (!row.ok()) return row.status();
-        if (!*row) break;
-        auto& [request_id, trials] = study.ask_requests.emplace_back();
-        request_id = std::string(r.study_ask_requests->ColumnText(0));
-        const absl::string_view list = r.study_ask_requests->ColumnText(1);
-        if (list.empty()) continue;
-        for (absl::string_view item : absl::StrSplit(list, ',')) {
-          int64_t number = 0;
-          if (!absl::SimpleAtoi(item, &number)) {
-            return absl::DataLossError(
-                absl::StrCat(where, "ask request '", request_id, "': bad trial list '", list, "'"));
-          }
-          trials.push_back(number);
-        }
-      }
-    }
+    for (StoredStudy& study : studies) OGIVE_STORAGE_RETURN_IF_ERROR(LoadTrialsAndAskRequests(r, study));
     return absl::OkStatus();
   });
   if (!status.ok()) return status;
   return studies;
+}
+
+absl::StatusOr<StoredStudy> SqliteStore::LoadStudy(int64_t study_id) {
+  StoredStudy study;
+  absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
+    study = StoredStudy();
+    {
+      ResetOnExit reset(*r.study_by_id);
+      r.study_by_id->BindInt64(1, study_id);
+      absl::StatusOr<bool> row = r.study_by_id->Step();
+      if (!row.ok()) return row.status();
+      if (!*row) return absl::NotFoundError(absl::StrCat("study id ", study_id, " not found"));
+      OGIVE_STORAGE_RETURN_IF_ERROR(ReadStudyRow(*r.study_by_id, study));
+    }
+    return LoadTrialsAndAskRequests(r, study);
+  });
+  if (!status.ok()) return status;
+  return study;
 }
 
 absl::StatusOr<TrialPage> SqliteStore::ListTrials(int64_t study_id,

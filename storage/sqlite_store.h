@@ -137,6 +137,7 @@ class SqliteStore final : public Store {
   // store, INVALID_ARGUMENT for malformed arguments (an empty name, a trial number < 1, a limit <
   // 1), and NOT_FOUND from the List* calls for an unknown study id.
   absl::StatusOr<std::vector<StoredStudy>> LoadAll() override;
+  absl::StatusOr<StoredStudy> LoadStudy(int64_t study_id) override;  // that study's rows alone
   absl::StatusOr<int64_t> CreateStudy(const std::string& name, const v1::StudyDesign& design,
                                       const v1::EngineState& engine,
                                       const std::string& request_id) override;
@@ -205,6 +206,8 @@ class SqliteStore final : public Store {
 
   // Runs `read` on a free read connection inside BEGIN ... COMMIT.
   absl::Status ReadTransaction(absl::FunctionRef<absl::Status(Reader&)> read);
+  // Adds a study's trials and ask requests (in the order stored) to `study`, whose id and name are set.
+  static absl::Status LoadTrialsAndAskRequests(Reader& r, StoredStudy& study);
 
   const std::string path_;
   const Options options_;

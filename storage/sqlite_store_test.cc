@@ -999,6 +999,39 @@ TEST_F(SqliteStoreTest, UnknownStudyIsNotFoundWithOrWithoutAnEngineState) {
   EXPECT_EQ(raw.Text("SELECT count(*) FROM events"), "0");
 }
 
+// LoadStudy reads one study's rows alone (the host reloads a study after a failed commit, and
+// should not read every other study to do it); what it returns is what LoadAll returns for it.
+TEST_F(SqliteStoreTest, LoadStudyReturnsWhatLoadAllHoldsForThatStudyAndNotFoundForAnUnknownId) {
+  std::unique_ptr<SqliteStore> store = OpenStore();
+  ASSERT_NE(store, nullptr);
+  const int64_t alpha = Create(*store, "alpha");
+  const int64_t beta = Create(*store, "beta");
+  for (const int64_t id : {alpha, beta}) {
+    for (int64_t n = 1; n <= 3; ++n) {
+      StudyWrite write;
+      write.study_id = id;
+      write.trials = {MakeTrial(n, n == 2 ? v1::TRIAL_STATE_REPORTED : v1::TRIAL_STATE_LEASED, 0.5 * n + id)};
+      write.ask_request = std::make_pair(absl::StrCat("ask-", id, "-", n), std::vector<int64_t>{n});
+      ASSERT_THAT(store->Commit(write), IsOk());
+    }
+  }
+  absl::StatusOr<std::vector<StoredStudy>> all = store->LoadAll();
+  ASSERT_THAT(all, IsOk());
+  ASSERT_THAT(*all, SizeIs(2));
+  for (const StoredStudy& expected : *all) {
+    absl::StatusOr<StoredStudy> one = store->LoadStudy(expected.id);
+    ASSERT_THAT(one, IsOk());
+    EXPECT_EQ(one->id, expected.id);
+    EXPECT_EQ(one->name, expected.name);
+    EXPECT_EQ(one->create_request_id, expected.create_request_id);
+    EXPECT_EQ(Bytes(one->design), Bytes(expected.design));
+    EXPECT_EQ(Bytes(one->snapshot), Bytes(expected.snapshot));
+    EXPECT_EQ(one->ask_requests, expected.ask_requests);
+    EXPECT_EQ(one->snapshot.trials_size(), 3);
+  }
+  EXPECT_THAT(store->LoadStudy(beta + 100), StatusIs(absl::StatusCode::kNotFound, HasSubstr("not found")));
+}
+
 TEST_F(SqliteStoreTest, AskRequestsLoadInTheOrderStoredAndAnEmptyIdIsRefused) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
