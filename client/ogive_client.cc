@@ -60,21 +60,28 @@ void Client::Prepare(grpc::ClientContext& context) const {
 
 template <typename Request, typename Response>
 absl::Status Client::Call(grpc::Status (v1::Ogive::Stub::*method)(grpc::ClientContext*, const Request&, Response*),
-                          const Request& request, Response* response) {
+                          const Request& request, Response* response, Cancellation* cancellation) {
+  const absl::Status cancelled = absl::CancelledError("the call was cancelled by the caller");
   absl::Duration backoff = options_.first_backoff;
   absl::Status last;
   for (int attempt = 1; attempt <= options_.max_attempts; ++attempt) {
     grpc::ClientContext context;
     Prepare(context);
+    if (cancellation != nullptr && !cancellation->Enter(&context)) return cancelled;
     last = FromGrpc(((*stub_).*method)(&context, request, response));
+    if (cancellation != nullptr) cancellation->Leave();
     if (last.code() != absl::StatusCode::kUnavailable) return last;
     if (attempt < options_.max_attempts) {
       // Wait out the backoff while the channel reconnects. A blocking client whose calls fail at
       // once polls its connection only every 5 s (gRPC's backup poller), so without this a
-      // restarted server is found seconds late.
+      // restarted server is found seconds late. In slices, so that a cancellation is seen soon.
       const absl::Time until = absl::Now() + backoff;
-      channel_->WaitForConnected(absl::ToChronoTime(until));
-      absl::SleepFor(until - absl::Now());
+      for (absl::Time now = absl::Now(); now < until; now = absl::Now()) {
+        if (cancellation != nullptr && cancellation->cancelled()) return cancelled;
+        const absl::Time slice_end = std::min(until, now + absl::Milliseconds(100));
+        channel_->WaitForConnected(absl::ToChronoTime(slice_end));
+        absl::SleepFor(slice_end - absl::Now());
+      }
       backoff = std::min(2 * backoff, options_.max_backoff);
     }
   }
@@ -129,14 +136,15 @@ absl::StatusOr<v1::TellResponse> Client::Tell(const std::string& study, const st
 }
 
 absl::StatusOr<v1::RenewResponse> Client::Renew(const std::string& study, const std::vector<int64_t>& trials,
-                                                const std::string& worker, double lease_seconds) {
+                                                const std::string& worker, double lease_seconds,
+                                                Cancellation* cancellation) {
   v1::RenewRequest request;
   request.set_study(study);
   for (int64_t t : trials) request.add_trials(t);
   request.set_worker(worker);
   request.set_lease_seconds(lease_seconds);
   v1::RenewResponse response;
-  if (absl::Status s = Call(&v1::Ogive::Stub::Renew, request, &response); !s.ok()) return s;
+  if (absl::Status s = Call(&v1::Ogive::Stub::Renew, request, &response, cancellation); !s.ok()) return s;
   return response;
 }
 
@@ -214,7 +222,7 @@ LeaseRenewer::LeaseRenewer(Client* client, std::string study, std::vector<int64_
   thread_ = std::thread([this, client, study = std::move(study), trials = std::move(trials),
                          worker = std::move(worker), lease_seconds, interval] {
     while (!stop_.WaitForNotificationWithTimeout(interval)) {
-      if (client->Renew(study, trials, worker, lease_seconds).ok()) {
+      if (client->Renew(study, trials, worker, lease_seconds, &cancellation_).ok()) {
         ++renewals_;
       } else {
         ++failures_;
@@ -224,8 +232,32 @@ LeaseRenewer::LeaseRenewer(Client* client, std::string study, std::vector<int64_
 }
 
 LeaseRenewer::~LeaseRenewer() {
+  cancellation_.Cancel();
   stop_.Notify();
   thread_.join();
+}
+
+void Cancellation::Cancel() {
+  absl::MutexLock lock(&mu_);
+  cancelled_ = true;
+  if (attempt_ != nullptr) attempt_->TryCancel();
+}
+
+bool Cancellation::cancelled() const {
+  absl::MutexLock lock(&mu_);
+  return cancelled_;
+}
+
+bool Cancellation::Enter(grpc::ClientContext* context) {
+  absl::MutexLock lock(&mu_);
+  if (cancelled_) return false;
+  attempt_ = context;
+  return true;
+}
+
+void Cancellation::Leave() {
+  absl::MutexLock lock(&mu_);
+  attempt_ = nullptr;
 }
 
 }  // namespace ogive::client

@@ -18,6 +18,8 @@
 #include <vector>
 
 #include "absl/status/statusor.h"
+#include "absl/base/thread_annotations.h"
+#include "absl/synchronization/mutex.h"
 #include "absl/synchronization/notification.h"
 #include "absl/time/time.h"
 #include "client/client_tls.h"
@@ -25,6 +27,25 @@
 #include "ogive/v1/service.grpc.pb.h"
 
 namespace ogive::client {
+
+// Lets one thread stop a call that another thread is making through Client (LeaseRenewer's destructor
+// does): the attempt in flight is cancelled and no retry follows; the call returns CANCELLED. Once
+// cancelled, it stays cancelled. Thread-safe; must outlive the calls it is passed to.
+class Cancellation {
+ public:
+  void Cancel();
+  bool cancelled() const;
+
+ private:
+  friend class Client;
+  // Makes `context` the attempt that Cancel() cancels; false when cancelled already.
+  bool Enter(grpc::ClientContext* context);
+  void Leave();  // before the attempt's context goes
+
+  mutable absl::Mutex mu_;
+  grpc::ClientContext* attempt_ ABSL_GUARDED_BY(mu_) = nullptr;
+  bool cancelled_ ABSL_GUARDED_BY(mu_) = false;
+};
 
 struct ClientOptions {
   absl::Duration call_timeout = absl::Seconds(30);  // deadline of each attempt
@@ -56,8 +77,10 @@ class Client {
                                       double lease_seconds = 0);
   absl::StatusOr<v1::TellResponse> Tell(const std::string& study, const std::vector<v1::Report>& reports,
                                         const std::string& worker);
+  // `cancellation` (may be null) lets another thread stop the call and its retries.
   absl::StatusOr<v1::RenewResponse> Renew(const std::string& study, const std::vector<int64_t>& trials,
-                                          const std::string& worker, double lease_seconds = 0);
+                                          const std::string& worker, double lease_seconds = 0,
+                                          Cancellation* cancellation = nullptr);
   // Every trial (all pages), optionally of one state.
   absl::StatusOr<std::vector<v1::Trial>> ListAllTrials(const std::string& study,
                                                        v1::TrialState state = v1::TRIAL_STATE_UNSPECIFIED);
@@ -75,7 +98,7 @@ class Client {
  private:
   template <typename Request, typename Response>
   absl::Status Call(grpc::Status (v1::Ogive::Stub::*method)(grpc::ClientContext*, const Request&, Response*),
-                    const Request& request, Response* response);
+                    const Request& request, Response* response, Cancellation* cancellation = nullptr);
   void Prepare(grpc::ClientContext& context) const;
 
   std::shared_ptr<grpc::Channel> channel_;
@@ -85,7 +108,9 @@ class Client {
 
 // Keeps the leases of some trials alive while a long evaluation runs: renews them every `interval`
 // (default: a third of the lease) on a background thread until destroyed. Renewal errors are counted,
-// not fatal: the lease may lapse, and the late report is still stored.
+// not fatal: the lease may lapse, and the late report is still stored. The destructor cancels a
+// renewal in flight (and its retries) rather than wait for it, so a finished evaluation is reported
+// at once even when the server does not answer.
 class LeaseRenewer {
  public:
   LeaseRenewer(Client* client, std::string study, std::vector<int64_t> trials, std::string worker,
@@ -99,6 +124,7 @@ class LeaseRenewer {
 
  private:
   absl::Notification stop_;
+  Cancellation cancellation_;
   std::atomic<int> renewals_{0};
   std::atomic<int> failures_{0};
   std::thread thread_;
