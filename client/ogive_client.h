@@ -17,8 +17,8 @@
 #include <thread>
 #include <vector>
 
-#include "absl/status/statusor.h"
 #include "absl/base/thread_annotations.h"
+#include "absl/status/statusor.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/synchronization/notification.h"
 #include "absl/time/time.h"

@@ -253,6 +253,11 @@ struct SqliteStore::WriterStatements {
   }
 };
 
+// A study's row with its engine state and distribution, in the columns ReadStudyRow reads.
+#define OGIVE_SELECT_STUDIES                                                                    \
+  "SELECT s.id, s.name, s.design, e.engine, d.distribution, s.create_request_id FROM studies s " \
+  "LEFT JOIN study_engines e ON e.study_id = s.id LEFT JOIN study_distributions d ON d.study_id = s.id"
+
 struct SqliteStore::Reader {
   std::unique_ptr<Connection> connection;
   int index = 0;
@@ -278,16 +283,8 @@ struct SqliteStore::Reader {
         {"begin read", {"BEGIN", &begin}},
         {"end read", {"COMMIT", &commit}},
         {"abandon read", {"ROLLBACK", &rollback}},
-        {"load studies",
-         {"SELECT s.id, s.name, s.design, e.engine, d.distribution, s.create_request_id FROM studies s "
-          "LEFT JOIN study_engines e ON e.study_id = s.id LEFT JOIN study_distributions d ON d.study_id = s.id "
-          "ORDER BY s.id",
-          &studies}},
-        {"load study",
-         {"SELECT s.id, s.name, s.design, e.engine, d.distribution, s.create_request_id FROM studies s "
-          "LEFT JOIN study_engines e ON e.study_id = s.id LEFT JOIN study_distributions d ON d.study_id = s.id "
-          "WHERE s.id = ?1",
-          &study_by_id}},
+        {"load studies", {OGIVE_SELECT_STUDIES " ORDER BY s.id", &studies}},
+        {"load study", {OGIVE_SELECT_STUDIES " WHERE s.id = ?1", &study_by_id}},
         {"find study", {"SELECT 1 FROM studies WHERE id = ?1", &study_exists}},
         {"load trials",
          {"SELECT number, record FROM trials WHERE study_id = ?1 ORDER BY number", &study_trials}},
@@ -335,6 +332,7 @@ struct SqliteStore::Reader {
     return absl::OkStatus();
   }
 };
+#undef OGIVE_SELECT_STUDIES
 
 struct SqliteStore::EncodedWrite {
   struct Trial {
@@ -1109,12 +1107,17 @@ absl::Status SqliteStore::ReadTransaction(absl::FunctionRef<absl::Status(Reader&
 
 namespace {
 
+// How a load error names the study: "study 'NAME' (id N): ".
+std::string StudyWhere(const StoredStudy& study) {
+  return absl::StrCat("study '", study.name, "' (id ", study.id, "): ");
+}
+
 // The study of the current row of a "load studies" or "load study" query: id, name, design, engine
 // state and distribution, create request id.
 absl::Status ReadStudyRow(Statement& row, StoredStudy& study) {
   study.id = row.ColumnInt64(0);
   study.name = std::string(row.ColumnText(1));
-  const std::string where = absl::StrCat("study '", study.name, "' (id ", study.id, "): ");
+  const std::string where = StudyWhere(study);
   if (!Parse(row.ColumnBlob(2), study.design)) {
     return absl::DataLossError(absl::StrCat(where, "the stored design does not parse"));
   }
@@ -1133,7 +1136,7 @@ absl::Status ReadStudyRow(Statement& row, StoredStudy& study) {
 }  // namespace
 
 absl::Status SqliteStore::LoadTrialsAndAskRequests(Reader& r, StoredStudy& study) {
-  const std::string where = absl::StrCat("study '", study.name, "' (id ", study.id, "): ");
+  const std::string where = StudyWhere(study);
   {
     ResetOnExit reset(*r.study_trials);
     r.study_trials->BindInt64(1, study.id);

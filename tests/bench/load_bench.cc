@@ -136,7 +136,7 @@ double Percentile(std::vector<double>& v, double q) {
   return v[k];
 }
 
-// When a phase's clients start, when its measured part begins (after the warm-up) and when it ends.
+// When a phase's measured part begins (after the warm-up) and when it ends.
 struct Schedule {
   Clock::time_point measured_from, end;
   static Schedule After(double warmup, double seconds) {
