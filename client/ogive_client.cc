@@ -88,33 +88,33 @@ absl::Status Client::Call(grpc::Status (v1::Ogive::Stub::*method)(grpc::ClientCo
   return last;
 }
 
-absl::StatusOr<v1::StudyView> Client::CreateStudy(const v1::StudyDesign& design) {
-  v1::CreateStudyRequest request;
+absl::StatusOr<v1::CampaignView> Client::CreateCampaign(const v1::CampaignDesign& design) {
+  v1::CreateCampaignRequest request;
   *request.mutable_design() = design;
   request.set_request_id(NewRequestId());
-  v1::StudyView response;
-  if (absl::Status s = Call(&v1::Ogive::Stub::CreateStudy, request, &response); !s.ok()) return s;
+  v1::CampaignView response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::CreateCampaign, request, &response); !s.ok()) return s;
   return response;
 }
 
-absl::StatusOr<v1::StudyView> Client::GetStudy(const std::string& study) {
-  v1::GetStudyRequest request;
-  request.set_study(study);
-  v1::StudyView response;
-  if (absl::Status s = Call(&v1::Ogive::Stub::GetStudy, request, &response); !s.ok()) return s;
+absl::StatusOr<v1::CampaignView> Client::GetCampaign(const std::string& campaign) {
+  v1::GetCampaignRequest request;
+  request.set_campaign(campaign);
+  v1::CampaignView response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::GetCampaign, request, &response); !s.ok()) return s;
   return response;
 }
 
-absl::StatusOr<v1::ListStudiesResponse> Client::ListStudies() {
-  v1::ListStudiesResponse response;
-  if (absl::Status s = Call(&v1::Ogive::Stub::ListStudies, v1::ListStudiesRequest(), &response); !s.ok()) return s;
+absl::StatusOr<v1::ListCampaignsResponse> Client::ListCampaigns() {
+  v1::ListCampaignsResponse response;
+  if (absl::Status s = Call(&v1::Ogive::Stub::ListCampaigns, v1::ListCampaignsRequest(), &response); !s.ok()) return s;
   return response;
 }
 
-absl::StatusOr<v1::AskResponse> Client::Ask(const std::string& study, int count, const std::string& worker,
+absl::StatusOr<v1::AskResponse> Client::Ask(const std::string& campaign, int count, const std::string& worker,
                                             double lease_seconds) {
   v1::AskRequest request;
-  request.set_study(study);
+  request.set_campaign(campaign);
   request.set_count(count);
   request.set_worker(worker);
   request.set_lease_seconds(lease_seconds);
@@ -124,10 +124,10 @@ absl::StatusOr<v1::AskResponse> Client::Ask(const std::string& study, int count,
   return response;
 }
 
-absl::StatusOr<v1::TellResponse> Client::Tell(const std::string& study, const std::vector<v1::Report>& reports,
+absl::StatusOr<v1::TellResponse> Client::Tell(const std::string& campaign, const std::vector<v1::Report>& reports,
                                               const std::string& worker) {
   v1::TellRequest request;
-  request.set_study(study);
+  request.set_campaign(campaign);
   request.set_worker(worker);
   for (const v1::Report& r : reports) *request.add_reports() = r;
   v1::TellResponse response;
@@ -135,11 +135,11 @@ absl::StatusOr<v1::TellResponse> Client::Tell(const std::string& study, const st
   return response;
 }
 
-absl::StatusOr<v1::RenewResponse> Client::Renew(const std::string& study, const std::vector<int64_t>& trials,
+absl::StatusOr<v1::RenewResponse> Client::Renew(const std::string& campaign, const std::vector<int64_t>& trials,
                                                 const std::string& worker, double lease_seconds,
                                                 Cancellation* cancellation) {
   v1::RenewRequest request;
-  request.set_study(study);
+  request.set_campaign(campaign);
   for (int64_t t : trials) request.add_trials(t);
   request.set_worker(worker);
   request.set_lease_seconds(lease_seconds);
@@ -154,10 +154,10 @@ absl::StatusOr<v1::ListTrialsResponse> Client::ListTrials(const v1::ListTrialsRe
   return response;
 }
 
-absl::StatusOr<std::vector<v1::Trial>> Client::ListAllTrials(const std::string& study, v1::TrialState state) {
+absl::StatusOr<std::vector<v1::Trial>> Client::ListAllTrials(const std::string& campaign, v1::TrialState state) {
   std::vector<v1::Trial> all;
   v1::ListTrialsRequest request;
-  request.set_study(study);
+  request.set_campaign(campaign);
   request.set_state(state);
   request.set_page_size(1000);
   while (true) {
@@ -175,10 +175,10 @@ absl::StatusOr<v1::ListGenerationsResponse> Client::ListGenerations(const v1::Li
   return response;
 }
 
-absl::StatusOr<std::vector<v1::GenerationView>> Client::ListAllGenerations(const std::string& study) {
+absl::StatusOr<std::vector<v1::GenerationView>> Client::ListAllGenerations(const std::string& campaign) {
   std::vector<v1::GenerationView> all;
   v1::ListGenerationsRequest request;
-  request.set_study(study);
+  request.set_campaign(campaign);
   request.set_page_size(100);  // every server allows it: --max-page-size is at least 100
   while (true) {
     absl::StatusOr<v1::ListGenerationsResponse> page = ListGenerations(request);
@@ -189,23 +189,23 @@ absl::StatusOr<std::vector<v1::GenerationView>> Client::ListAllGenerations(const
   }
 }
 
-absl::StatusOr<v1::StudyView> Client::SetPhase(const std::string& study, v1::PhaseCommand command) {
+absl::StatusOr<v1::CampaignView> Client::SetPhase(const std::string& campaign, v1::PhaseCommand command) {
   v1::SetPhaseRequest request;
-  request.set_study(study);
+  request.set_campaign(campaign);
   request.set_command(command);
   request.set_request_id(NewRequestId());
-  v1::StudyView response;
+  v1::CampaignView response;
   if (absl::Status s = Call(&v1::Ogive::Stub::SetPhase, request, &response); !s.ok()) return s;
   return response;
 }
 
-absl::Status Client::Watch(const std::string& study, const std::function<bool(const v1::StudyView&)>& on_view) {
+absl::Status Client::Watch(const std::string& campaign, const std::function<bool(const v1::CampaignView&)>& on_view) {
   grpc::ClientContext context;
   if (!options_.token.empty()) context.AddMetadata("authorization", "Bearer " + options_.token);
   v1::WatchRequest request;
-  request.set_study(study);
-  std::unique_ptr<grpc::ClientReader<v1::StudyView>> reader = stub_->Watch(&context, request);
-  v1::StudyView view;
+  request.set_campaign(campaign);
+  std::unique_ptr<grpc::ClientReader<v1::CampaignView>> reader = stub_->Watch(&context, request);
+  v1::CampaignView view;
   while (reader->Read(&view)) {
     if (!on_view(view)) {
       context.TryCancel();
@@ -217,12 +217,12 @@ absl::Status Client::Watch(const std::string& study, const std::function<bool(co
   return FromGrpc(status);
 }
 
-LeaseRenewer::LeaseRenewer(Client* client, std::string study, std::vector<int64_t> trials, std::string worker,
+LeaseRenewer::LeaseRenewer(Client* client, std::string campaign, std::vector<int64_t> trials, std::string worker,
                            double lease_seconds, absl::Duration interval) {
-  thread_ = std::thread([this, client, study = std::move(study), trials = std::move(trials),
+  thread_ = std::thread([this, client, campaign = std::move(campaign), trials = std::move(trials),
                          worker = std::move(worker), lease_seconds, interval] {
     while (!stop_.WaitForNotificationWithTimeout(interval)) {
-      if (client->Renew(study, trials, worker, lease_seconds, &cancellation_).ok()) {
+      if (client->Renew(campaign, trials, worker, lease_seconds, &cancellation_).ok()) {
         ++renewals_;
       } else {
         ++failures_;

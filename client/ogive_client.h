@@ -70,28 +70,28 @@ class Client {
   // A client over a channel the caller made (for TLS credentials or tests).
   Client(std::shared_ptr<grpc::Channel> channel, ClientOptions options);
 
-  absl::StatusOr<v1::StudyView> CreateStudy(const v1::StudyDesign& design);
-  absl::StatusOr<v1::StudyView> GetStudy(const std::string& study);
-  absl::StatusOr<v1::ListStudiesResponse> ListStudies();
-  absl::StatusOr<v1::AskResponse> Ask(const std::string& study, int count, const std::string& worker,
+  absl::StatusOr<v1::CampaignView> CreateCampaign(const v1::CampaignDesign& design);
+  absl::StatusOr<v1::CampaignView> GetCampaign(const std::string& campaign);
+  absl::StatusOr<v1::ListCampaignsResponse> ListCampaigns();
+  absl::StatusOr<v1::AskResponse> Ask(const std::string& campaign, int count, const std::string& worker,
                                       double lease_seconds = 0);
-  absl::StatusOr<v1::TellResponse> Tell(const std::string& study, const std::vector<v1::Report>& reports,
+  absl::StatusOr<v1::TellResponse> Tell(const std::string& campaign, const std::vector<v1::Report>& reports,
                                         const std::string& worker);
   // `cancellation` (may be null) lets another thread stop the call and its retries.
-  absl::StatusOr<v1::RenewResponse> Renew(const std::string& study, const std::vector<int64_t>& trials,
+  absl::StatusOr<v1::RenewResponse> Renew(const std::string& campaign, const std::vector<int64_t>& trials,
                                           const std::string& worker, double lease_seconds = 0,
                                           Cancellation* cancellation = nullptr);
   // Every trial (all pages), optionally of one state.
-  absl::StatusOr<std::vector<v1::Trial>> ListAllTrials(const std::string& study,
+  absl::StatusOr<std::vector<v1::Trial>> ListAllTrials(const std::string& campaign,
                                                        v1::TrialState state = v1::TRIAL_STATE_UNSPECIFIED);
   absl::StatusOr<v1::ListTrialsResponse> ListTrials(const v1::ListTrialsRequest& request);
   // Every generation view (all pages), in generation order.
-  absl::StatusOr<std::vector<v1::GenerationView>> ListAllGenerations(const std::string& study);
+  absl::StatusOr<std::vector<v1::GenerationView>> ListAllGenerations(const std::string& campaign);
   absl::StatusOr<v1::ListGenerationsResponse> ListGenerations(const v1::ListGenerationsRequest& request);
-  absl::StatusOr<v1::StudyView> SetPhase(const std::string& study, v1::PhaseCommand command);
-  // Streams status updates to `on_view` until the study is done, `on_view` returns false, or the
+  absl::StatusOr<v1::CampaignView> SetPhase(const std::string& campaign, v1::PhaseCommand command);
+  // Streams status updates to `on_view` until the campaign is done, `on_view` returns false, or the
   // stream fails. No deadline (a watch runs as long as it is wanted).
-  absl::Status Watch(const std::string& study, const std::function<bool(const v1::StudyView&)>& on_view);
+  absl::Status Watch(const std::string& campaign, const std::function<bool(const v1::CampaignView&)>& on_view);
 
   v1::Ogive::Stub& stub() { return *stub_; }
 
@@ -113,7 +113,7 @@ class Client {
 // at once even when the server does not answer.
 class LeaseRenewer {
  public:
-  LeaseRenewer(Client* client, std::string study, std::vector<int64_t> trials, std::string worker,
+  LeaseRenewer(Client* client, std::string campaign, std::vector<int64_t> trials, std::string worker,
                double lease_seconds, absl::Duration interval);
   ~LeaseRenewer();
   LeaseRenewer(const LeaseRenewer&) = delete;

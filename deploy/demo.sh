@@ -1,9 +1,9 @@
 #!/usr/bin/env bash
 # The README's run command: a real ogived on an embedded SQLite file, eight `ogive work` workers running
 # a simulated flow solver (which sleeps a little and sometimes crashes), progress while they work, the
-# study's status at the end, its HTML report (var/demo-report.html) and its trials as CSV
+# campaign's status at the end, its HTML report (var/demo-report.html) and its trials as CSV
 # (var/demo-trials.csv), and a clean server stop. Installs what is missing and builds first.
-# Tokens as in production: an admin token for the operator, a worker token limited to the study for the
+# Tokens as in production: an admin token for the operator, a worker token limited to the campaign for the
 # workers (each outcome records its label).
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -23,7 +23,7 @@ umask 077  # the token files are for this user only
 "${bin}/server/ogived" token create --db "${workdir}/demo.db" --role admin --label demo-operator \
   > "${workdir}/admin.token"
 "${bin}/server/ogived" token create --db "${workdir}/demo.db" --role worker --label solver-nodes \
-  --study solver-farm > "${workdir}/worker.token"
+  --campaign solver-farm > "${workdir}/worker.token"
 "${bin}/server/ogived" token list --db "${workdir}/demo.db"
 "${bin}/server/ogived" --db "${workdir}/demo.db" --listen "${server}" 2> "${workdir}/ogived.log" &
 ogived_pid=$!
@@ -33,10 +33,10 @@ cleanup() {
 }
 worker_pids=()
 trap cleanup EXIT
-for _ in $(seq 50); do ogive study list > /dev/null 2>&1 && break; sleep 0.1; done
+for _ in $(seq 50); do ogive campaign list > /dev/null 2>&1 && break; sleep 0.1; done
 
 echo "== ogived is serving ${workdir}/demo.db on ${server}"
-ogive study create deploy/demo/solver-farm.txtpb
+ogive campaign create deploy/demo/solver-farm.txtpb
 echo "== 8 workers run the simulated solver (each trial sleeps 0.05-0.4 s; about 4% crash)"
 for w in $(seq 8); do
   worker_ogive work solver-farm --worker "node-${w}" -- "${bin}/tests/demo/ogive-demo-solver" \
@@ -44,11 +44,11 @@ for w in $(seq 8); do
   worker_pids+=($!)
 done
 
-# Progress until the workers stop (the study is done when its trial budget is spent).
+# Progress until the workers stop (the campaign is done when its trial budget is spent).
 while true; do
   running=0
   for pid in "${worker_pids[@]}"; do kill -0 "${pid}" 2> /dev/null && running=$((running + 1)); done
-  ogive study list | tail -n +2
+  ogive campaign list | tail -n +2
   [ "${running}" -eq 0 ] && break
   sleep 2
 done
@@ -57,10 +57,10 @@ worker_pids=()
 
 echo
 echo "== status"
-ogive study show solver-farm
+ogive campaign show solver-farm
 echo
 echo "== the five best trials"
-ogive study trials solver-farm --state reported --csv | /usr/bin/python3 -c '
+ogive campaign trials solver-farm --state reported --csv | /usr/bin/python3 -c '
 import csv, sys
 rows = [r for r in csv.DictReader(sys.stdin) if r["outcome"] == "score"]
 rows.sort(key=lambda r: float(r["score"]))
@@ -72,8 +72,8 @@ for r in rows[:5]:
 echo
 echo "== the report"
 mkdir -p var
-ogive study report solver-farm -o var/demo-report.html
-ogive study export solver-farm --csv -o var/demo-trials.csv
+ogive campaign report solver-farm -o var/demo-report.html
+ogive campaign export solver-farm --csv -o var/demo-trials.csv
 echo "report: $(pwd)/var/demo-report.html (open it in a browser)"
 echo "trials: $(pwd)/var/demo-trials.csv"
 echo

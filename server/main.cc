@@ -1,4 +1,4 @@
-// ogived: the ogive server. Serves many studies over gRPC from one SQLite file.
+// ogived: the ogive server. Serves many campaigns over gRPC from one SQLite file.
 //
 //   ogived [--db PATH] [--listen ADDRESS] [--tls-cert PEM --tls-key PEM [--tls-client-ca PEM]]
 //          [--metrics-listen ADDRESS] [--max-... N] [--sweep-interval-seconds S] [--read-only]   (see --help)
@@ -9,7 +9,7 @@
 // which is allowed on loopback addresses only. The health service answers without a token; server
 // reflection is off unless --reflection is given.
 //
-// On start it restores every stored study exactly. On SIGTERM or SIGINT it reports NOT_SERVING on the
+// On start it restores every stored campaign exactly. On SIGTERM or SIGINT it reports NOT_SERVING on the
 // health service, refuses new calls (UNAVAILABLE), lets in-flight calls finish (their commits
 // included, for at most 10 s), closes its connections and exits 0.
 #include <pthread.h>
@@ -57,7 +57,7 @@ constexpr char kUsage[] =
     "usage: ogived [options]\n"
     "       ogived backup --db PATH --to FILE   (copy a live database safely; see ogived backup --help)\n"
     "\n"
-    "Serves ogive studies over gRPC from one SQLite database file.\n"
+    "Serves ogive campaigns over gRPC from one SQLite database file.\n"
     "\n"
     "options:\n"
     "  --db PATH                   database file (default ./ogive.db; created if missing)\n"
@@ -228,10 +228,10 @@ int main(int argc, char** argv) {
                       not_writable ? " (ogived --read-only serves it for reading)" : ""));
   }
   auto registry = std::make_unique<ogive::service::Registry>(store->get(), flags.limits, &metrics);
-  if (absl::Status s = registry->LoadAll(); !s.ok()) Fail(absl::StrCat("cannot restore studies: ", s.message()));
-  LogLine({{"event", "start"}, {"db", flags.db}, {"studies", absl::StrCat(registry->All().size())},
+  if (absl::Status s = registry->LoadAll(); !s.ok()) Fail(absl::StrCat("cannot restore campaigns: ", s.message()));
+  LogLine({{"event", "start"}, {"db", flags.db}, {"campaigns", absl::StrCat(registry->All().size())},
            {"mode", flags.read_only ? "read-only" : "read-write"}});
-  metrics.CollectStudies(registry.get());
+  metrics.CollectCampaigns(registry.get());
   metrics.CollectStore(store->get());
 
   absl::StatusOr<std::unique_ptr<ogive::service::Authorizer>> authorizer =
@@ -318,10 +318,10 @@ int main(int argc, char** argv) {
       for (const auto& host : registry->All()) {
         absl::StatusOr<int> lapsed = host->Sweep(absl::Now());
         if (!lapsed.ok()) {
-          LogLine({{"event", "sweep"}, {"study", host->name()}, {"code", absl::StatusCodeToString(lapsed.status().code())},
+          LogLine({{"event", "sweep"}, {"campaign", host->name()}, {"code", absl::StatusCodeToString(lapsed.status().code())},
                    {"detail", std::string(lapsed.status().message())}});
         } else if (*lapsed > 0) {
-          LogLine({{"event", "sweep"}, {"study", host->name()}, {"lapsed", absl::StrCat(*lapsed)}});
+          LogLine({{"event", "sweep"}, {"campaign", host->name()}, {"lapsed", absl::StrCat(*lapsed)}});
         }
       }
     }

@@ -27,19 +27,19 @@ namespace ogive {
 namespace {
 
 constexpr char kTokenUsage[] =
-    "usage: ogived token create --db PATH --role ROLE --label LABEL [--study NAME]...\n"
+    "usage: ogived token create --db PATH --role ROLE --label LABEL [--campaign NAME]...\n"
     "       ogived token list   --db PATH\n"
     "       ogived token revoke --db PATH LABEL\n"
     "\n"
     "Administers the access tokens of an ogive database file.\n"
     "\n"
     "  create   makes a token and prints it on standard output, once: only its SHA-256 digest is\n"
-    "           stored. ROLE is reader (GetStudy, ListStudies, ListTrials, Watch), worker (+ Ask,\n"
-    "           Tell, Renew) or admin (+ CreateStudy, SetPhase). Each --study limits the token to\n"
-    "           that study (repeat it for more); without --study it may use every study. LABEL\n"
+    "           stored. ROLE is reader (GetCampaign, ListCampaigns, ListTrials, Watch), worker (+ Ask,\n"
+    "           Tell, Renew) or admin (+ CreateCampaign, SetPhase). Each --campaign limits the token to\n"
+    "           that campaign (repeat it for more); without --campaign it may use every campaign. LABEL\n"
     "           (1..64 letters, digits, '_', '-', '.', '@') names the token in trial lists, the\n"
     "           event log and the server log; labels are never reused.\n"
-    "  list     labels, roles, studies, creation and revocation times; never a token.\n"
+    "  list     labels, roles, campaigns, creation and revocation times; never a token.\n"
     "  revoke   refuses the token from now on (a running server at once).\n"
     "\n"
     "While an ogived serves PATH, the command goes through that server's admin socket\n"
@@ -50,7 +50,7 @@ struct TokenArgs {
   std::string db;
   std::string role;
   std::string label;
-  std::vector<std::string> studies;
+  std::vector<std::string> campaigns;
   std::vector<std::string> positional;
 };
 
@@ -69,7 +69,7 @@ std::string Time(int64_t unix_ms) {
   return absl::FormatTime("%Y-%m-%dT%H:%M:%SZ", absl::FromUnixMillis(unix_ms), absl::UTCTimeZone());
 }
 
-std::string Scope(const v1::TokenInfo& t) { return t.studies().empty() ? "*" : absl::StrJoin(t.studies(), ","); }
+std::string Scope(const v1::TokenInfo& t) { return t.campaigns().empty() ? "*" : absl::StrJoin(t.campaigns(), ","); }
 
 // True when another process (a running ogived) holds the database's single-writer lock.
 bool ServerHoldsDatabase(const std::string& db) {
@@ -164,23 +164,23 @@ int Create(Backend& backend, const TokenArgs& args) {
   v1::CreateTokenRequest request;
   request.set_label(args.label);
   request.set_role(args.role);
-  for (const std::string& s : args.studies) request.add_studies(s);
+  for (const std::string& s : args.campaigns) request.add_campaigns(s);
   absl::StatusOr<v1::CreateTokenResponse> created = backend.Create(request);
   if (!created.ok()) return Failed(created.status());
   std::printf("%s\n", created->secret().c_str());
   std::fflush(stdout);
   std::fprintf(stderr,
-               "ogived token: created token '%s' (role %s, studies %s). It is shown only this once and\n"
+               "ogived token: created token '%s' (role %s, campaigns %s). It is shown only this once and\n"
                "stored nowhere: keep it in a file only its users can read (ogive --token-file PATH).\n",
                created->token().label().c_str(), created->token().role().c_str(),
-               created->token().studies().empty() ? "all" : Scope(created->token()).c_str());
+               created->token().campaigns().empty() ? "all" : Scope(created->token()).c_str());
   return 0;
 }
 
 int List(Backend& backend) {
   absl::StatusOr<v1::ListTokensResponse> listed = backend.List();
   if (!listed.ok()) return Failed(listed.status());
-  std::vector<std::vector<std::string>> rows = {{"LABEL", "ROLE", "STUDIES", "CREATED", "REVOKED"}};
+  std::vector<std::vector<std::string>> rows = {{"LABEL", "ROLE", "CAMPAIGNS", "CREATED", "REVOKED"}};
   for (const v1::TokenInfo& t : listed->tokens()) {
     rows.push_back({t.label(), t.role(), Scope(t), Time(t.created_at_unix_ms()),
                     t.revoked() ? Time(t.revoked_at_unix_ms()) : "-"});
@@ -241,8 +241,8 @@ int RunTokenCommand(int argc, char** argv) {
         args.role = value;
       } else if (name == "--label") {
         args.label = value;
-      } else if (name == "--study") {
-        args.studies.push_back(value);
+      } else if (name == "--campaign") {
+        args.campaigns.push_back(value);
       } else {
         return Usage(absl::StrCat("unknown option '", name, "'"));
       }
@@ -262,11 +262,11 @@ int RunTokenCommand(int argc, char** argv) {
     if (args.role.empty()) return Usage("--role: required (reader, worker or admin)");
     if (args.label.empty()) return Usage("--label: required (it names the token in the audit)");
   } else if (args.command == "revoke") {
-    if (args.positional.size() != 1 || !args.label.empty() || !args.role.empty() || !args.studies.empty()) {
+    if (args.positional.size() != 1 || !args.label.empty() || !args.role.empty() || !args.campaigns.empty()) {
       return Usage("revoke: takes --db PATH and one LABEL");
     }
     args.label = args.positional[0];
-  } else if (!args.positional.empty() || !args.label.empty() || !args.role.empty() || !args.studies.empty()) {
+  } else if (!args.positional.empty() || !args.label.empty() || !args.role.empty() || !args.campaigns.empty()) {
     return Usage("list: takes only --db PATH");
   }
   absl::StatusOr<std::unique_ptr<Backend>> backend = OpenBackend(args);

@@ -1,6 +1,6 @@
 // `ogived token`: administration of access tokens on a database file.
 //
-//   ogived token create --db PATH --role ROLE --label LABEL [--study NAME]...
+//   ogived token create --db PATH --role ROLE --label LABEL [--campaign NAME]...
 //   ogived token list   --db PATH
 //   ogived token revoke --db PATH LABEL
 //

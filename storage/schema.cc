@@ -7,6 +7,8 @@
 namespace ogive::storage::internal {
 namespace {
 
+// Versions 1 to 3 called the resource a study; their SQL is kept as released (version 4 renames).
+//
 // Version 1: studies, their trials, generation summaries, ask requests and the event log.
 //
 // Blobs are serialized ogive.v1 messages: studies.design a StudyDesign; studies.engine an
@@ -123,12 +125,39 @@ ALTER TABLE studies DROP COLUMN engine;
 ALTER TABLE studies DROP COLUMN distribution;
 )sql";
 
+// Version 4: the resource is called a campaign. Tables and columns named after the old noun are
+// renamed; every row stays. SQLite (3.26 and later, legacy_alter_table off) carries a renamed table
+// into the other tables' foreign keys and a renamed column into the indexes on it; the two indexes
+// whose names held the old noun are made again under new names.
+//
+// From here on: campaigns (id, name, design, create_request_id, created_at_ns);
+// campaign_engines (campaign_id, engine); campaign_distributions (campaign_id, distribution);
+// trials, generations, ask_requests and events keyed by campaign_id; tokens.campaigns lists the
+// campaign names a token is limited to.
+constexpr const char kVersion4[] = R"sql(
+ALTER TABLE studies RENAME TO campaigns;
+ALTER TABLE study_engines RENAME TO campaign_engines;
+ALTER TABLE campaign_engines RENAME COLUMN study_id TO campaign_id;
+ALTER TABLE study_distributions RENAME TO campaign_distributions;
+ALTER TABLE campaign_distributions RENAME COLUMN study_id TO campaign_id;
+ALTER TABLE trials RENAME COLUMN study_id TO campaign_id;
+ALTER TABLE generations RENAME COLUMN study_id TO campaign_id;
+ALTER TABLE ask_requests RENAME COLUMN study_id TO campaign_id;
+ALTER TABLE events RENAME COLUMN study_id TO campaign_id;
+ALTER TABLE tokens RENAME COLUMN studies TO campaigns;
+DROP INDEX ask_requests_by_study;
+CREATE INDEX ask_requests_by_campaign ON ask_requests (campaign_id, id);
+DROP INDEX events_by_study;
+CREATE INDEX events_by_campaign ON events (campaign_id, id);
+)sql";
+
 // Append new steps at the end (one line each, the SQL in a constant above). Never change a step
 // that has been released.
 constexpr const char* kMigrations[] = {
     kVersion1,
     kVersion2,
     kVersion3,
+    kVersion4,
 };
 
 absl::Status VersionMismatch(int64_t found, int64_t known, absl::string_view what) {

@@ -187,9 +187,9 @@ struct SqliteStore::WriterStatements {
   Statement* savepoint = nullptr;
   Statement* release = nullptr;
   Statement* rollback_to = nullptr;
-  Statement* study_exists = nullptr;
-  Statement* study_by_name = nullptr;
-  Statement* insert_study = nullptr;
+  Statement* campaign_exists = nullptr;
+  Statement* campaign_by_name = nullptr;
+  Statement* insert_campaign = nullptr;
   Statement* upsert_trial = nullptr;
   Statement* insert_engine = nullptr;
   Statement* update_engine = nullptr;
@@ -209,37 +209,37 @@ struct SqliteStore::WriterStatements {
         {"savepoint", {"SAVEPOINT write", &savepoint}},
         {"release savepoint", {"RELEASE write", &release}},
         {"roll back to savepoint", {"ROLLBACK TO write", &rollback_to}},
-        {"find study", {"SELECT 1 FROM studies WHERE id = ?1", &study_exists}},
-        {"find study name", {"SELECT id FROM studies WHERE name = ?1", &study_by_name}},
-        {"insert study",
-         {"INSERT INTO studies (name, design, create_request_id, created_at_ns) VALUES (?1, ?2, ?3, ?4)",
-          &insert_study}},
-        {"insert engine", {"INSERT INTO study_engines (study_id, engine) VALUES (?1, ?2)", &insert_engine}},
+        {"find campaign", {"SELECT 1 FROM campaigns WHERE id = ?1", &campaign_exists}},
+        {"find campaign name", {"SELECT id FROM campaigns WHERE name = ?1", &campaign_by_name}},
+        {"insert campaign",
+         {"INSERT INTO campaigns (name, design, create_request_id, created_at_ns) VALUES (?1, ?2, ?3, ?4)",
+          &insert_campaign}},
+        {"insert engine", {"INSERT INTO campaign_engines (campaign_id, engine) VALUES (?1, ?2)", &insert_engine}},
         {"store trial",
-         {"INSERT INTO trials (study_id, number, state, worker, reported_at_ns, score, record) "
-          "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7) ON CONFLICT (study_id, number) DO UPDATE SET "
+         {"INSERT INTO trials (campaign_id, number, state, worker, reported_at_ns, score, record) "
+          "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7) ON CONFLICT (campaign_id, number) DO UPDATE SET "
           "state = excluded.state, worker = excluded.worker, "
           "reported_at_ns = excluded.reported_at_ns, score = excluded.score, "
           "record = excluded.record",
           &upsert_trial}},
-        {"store engine", {"UPDATE study_engines SET engine = ?2 WHERE study_id = ?1", &update_engine}},
+        {"store engine", {"UPDATE campaign_engines SET engine = ?2 WHERE campaign_id = ?1", &update_engine}},
         {"store distribution",
-         {"INSERT INTO study_distributions (study_id, distribution) VALUES (?1, ?2) "
-          "ON CONFLICT (study_id) DO UPDATE SET distribution = excluded.distribution",
+         {"INSERT INTO campaign_distributions (campaign_id, distribution) VALUES (?1, ?2) "
+          "ON CONFLICT (campaign_id) DO UPDATE SET distribution = excluded.distribution",
           &update_distribution}},
         {"insert generation",
-         {"INSERT INTO generations (study_id, generation, summary) VALUES (?1, ?2, ?3)",
+         {"INSERT INTO generations (campaign_id, generation, summary) VALUES (?1, ?2, ?3)",
           &insert_generation}},
         {"insert ask request",
-         {"INSERT INTO ask_requests (study_id, request_id, trials) VALUES (?1, ?2, ?3)",
+         {"INSERT INTO ask_requests (campaign_id, request_id, trials) VALUES (?1, ?2, ?3)",
           &insert_ask_request}},
         {"insert event",
-         {"INSERT INTO events (study_id, at_ns, kind, trial, worker, message, token_label) "
+         {"INSERT INTO events (campaign_id, at_ns, kind, trial, worker, message, token_label) "
           "VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
           &insert_event}},
         {"find token", {"SELECT 1 FROM tokens WHERE label = ?1", &token_exists}},
         {"insert token",
-         {"INSERT INTO tokens (label, digest, role, studies, created_at_ns, revoked_at_ns) "
+         {"INSERT INTO tokens (label, digest, role, campaigns, created_at_ns, revoked_at_ns) "
           "VALUES (?1, ?2, ?3, ?4, ?5, NULL)",
           &insert_token}},
         {"revoke token",
@@ -253,10 +253,10 @@ struct SqliteStore::WriterStatements {
   }
 };
 
-// A study's row with its engine state and distribution, in the columns ReadStudyRow reads.
-#define OGIVE_SELECT_STUDIES                                                                    \
-  "SELECT s.id, s.name, s.design, e.engine, d.distribution, s.create_request_id FROM studies s " \
-  "LEFT JOIN study_engines e ON e.study_id = s.id LEFT JOIN study_distributions d ON d.study_id = s.id"
+// A campaign's row with its engine state and distribution, in the columns ReadCampaignRow reads.
+#define OGIVE_SELECT_CAMPAIGNS                                                                    \
+  "SELECT s.id, s.name, s.design, e.engine, d.distribution, s.create_request_id FROM campaigns s " \
+  "LEFT JOIN campaign_engines e ON e.campaign_id = s.id LEFT JOIN campaign_distributions d ON d.campaign_id = s.id"
 
 struct SqliteStore::Reader {
   std::unique_ptr<Connection> connection;
@@ -264,11 +264,11 @@ struct SqliteStore::Reader {
   Statement* begin = nullptr;
   Statement* commit = nullptr;
   Statement* rollback = nullptr;
-  Statement* studies = nullptr;
-  Statement* study_by_id = nullptr;
-  Statement* study_exists = nullptr;
-  Statement* study_trials = nullptr;
-  Statement* study_ask_requests = nullptr;
+  Statement* campaigns = nullptr;
+  Statement* campaign_by_id = nullptr;
+  Statement* campaign_exists = nullptr;
+  Statement* campaign_trials = nullptr;
+  Statement* campaign_ask_requests = nullptr;
   Statement* trials_page = nullptr;
   Statement* trials_page_in_state = nullptr;
   Statement* generations = nullptr;
@@ -283,35 +283,35 @@ struct SqliteStore::Reader {
         {"begin read", {"BEGIN", &begin}},
         {"end read", {"COMMIT", &commit}},
         {"abandon read", {"ROLLBACK", &rollback}},
-        {"load studies", {OGIVE_SELECT_STUDIES " ORDER BY s.id", &studies}},
-        {"load study", {OGIVE_SELECT_STUDIES " WHERE s.id = ?1", &study_by_id}},
-        {"find study", {"SELECT 1 FROM studies WHERE id = ?1", &study_exists}},
+        {"load campaigns", {OGIVE_SELECT_CAMPAIGNS " ORDER BY s.id", &campaigns}},
+        {"load campaign", {OGIVE_SELECT_CAMPAIGNS " WHERE s.id = ?1", &campaign_by_id}},
+        {"find campaign", {"SELECT 1 FROM campaigns WHERE id = ?1", &campaign_exists}},
         {"load trials",
-         {"SELECT number, record FROM trials WHERE study_id = ?1 ORDER BY number", &study_trials}},
+         {"SELECT number, record FROM trials WHERE campaign_id = ?1 ORDER BY number", &campaign_trials}},
         {"load ask requests",
-         {"SELECT request_id, trials FROM ask_requests WHERE study_id = ?1 ORDER BY id",
-          &study_ask_requests}},
+         {"SELECT request_id, trials FROM ask_requests WHERE campaign_id = ?1 ORDER BY id",
+          &campaign_ask_requests}},
         {"list trials",
-         {"SELECT number, record FROM trials WHERE study_id = ?1 AND number > ?2 "
+         {"SELECT number, record FROM trials WHERE campaign_id = ?1 AND number > ?2 "
           "ORDER BY number LIMIT ?3",
           &trials_page}},
         {"list trials in state",
-         {"SELECT number, record FROM trials WHERE study_id = ?1 AND state = ?4 "
+         {"SELECT number, record FROM trials WHERE campaign_id = ?1 AND state = ?4 "
           "AND number > ?2 ORDER BY number LIMIT ?3",
           &trials_page_in_state}},
         {"list generations",
-         {"SELECT generation, summary FROM generations WHERE study_id = ?1 ORDER BY generation",
+         {"SELECT generation, summary FROM generations WHERE campaign_id = ?1 ORDER BY generation",
           &generations}},
         {"list generations after",
-         {"SELECT generation, summary FROM generations WHERE study_id = ?1 AND generation > ?2 "
+         {"SELECT generation, summary FROM generations WHERE campaign_id = ?1 AND generation > ?2 "
           "ORDER BY generation LIMIT ?3",
           &generations_page}},
         {"list events",
          {"SELECT at_ns, kind, trial, worker, message, token_label FROM events "
-          "WHERE study_id = ?1 ORDER BY id DESC LIMIT ?2",
+          "WHERE campaign_id = ?1 ORDER BY id DESC LIMIT ?2",
           &newest_events}},
         {"list tokens",
-         {"SELECT label, digest, role, studies, created_at_ns, revoked_at_ns FROM tokens "
+         {"SELECT label, digest, role, campaigns, created_at_ns, revoked_at_ns FROM tokens "
           "ORDER BY label",
           &tokens}},
         {"integrity check", {"PRAGMA integrity_check(20)", &integrity_check}},
@@ -322,17 +322,17 @@ struct SqliteStore::Reader {
     return absl::OkStatus();
   }
 
-  // NOT_FOUND unless the study exists. REQUIRES: inside a read transaction.
-  absl::Status CheckStudy(int64_t study_id) {
-    ResetOnExit reset(*study_exists);
-    study_exists->BindInt64(1, study_id);
-    absl::StatusOr<bool> row = study_exists->Step();
+  // NOT_FOUND unless the campaign exists. REQUIRES: inside a read transaction.
+  absl::Status CheckCampaign(int64_t campaign_id) {
+    ResetOnExit reset(*campaign_exists);
+    campaign_exists->BindInt64(1, campaign_id);
+    absl::StatusOr<bool> row = campaign_exists->Step();
     if (!row.ok()) return row.status();
-    if (!*row) return absl::NotFoundError(absl::StrCat("study id ", study_id, " does not exist"));
+    if (!*row) return absl::NotFoundError(absl::StrCat("campaign id ", campaign_id, " does not exist"));
     return absl::OkStatus();
   }
 };
-#undef OGIVE_SELECT_STUDIES
+#undef OGIVE_SELECT_CAMPAIGNS
 
 struct SqliteStore::EncodedWrite {
   struct Trial {
@@ -343,7 +343,7 @@ struct SqliteStore::EncodedWrite {
     std::optional<double> score;  // finite
     std::string record;
   };
-  struct NewStudy {
+  struct NewCampaign {
     std::string name;
     std::string design;
     std::string engine;
@@ -357,15 +357,15 @@ struct SqliteStore::EncodedWrite {
     bool revoke = false;       // false: insert the token below; true: revoke `label` at revoked_at_ns
     std::string digest;        // insert only
     std::string role;          // insert only
-    std::string studies;       // insert only: comma-separated
+    std::string campaigns;       // insert only: comma-separated
     int64_t created_at_ns = 0;  // insert only
     int64_t revoked_at_ns = 0;  // revoke only
   };
 
-  std::optional<NewStudy> create;     // set for CreateStudy
+  std::optional<NewCampaign> create;     // set for CreateCampaign
   std::optional<TokenChange> token;   // set for CreateToken and RevokeToken
   // Everything below is for Commit.
-  int64_t study_id = 0;
+  int64_t campaign_id = 0;
   int64_t chain = 0;
   absl::Status refusal;  // not OK: refused before queuing; fails in its place without being applied
   std::vector<Trial> trials;
@@ -381,7 +381,7 @@ struct SqliteStore::Job {
   Kind kind = Kind::kWrite;
   const EncodedWrite* write = nullptr;               // kWrite
   std::optional<SqliteConnectionSettings> settings;  // kInspect: out
-  // kWrite, out: the id of a new study; for a revocation 1 when this write revoked the token, 0
+  // kWrite, out: the id of a new campaign; for a revocation 1 when this write revoked the token, 0
   // when it was revoked already.
   int64_t created_id = 0;
   absl::Status status;                               // out
@@ -615,7 +615,7 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
     absl::Status lost;
     for (size_t i = 0; !applied_together && !transaction_failed && i < writes.size(); ++i) {
       Job& job = *writes[i];
-      const std::pair<int64_t, int64_t> chain{job.write->study_id, job.write->chain};
+      const std::pair<int64_t, int64_t> chain{job.write->campaign_id, job.write->chain};
       if (!job.write->refusal.ok()) {
         job.status = job.write->refusal;
         if (job.write->chain != 0) broken_chains_.insert(chain);
@@ -661,7 +661,7 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
             "the write transaction failed and nothing of this write was stored: ", end.message()));
       }
       if (!job->status.ok() && job->write->chain != 0) {
-        broken_chains_.insert({job->write->study_id, job->write->chain});
+        broken_chains_.insert({job->write->campaign_id, job->write->chain});
       }
       job->status = NameTheFile(std::move(job->status));
       if (job->status.ok()) {
@@ -698,9 +698,9 @@ void SqliteStore::RunBatch(const std::vector<Job*>& batch) {
   if (report.writes > 0 && options_.on_transaction) options_.on_transaction(report);
 }
 
-absl::Status SqliteStore::BrokenChainError(int64_t study_id) {
+absl::Status SqliteStore::BrokenChainError(int64_t campaign_id) {
   return absl::UnavailableError(absl::StrCat(
-      "study id ", study_id, ": an earlier write of this study failed; nothing of this write was stored"));
+      "campaign id ", campaign_id, ": an earlier write of this campaign failed; nothing of this write was stored"));
 }
 
 bool SqliteStore::ApplyTogether(const std::vector<Job*>& writes) {
@@ -709,7 +709,7 @@ bool SqliteStore::ApplyTogether(const std::vector<Job*>& writes) {
   std::set<std::pair<int64_t, int64_t>> broken;  // chains broken by a refusal earlier in this batch
   for (size_t i = 0; i < writes.size(); ++i) {
     const EncodedWrite& write = *writes[i]->write;
-    const std::pair<int64_t, int64_t> chain{write.study_id, write.chain};
+    const std::pair<int64_t, int64_t> chain{write.campaign_id, write.chain};
     if (!write.refusal.ok()) {
       statuses[i] = write.refusal;
       if (write.chain != 0) broken.insert(chain);
@@ -719,15 +719,15 @@ bool SqliteStore::ApplyTogether(const std::vector<Job*>& writes) {
       applied[i] = true;
     }
   }
-  // Each engine state replaces the one before: of a study's writes in this batch, only the last
-  // stores its engine state. (Its update also tells whether the study exists; if it does not, that
+  // Each engine state replaces the one before: of a campaign's writes in this batch, only the last
+  // stores its engine state. (Its update also tells whether the campaign exists; if it does not, that
   // write fails and the batch goes write by write.)
   std::vector<EngineWrite> engine(writes.size(), EngineWrite::kStore);
   std::set<int64_t> stored_later;
   for (size_t i = writes.size(); i-- > 0;) {
     const EncodedWrite& write = *writes[i]->write;
     if (!applied[i] || !write.engine.has_value() || write.create.has_value() || write.token.has_value()) continue;
-    if (!stored_later.insert(write.study_id).second) engine[i] = EngineWrite::kStoredByALaterWrite;
+    if (!stored_later.insert(write.campaign_id).second) engine[i] = EngineWrite::kStoredByALaterWrite;
   }
   for (size_t i = 0; i < writes.size(); ++i) {
     if (!applied[i]) continue;
@@ -761,7 +761,7 @@ absl::Status SqliteStore::ApplyToken(const EncodedWrite& write, int64_t& revoked
     insert.BindText(1, token.label);
     insert.BindBlob(2, token.digest);
     insert.BindText(3, token.role);
-    insert.BindText(4, token.studies);
+    insert.BindText(4, token.campaigns);
     insert.BindInt64(5, token.created_at_ns);
     absl::Status status = insert.Run();
     if (absl::IsAlreadyExists(status)) return taken;  // the digest, by a chance of 2^-128
@@ -781,23 +781,23 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id, 
   WriterStatements& s = *writer_statements_;
   if (write.token.has_value()) return ApplyToken(write, created_id);
   if (write.create.has_value()) {
-    const EncodedWrite::NewStudy& study = *write.create;
+    const EncodedWrite::NewCampaign& campaign = *write.create;
     const absl::Status taken =
-        absl::AlreadyExistsError(absl::StrCat("study name '", study.name, "' is taken"));
+        absl::AlreadyExistsError(absl::StrCat("campaign name '", campaign.name, "' is taken"));
     {
-      ResetOnExit reset(*s.study_by_name);
-      s.study_by_name->BindText(1, study.name);
-      absl::StatusOr<bool> row = s.study_by_name->Step();
+      ResetOnExit reset(*s.campaign_by_name);
+      s.campaign_by_name->BindText(1, campaign.name);
+      absl::StatusOr<bool> row = s.campaign_by_name->Step();
       if (!row.ok()) return row.status();
       if (*row) return taken;
     }
     {
-      Statement& insert = *s.insert_study;
+      Statement& insert = *s.insert_campaign;
       ResetOnExit reset(insert);
-      insert.BindText(1, study.name);
-      insert.BindBlob(2, study.design);
-      insert.BindText(3, study.request_id);
-      insert.BindInt64(4, study.created_at_ns);
+      insert.BindText(1, campaign.name);
+      insert.BindBlob(2, campaign.design);
+      insert.BindText(3, campaign.request_id);
+      insert.BindInt64(4, campaign.created_at_ns);
       absl::Status status = insert.Run();
       if (absl::IsAlreadyExists(status)) return taken;
       if (!status.ok()) return status;
@@ -806,23 +806,23 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id, 
     {
       ResetOnExit reset(*s.insert_engine);
       s.insert_engine->BindInt64(1, id);
-      s.insert_engine->BindBlob(2, study.engine);
+      s.insert_engine->BindBlob(2, campaign.engine);
       OGIVE_STORAGE_RETURN_IF_ERROR(s.insert_engine->Run());
     }
-    if (study.distribution.has_value()) {
+    if (campaign.distribution.has_value()) {
       ResetOnExit reset(*s.update_distribution);
       s.update_distribution->BindInt64(1, id);
-      s.update_distribution->BindBlob(2, *study.distribution);
+      s.update_distribution->BindBlob(2, *campaign.distribution);
       OGIVE_STORAGE_RETURN_IF_ERROR(s.update_distribution->Run());
     }
     created_id = id;
     return absl::OkStatus();
   }
 
-  const int64_t id = write.study_id;
-  auto unknown = [id] { return absl::NotFoundError(absl::StrCat("study id ", id, " does not exist")); };
-  // First, so that an unknown study is NOT_FOUND (not a foreign key failure of its rows): the engine
-  // state's row exists exactly when the study does.
+  const int64_t id = write.campaign_id;
+  auto unknown = [id] { return absl::NotFoundError(absl::StrCat("campaign id ", id, " does not exist")); };
+  // First, so that an unknown campaign is NOT_FOUND (not a foreign key failure of its rows): the engine
+  // state's row exists exactly when the campaign does.
   if (engine == EngineWrite::kStoredByALaterWrite) {
     // Nothing to store or check here (see ApplyTogether).
   } else if (write.engine.has_value()) {
@@ -832,9 +832,9 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id, 
     OGIVE_STORAGE_RETURN_IF_ERROR(s.update_engine->Run());
     if (sqlite3_changes(writer_->db()) == 0) return unknown();
   } else {
-    ResetOnExit reset(*s.study_exists);
-    s.study_exists->BindInt64(1, id);
-    absl::StatusOr<bool> row = s.study_exists->Step();
+    ResetOnExit reset(*s.campaign_exists);
+    s.campaign_exists->BindInt64(1, id);
+    absl::StatusOr<bool> row = s.campaign_exists->Step();
     if (!row.ok()) return row.status();
     if (!*row) return unknown();
   }
@@ -868,7 +868,7 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id, 
     absl::Status status = s.insert_generation->Run();
     if (absl::IsAlreadyExists(status)) {
       return absl::AlreadyExistsError(
-          absl::StrCat("study id ", id, ": generation ", generation, " is already stored"));
+          absl::StrCat("campaign id ", id, ": generation ", generation, " is already stored"));
     }
     OGIVE_STORAGE_RETURN_IF_ERROR(status);
   }
@@ -896,8 +896,8 @@ absl::Status SqliteStore::Apply(const EncodedWrite& write, int64_t& created_id, 
 
 // ---- Writes ----
 
-absl::StatusOr<int64_t> SqliteStore::CreateStudy(const std::string& name,
-                                                 const v1::StudyDesign& design,
+absl::StatusOr<int64_t> SqliteStore::CreateCampaign(const std::string& name,
+                                                 const v1::CampaignDesign& design,
                                                  const v1::EngineState& engine,
                                                  const std::string& request_id) {
   if (options_.read_only) return ReadOnlyError(path_);
@@ -905,24 +905,24 @@ absl::StatusOr<int64_t> SqliteStore::CreateStudy(const std::string& name,
   EncodedWrite write;
   // Constructed here and moved in: clang decides whether a nested struct with default member
   // initializers is default-constructible before it has read them, and refuses emplace().
-  EncodedWrite::NewStudy& study = write.create.emplace(EncodedWrite::NewStudy{});
-  study.name = name;
-  study.request_id = request_id;
-  study.created_at_ns = absl::ToUnixNanos(absl::Now());
-  if (!Serialize(design, study.design)) {
+  EncodedWrite::NewCampaign& campaign = write.create.emplace(EncodedWrite::NewCampaign{});
+  campaign.name = name;
+  campaign.request_id = request_id;
+  campaign.created_at_ns = absl::ToUnixNanos(absl::Now());
+  if (!Serialize(design, campaign.design)) {
     return absl::InvalidArgumentError(
-        absl::StrCat("study '", name, "': design does not serialize"));
+        absl::StrCat("campaign '", name, "': design does not serialize"));
   }
   v1::EngineState without_distribution = engine;
   without_distribution.clear_distribution();
-  if (!Serialize(without_distribution, study.engine)) {
+  if (!Serialize(without_distribution, campaign.engine)) {
     return absl::InvalidArgumentError(
-        absl::StrCat("study '", name, "': engine does not serialize"));
+        absl::StrCat("campaign '", name, "': engine does not serialize"));
   }
   if (engine.has_distribution()) {
-    if (!Serialize(engine.distribution(), study.distribution.emplace())) {
+    if (!Serialize(engine.distribution(), campaign.distribution.emplace())) {
       return absl::InvalidArgumentError(
-          absl::StrCat("study '", name, "': distribution does not serialize"));
+          absl::StrCat("campaign '", name, "': distribution does not serialize"));
     }
   }
   Job job;
@@ -932,14 +932,14 @@ absl::StatusOr<int64_t> SqliteStore::CreateStudy(const std::string& name,
   return job.created_id;
 }
 
-std::unique_ptr<PendingCommit> SqliteStore::CommitAsync(StudyWrite write) {
+std::unique_ptr<PendingCommit> SqliteStore::CommitAsync(CampaignWrite write) {
   if (options_.read_only) return std::make_unique<Pending>(ReadOnlyError(path_));
   EncodedWrite encoded;
-  encoded.study_id = write.study_id;
+  encoded.campaign_id = write.campaign_id;
   encoded.chain = write.chain;
   // Check and serialize here, on the caller's thread, so that the writer thread only binds.
   absl::Status checked = [&]() -> absl::Status {
-    const std::string where = absl::StrCat("study id ", write.study_id, ": ");
+    const std::string where = absl::StrCat("campaign id ", write.campaign_id, ": ");
     encoded.trials.reserve(write.trials.size());
     for (size_t i = 0; i < write.trials.size(); ++i) {
       const v1::TrialRecord& record = write.trials[i];
@@ -966,7 +966,7 @@ std::unique_ptr<PendingCommit> SqliteStore::CommitAsync(StudyWrite write) {
       }
     }
     if (write.engine.has_value()) {
-      write.engine->clear_distribution();  // stored on its own; see StudyWrite
+      write.engine->clear_distribution();  // stored on its own; see CampaignWrite
       if (!Serialize(*write.engine, encoded.engine.emplace())) {
         return absl::InvalidArgumentError(absl::StrCat(where, "engine does not serialize"));
       }
@@ -1002,7 +1002,7 @@ std::unique_ptr<PendingCommit> SqliteStore::CommitAsync(StudyWrite write) {
     // In a chain the refusal must take its place in the queue: it breaks the chain for the writes
     // queued after it.
     encoded = EncodedWrite();
-    encoded.study_id = write.study_id;
+    encoded.campaign_id = write.campaign_id;
     encoded.chain = write.chain;
     encoded.refusal = checked;
   }
@@ -1022,18 +1022,18 @@ absl::Status SqliteStore::CreateToken(const StoredToken& token) {
     return absl::InvalidArgumentError(
         absl::StrCat("role: must be reader, worker or admin, got '", token.role, "'"));
   }
-  for (const std::string& study : token.studies) {
-    if (study.empty() || study.find(',') != std::string::npos) {
+  for (const std::string& campaign : token.campaigns) {
+    if (campaign.empty() || campaign.find(',') != std::string::npos) {
       return absl::InvalidArgumentError(
-          absl::StrCat("studies: '", study, "' is not a study name (empty, or holds a comma)"));
+          absl::StrCat("campaigns: '", campaign, "' is not a campaign name (empty, or holds a comma)"));
     }
   }
   EncodedWrite write;
-  EncodedWrite::TokenChange& change = write.token.emplace(EncodedWrite::TokenChange{});  // as NewStudy above, for clang
+  EncodedWrite::TokenChange& change = write.token.emplace(EncodedWrite::TokenChange{});  // as NewCampaign above, for clang
   change.label = token.label;
   change.digest = token.digest;
   change.role = token.role;
-  change.studies = absl::StrJoin(token.studies, ",");
+  change.campaigns = absl::StrJoin(token.campaigns, ",");
   change.created_at_ns = token.created_at_ns;
   Job job;
   job.write = &write;
@@ -1045,7 +1045,7 @@ absl::StatusOr<bool> SqliteStore::RevokeToken(const std::string& label, int64_t 
   if (options_.read_only) return ReadOnlyError(path_);
   if (label.empty()) return absl::InvalidArgumentError("label: must not be empty");
   EncodedWrite write;
-  EncodedWrite::TokenChange& change = write.token.emplace(EncodedWrite::TokenChange{});  // as NewStudy above, for clang
+  EncodedWrite::TokenChange& change = write.token.emplace(EncodedWrite::TokenChange{});  // as NewCampaign above, for clang
   change.label = label;
   change.revoke = true;
   change.revoked_at_ns = at_ns;
@@ -1070,8 +1070,8 @@ absl::StatusOr<std::vector<StoredToken>> SqliteStore::ListTokens() {
       token.label = std::string(query.ColumnText(0));
       token.digest = std::string(query.ColumnBlob(1));
       token.role = std::string(query.ColumnText(2));
-      const absl::string_view studies = query.ColumnText(3);
-      if (!studies.empty()) token.studies = absl::StrSplit(studies, ',');
+      const absl::string_view campaigns = query.ColumnText(3);
+      if (!campaigns.empty()) token.campaigns = absl::StrSplit(campaigns, ',');
       token.created_at_ns = query.ColumnInt64(4);
       if (!query.ColumnIsNull(5)) token.revoked_at_ns = query.ColumnInt64(5);
     }
@@ -1107,21 +1107,21 @@ absl::Status SqliteStore::ReadTransaction(absl::FunctionRef<absl::Status(Reader&
 
 namespace {
 
-// How a load error names the study: "study 'NAME' (id N): ".
-std::string StudyWhere(const StoredStudy& study) {
-  return absl::StrCat("study '", study.name, "' (id ", study.id, "): ");
+// How a load error names the campaign: "campaign 'NAME' (id N): ".
+std::string CampaignWhere(const StoredCampaign& campaign) {
+  return absl::StrCat("campaign '", campaign.name, "' (id ", campaign.id, "): ");
 }
 
-// The study of the current row of a "load studies" or "load study" query: id, name, design, engine
+// The campaign of the current row of a "load campaigns" or "load campaign" query: id, name, design, engine
 // state and distribution, create request id.
-absl::Status ReadStudyRow(Statement& row, StoredStudy& study) {
-  study.id = row.ColumnInt64(0);
-  study.name = std::string(row.ColumnText(1));
-  const std::string where = StudyWhere(study);
-  if (!Parse(row.ColumnBlob(2), study.design)) {
+absl::Status ReadCampaignRow(Statement& row, StoredCampaign& campaign) {
+  campaign.id = row.ColumnInt64(0);
+  campaign.name = std::string(row.ColumnText(1));
+  const std::string where = CampaignWhere(campaign);
+  if (!Parse(row.ColumnBlob(2), campaign.design)) {
     return absl::DataLossError(absl::StrCat(where, "the stored design does not parse"));
   }
-  v1::EngineState& engine = *study.snapshot.mutable_engine();
+  v1::EngineState& engine = *campaign.snapshot.mutable_engine();
   if (row.ColumnIsNull(3)) return absl::DataLossError(absl::StrCat(where, "no engine state is stored"));
   if (!Parse(row.ColumnBlob(3), engine)) {
     return absl::DataLossError(absl::StrCat(where, "the stored engine state does not parse"));
@@ -1129,24 +1129,24 @@ absl::Status ReadStudyRow(Statement& row, StoredStudy& study) {
   if (!row.ColumnIsNull(4) && !Parse(row.ColumnBlob(4), *engine.mutable_distribution())) {
     return absl::DataLossError(absl::StrCat(where, "the stored distribution does not parse"));
   }
-  study.create_request_id = std::string(row.ColumnText(5));
+  campaign.create_request_id = std::string(row.ColumnText(5));
   return absl::OkStatus();
 }
 
 }  // namespace
 
-absl::Status SqliteStore::LoadTrialsAndAskRequests(Reader& r, StoredStudy& study) {
-  const std::string where = StudyWhere(study);
+absl::Status SqliteStore::LoadTrialsAndAskRequests(Reader& r, StoredCampaign& campaign) {
+  const std::string where = CampaignWhere(campaign);
   {
-    ResetOnExit reset(*r.study_trials);
-    r.study_trials->BindInt64(1, study.id);
+    ResetOnExit reset(*r.campaign_trials);
+    r.campaign_trials->BindInt64(1, campaign.id);
     while (true) {
-      absl::StatusOr<bool> row = r.study_trials->Step();
+      absl::StatusOr<bool> row = r.campaign_trials->Step();
       if (!row.ok()) return row.status();
       if (!*row) break;
-      const int64_t number = r.study_trials->ColumnInt64(0);
-      v1::TrialRecord& record = *study.snapshot.add_trials();
-      if (!Parse(r.study_trials->ColumnBlob(1), record)) {
+      const int64_t number = r.campaign_trials->ColumnInt64(0);
+      v1::TrialRecord& record = *campaign.snapshot.add_trials();
+      if (!Parse(r.campaign_trials->ColumnBlob(1), record)) {
         return absl::DataLossError(absl::StrCat(where, "the record of trial ", number, " does not parse"));
       }
       if (record.number() != number) {
@@ -1155,15 +1155,15 @@ absl::Status SqliteStore::LoadTrialsAndAskRequests(Reader& r, StoredStudy& study
       }
     }
   }
-  ResetOnExit reset(*r.study_ask_requests);
-  r.study_ask_requests->BindInt64(1, study.id);
+  ResetOnExit reset(*r.campaign_ask_requests);
+  r.campaign_ask_requests->BindInt64(1, campaign.id);
   while (true) {
-    absl::StatusOr<bool> row = r.study_ask_requests->Step();
+    absl::StatusOr<bool> row = r.campaign_ask_requests->Step();
     if (!row.ok()) return row.status();
     if (!*row) break;
-    auto& [request_id, trials] = study.ask_requests.emplace_back();
-    request_id = std::string(r.study_ask_requests->ColumnText(0));
-    const absl::string_view list = r.study_ask_requests->ColumnText(1);
+    auto& [request_id, trials] = campaign.ask_requests.emplace_back();
+    request_id = std::string(r.campaign_ask_requests->ColumnText(0));
+    const absl::string_view list = r.campaign_ask_requests->ColumnText(1);
     if (list.empty()) continue;
     for (absl::string_view item : absl::StrSplit(list, ',')) {
       int64_t number = 0;
@@ -1177,45 +1177,45 @@ absl::Status SqliteStore::LoadTrialsAndAskRequests(Reader& r, StoredStudy& study
   return absl::OkStatus();
 }
 
-absl::StatusOr<std::vector<StoredStudy>> SqliteStore::LoadAll() {
-  std::vector<StoredStudy> studies;
+absl::StatusOr<std::vector<StoredCampaign>> SqliteStore::LoadAll() {
+  std::vector<StoredCampaign> campaigns;
   absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
-    studies.clear();
+    campaigns.clear();
     {
-      ResetOnExit reset(*r.studies);
+      ResetOnExit reset(*r.campaigns);
       while (true) {
-        absl::StatusOr<bool> row = r.studies->Step();
+        absl::StatusOr<bool> row = r.campaigns->Step();
         if (!row.ok()) return row.status();
         if (!*row) break;
-        OGIVE_STORAGE_RETURN_IF_ERROR(ReadStudyRow(*r.studies, studies.emplace_back()));
+        OGIVE_STORAGE_RETURN_IF_ERROR(ReadCampaignRow(*r.campaigns, campaigns.emplace_back()));
       }
     }
-    for (StoredStudy& study : studies) OGIVE_STORAGE_RETURN_IF_ERROR(LoadTrialsAndAskRequests(r, study));
+    for (StoredCampaign& campaign : campaigns) OGIVE_STORAGE_RETURN_IF_ERROR(LoadTrialsAndAskRequests(r, campaign));
     return absl::OkStatus();
   });
   if (!status.ok()) return status;
-  return studies;
+  return campaigns;
 }
 
-absl::StatusOr<StoredStudy> SqliteStore::LoadStudy(int64_t study_id) {
-  StoredStudy study;
+absl::StatusOr<StoredCampaign> SqliteStore::LoadCampaign(int64_t campaign_id) {
+  StoredCampaign campaign;
   absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
-    study = StoredStudy();
+    campaign = StoredCampaign();
     {
-      ResetOnExit reset(*r.study_by_id);
-      r.study_by_id->BindInt64(1, study_id);
-      absl::StatusOr<bool> row = r.study_by_id->Step();
+      ResetOnExit reset(*r.campaign_by_id);
+      r.campaign_by_id->BindInt64(1, campaign_id);
+      absl::StatusOr<bool> row = r.campaign_by_id->Step();
       if (!row.ok()) return row.status();
-      if (!*row) return absl::NotFoundError(absl::StrCat("study id ", study_id, " not found"));
-      OGIVE_STORAGE_RETURN_IF_ERROR(ReadStudyRow(*r.study_by_id, study));
+      if (!*row) return absl::NotFoundError(absl::StrCat("campaign id ", campaign_id, " not found"));
+      OGIVE_STORAGE_RETURN_IF_ERROR(ReadCampaignRow(*r.campaign_by_id, campaign));
     }
-    return LoadTrialsAndAskRequests(r, study);
+    return LoadTrialsAndAskRequests(r, campaign);
   });
   if (!status.ok()) return status;
-  return study;
+  return campaign;
 }
 
-absl::StatusOr<TrialPage> SqliteStore::ListTrials(int64_t study_id,
+absl::StatusOr<TrialPage> SqliteStore::ListTrials(int64_t campaign_id,
                                                   std::optional<v1::TrialState> state,
                                                   int64_t after_number, int limit) {
   if (limit < 1)
@@ -1227,10 +1227,10 @@ absl::StatusOr<TrialPage> SqliteStore::ListTrials(int64_t study_id,
   TrialPage page;
   absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
     page = TrialPage();
-    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckStudy(study_id));
+    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckCampaign(campaign_id));
     Statement& query = state.has_value() ? *r.trials_page_in_state : *r.trials_page;
     ResetOnExit reset(query);
-    query.BindInt64(1, study_id);
+    query.BindInt64(1, campaign_id);
     query.BindInt64(2, after_number);
     query.BindInt64(3, static_cast<int64_t>(limit) + 1);  // one more tells whether a page follows
     if (state.has_value()) query.BindInt64(4, static_cast<int64_t>(*state));
@@ -1244,7 +1244,7 @@ absl::StatusOr<TrialPage> SqliteStore::ListTrials(int64_t study_id,
         break;
       }
       if (!Parse(query.ColumnBlob(1), page.trials.emplace_back())) {
-        return absl::DataLossError(absl::StrCat("study id ", study_id, ": the record of trial ",
+        return absl::DataLossError(absl::StrCat("campaign id ", campaign_id, ": the record of trial ",
                                                 number, " does not parse"));
       }
     }
@@ -1254,19 +1254,19 @@ absl::StatusOr<TrialPage> SqliteStore::ListTrials(int64_t study_id,
   return page;
 }
 
-absl::StatusOr<std::vector<v1::GenerationSummary>> SqliteStore::ListGenerations(int64_t study_id) {
+absl::StatusOr<std::vector<v1::GenerationSummary>> SqliteStore::ListGenerations(int64_t campaign_id) {
   std::vector<v1::GenerationSummary> generations;
   absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
     generations.clear();
-    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckStudy(study_id));
+    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckCampaign(campaign_id));
     ResetOnExit reset(*r.generations);
-    r.generations->BindInt64(1, study_id);
+    r.generations->BindInt64(1, campaign_id);
     while (true) {
       absl::StatusOr<bool> row = r.generations->Step();
       if (!row.ok()) return row.status();
       if (!*row) break;
       if (!Parse(r.generations->ColumnBlob(1), generations.emplace_back())) {
-        return absl::DataLossError(absl::StrCat("study id ", study_id,
+        return absl::DataLossError(absl::StrCat("campaign id ", campaign_id,
                                                 ": the summary of generation ",
                                                 r.generations->ColumnInt64(0), " does not parse"));
       }
@@ -1277,17 +1277,17 @@ absl::StatusOr<std::vector<v1::GenerationSummary>> SqliteStore::ListGenerations(
   return generations;
 }
 
-absl::StatusOr<std::vector<v1::GenerationSummary>> SqliteStore::ListGenerationsAfter(int64_t study_id,
+absl::StatusOr<std::vector<v1::GenerationSummary>> SqliteStore::ListGenerationsAfter(int64_t campaign_id,
                                                                                    int64_t after_generation,
                                                                                    int limit) {
   if (limit < 1) return absl::InvalidArgumentError(absl::StrCat("limit: must be >= 1, got ", limit));
   std::vector<v1::GenerationSummary> generations;
   absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
     generations.clear();
-    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckStudy(study_id));
+    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckCampaign(campaign_id));
     Statement& query = *r.generations_page;
     ResetOnExit reset(query);
-    query.BindInt64(1, study_id);
+    query.BindInt64(1, campaign_id);
     query.BindInt64(2, after_generation);
     query.BindInt64(3, limit);
     while (true) {
@@ -1295,7 +1295,7 @@ absl::StatusOr<std::vector<v1::GenerationSummary>> SqliteStore::ListGenerationsA
       if (!row.ok()) return row.status();
       if (!*row) break;
       if (!Parse(query.ColumnBlob(1), generations.emplace_back())) {
-        return absl::DataLossError(absl::StrCat("study id ", study_id, ": the summary of generation ",
+        return absl::DataLossError(absl::StrCat("campaign id ", campaign_id, ": the summary of generation ",
                                                 query.ColumnInt64(0), " does not parse"));
       }
     }
@@ -1305,16 +1305,16 @@ absl::StatusOr<std::vector<v1::GenerationSummary>> SqliteStore::ListGenerationsA
   return generations;
 }
 
-absl::StatusOr<std::vector<Event>> SqliteStore::ListEvents(int64_t study_id, int limit) {
+absl::StatusOr<std::vector<Event>> SqliteStore::ListEvents(int64_t campaign_id, int limit) {
   if (limit < 1)
     return absl::InvalidArgumentError(absl::StrCat("limit: must be >= 1, got ", limit));
   std::vector<Event> events;
   absl::Status status = ReadTransaction([&](Reader& r) -> absl::Status {
     events.clear();
-    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckStudy(study_id));
+    OGIVE_STORAGE_RETURN_IF_ERROR(r.CheckCampaign(campaign_id));
     Statement& query = *r.newest_events;
     ResetOnExit reset(query);
-    query.BindInt64(1, study_id);
+    query.BindInt64(1, campaign_id);
     query.BindInt64(2, limit);
     while (true) {
       absl::StatusOr<bool> row = query.Step();

@@ -1,6 +1,6 @@
 // SqliteStore: the embedded Store, one SQLite file in WAL mode (see schema.h for its tables).
 //
-// Writes: every write (Commit, CreateStudy) goes through one writer connection owned by one writer
+// Writes: every write (Commit, CreateCampaign) goes through one writer connection owned by one writer
 // thread, the only connection that ever writes or checkpoints the file (the SQLite of Debian 12
 // predates the fix for a WAL corruption bug that needs two connections writing or checkpointing at
 // once). Group commit: a caller queues its write and blocks; the writer thread takes every queued
@@ -69,7 +69,7 @@ struct SqliteStoreOptions {
   // Read connections in the pool: at most this many reads run at once. >= 1.
   int reader_connections = 4;
   // Opens the file for reading only (inspection, backups, a file that is not writable): no writer
-  // connection and no migration; Commit and CreateStudy fail with FAILED_PRECONDITION.
+  // connection and no migration; Commit and CreateCampaign fail with FAILED_PRECONDITION.
   bool read_only = false;
   // The sqlite3 VFS every connection opens the files with, by its registered name; empty for
   // SQLite's default. Tests pass a fault-injecting VFS here (tests/support/fault_vfs.h).
@@ -83,7 +83,7 @@ struct SqliteStoreOptions {
 };
 
 // What the writer has done since Open, for tests and metrics. A "write" is one Commit or
-// CreateStudy.
+// CreateCampaign.
 struct SqliteStoreStats {
   int64_t transactions = 0;         // write transactions committed
   int64_t committed_writes = 0;     // writes stored
@@ -135,19 +135,19 @@ class SqliteStore final : public Store {
 
   // Store. Errors as documented in store.h; besides, FAILED_PRECONDITION for writes on a read-only
   // store, INVALID_ARGUMENT for malformed arguments (an empty name, a trial number < 1, a limit <
-  // 1), and NOT_FOUND from the List* calls for an unknown study id.
-  absl::StatusOr<std::vector<StoredStudy>> LoadAll() override;
-  absl::StatusOr<StoredStudy> LoadStudy(int64_t study_id) override;  // that study's rows alone
-  absl::StatusOr<int64_t> CreateStudy(const std::string& name, const v1::StudyDesign& design,
+  // 1), and NOT_FOUND from the List* calls for an unknown campaign id.
+  absl::StatusOr<std::vector<StoredCampaign>> LoadAll() override;
+  absl::StatusOr<StoredCampaign> LoadCampaign(int64_t campaign_id) override;  // that campaign's rows alone
+  absl::StatusOr<int64_t> CreateCampaign(const std::string& name, const v1::CampaignDesign& design,
                                       const v1::EngineState& engine,
                                       const std::string& request_id) override;
-  std::unique_ptr<PendingCommit> CommitAsync(StudyWrite write) override;
-  absl::StatusOr<TrialPage> ListTrials(int64_t study_id, std::optional<v1::TrialState> state,
+  std::unique_ptr<PendingCommit> CommitAsync(CampaignWrite write) override;
+  absl::StatusOr<TrialPage> ListTrials(int64_t campaign_id, std::optional<v1::TrialState> state,
                                        int64_t after_number, int limit) override;
-  absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t study_id) override;
-  absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerationsAfter(int64_t study_id, int64_t after_generation,
+  absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t campaign_id) override;
+  absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerationsAfter(int64_t campaign_id, int64_t after_generation,
                                                                           int limit) override;
-  absl::StatusOr<std::vector<Event>> ListEvents(int64_t study_id, int limit) override;
+  absl::StatusOr<std::vector<Event>> ListEvents(int64_t campaign_id, int limit) override;
   absl::StatusOr<int64_t> SizeBytes() override;
   absl::Status CreateToken(const StoredToken& token) override;
   absl::StatusOr<bool> RevokeToken(const std::string& label, int64_t at_ns) override;
@@ -172,7 +172,7 @@ class SqliteStore final : public Store {
  private:
   struct Reader;            // a read connection with its prepared statements
   struct WriterStatements;  // the writer connection's prepared statements
-  struct EncodedWrite;      // a Commit or CreateStudy, serialized and checked, ready to bind
+  struct EncodedWrite;      // a Commit or CreateCampaign, serialized and checked, ready to bind
   struct Job;               // one queued unit of work for the writer thread
 
   SqliteStore(std::string path, Options options);
@@ -190,12 +190,12 @@ class SqliteStore final : public Store {
   // When a write fails in the database it rolls the transaction back, leaves every job as it was and
   // returns false. Writer thread only.
   bool ApplyTogether(const std::vector<Job*>& writes);
-  static absl::Status BrokenChainError(int64_t study_id);
+  static absl::Status BrokenChainError(int64_t campaign_id);
   // `status` with the database file named in its message when it is about the file (UNAVAILABLE,
   // DATA_LOSS, INTERNAL): an operator reading a client's error must know which file failed.
   absl::Status NameTheFile(absl::Status status) const;
   // Whether Apply stores a write's engine state: kStoredByALaterWrite when a later write of the same
-  // study in the same transaction replaces it anyway (ApplyTogether only, where a failure of that
+  // campaign in the same transaction replaces it anyway (ApplyTogether only, where a failure of that
   // later write fails the whole attempt).
   enum class EngineWrite { kStore, kStoredByALaterWrite };
   // Applies one write inside the open transaction (in a savepoint of its own, or together with the
@@ -206,8 +206,8 @@ class SqliteStore final : public Store {
 
   // Runs `read` on a free read connection inside BEGIN ... COMMIT.
   absl::Status ReadTransaction(absl::FunctionRef<absl::Status(Reader&)> read);
-  // Adds a study's trials and ask requests (in the order stored) to `study`, whose id and name are set.
-  static absl::Status LoadTrialsAndAskRequests(Reader& r, StoredStudy& study);
+  // Adds a campaign's trials and ask requests (in the order stored) to `campaign`, whose id and name are set.
+  static absl::Status LoadTrialsAndAskRequests(Reader& r, StoredCampaign& campaign);
 
   const std::string path_;
   const Options options_;
@@ -228,7 +228,7 @@ class SqliteStore final : public Store {
   size_t expected_batch_ ABSL_GUARDED_BY(mu_) = 1;
   Stats stats_ ABSL_GUARDED_BY(mu_);
 
-  // (study id, chain) of chains in which a write failed; touched by the writer thread only.
+  // (campaign id, chain) of chains in which a write failed; touched by the writer thread only.
   std::set<std::pair<int64_t, int64_t>> broken_chains_;
 
   std::thread writer_thread_;  // started last in Open, joined first in the destructor

@@ -37,6 +37,7 @@
 #include "gtest/gtest.h"
 #include "storage/schema.h"
 #include "storage/sqlite_connection.h"
+#include "storage/store_test_support.h"
 
 namespace ogive::storage {
 namespace {
@@ -45,225 +46,27 @@ using ::testing::ElementsAre;
 using ::testing::HasSubstr;
 using ::testing::Pair;
 using ::testing::SizeIs;
+using namespace ::ogive::storage::test_support;  // NOLINT(build/namespaces): test helpers
 
-const absl::Status& StatusOf(const absl::Status& status) { return status; }
-template <typename T>
-const absl::Status& StatusOf(const absl::StatusOr<T>& status_or) {
-  return status_or.status();
-}
-
-// Matches an absl::Status or absl::StatusOr whose code is `code` and whose message matches.
-MATCHER_P2(StatusIs, code, message_matcher, "") {
-  const absl::Status& status = StatusOf(arg);
-  *result_listener << "status is " << status;
-  return status.code() == code &&
-         testing::ExplainMatchResult(message_matcher, std::string(status.message()),
-                                     result_listener);
-}
-
-MATCHER(IsOk, "") {
-  const absl::Status& status = StatusOf(arg);
-  *result_listener << "status is " << status;
-  return status.ok();
-}
-
-// The bytes of a message with deterministic map order (the design holds a map).
-std::string Bytes(const google::protobuf::MessageLite& message) {
-  std::string out;
-  {
-    google::protobuf::io::StringOutputStream stream(&out);
-    google::protobuf::io::CodedOutputStream coded(&stream);
-    coded.SetSerializationDeterministic(true);
-    message.SerializeToCodedStream(&coded);
-  }
-  return out;
-}
-
-v1::StudyDesign MakeDesign(const std::string& name) {
-  v1::StudyDesign design;
-  design.set_name(name);
-  v1::Parameter* temp = design.add_parameters();
-  temp->set_name("temp");
-  temp->set_unit("degC");
-  temp->mutable_real()->set_low(20.0);
-  temp->mutable_real()->set_high(80.0);
-  v1::Parameter* passes = design.add_parameters();
-  passes->set_name("passes");
-  passes->mutable_integer()->set_low(1);
-  passes->mutable_integer()->set_high(9);
-  v1::Parameter* glaze = design.add_parameters();
-  glaze->set_name("glaze");
-  glaze->mutable_categorical()->add_options("matte");
-  glaze->mutable_categorical()->add_options("gloss");
-  design.mutable_objective()->set_direction(v1::LOWER_IS_BETTER);
-  design.set_seed(20240611);
-  (*design.mutable_start()->mutable_values())["temp"].set_real(55.5);
-  (*design.mutable_start()->mutable_values())["passes"].set_integer(3);
-  (*design.mutable_start()->mutable_values())["glaze"].set_categorical("gloss");
-  return design;
-}
-
-v1::DistributionState MakeDistribution(double mean0) {
-  v1::DistributionState distribution;
-  v1::GaussianState* gaussian = distribution.mutable_gaussian();
-  gaussian->set_dimension(2);
-  gaussian->add_mean(mean0);
-  gaussian->add_mean(-0.25);
-  gaussian->set_sigma(0.3);
-  for (double c : {1.0, 0.1, 0.1, 0.5}) gaussian->add_covariance(c);
-  distribution.mutable_categorical()->add_parameters()->add_probabilities(0.5);
-  distribution.set_population_size(6);
-  return distribution;
-}
-
-v1::EngineState MakeEngine(double mean0) {
-  v1::EngineState engine;
-  engine.set_phase(v1::STUDY_PHASE_OPEN);
-  for (uint64_t word : {11u, 22u, 33u, 44u}) engine.add_random_state(word);
-  engine.set_next_trial(1);
-  engine.set_sigma0(0.3);
-  engine.set_base_population(6);
-  *engine.mutable_distribution() = MakeDistribution(mean0);
-  return engine;
-}
-
-v1::TrialRecord MakeTrial(int64_t number, v1::TrialState state, double score = 0.0) {
-  v1::TrialRecord trial;
-  trial.set_number(number);
-  trial.set_generation(number / 7);
-  trial.add_internal(0.125 * static_cast<double>(number));
-  trial.add_internal(-0.5);
-  trial.set_state(state);
-  trial.set_worker(absl::StrCat("worker-", number % 3));
-  trial.set_leased_at_ns(1'000'000 + number);
-  trial.set_lease_deadline_ns(2'000'000 + number);
-  trial.set_consumed_by(-1);
-  if (state == v1::TRIAL_STATE_REPORTED) {
-    trial.set_outcome_kind(v1::OUTCOME_KIND_SCORE);
-    trial.set_score(score);
-    trial.set_reported_at_ns(3'000'000 + number);
-    trial.set_use(v1::OUTCOME_USE_PENDING);
-  }
-  return trial;
-}
-
-v1::GenerationSummary MakeSummary(int64_t generation) {
-  v1::GenerationSummary summary;
-  summary.set_generation(generation);
-  summary.set_population_size(6);
-  summary.add_cohort(generation * 10);
-  summary.add_mean(0.5 / static_cast<double>(generation));
-  summary.set_sigma(0.3 / static_cast<double>(generation));
-  return summary;
-}
-
-Event MakeEvent(const std::string& kind, int64_t trial, const std::string& message) {
-  Event event;
-  event.kind = kind;
-  event.trial = trial;
-  event.worker = "worker-1";
-  event.message = message;
-  event.at_ns = 5'000'000 + trial;
-  return event;
-}
-
-// Polls `condition` every millisecond; false if it is still false after `timeout`.
-bool WaitFor(const std::function<bool()>& condition, absl::Duration timeout = absl::Seconds(10)) {
-  const absl::Time deadline = absl::Now() + timeout;
-  while (!condition()) {
-    if (absl::Now() > deadline) return false;
-    absl::SleepFor(absl::Milliseconds(1));
-  }
-  return true;
-}
-
-// A raw connection to the database file, for checks from outside the store. It never checkpoints
-// on close, and it writes only while no store is open on the file.
-class RawDb {
- public:
-  explicit RawDb(const std::string& path) {
-    EXPECT_EQ(sqlite3_open_v2(path.c_str(), &db_, SQLITE_OPEN_READWRITE, nullptr), SQLITE_OK);
-    sqlite3_db_config(db_, SQLITE_DBCONFIG_NO_CKPT_ON_CLOSE, 1, nullptr);
-    sqlite3_busy_timeout(db_, 5000);
-  }
-  ~RawDb() { sqlite3_close_v2(db_); }
-  RawDb(const RawDb&) = delete;
-  RawDb& operator=(const RawDb&) = delete;
-
-  // The SQLite result code of running `sql`.
-  int Exec(const std::string& sql) {
-    return sqlite3_exec(db_, sql.c_str(), nullptr, nullptr, nullptr);
-  }
-
-  // The first column of the first row of `sql`, or "<error ...>".
-  std::string Text(const std::string& sql) {
-    sqlite3_stmt* stmt = nullptr;
-    if (sqlite3_prepare_v2(db_, sql.c_str(), -1, &stmt, nullptr) != SQLITE_OK) {
-      return absl::StrCat("<error ", sqlite3_errmsg(db_), ">");
-    }
-    std::string text = "<no row>";
-    if (sqlite3_step(stmt) == SQLITE_ROW) {
-      const unsigned char* value = sqlite3_column_text(stmt, 0);
-      text = value == nullptr ? "<null>" : reinterpret_cast<const char*>(value);
-    }
-    sqlite3_finalize(stmt);
-    return text;
-  }
-
- private:
-  sqlite3* db_ = nullptr;
-};
-
-class SqliteStoreTest : public testing::Test {
- protected:
-  void SetUp() override {
-    std::string pattern = testing::TempDir() + "ogive_storage_XXXXXX";
-    ASSERT_NE(mkdtemp(pattern.data()), nullptr);
-    dir_ = pattern;
-    path_ = dir_ + "/ogive.db";
-  }
-
-  void TearDown() override {
-    std::error_code error;
-    std::filesystem::remove_all(dir_, error);
-  }
-
-  std::unique_ptr<SqliteStore> OpenStore(SqliteStore::Options options = SqliteStore::Options()) {
-    absl::StatusOr<std::unique_ptr<SqliteStore>> store = SqliteStore::Open(path_, options);
-    EXPECT_THAT(store, IsOk());
-    return store.ok() ? *std::move(store) : nullptr;
-  }
-
-  // Creates study `name` with MakeDesign/MakeEngine and returns its id (0 on failure).
-  static int64_t Create(SqliteStore& store, const std::string& name) {
-    absl::StatusOr<int64_t> id =
-        store.CreateStudy(name, MakeDesign(name), MakeEngine(0.5), "create-" + name);
-    EXPECT_THAT(id, IsOk());
-    return id.ok() ? *id : 0;
-  }
-
-  std::string dir_;
-  std::string path_;
-};
 
 TEST_F(SqliteStoreTest, CreateAndLoadRoundTripsEveryByte) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
-  const v1::StudyDesign design = MakeDesign("alpha");
+  const v1::CampaignDesign design = MakeDesign("alpha");
   const v1::EngineState created_engine = MakeEngine(0.5);
-  absl::StatusOr<int64_t> alpha = store->CreateStudy("alpha", design, created_engine, "req-1");
+  absl::StatusOr<int64_t> alpha = store->CreateCampaign("alpha", design, created_engine, "req-1");
   ASSERT_THAT(alpha, IsOk());
   v1::EngineState bare_engine = MakeEngine(0.0);
   bare_engine.clear_distribution();
   absl::StatusOr<int64_t> beta =
-      store->CreateStudy("beta", MakeDesign("beta"), bare_engine, "req-2");
+      store->CreateCampaign("beta", MakeDesign("beta"), bare_engine, "req-2");
   ASSERT_THAT(beta, IsOk());
   EXPECT_GT(*beta, *alpha);
 
   // Trials out of number order; the engine carries a distribution that must be ignored, and the
   // distribution comes separately.
-  StudyWrite write;
-  write.study_id = *alpha;
+  CampaignWrite write;
+  write.campaign_id = *alpha;
   write.trials = {MakeTrial(3, v1::TRIAL_STATE_VOIDED), MakeTrial(1, v1::TRIAL_STATE_LEASED),
                   MakeTrial(2, v1::TRIAL_STATE_REPORTED, 1.5)};
   v1::EngineState next_engine = MakeEngine(9.0);  // its distribution is ignored
@@ -276,10 +79,10 @@ TEST_F(SqliteStoreTest, CreateAndLoadRoundTripsEveryByte) {
   write.events = {MakeEvent("ask", 1, "asked for 3")};
   ASSERT_THAT(store->Commit(write), IsOk());
 
-  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  absl::StatusOr<std::vector<StoredCampaign>> loaded = store->LoadAll();
   ASSERT_THAT(loaded, IsOk());
   ASSERT_THAT(*loaded, SizeIs(2));
-  const StoredStudy& a = (*loaded)[0];
+  const StoredCampaign& a = (*loaded)[0];
   EXPECT_EQ(a.id, *alpha);
   EXPECT_EQ(a.name, "alpha");
   EXPECT_EQ(a.create_request_id, "req-1");
@@ -296,8 +99,8 @@ TEST_F(SqliteStoreTest, CreateAndLoadRoundTripsEveryByte) {
   EXPECT_EQ(Bytes(a.snapshot.trials(2)), Bytes(MakeTrial(3, v1::TRIAL_STATE_VOIDED)));
   EXPECT_THAT(a.ask_requests, ElementsAre(Pair("ask-7", ElementsAre(1, 2, 3))));
 
-  // The study without commits keeps its initial engine; without a distribution it has none.
-  const StoredStudy& b = (*loaded)[1];
+  // The campaign without commits keeps its initial engine; without a distribution it has none.
+  const StoredCampaign& b = (*loaded)[1];
   EXPECT_EQ(b.name, "beta");
   EXPECT_FALSE(b.snapshot.engine().has_distribution());
   EXPECT_EQ(Bytes(b.snapshot.engine()), Bytes(bare_engine));
@@ -309,7 +112,7 @@ TEST_F(SqliteStoreTest, CreatedEngineKeepsItsDistribution) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
   const int64_t id = Create(*store, "alpha");
-  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  absl::StatusOr<std::vector<StoredCampaign>> loaded = store->LoadAll();
   ASSERT_THAT(loaded, IsOk());
   ASSERT_THAT(*loaded, SizeIs(1));
   EXPECT_EQ((*loaded)[0].id, id);
@@ -321,25 +124,25 @@ TEST_F(SqliteStoreTest, CommitReplacesTrialsByNumberAndAppendsGenerationsAndEven
   ASSERT_NE(store, nullptr);
   const int64_t id = Create(*store, "alpha");
 
-  StudyWrite ask;
-  ask.study_id = id;
+  CampaignWrite ask;
+  ask.campaign_id = id;
   ask.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED), MakeTrial(2, v1::TRIAL_STATE_LEASED)};
   ask.generations = {MakeSummary(1)};
   ask.events = {MakeEvent("ask", 1, "first"), MakeEvent("ask", 2, "second")};
   ASSERT_THAT(store->Commit(ask), IsOk());
 
-  StudyWrite tell;
-  tell.study_id = id;
+  CampaignWrite tell;
+  tell.campaign_id = id;
   tell.trials = {MakeTrial(1, v1::TRIAL_STATE_REPORTED, -2.25)};
   tell.engine = MakeEngine(7.0);  // distribution inside is ignored: the stored one stays
   tell.generations = {MakeSummary(2), MakeSummary(3)};
   tell.events = {MakeEvent("tell", 1, "third")};
   ASSERT_THAT(store->Commit(tell), IsOk());
 
-  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  absl::StatusOr<std::vector<StoredCampaign>> loaded = store->LoadAll();
   ASSERT_THAT(loaded, IsOk());
   ASSERT_THAT(*loaded, SizeIs(1));
-  const v1::StudySnapshot& snapshot = (*loaded)[0].snapshot;
+  const v1::CampaignSnapshot& snapshot = (*loaded)[0].snapshot;
   ASSERT_EQ(snapshot.trials_size(), 2);
   EXPECT_EQ(Bytes(snapshot.trials(0)), Bytes(MakeTrial(1, v1::TRIAL_STATE_REPORTED, -2.25)));
   EXPECT_EQ(Bytes(snapshot.trials(1)), Bytes(MakeTrial(2, v1::TRIAL_STATE_LEASED)));
@@ -399,8 +202,8 @@ TEST_F(SqliteStoreTest, CommitReplacesTrialsByNumberAndAppendsGenerationsAndEven
   EXPECT_EQ((*newest)[1].message, "third");
 
   // Replacing the distribution alone leaves the engine's other fields.
-  StudyWrite update;
-  update.study_id = id;
+  CampaignWrite update;
+  update.campaign_id = id;
   update.distribution = MakeDistribution(-3.0);
   ASSERT_THAT(store->Commit(update), IsOk());
   loaded = store->LoadAll();
@@ -415,15 +218,15 @@ TEST_F(SqliteStoreTest, ListTrialsPagesInNumberOrderAndFiltersByState) {
   ASSERT_NE(store, nullptr);
   const int64_t id = Create(*store, "alpha");
   const int64_t other = Create(*store, "beta");
-  StudyWrite write;
-  write.study_id = id;
+  CampaignWrite write;
+  write.campaign_id = id;
   for (int64_t n = 25; n >= 1; --n) {  // reverse order on purpose
     write.trials.push_back(n % 2 == 0 ? MakeTrial(n, v1::TRIAL_STATE_REPORTED, 0.5 * n)
                                       : MakeTrial(n, v1::TRIAL_STATE_LEASED));
   }
   ASSERT_THAT(store->Commit(write), IsOk());
-  StudyWrite noise;  // trials of another study never show up
-  noise.study_id = other;
+  CampaignWrite noise;  // trials of another campaign never show up
+  noise.campaign_id = other;
   noise.trials = {MakeTrial(1, v1::TRIAL_STATE_REPORTED, 1.0)};
   ASSERT_THAT(store->Commit(noise), IsOk());
 
@@ -477,11 +280,11 @@ TEST_F(SqliteStoreTest, TakenNameIsAlreadyExists) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
   Create(*store, "alpha");
-  EXPECT_THAT(store->CreateStudy("alpha", MakeDesign("alpha"), MakeEngine(1.0), "again"),
-              StatusIs(absl::StatusCode::kAlreadyExists, HasSubstr("study name 'alpha' is taken")));
-  EXPECT_THAT(store->CreateStudy("", MakeDesign(""), MakeEngine(1.0), "r"),
+  EXPECT_THAT(store->CreateCampaign("alpha", MakeDesign("alpha"), MakeEngine(1.0), "again"),
+              StatusIs(absl::StatusCode::kAlreadyExists, HasSubstr("campaign name 'alpha' is taken")));
+  EXPECT_THAT(store->CreateCampaign("", MakeDesign(""), MakeEngine(1.0), "r"),
               StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("name")));
-  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  absl::StatusOr<std::vector<StoredCampaign>> loaded = store->LoadAll();
   ASSERT_THAT(loaded, IsOk());
   ASSERT_THAT(*loaded, SizeIs(1));
   EXPECT_EQ((*loaded)[0].create_request_id, "create-alpha");
@@ -494,8 +297,8 @@ TEST_F(SqliteStoreTest, NonFiniteScoreIsRefusedAndNothingOfTheWriteIsStored) {
   for (double bad :
        {std::numeric_limits<double>::quiet_NaN(), std::numeric_limits<double>::infinity(),
         -std::numeric_limits<double>::infinity()}) {
-    StudyWrite write;
-    write.study_id = id;
+    CampaignWrite write;
+    write.campaign_id = id;
     write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED),
                     MakeTrial(2, v1::TRIAL_STATE_REPORTED, bad)};
     write.generations = {MakeSummary(1)};
@@ -504,13 +307,13 @@ TEST_F(SqliteStoreTest, NonFiniteScoreIsRefusedAndNothingOfTheWriteIsStored) {
                                                HasSubstr("trials[1].score (trial 2)")))
         << bad;
   }
-  StudyWrite bad_number;
-  bad_number.study_id = id;
+  CampaignWrite bad_number;
+  bad_number.campaign_id = id;
   bad_number.trials = {MakeTrial(0, v1::TRIAL_STATE_LEASED)};
   EXPECT_THAT(store->Commit(bad_number),
               StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("trials[0].number")));
 
-  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  absl::StatusOr<std::vector<StoredCampaign>> loaded = store->LoadAll();
   ASSERT_THAT(loaded, IsOk());
   EXPECT_EQ((*loaded)[0].snapshot.trials_size(), 0);
   absl::StatusOr<std::vector<Event>> events = store->ListEvents(id, 10);
@@ -528,7 +331,7 @@ TEST_F(SqliteStoreTest, ConcurrentRefusedWritesFailAloneAndTheOthersCommit) {
   const int64_t id = Create(*store, "alpha");
   constexpr int kThreads = 8;
   constexpr int kPerThread = 40;
-  // Every 4th write has a NaN score, every 5th names a study that does not exist.
+  // Every 4th write has a NaN score, every 5th names a campaign that does not exist.
   auto kind_of = [](int64_t number) { return number % 4 == 0 ? 1 : (number % 5 == 0 ? 2 : 0); };
   std::vector<std::vector<absl::Status>> results(kThreads);
   std::vector<std::thread> threads;
@@ -536,8 +339,8 @@ TEST_F(SqliteStoreTest, ConcurrentRefusedWritesFailAloneAndTheOthersCommit) {
     threads.emplace_back([&, t] {
       for (int i = 0; i < kPerThread; ++i) {
         const int64_t number = t * kPerThread + i + 1;
-        StudyWrite write;
-        write.study_id = kind_of(number) == 2 ? id + 1000 : id;
+        CampaignWrite write;
+        write.campaign_id = kind_of(number) == 2 ? id + 1000 : id;
         write.trials = {MakeTrial(number, v1::TRIAL_STATE_REPORTED,
                                   kind_of(number) == 1 ? std::nan("") : 0.25 * number)};
         write.events = {MakeEvent("tell", number, "t")};
@@ -567,9 +370,9 @@ TEST_F(SqliteStoreTest, ConcurrentRefusedWritesFailAloneAndTheOthersCommit) {
       }
     }
   }
-  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  absl::StatusOr<std::vector<StoredCampaign>> loaded = store->LoadAll();
   ASSERT_THAT(loaded, IsOk());
-  const v1::StudySnapshot& snapshot = (*loaded)[0].snapshot;
+  const v1::CampaignSnapshot& snapshot = (*loaded)[0].snapshot;
   ASSERT_EQ(snapshot.trials_size(), expected_stored);
   for (const v1::TrialRecord& trial : snapshot.trials()) {
     EXPECT_EQ(kind_of(trial.number()), 0) << trial.number();
@@ -610,8 +413,8 @@ TEST_F(SqliteStoreTest, FailingWritesInABatchRollBackAloneAndOnlyTheirCallersSee
   WriteLockHolder lock(path_);
   // X: taken alone by the writer thread, which then waits for the lock.
   absl::Status x_status;
-  StudyWrite x;
-  x.study_id = id;
+  CampaignWrite x;
+  x.campaign_id = id;
   x.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED)};
   x.generations = {MakeSummary(1)};
   std::thread x_thread([&] { x_status = store->Commit(x); });
@@ -621,16 +424,16 @@ TEST_F(SqliteStoreTest, FailingWritesInABatchRollBackAloneAndOnlyTheirCallersSee
   }));
 
   // Then four writes queue up behind it, in this order, and form the next batch.
-  std::vector<StudyWrite> writes(4);
-  writes[0].study_id = id + 41;  // unknown study
+  std::vector<CampaignWrite> writes(4);
+  writes[0].campaign_id = id + 41;  // unknown campaign
   writes[0].trials = {MakeTrial(5, v1::TRIAL_STATE_LEASED)};
-  writes[1].study_id = id;  // fine
+  writes[1].campaign_id = id;  // fine
   writes[1].trials = {MakeTrial(2, v1::TRIAL_STATE_LEASED)};
-  writes[2].study_id = id;  // its trial is written, then its generation collides: all undone
+  writes[2].campaign_id = id;  // its trial is written, then its generation collides: all undone
   writes[2].trials = {MakeTrial(3, v1::TRIAL_STATE_LEASED)};
   writes[2].events = {MakeEvent("ask", 3, "never stored")};
   writes[2].generations = {MakeSummary(1)};
-  writes[3].study_id = id;  // fine
+  writes[3].campaign_id = id;  // fine
   writes[3].events = {MakeEvent("phase", 0, "stored")};
   std::vector<absl::Status> statuses(writes.size());
   std::vector<std::thread> threads;
@@ -657,10 +460,10 @@ TEST_F(SqliteStoreTest, FailingWritesInABatchRollBackAloneAndOnlyTheirCallersSee
   // X committed whole; the batch of four was tried whole, then again write by write.
   EXPECT_EQ(after.isolated_batches - before.isolated_batches, 1);
 
-  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  absl::StatusOr<std::vector<StoredCampaign>> loaded = store->LoadAll();
   ASSERT_THAT(loaded, IsOk());
   ASSERT_THAT(*loaded, SizeIs(1));
-  const v1::StudySnapshot& snapshot = (*loaded)[0].snapshot;
+  const v1::CampaignSnapshot& snapshot = (*loaded)[0].snapshot;
   ASSERT_EQ(snapshot.trials_size(), 2);
   EXPECT_EQ(snapshot.trials(0).number(), 1);
   EXPECT_EQ(snapshot.trials(1).number(), 2);
@@ -670,18 +473,18 @@ TEST_F(SqliteStoreTest, FailingWritesInABatchRollBackAloneAndOnlyTheirCallersSee
   EXPECT_EQ((*events)[0].message, "stored");
 }
 
-// A batch holding several writes of one study stores each write's rows and the engine state of its
+// A batch holding several writes of one campaign stores each write's rows and the engine state of its
 // last applied write (the engine states before it are replaced within the transaction); a write
 // refused before queuing does not count as the last.
-TEST_F(SqliteStoreTest, ABatchStoresTheEngineStateOfEachStudysLastAppliedWrite) {
+TEST_F(SqliteStoreTest, ABatchStoresTheEngineStateOfEachCampaignsLastAppliedWrite) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
   const int64_t alpha = Create(*store, "alpha");
   const int64_t beta = Create(*store, "beta");
   const SqliteStore::Stats before = store->stats();
-  auto write = [](int64_t study, int64_t next_trial, double score) {
-    StudyWrite w;
-    w.study_id = study;
+  auto write = [](int64_t campaign, int64_t next_trial, double score) {
+    CampaignWrite w;
+    w.campaign_id = campaign;
     w.chain = 5;  // a refusal in a chain takes its place in the queue
     w.trials = {MakeTrial(next_trial - 1, v1::TRIAL_STATE_REPORTED, score)};
     v1::EngineState engine = MakeEngine(0.5);
@@ -690,7 +493,7 @@ TEST_F(SqliteStoreTest, ABatchStoresTheEngineStateOfEachStudysLastAppliedWrite) 
     w.engine = engine;
     return w;
   };
-  std::vector<StudyWrite> writes = {write(alpha, 2, 1.0), write(beta, 2, 1.0), write(alpha, 3, 2.0),
+  std::vector<CampaignWrite> writes = {write(alpha, 2, 1.0), write(beta, 2, 1.0), write(alpha, 3, 2.0),
                                     write(beta, 3, std::nan("")),  // refused before queuing
                                     write(alpha, 4, 3.0)};
   std::vector<absl::Status> statuses(writes.size());
@@ -717,14 +520,14 @@ TEST_F(SqliteStoreTest, ABatchStoresTheEngineStateOfEachStudysLastAppliedWrite) 
   EXPECT_EQ(after.transactions - before.transactions, 2);
   EXPECT_EQ(after.isolated_batches - before.isolated_batches, 0);
 
-  absl::StatusOr<StoredStudy> a = store->LoadStudy(alpha);
+  absl::StatusOr<StoredCampaign> a = store->LoadCampaign(alpha);
   ASSERT_THAT(a, IsOk());
   EXPECT_EQ(a->snapshot.engine().next_trial(), 4);
   EXPECT_EQ(a->snapshot.engine().report_sequence(), 40);
   EXPECT_EQ(a->snapshot.engine().distribution().population_size(), 6);  // the distribution is untouched
   ASSERT_EQ(a->snapshot.trials_size(), 3);
   EXPECT_EQ(a->snapshot.trials(2).score(), 3.0);
-  absl::StatusOr<StoredStudy> b = store->LoadStudy(beta);
+  absl::StatusOr<StoredCampaign> b = store->LoadCampaign(beta);
   ASSERT_THAT(b, IsOk());
   EXPECT_EQ(b->snapshot.engine().next_trial(), 2);  // its last write was refused
   EXPECT_EQ(b->snapshot.trials_size(), 1);
@@ -736,8 +539,8 @@ TEST_F(SqliteStoreTest, LockedDatabaseIsUnavailableAndReadsKeepWorking) {
   std::unique_ptr<SqliteStore> store = OpenStore(options);
   ASSERT_NE(store, nullptr);
   const int64_t id = Create(*store, "alpha");
-  StudyWrite write;
-  write.study_id = id;
+  CampaignWrite write;
+  write.campaign_id = id;
   write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED)};
   {
     WriteLockHolder lock(path_);
@@ -745,10 +548,10 @@ TEST_F(SqliteStoreTest, LockedDatabaseIsUnavailableAndReadsKeepWorking) {
     EXPECT_THAT(store->Commit(write),
                 StatusIs(absl::StatusCode::kUnavailable,
                          testing::AllOf(HasSubstr("locked"), HasSubstr(path_))));
-    EXPECT_THAT(store->CreateStudy("beta", MakeDesign("beta"), MakeEngine(0.0), "r"),
+    EXPECT_THAT(store->CreateCampaign("beta", MakeDesign("beta"), MakeEngine(0.0), "r"),
                 StatusIs(absl::StatusCode::kUnavailable, HasSubstr("write transaction")));
     // Reads do not wait for a writer.
-    absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+    absl::StatusOr<std::vector<StoredCampaign>> loaded = store->LoadAll();
     ASSERT_THAT(loaded, IsOk());
     EXPECT_THAT(*loaded, SizeIs(1));
   }
@@ -784,19 +587,19 @@ TEST_F(SqliteStoreTest, EveryConnectionIsWalWithSynchronousFull) {
   EXPECT_EQ(raw.Text("PRAGMA journal_mode"), "wal");
   EXPECT_EQ(raw.Text("PRAGMA user_version"), absl::StrCat(SqliteStore::schema_version()));
   // Version 3's layout: ask requests in the order of the asks, no index by trial state.
-  EXPECT_EQ(raw.Text("SELECT count(*) FROM sqlite_master WHERE name = 'ask_requests_by_study'"), "1");
+  EXPECT_EQ(raw.Text("SELECT count(*) FROM sqlite_master WHERE name = 'ask_requests_by_campaign'"), "1");
   EXPECT_EQ(raw.Text("SELECT count(*) FROM sqlite_master WHERE name = 'trials_by_state'"), "0");
 }
 
 TEST_F(SqliteStoreTest, GroupCommitSharesTransactionsAndKeepsEveryWrite) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
-  constexpr int kStudies = 4;
+  constexpr int kCampaigns = 4;
   constexpr int kThreads = 16;
   constexpr int kPerThread = 200;
   constexpr int kCommits = kThreads * kPerThread;
   std::vector<int64_t> ids;
-  for (int s = 0; s < kStudies; ++s) ids.push_back(Create(*store, absl::StrCat("study-", s)));
+  for (int s = 0; s < kCampaigns; ++s) ids.push_back(Create(*store, absl::StrCat("campaign-", s)));
   const SqliteStore::Stats before = store->stats();
 
   std::vector<int> failures(kThreads, 0);
@@ -805,10 +608,10 @@ TEST_F(SqliteStoreTest, GroupCommitSharesTransactionsAndKeepsEveryWrite) {
   for (int t = 0; t < kThreads; ++t) {
     threads.emplace_back([&, t] {
       for (int i = 0; i < kPerThread; ++i) {
-        // Thread t writes trials t, t + 16, t + 32, ... of study t % 4: numbers never collide.
+        // Thread t writes trials t, t + 16, t + 32, ... of campaign t % 4: numbers never collide.
         const int64_t number = static_cast<int64_t>(i) * kThreads + t + 1;
-        StudyWrite write;
-        write.study_id = ids[static_cast<size_t>(t % kStudies)];
+        CampaignWrite write;
+        write.campaign_id = ids[static_cast<size_t>(t % kCampaigns)];
         write.trials = {MakeTrial(number, v1::TRIAL_STATE_REPORTED, 0.5 * number)};
         write.events = {MakeEvent("tell", number, absl::StrCat("thread ", t))};
         if (!store->Commit(std::move(write)).ok()) ++failures[static_cast<size_t>(t)];
@@ -836,24 +639,24 @@ TEST_F(SqliteStoreTest, GroupCommitSharesTransactionsAndKeepsEveryWrite) {
   RecordProperty("transactions", static_cast<int>(transactions));
 
   auto check_all_stored = [&](SqliteStore& s) {
-    absl::StatusOr<std::vector<StoredStudy>> loaded = s.LoadAll();
+    absl::StatusOr<std::vector<StoredCampaign>> loaded = s.LoadAll();
     ASSERT_THAT(loaded, IsOk());
-    ASSERT_THAT(*loaded, SizeIs(kStudies));
+    ASSERT_THAT(*loaded, SizeIs(kCampaigns));
     int total = 0;
-    for (const StoredStudy& study : *loaded) {
+    for (const StoredCampaign& campaign : *loaded) {
       int64_t previous = 0;
-      for (const v1::TrialRecord& trial : study.snapshot.trials()) {
+      for (const v1::TrialRecord& trial : campaign.snapshot.trials()) {
         EXPECT_GT(trial.number(), previous);
         previous = trial.number();
         EXPECT_EQ(Bytes(trial), Bytes(MakeTrial(trial.number(), v1::TRIAL_STATE_REPORTED,
                                                 0.5 * static_cast<double>(trial.number()))));
-        EXPECT_EQ(static_cast<int64_t>((trial.number() - 1) % kThreads) % kStudies,
-                  study.id - ids[0]);
+        EXPECT_EQ(static_cast<int64_t>((trial.number() - 1) % kThreads) % kCampaigns,
+                  campaign.id - ids[0]);
       }
-      total += study.snapshot.trials_size();
-      absl::StatusOr<std::vector<Event>> events = s.ListEvents(study.id, kCommits);
+      total += campaign.snapshot.trials_size();
+      absl::StatusOr<std::vector<Event>> events = s.ListEvents(campaign.id, kCommits);
       ASSERT_THAT(events, IsOk());
-      EXPECT_EQ(static_cast<int>(events->size()), study.snapshot.trials_size());
+      EXPECT_EQ(static_cast<int>(events->size()), campaign.snapshot.trials_size());
     }
     EXPECT_EQ(total, kCommits);
   };
@@ -879,8 +682,8 @@ TEST_F(SqliteStoreTest, GroupCommitWindowWaitsForABatchOnlyUnderLoad) {
   const int64_t id = Create(*store, "alpha");
   int64_t number = 0;
   auto write = [&](int64_t n) {
-    StudyWrite w;
-    w.study_id = id;
+    CampaignWrite w;
+    w.campaign_id = id;
     w.trials = {MakeTrial(n, v1::TRIAL_STATE_REPORTED, 1.0)};
     return w;
   };
@@ -929,8 +732,8 @@ TEST_F(SqliteStoreTest, GroupCommitWindowOfZeroNeverWaits) {
   for (int t = 0; t < 4; ++t) {
     threads.emplace_back([&] {
       for (int i = 0; i < 20; ++i) {
-        StudyWrite w;
-        w.study_id = id;
+        CampaignWrite w;
+        w.campaign_id = id;
         w.trials = {MakeTrial(++next, v1::TRIAL_STATE_LEASED)};
         EXPECT_THAT(store->Commit(std::move(w)), IsOk());
       }
@@ -948,16 +751,16 @@ TEST_F(SqliteStoreTest, ReopeningGivesTheSameDataAndTheLogIsFoldedOnClose) {
     ASSERT_NE(store, nullptr);
     const int64_t id = Create(*store, "alpha");
     Create(*store, "beta");
-    StudyWrite write;
-    write.study_id = id;
+    CampaignWrite write;
+    write.campaign_id = id;
     write.trials = {MakeTrial(1, v1::TRIAL_STATE_REPORTED, 3.0),
                     MakeTrial(2, v1::TRIAL_STATE_LAPSED)};
     write.ask_request = std::make_pair(std::string("a"), std::vector<int64_t>{1, 2});
     write.distribution = MakeDistribution(0.1);
     ASSERT_THAT(store->Commit(write), IsOk());
-    absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+    absl::StatusOr<std::vector<StoredCampaign>> loaded = store->LoadAll();
     ASSERT_THAT(loaded, IsOk());
-    for (const StoredStudy& s : *loaded) {
+    for (const StoredCampaign& s : *loaded) {
       absl::StrAppend(&before, s.id, s.name, Bytes(s.design), Bytes(s.snapshot),
                       s.create_request_id, s.ask_requests.size());
     }
@@ -970,10 +773,10 @@ TEST_F(SqliteStoreTest, ReopeningGivesTheSameDataAndTheLogIsFoldedOnClose) {
 
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
-  absl::StatusOr<std::vector<StoredStudy>> loaded = store->LoadAll();
+  absl::StatusOr<std::vector<StoredCampaign>> loaded = store->LoadAll();
   ASSERT_THAT(loaded, IsOk());
   std::string after;
-  for (const StoredStudy& s : *loaded) {
+  for (const StoredCampaign& s : *loaded) {
     absl::StrAppend(&after, s.id, s.name, Bytes(s.design), Bytes(s.snapshot), s.create_request_id,
                     s.ask_requests.size());
   }
@@ -983,12 +786,12 @@ TEST_F(SqliteStoreTest, ReopeningGivesTheSameDataAndTheLogIsFoldedOnClose) {
   EXPECT_GT(Create(*store, "gamma"), (*loaded)[1].id);
 }
 
-TEST_F(SqliteStoreTest, UnknownStudyIsNotFoundWithOrWithoutAnEngineState) {
+TEST_F(SqliteStoreTest, UnknownCampaignIsNotFoundWithOrWithoutAnEngineState) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
   const int64_t id = Create(*store, "alpha");
-  StudyWrite write;
-  write.study_id = id + 1;
+  CampaignWrite write;
+  write.campaign_id = id + 1;
   write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED)};
   write.events = {MakeEvent("ask", 1, "never stored")};
   EXPECT_THAT(store->Commit(write), StatusIs(absl::StatusCode::kNotFound, HasSubstr("does not exist")));
@@ -999,27 +802,27 @@ TEST_F(SqliteStoreTest, UnknownStudyIsNotFoundWithOrWithoutAnEngineState) {
   EXPECT_EQ(raw.Text("SELECT count(*) FROM events"), "0");
 }
 
-// LoadStudy reads one study's rows alone (the host reloads a study after a failed commit, and
-// should not read every other study to do it); what it returns is what LoadAll returns for it.
-TEST_F(SqliteStoreTest, LoadStudyReturnsWhatLoadAllHoldsForThatStudyAndNotFoundForAnUnknownId) {
+// LoadCampaign reads one campaign's rows alone (the host reloads a campaign after a failed commit, and
+// should not read every other campaign to do it); what it returns is what LoadAll returns for it.
+TEST_F(SqliteStoreTest, LoadCampaignReturnsWhatLoadAllHoldsForThatCampaignAndNotFoundForAnUnknownId) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
   const int64_t alpha = Create(*store, "alpha");
   const int64_t beta = Create(*store, "beta");
   for (const int64_t id : {alpha, beta}) {
     for (int64_t n = 1; n <= 3; ++n) {
-      StudyWrite write;
-      write.study_id = id;
+      CampaignWrite write;
+      write.campaign_id = id;
       write.trials = {MakeTrial(n, n == 2 ? v1::TRIAL_STATE_REPORTED : v1::TRIAL_STATE_LEASED, 0.5 * n + id)};
       write.ask_request = std::make_pair(absl::StrCat("ask-", id, "-", n), std::vector<int64_t>{n});
       ASSERT_THAT(store->Commit(write), IsOk());
     }
   }
-  absl::StatusOr<std::vector<StoredStudy>> all = store->LoadAll();
+  absl::StatusOr<std::vector<StoredCampaign>> all = store->LoadAll();
   ASSERT_THAT(all, IsOk());
   ASSERT_THAT(*all, SizeIs(2));
-  for (const StoredStudy& expected : *all) {
-    absl::StatusOr<StoredStudy> one = store->LoadStudy(expected.id);
+  for (const StoredCampaign& expected : *all) {
+    absl::StatusOr<StoredCampaign> one = store->LoadCampaign(expected.id);
     ASSERT_THAT(one, IsOk());
     EXPECT_EQ(one->id, expected.id);
     EXPECT_EQ(one->name, expected.name);
@@ -1029,7 +832,7 @@ TEST_F(SqliteStoreTest, LoadStudyReturnsWhatLoadAllHoldsForThatStudyAndNotFoundF
     EXPECT_EQ(one->ask_requests, expected.ask_requests);
     EXPECT_EQ(one->snapshot.trials_size(), 3);
   }
-  EXPECT_THAT(store->LoadStudy(beta + 100), StatusIs(absl::StatusCode::kNotFound, HasSubstr("not found")));
+  EXPECT_THAT(store->LoadCampaign(beta + 100), StatusIs(absl::StatusCode::kNotFound, HasSubstr("not found")));
 }
 
 TEST_F(SqliteStoreTest, AskRequestsLoadInTheOrderStoredAndAnEmptyIdIsRefused) {
@@ -1037,102 +840,24 @@ TEST_F(SqliteStoreTest, AskRequestsLoadInTheOrderStoredAndAnEmptyIdIsRefused) {
   ASSERT_NE(store, nullptr);
   const int64_t id = Create(*store, "alpha");
   for (const char* request : {"zeta", "alpha", "mid"}) {
-    StudyWrite write;
-    write.study_id = id;
+    CampaignWrite write;
+    write.campaign_id = id;
     write.ask_request = std::make_pair(std::string(request), std::vector<int64_t>{static_cast<int64_t>(request[0])});
     ASSERT_THAT(store->Commit(write), IsOk());
   }
-  absl::StatusOr<StoredStudy> loaded = store->LoadStudy(id);
+  absl::StatusOr<StoredCampaign> loaded = store->LoadCampaign(id);
   ASSERT_THAT(loaded, IsOk());
   EXPECT_THAT(loaded->ask_requests, ElementsAre(Pair("zeta", ElementsAre('z')), Pair("alpha", ElementsAre('a')),
                                                 Pair("mid", ElementsAre('m'))));
 
-  StudyWrite empty;
-  empty.study_id = id;
+  CampaignWrite empty;
+  empty.campaign_id = id;
   empty.trials = {MakeTrial(9, v1::TRIAL_STATE_LEASED)};
   empty.ask_request = std::make_pair(std::string(), std::vector<int64_t>{9});
   EXPECT_THAT(store->Commit(empty), StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("empty request id")));
   absl::StatusOr<TrialPage> page = store->ListTrials(id, std::nullopt, 0, 10);
   ASSERT_THAT(page, IsOk());
   EXPECT_TRUE(page->trials.empty());
-}
-
-// A database written by a build at schema version 2 (ask requests keyed by id, trials indexed by
-// state) keeps every trial and ask request through the migration to version 3.
-TEST_F(SqliteStoreTest, MigrationToVersionThreeKeepsTrialsAndAskRequests) {
-  {
-    absl::StatusOr<std::unique_ptr<internal::Connection>> connection =
-        internal::Connection::Open(path_, /*read_only=*/false, 1000);
-    ASSERT_THAT(connection, IsOk());
-    ASSERT_THAT(internal::Migrate(**connection, internal::Migrations().first(2)), IsOk());
-    ASSERT_THAT((*connection)->Execute("PRAGMA journal_mode = WAL", "wal"), IsOk());
-  }
-  {
-    RawDb raw(path_);
-    v1::EngineState engine = MakeEngine(0.5);
-    const std::string distribution = Bytes(engine.distribution());
-    engine.clear_distribution();
-    engine.set_next_trial(4);
-    ASSERT_EQ(raw.Exec(absl::StrCat("INSERT INTO studies (id, name, design, engine, distribution, create_request_id, "
-                                    "created_at_ns) VALUES (7, 'alpha', X'", absl::BytesToHexString(Bytes(MakeDesign("alpha"))),
-                                    "', X'", absl::BytesToHexString(Bytes(engine)), "', X'",
-                                    absl::BytesToHexString(distribution), "', 'create-alpha', 1)")),
-              SQLITE_OK);
-    for (int64_t n = 1; n <= 3; ++n) {
-      const v1::TrialRecord trial = MakeTrial(n, n == 2 ? v1::TRIAL_STATE_REPORTED : v1::TRIAL_STATE_LEASED, 2.5);
-      ASSERT_EQ(raw.Exec(absl::StrCat("INSERT INTO trials (study_id, number, state, worker, reported_at_ns, score, "
-                                      "record) VALUES (7, ", n, ", ", trial.state(), ", '", trial.worker(), "', ",
-                                      trial.reported_at_ns(), ", NULL, X'", absl::BytesToHexString(Bytes(trial)), "')")),
-                SQLITE_OK);
-    }
-    ASSERT_EQ(raw.Exec("INSERT INTO ask_requests (study_id, request_id, trials) VALUES (7, 'r-b', '3'), "
-                       "(7, 'r-a', '1,2')"),
-              SQLITE_OK);
-    ASSERT_EQ(raw.Text("PRAGMA user_version"), "2");
-  }
-
-  std::unique_ptr<SqliteStore> store = OpenStore();  // migrates
-  ASSERT_NE(store, nullptr);
-  absl::StatusOr<StoredStudy> loaded = store->LoadStudy(7);
-  ASSERT_THAT(loaded, IsOk());
-  EXPECT_EQ(Bytes(loaded->design), Bytes(MakeDesign("alpha")));
-  v1::EngineState expected_engine = MakeEngine(0.5);
-  expected_engine.set_next_trial(4);
-  EXPECT_EQ(Bytes(loaded->snapshot.engine()), Bytes(expected_engine));
-  ASSERT_EQ(loaded->snapshot.trials_size(), 3);
-  for (int n = 1; n <= 3; ++n) {
-    EXPECT_EQ(Bytes(loaded->snapshot.trials(n - 1)),
-              Bytes(MakeTrial(n, n == 2 ? v1::TRIAL_STATE_REPORTED : v1::TRIAL_STATE_LEASED, 2.5)));
-  }
-  // The stored requests keep their trials (copied in request-id order), and a new one follows them.
-  EXPECT_THAT(loaded->ask_requests, ElementsAre(Pair("r-a", ElementsAre(1, 2)), Pair("r-b", ElementsAre(3))));
-  StudyWrite ask;
-  ask.study_id = 7;
-  ask.trials = {MakeTrial(4, v1::TRIAL_STATE_LEASED)};
-  ask.ask_request = std::make_pair(std::string("r-0"), std::vector<int64_t>{4});
-  ASSERT_THAT(store->Commit(ask), IsOk());
-  loaded = store->LoadStudy(7);
-  ASSERT_THAT(loaded, IsOk());
-  EXPECT_THAT(loaded->ask_requests, ElementsAre(Pair("r-a", ElementsAre(1, 2)), Pair("r-b", ElementsAre(3)),
-                                                Pair("r-0", ElementsAre(4))));
-  // Listing by state still works without the index.
-  absl::StatusOr<TrialPage> leased = store->ListTrials(7, v1::TRIAL_STATE_LEASED, 0, 10);
-  ASSERT_THAT(leased, IsOk());
-  ASSERT_THAT(leased->trials, SizeIs(3));
-  EXPECT_EQ(leased->trials[0].number(), 1);
-  EXPECT_EQ(leased->trials[1].number(), 3);
-  EXPECT_EQ(leased->trials[2].number(), 4);
-  store.reset();
-  RawDb raw(path_);
-  EXPECT_EQ(raw.Text("PRAGMA user_version"), "3");
-  EXPECT_EQ(raw.Text("SELECT count(*) FROM sqlite_master WHERE name = 'trials_by_state'"), "0");
-  EXPECT_EQ(raw.Text("PRAGMA integrity_check"), "ok");
-  EXPECT_EQ(raw.Text("PRAGMA foreign_key_check"), "<no row>");
-  // The design stays with the study; the engine state and the distribution have rows of their own.
-  EXPECT_EQ(raw.Text("SELECT count(*) FROM pragma_table_info('studies') WHERE name IN ('engine', 'distribution')"),
-            "0");
-  EXPECT_EQ(raw.Text("SELECT count(*) FROM study_engines WHERE study_id = 7"), "1");
-  EXPECT_EQ(raw.Text("SELECT count(*) FROM study_distributions WHERE study_id = 7"), "1");
 }
 
 TEST_F(SqliteStoreTest, NewerSchemaVersionIsRefusedNamingBothVersions) {
@@ -1203,7 +928,7 @@ TEST_F(SqliteStoreTest, MigrateAppliesOnlyMissingStepsAllOrNothing) {
 }
 
 // Checks a store opened on a read-only file; returns "" or what went wrong.
-std::string CheckReadOnlyFile(const std::string& path, int64_t study_id) {
+std::string CheckReadOnlyFile(const std::string& path, int64_t campaign_id) {
   absl::StatusOr<std::unique_ptr<SqliteStore>> writable = SqliteStore::Open(path);
   if (writable.ok() || writable.status().code() != absl::StatusCode::kFailedPrecondition ||
       writable.status().message().find("not writable") == absl::string_view::npos) {
@@ -1213,22 +938,22 @@ std::string CheckReadOnlyFile(const std::string& path, int64_t study_id) {
   options.read_only = true;
   absl::StatusOr<std::unique_ptr<SqliteStore>> store = SqliteStore::Open(path, options);
   if (!store.ok()) return absl::StrCat("read-only open: ", store.status().ToString());
-  absl::StatusOr<std::vector<StoredStudy>> loaded = (*store)->LoadAll();
+  absl::StatusOr<std::vector<StoredCampaign>> loaded = (*store)->LoadAll();
   if (!loaded.ok() || loaded->size() != 1 || (*loaded)[0].snapshot.trials_size() != 2) {
     return absl::StrCat("LoadAll: ", loaded.status().ToString());
   }
-  absl::StatusOr<TrialPage> page = (*store)->ListTrials(study_id, std::nullopt, 0, 10);
+  absl::StatusOr<TrialPage> page = (*store)->ListTrials(campaign_id, std::nullopt, 0, 10);
   if (!page.ok() || page->trials.size() != 2) return "ListTrials failed";
-  StudyWrite write;
-  write.study_id = study_id;
+  CampaignWrite write;
+  write.campaign_id = campaign_id;
   absl::Status commit = (*store)->Commit(write);
   if (commit.code() != absl::StatusCode::kFailedPrecondition) {
     return absl::StrCat("Commit: ", commit.ToString());
   }
   absl::StatusOr<int64_t> created =
-      (*store)->CreateStudy("beta", MakeDesign("beta"), MakeEngine(0.0), "r");
+      (*store)->CreateCampaign("beta", MakeDesign("beta"), MakeEngine(0.0), "r");
   if (created.status().code() != absl::StatusCode::kFailedPrecondition) {
-    return absl::StrCat("CreateStudy: ", created.status().ToString());
+    return absl::StrCat("CreateCampaign: ", created.status().ToString());
   }
   if (absl::Status integrity = (*store)->CheckIntegrity(); !integrity.ok()) {
     return absl::StrCat("CheckIntegrity: ", integrity.ToString());
@@ -1242,8 +967,8 @@ TEST_F(SqliteStoreTest, ReadOnlyFileRefusesWritesClearlyAndReadsKeepWorking) {
     std::unique_ptr<SqliteStore> store = OpenStore();
     ASSERT_NE(store, nullptr);
     id = Create(*store, "alpha");
-    StudyWrite write;
-    write.study_id = id;
+    CampaignWrite write;
+    write.campaign_id = id;
     write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED), MakeTrial(2, v1::TRIAL_STATE_LEASED)};
     ASSERT_THAT(store->Commit(write), IsOk());
   }
@@ -1256,11 +981,11 @@ TEST_F(SqliteStoreTest, ReadOnlyFileRefusesWritesClearlyAndReadsKeepWorking) {
     options.read_only = true;
     absl::StatusOr<std::unique_ptr<SqliteStore>> store = SqliteStore::Open(path_, options);
     ASSERT_THAT(store, IsOk());
-    absl::StatusOr<std::vector<StoredStudy>> loaded = (*store)->LoadAll();
+    absl::StatusOr<std::vector<StoredCampaign>> loaded = (*store)->LoadAll();
     ASSERT_THAT(loaded, IsOk());
     EXPECT_EQ((*loaded)[0].snapshot.trials_size(), 2);
-    StudyWrite write;
-    write.study_id = id;
+    CampaignWrite write;
+    write.campaign_id = id;
     EXPECT_THAT((*store)->Commit(write),
                 StatusIs(absl::StatusCode::kFailedPrecondition, HasSubstr("read-only")));
     absl::StatusOr<std::vector<SqliteConnectionSettings>> settings = (*store)->InspectConnections();
@@ -1300,8 +1025,8 @@ TEST_F(SqliteStoreTest, DamagedFilesAreDataLoss) {
     std::unique_ptr<SqliteStore> store = OpenStore();
     ASSERT_NE(store, nullptr);
     id = Create(*store, "alpha");
-    StudyWrite write;
-    write.study_id = id;
+    CampaignWrite write;
+    write.campaign_id = id;
     write.trials = {MakeTrial(1, v1::TRIAL_STATE_LEASED), MakeTrial(2, v1::TRIAL_STATE_LEASED)};
     ASSERT_THAT(store->Commit(write), IsOk());
   }
@@ -1312,7 +1037,7 @@ TEST_F(SqliteStoreTest, DamagedFilesAreDataLoss) {
   std::unique_ptr<SqliteStore> store = OpenStore();
   ASSERT_NE(store, nullptr);
   EXPECT_THAT(store->LoadAll(), StatusIs(absl::StatusCode::kDataLoss,
-                                         HasSubstr("study 'alpha' (id 1): the record of trial 2")));
+                                         HasSubstr("campaign 'alpha' (id 1): the record of trial 2")));
   EXPECT_THAT(store->ListTrials(id, std::nullopt, 0, 10),
               StatusIs(absl::StatusCode::kDataLoss, HasSubstr("trial 2")));
   // A row that holds another trial's record is caught too.
@@ -1369,8 +1094,8 @@ TEST_F(SqliteStoreTest, DestructionCompletesQueuedWrites) {
     WriteLockHolder lock(path_);
     for (int i = 0; i < kWrites; ++i) {
       threads.emplace_back([&, i] {
-        StudyWrite write;
-        write.study_id = id;
+        CampaignWrite write;
+        write.campaign_id = id;
         write.trials = {MakeTrial(i + 1, v1::TRIAL_STATE_LEASED)};
         statuses[static_cast<size_t>(i)] = store->Commit(std::move(write));
       });
@@ -1399,8 +1124,8 @@ TEST_F(SqliteStoreTest, SizeBytesCountsTheFileAndTheLog) {
   const int64_t id = Create(*store, "alpha");
   absl::StatusOr<int64_t> small = store->SizeBytes();
   ASSERT_THAT(small, IsOk());
-  StudyWrite write;
-  write.study_id = id;
+  CampaignWrite write;
+  write.campaign_id = id;
   for (int64_t n = 1; n <= 500; ++n) write.trials.push_back(MakeTrial(n, v1::TRIAL_STATE_LEASED));
   ASSERT_THAT(store->Commit(write), IsOk());
   absl::StatusOr<int64_t> large = store->SizeBytes();
@@ -1428,16 +1153,16 @@ TEST_F(SqliteStoreTest, OnTransactionReportsEveryTransaction) {
   for (int t = 0; t < 4; ++t) {
     threads.emplace_back([&, t] {
       for (int i = 0; i < 25; ++i) {
-        StudyWrite write;
-        write.study_id = id;
+        CampaignWrite write;
+        write.campaign_id = id;
         write.trials = {MakeTrial(i * 4 + t + 1, v1::TRIAL_STATE_LEASED)};
         EXPECT_THAT(store->Commit(std::move(write)), IsOk());
       }
     });
   }
   for (std::thread& thread : threads) thread.join();
-  StudyWrite unknown;
-  unknown.study_id = id + 1000;  // NOT_FOUND: refused inside its transaction, which still commits
+  CampaignWrite unknown;
+  unknown.campaign_id = id + 1000;  // NOT_FOUND: refused inside its transaction, which still commits
   EXPECT_FALSE(store->Commit(std::move(unknown)).ok());
   const SqliteStore::Stats stats = store->stats();
   store.reset();  // the writer thread is gone: no report can still arrive
@@ -1452,7 +1177,7 @@ TEST_F(SqliteStoreTest, OnTransactionReportsEveryTransaction) {
     committed += r.committed_writes;
   }
   EXPECT_EQ(static_cast<int64_t>(reports.size()), stats.transactions);
-  EXPECT_EQ(writes, 1 + 100 + 1);  // the study, the trials, the refused write
+  EXPECT_EQ(writes, 1 + 100 + 1);  // the campaign, the trials, the refused write
   EXPECT_EQ(committed, stats.committed_writes);
   EXPECT_EQ(committed, 1 + 100);
 }
@@ -1463,7 +1188,7 @@ TEST_F(SqliteStoreTest, OnTransactionReportsEveryTransaction) {
 namespace ogive::storage {
 namespace {
 
-// store.h: writes of one study with the same chain depend on each other — once one fails, every
+// store.h: writes of one campaign with the same chain depend on each other — once one fails, every
 // later one fails unapplied, whether it waits in the same batch or a later one, and whether the
 // first was refused before queuing (a NaN) or failed in the database (a duplicate generation).
 // Writes of another chain, or without one, are unaffected.
@@ -1473,8 +1198,8 @@ TEST_F(SqliteStoreTest, AFailedWriteBreaksItsChainOnly) {
   const int64_t id = Create(*store, "chained");
 
   auto write = [&](int64_t chain, int64_t trial, double score) {
-    StudyWrite w;
-    w.study_id = id;
+    CampaignWrite w;
+    w.campaign_id = id;
     w.chain = chain;
     w.trials = {MakeTrial(trial, v1::TRIAL_STATE_REPORTED, score)};
     return w;
@@ -1493,10 +1218,10 @@ TEST_F(SqliteStoreTest, AFailedWriteBreaksItsChainOnly) {
 
   // Chain 3: a duplicate generation fails inside the transaction; the next write of the chain, queued
   // at once behind it, fails too.
-  StudyWrite first = write(3, 6, 6.0);
+  CampaignWrite first = write(3, 6, 6.0);
   first.generations.emplace_back().set_generation(1);
   ASSERT_THAT(store->Commit(std::move(first)), IsOk());
-  StudyWrite duplicate = write(3, 7, 7.0);
+  CampaignWrite duplicate = write(3, 7, 7.0);
   duplicate.generations.emplace_back().set_generation(1);
   std::unique_ptr<PendingCommit> failing = store->CommitAsync(std::move(duplicate));
   std::unique_ptr<PendingCommit> after = store->CommitAsync(write(3, 8, 8.0));

@@ -46,12 +46,12 @@ class SqliteStoreTokensTest : public ::testing::Test {
     return store.ok() ? *std::move(store) : nullptr;
   }
   static StoredToken Token(const std::string& label, char fill, const std::string& role = "worker",
-                           std::vector<std::string> studies = {}) {
+                           std::vector<std::string> campaigns = {}) {
     StoredToken t;
     t.label = label;
     t.digest = std::string(32, fill);
     t.role = role;
-    t.studies = std::move(studies);
+    t.campaigns = std::move(campaigns);
     t.created_at_ns = 1800000000000000000 + fill;
     return t;
   }
@@ -76,11 +76,11 @@ TEST_F(SqliteStoreTokensTest, TokensRoundTripInLabelOrderAcrossAReopen) {
   EXPECT_EQ(a.label, "alpha");
   EXPECT_EQ(a.digest, std::string(32, 'a'));
   EXPECT_EQ(a.role, "reader");
-  EXPECT_THAT(a.studies, ElementsAre("kiln", "glaze"));
+  EXPECT_THAT(a.campaigns, ElementsAre("kiln", "glaze"));
   EXPECT_EQ(a.created_at_ns, 1800000000000000000 + 'a');
   EXPECT_FALSE(a.revoked_at_ns.has_value());
   EXPECT_EQ((*tokens)[1].label, "zeta");
-  EXPECT_TRUE((*tokens)[1].studies.empty());
+  EXPECT_TRUE((*tokens)[1].campaigns.empty());
 }
 
 TEST_F(SqliteStoreTokensTest, RevokeOnceKeepsTheFirstTime) {
@@ -112,7 +112,7 @@ TEST_F(SqliteStoreTokensTest, RefusesMalformedTokensAndTakenLabels) {
   EXPECT_THAT(store->CreateToken(Token("bob", 'b', "root")),
               StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("role")));
   EXPECT_THAT(store->CreateToken(Token("bob", 'b', "worker", {"a,b"})),
-              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("studies")));
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("campaigns")));
   EXPECT_THAT(store->CreateToken(Token("", 'b')), StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("label")));
   // The same digest under another label: refused by the UNIQUE constraint, nothing stored.
   EXPECT_THAT(store->CreateToken(Token("carol", 'a')), StatusIs(absl::StatusCode::kAlreadyExists, _));
@@ -124,12 +124,12 @@ TEST_F(SqliteStoreTokensTest, RefusesMalformedTokensAndTakenLabels) {
 TEST_F(SqliteStoreTokensTest, EventsCarryTheTokenLabel) {
   std::unique_ptr<SqliteStore> store = Open();
   ASSERT_NE(store, nullptr);
-  v1::StudyDesign design;
+  v1::CampaignDesign design;
   design.set_name("kiln");
-  absl::StatusOr<int64_t> id = store->CreateStudy("kiln", design, v1::EngineState(), "");
+  absl::StatusOr<int64_t> id = store->CreateCampaign("kiln", design, v1::EngineState(), "");
   ASSERT_TRUE(id.ok()) << id.status();
-  StudyWrite write;
-  write.study_id = *id;
+  CampaignWrite write;
+  write.campaign_id = *id;
   write.events.push_back({"phase", 0, "", "paused", 5, "alice"});
   write.events.push_back({"lapse", 3, "node-1", "", 6});
   ASSERT_TRUE(store->Commit(std::move(write)).ok());
@@ -138,45 +138,6 @@ TEST_F(SqliteStoreTokensTest, EventsCarryTheTokenLabel) {
   ASSERT_EQ(events->size(), 2u);
   EXPECT_EQ((*events)[0].token_label, "alice");
   EXPECT_EQ((*events)[1].token_label, "");
-}
-
-TEST_F(SqliteStoreTokensTest, AVersionOneDatabaseIsMigratedKeepingItsEvents) {
-  // Build a version-1 database by hand: the first migration step only, with a study and an event.
-  {
-    absl::StatusOr<std::unique_ptr<internal::Connection>> c = internal::Connection::Open(path_, false, 1000);
-    ASSERT_TRUE(c.ok()) << c.status();
-    ASSERT_TRUE((*c)->Execute("PRAGMA journal_mode = WAL", "wal").ok());
-    const char* const version1[] = {internal::Migrations()[0]};
-    ASSERT_TRUE(internal::Migrate(**c, version1).ok());
-    ASSERT_TRUE((*c)->Execute("INSERT INTO studies (id, name, design, engine, create_request_id, created_at_ns) "
-                              "VALUES (1, 'old', x'', x'', '', 1); "
-                              "INSERT INTO events (study_id, at_ns, kind, trial, worker, message) "
-                              "VALUES (1, 7, 'tell', 3, 'node-1', '')",
-                              "fill")
-                    .ok());
-    ASSERT_EQ(*(*c)->QueryInt64("PRAGMA user_version", "v"), 1);
-  }
-  std::unique_ptr<SqliteStore> store = Open();
-  ASSERT_NE(store, nullptr);
-  absl::StatusOr<std::vector<Event>> events = store->ListEvents(1, 10);
-  ASSERT_TRUE(events.ok()) << events.status();
-  ASSERT_EQ(events->size(), 1u);
-  EXPECT_EQ((*events)[0].kind, "tell");
-  EXPECT_EQ((*events)[0].worker, "node-1");
-  EXPECT_EQ((*events)[0].token_label, "");
-  absl::StatusOr<std::vector<StoredToken>> tokens = store->ListTokens();
-  ASSERT_TRUE(tokens.ok()) << tokens.status();
-  EXPECT_TRUE(tokens->empty());
-  ASSERT_TRUE(store->CreateToken(Token("first", 'f')).ok());
-  store.reset();
-  sqlite3* db = nullptr;
-  ASSERT_EQ(sqlite3_open_v2(path_.c_str(), &db, SQLITE_OPEN_READONLY, nullptr), SQLITE_OK);
-  sqlite3_stmt* stmt = nullptr;
-  ASSERT_EQ(sqlite3_prepare_v2(db, "PRAGMA user_version", -1, &stmt, nullptr), SQLITE_OK);
-  ASSERT_EQ(sqlite3_step(stmt), SQLITE_ROW);
-  EXPECT_EQ(sqlite3_column_int64(stmt, 0), SqliteStore::schema_version());
-  sqlite3_finalize(stmt);
-  sqlite3_close(db);
 }
 
 }  // namespace

@@ -1,15 +1,15 @@
-// Store: where ogived keeps its studies. The service talks to this interface only; SqliteStore
-// (sqlite_store.h) is the embedded implementation. The store knows the serialized form of a study
-// (protobuf messages of study.proto) but none of the math.
+// Store: where ogived keeps its campaigns. The service talks to this interface only; SqliteStore
+// (sqlite_store.h) is the embedded implementation. The store knows the serialized form of a campaign
+// (protobuf messages of campaign.proto) but none of the math.
 //
-// Durability contract: when Commit() or CreateStudy() returns OK, the data is on disk (the
+// Durability contract: when Commit() or CreateCampaign() returns OK, the data is on disk (the
 // transaction committed with synchronous=FULL). A write either commits whole or not at all; a
 // failed write is not stored, with one exception: when the fsync of its commit failed and the
 // process dies before the next commit, a restart may find it stored, whole (SQLite finds the
 // complete transaction in its log). Callers treat that as a reply that was lost: every write of
 // the service is safe to retry.
 // Implementations are thread-safe: any thread may call any method; writes are serialized
-// internally, reads do not wait for writes of other studies.
+// internally, reads do not wait for writes of other campaigns.
 #ifndef OGIVE_STORAGE_STORE_H_
 #define OGIVE_STORAGE_STORE_H_
 
@@ -21,23 +21,23 @@
 #include <vector>
 
 #include "absl/status/statusor.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 
 namespace ogive::storage {
 
-// A study as stored, for loading at start-up.
-struct StoredStudy {
+// A campaign as stored, for loading at start-up.
+struct StoredCampaign {
   int64_t id = 0;
   std::string name;
-  v1::StudyDesign design;
-  v1::StudySnapshot snapshot;  // engine state (with its distribution) and every trial, by number
+  v1::CampaignDesign design;
+  v1::CampaignSnapshot snapshot;  // engine state (with its distribution) and every trial, by number
   std::string create_request_id;
   // Ask request ids seen, with the trial numbers each returned (for idempotent retries), in the order
   // they were stored.
   std::vector<std::pair<std::string, std::vector<int64_t>>> ask_requests;
 };
 
-// One line of a study's append-only event log.
+// One line of a campaign's append-only event log.
 struct Event {
   std::string kind;    // e.g. "ask", "tell", "update", "phase", "lapse", "restart"
   int64_t trial = 0;   // 0 when not about one trial
@@ -52,15 +52,15 @@ struct StoredToken {
   std::string label;                  // unique for ever (a revoked label is not reused)
   std::string digest;                 // SHA-256 of the token, 32 bytes
   std::string role;                   // "reader", "worker" or "admin"
-  std::vector<std::string> studies;   // the studies it is limited to; empty: every study
+  std::vector<std::string> campaigns;   // the campaigns it is limited to; empty: every campaign
   int64_t created_at_ns = 0;          // Unix nanoseconds
   std::optional<int64_t> revoked_at_ns;  // set once revoked
 };
 
-// Everything one request changed in one study; committed as one transaction.
-struct StudyWrite {
-  int64_t study_id = 0;
-  std::vector<v1::TrialRecord> trials;                // inserted or replaced, by (study, number)
+// Everything one request changed in one campaign; committed as one transaction.
+struct CampaignWrite {
+  int64_t campaign_id = 0;
+  std::vector<v1::TrialRecord> trials;                // inserted or replaced, by (campaign, number)
   std::optional<v1::EngineState> engine;              // replaces the stored engine state; its
                                                       // `distribution` field is ignored here...
   std::optional<v1::DistributionState> distribution;  // ...and replaced only when this is set
@@ -69,10 +69,10 @@ struct StudyWrite {
   // (that would cost an index lookup at a random place per ask); the caller stores each id once.
   std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request;
   std::vector<Event> events;                          // appended
-  // Writes of one study that carry the same non-zero chain depend on each other: they commit in the
+  // Writes of one campaign that carry the same non-zero chain depend on each other: they commit in the
   // order they were queued, and once one of them fails every later one fails too (UNAVAILABLE)
   // without being applied. A caller that applies changes to memory before their commit completes
-  // reloads the study after a failure and continues with a new chain.
+  // reloads the campaign after a failure and continues with a new chain.
   int64_t chain = 0;
 };
 
@@ -95,54 +95,54 @@ class Store {
  public:
   virtual ~Store() = default;
 
-  // Every study with its full state, in id order. DATA_LOSS if a stored message does not parse.
-  virtual absl::StatusOr<std::vector<StoredStudy>> LoadAll() = 0;
+  // Every campaign with its full state, in id order. DATA_LOSS if a stored message does not parse.
+  virtual absl::StatusOr<std::vector<StoredCampaign>> LoadAll() = 0;
 
-  // Inserts a new study with its initial engine state (distribution included) and returns its id.
+  // Inserts a new campaign with its initial engine state (distribution included) and returns its id.
   // ALREADY_EXISTS if the name is taken. Durable on return.
-  virtual absl::StatusOr<int64_t> CreateStudy(const std::string& name,
-                                              const v1::StudyDesign& design,
+  virtual absl::StatusOr<int64_t> CreateCampaign(const std::string& name,
+                                              const v1::CampaignDesign& design,
                                               const v1::EngineState& engine,
                                               const std::string& request_id) = 0;
 
-  // Commits one study write. Many concurrent Commit() calls share one transaction and one fsync
+  // Commits one campaign write. Many concurrent Commit() calls share one transaction and one fsync
   // (group commit); each returns only after the transaction holding its write committed. On error
   // nothing of this write is stored (see the top of this file): UNAVAILABLE, naming the database
   // file, when it is locked by another program, the disk failed or is full (the caller may retry), INVALID_ARGUMENT if the write holds a NaN or infinity where a number is
-  // stored in a column (SQLite would store NaN as NULL), NOT_FOUND for an unknown study id.
-  virtual absl::Status Commit(StudyWrite write) { return CommitAsync(std::move(write))->Wait(); }
+  // stored in a column (SQLite would store NaN as NULL), NOT_FOUND for an unknown campaign id.
+  virtual absl::Status Commit(CampaignWrite write) { return CommitAsync(std::move(write))->Wait(); }
 
-  // Queues one study write and returns at once; writes are applied in the order they were queued.
+  // Queues one campaign write and returns at once; writes are applied in the order they were queued.
   // Errors found before queuing (a NaN, a malformed write) are returned by Wait().
-  virtual std::unique_ptr<PendingCommit> CommitAsync(StudyWrite write) = 0;
+  virtual std::unique_ptr<PendingCommit> CommitAsync(CampaignWrite write) = 0;
 
-  // One study with its full state, as LoadAll() returns it. NOT_FOUND for an unknown id.
-  virtual absl::StatusOr<StoredStudy> LoadStudy(int64_t study_id) {
-    absl::StatusOr<std::vector<StoredStudy>> all = LoadAll();
+  // One campaign with its full state, as LoadAll() returns it. NOT_FOUND for an unknown id.
+  virtual absl::StatusOr<StoredCampaign> LoadCampaign(int64_t campaign_id) {
+    absl::StatusOr<std::vector<StoredCampaign>> all = LoadAll();
     if (!all.ok()) return all.status();
-    for (StoredStudy& s : *all) {
-      if (s.id == study_id) return std::move(s);
+    for (StoredCampaign& s : *all) {
+      if (s.id == campaign_id) return std::move(s);
     }
-    return absl::NotFoundError("study id not found");
+    return absl::NotFoundError("campaign id not found");
   }
 
-  // Trials of a study with number > after_number, in number order, at most `limit`, optionally of
+  // Trials of a campaign with number > after_number, in number order, at most `limit`, optionally of
   // one state. Reads committed data only.
-  virtual absl::StatusOr<TrialPage> ListTrials(int64_t study_id,
+  virtual absl::StatusOr<TrialPage> ListTrials(int64_t campaign_id,
                                                std::optional<v1::TrialState> state,
                                                int64_t after_number, int limit) = 0;
 
-  // The generation summaries of a study, in generation order.
-  virtual absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t study_id) = 0;
+  // The generation summaries of a campaign, in generation order.
+  virtual absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerations(int64_t campaign_id) = 0;
 
   // The generation summaries with generation > after_generation, in generation order, at most
   // `limit` (>= 1, else INVALID_ARGUMENT). Reads committed data only. This default filters
   // ListGenerations(); SqliteStore reads just the page.
-  virtual absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerationsAfter(int64_t study_id,
+  virtual absl::StatusOr<std::vector<v1::GenerationSummary>> ListGenerationsAfter(int64_t campaign_id,
                                                                                   int64_t after_generation,
                                                                                   int limit) {
     if (limit < 1) return absl::InvalidArgumentError("limit: must be >= 1");
-    absl::StatusOr<std::vector<v1::GenerationSummary>> all = ListGenerations(study_id);
+    absl::StatusOr<std::vector<v1::GenerationSummary>> all = ListGenerations(campaign_id);
     if (!all.ok()) return all.status();
     std::vector<v1::GenerationSummary> page;
     for (v1::GenerationSummary& g : *all) {
@@ -153,8 +153,8 @@ class Store {
     return page;
   }
 
-  // The event log of a study, oldest first, at most `limit` of the newest.
-  virtual absl::StatusOr<std::vector<Event>> ListEvents(int64_t study_id, int limit) = 0;
+  // The event log of a campaign, oldest first, at most `limit` of the newest.
+  virtual absl::StatusOr<std::vector<Event>> ListEvents(int64_t campaign_id, int limit) = 0;
 
   // Bytes the database occupies on disk (main file and write-ahead log).
   virtual absl::StatusOr<int64_t> SizeBytes() = 0;
@@ -163,7 +163,7 @@ class Store {
   // A store without tokens answers UNIMPLEMENTED.
 
   // Stores a new token. ALREADY_EXISTS when its label is taken (revoked tokens included);
-  // INVALID_ARGUMENT for a digest that is not 32 bytes, an unknown role or a malformed study name.
+  // INVALID_ARGUMENT for a digest that is not 32 bytes, an unknown role or a malformed campaign name.
   // Durable on return.
   virtual absl::Status CreateToken(const StoredToken& token) {
     (void)token;

@@ -38,9 +38,9 @@ std::string EnvValue(const v1::Value& value) {
   return "";
 }
 
-absl::Status CheckEnvNames(const v1::StudyDesign& design) {
+absl::Status CheckEnvNames(const v1::CampaignDesign& design) {
   std::map<std::string, std::string> owner;  // variable -> parameter
-  for (absl::string_view reserved : {kStudyVariable, kTrialVariable, kCandidateFileVariable}) {
+  for (absl::string_view reserved : {kCampaignVariable, kTrialVariable, kCandidateFileVariable}) {
     owner[std::string(reserved)] = "";
   }
   for (const v1::Parameter& p : design.parameters()) {
@@ -54,12 +54,12 @@ absl::Status CheckEnvNames(const v1::StudyDesign& design) {
     }
     return absl::InvalidArgumentError(absl::StrCat(
         "parameters '", it->second, "' and '", p.name(), "' both map to the environment variable ",
-        name, "; rename one to run the study with 'ogive work'"));
+        name, "; rename one to run the campaign with 'ogive work'"));
   }
   return absl::OkStatus();
 }
 
-std::vector<std::pair<std::string, std::string>> CandidateEnv(const v1::StudyDesign& design,
+std::vector<std::pair<std::string, std::string>> CandidateEnv(const v1::CampaignDesign& design,
                                                               const v1::Candidate& candidate) {
   std::vector<std::pair<std::string, std::string>> env;
   for (const v1::Parameter& p : design.parameters()) {
@@ -129,7 +129,7 @@ std::string JsonValue(const v1::Value& value) {
 
 }  // namespace
 
-std::string CandidateJson(const v1::StudyDesign& design, const v1::Candidate& candidate) {
+std::string CandidateJson(const v1::CampaignDesign& design, const v1::Candidate& candidate) {
   std::string out = "{";
   bool first = true;
   for (const v1::Parameter& p : design.parameters()) {

@@ -26,15 +26,15 @@ constexpr const char* kGlyphs[10][5] = {
 
 constexpr char kRule[] = "========================================================================\n";
 
-std::string ReportHint(absl::string_view study, const v1::StudyDesign& design, int64_t number) {
-  const std::string tell = absl::StrCat("ogive tell ", study, " ", number);
+std::string ReportHint(absl::string_view campaign, const v1::CampaignDesign& design, int64_t number) {
+  const std::string tell = absl::StrCat("ogive tell ", campaign, " ", number);
   if (design.objective().has_grade_scale()) {
     return absl::StrCat("Report:  ", tell, " --grade LABEL\n", "         LABEL, worst first: ",
                         absl::StrJoin(design.objective().grade_scale().labels(), " < "), "\n",
                         "         or --infeasible (broke a constraint), --void (not measured)\n");
   }
   const char* direction =
-      design.objective().direction() == v1::HIGHER_IS_BETTER ? "higher is better" : "lower is better";
+      design.objective().direction() == v1::DIRECTION_HIGHER_IS_BETTER ? "higher is better" : "lower is better";
   return absl::StrCat("Report:  ", tell, " --score X   (", direction, ")\n",
                       "         or --infeasible (broke a constraint), --void (not measured)\n");
 }
@@ -53,10 +53,10 @@ std::string BlockDigits(int64_t number) {
   return out;
 }
 
-std::string TrialCard(absl::string_view study, const v1::StudyDesign& design, const v1::Trial& trial,
+std::string TrialCard(absl::string_view campaign, const v1::CampaignDesign& design, const v1::Trial& trial,
                       absl::TimeZone zone) {
   std::string out = kRule;
-  absl::StrAppend(&out, "Study ", study, "          trial ", trial.number(), "   (generation ", trial.generation(),
+  absl::StrAppend(&out, "Campaign ", campaign, "          trial ", trial.number(), "   (generation ", trial.generation(),
                   ")\n\n");
   out += BlockDigits(trial.number());
   absl::StrAppend(&out, "\nLease until ", FormatUnixMs(trial.lease_deadline_unix_ms(), zone), "   worker ",
@@ -71,7 +71,7 @@ std::string TrialCard(absl::string_view study, const v1::StudyDesign& design, co
     if (!p.description().empty()) absl::StrAppend(&out, "      ", p.description(), "\n");
   }
   out += "------------------------------------------------------------------------\n";
-  out += ReportHint(study, design, trial.number());
+  out += ReportHint(campaign, design, trial.number());
   out += "\nCheck these settings against your local safety rules and equipment limits before use.\n";
   out += kRule;
   out += "\f";

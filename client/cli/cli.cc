@@ -129,59 +129,59 @@ std::unique_ptr<client::Client> ConnectOrFail(const Invocation& inv, int* exit_c
 
 const std::string& Arg(const Invocation& inv, size_t i) { return inv.args.positional[i]; }
 
-int RunStudyCreate(const Invocation& inv) {
-  absl::StatusOr<v1::StudyDesign> design = ReadDesignFile(Arg(inv, 0));
+int RunCampaignCreate(const Invocation& inv) {
+  absl::StatusOr<v1::CampaignDesign> design = ReadDesignFile(Arg(inv, 0));
   if (!design.ok()) return UsageError(*inv.command, design.status().message());
   int code = 0;
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
-  absl::StatusOr<v1::StudyView> view = c->CreateStudy(*design);
+  absl::StatusOr<v1::CampaignView> view = c->CreateCampaign(*design);
   if (!view.ok()) return ServerError(inv, view.status());
   if (inv.globals.json) {
     Print(Json(*view) + "\n");
   } else {
-    Print(absl::StrCat("created study ", view->name(), " (population ",
+    Print(absl::StrCat("created campaign ", view->name(), " (population ",
                        view->status().population_size(), ")\n"));
   }
   return kExitOk;
 }
 
-int RunStudyList(const Invocation& inv) {
+int RunCampaignList(const Invocation& inv) {
   int code = 0;
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
-  absl::StatusOr<v1::ListStudiesResponse> list = c->ListStudies();
+  absl::StatusOr<v1::ListCampaignsResponse> list = c->ListCampaigns();
   if (!list.ok()) return ServerError(inv, list.status());
   if (inv.globals.json) {
-    Print(JsonArray(list->studies()));
-  } else if (list->studies().empty()) {
-    Print(absl::StrCat("no studies on ", inv.globals.server, "\n"));
+    Print(JsonArray(list->campaigns()));
+  } else if (list->campaigns().empty()) {
+    Print(absl::StrCat("no campaigns on ", inv.globals.server, "\n"));
   } else {
-    Print(StudyListTable(*list));
+    Print(CampaignListTable(*list));
   }
   return kExitOk;
 }
 
-int RunStudyShow(const Invocation& inv) {
+int RunCampaignShow(const Invocation& inv) {
   int code = 0;
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
-  absl::StatusOr<v1::StudyView> view = c->GetStudy(Arg(inv, 0));
+  absl::StatusOr<v1::CampaignView> view = c->GetCampaign(Arg(inv, 0));
   if (!view.ok()) return ServerError(inv, view.status());
-  Print(inv.globals.json ? Json(*view) + "\n" : StudySummary(*view));
+  Print(inv.globals.json ? Json(*view) + "\n" : CampaignSummary(*view));
   return kExitOk;
 }
 
-int RunStudyWatch(const Invocation& inv) {
+int RunCampaignWatch(const Invocation& inv) {
   int code = 0;
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
   const bool terminal = isatty(STDOUT_FILENO) == 1 && !inv.globals.json;
   const absl::TimeZone zone = absl::LocalTimeZone();
-  v1::StudyDesign design;  // the stream's later views are brief (no design)
+  v1::CampaignDesign design;  // the stream's later views are brief (no design)
   bool done = false;
-  absl::Status status = c->Watch(Arg(inv, 0), [&](const v1::StudyView& update) {
-    v1::StudyView view = update;
+  absl::Status status = c->Watch(Arg(inv, 0), [&](const v1::CampaignView& update) {
+    v1::CampaignView view = update;
     if (view.has_design()) {
       design = view.design();
     } else {
@@ -194,7 +194,7 @@ int RunStudyWatch(const Invocation& inv) {
     } else {
       Print(WatchLine(view, zone));
     }
-    done = view.status().phase() == v1::STUDY_PHASE_DONE;
+    done = view.status().phase() == v1::CAMPAIGN_PHASE_DONE;
     return !done;
   });
   if (!status.ok()) return ServerError(inv, status);
@@ -205,23 +205,23 @@ int RunPhase(const Invocation& inv, v1::PhaseCommand command) {
   int code = 0;
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
-  absl::StatusOr<v1::StudyView> view = c->SetPhase(Arg(inv, 0), command);
+  absl::StatusOr<v1::CampaignView> view = c->SetPhase(Arg(inv, 0), command);
   if (!view.ok()) return ServerError(inv, view.status());
   if (inv.globals.json) {
     Print(Json(*view) + "\n");
   } else {
     const v1::StatusSummary& s = view->status();
-    Print(absl::StrCat("study ", view->name(), ": ", PhaseWithReason(s),
+    Print(absl::StrCat("campaign ", view->name(), ": ", PhaseWithReason(s),
                        s.phase_message().empty() ? "" : ": ", s.phase_message(), "\n"));
   }
   return kExitOk;
 }
 
-int RunStudyPause(const Invocation& inv) { return RunPhase(inv, v1::PHASE_COMMAND_PAUSE); }
-int RunStudyResume(const Invocation& inv) { return RunPhase(inv, v1::PHASE_COMMAND_RESUME); }
-int RunStudyFinish(const Invocation& inv) { return RunPhase(inv, v1::PHASE_COMMAND_FINISH); }
+int RunCampaignPause(const Invocation& inv) { return RunPhase(inv, v1::PHASE_COMMAND_PAUSE); }
+int RunCampaignResume(const Invocation& inv) { return RunPhase(inv, v1::PHASE_COMMAND_RESUME); }
+int RunCampaignFinish(const Invocation& inv) { return RunPhase(inv, v1::PHASE_COMMAND_FINISH); }
 
-int RunStudyTrials(const Invocation& inv) {
+int RunCampaignTrials(const Invocation& inv) {
   v1::TrialState state = v1::TRIAL_STATE_UNSPECIFIED;
   if (std::optional<std::string> name = inv.args.Get("--state"); name.has_value()) {
     std::optional<v1::TrialState> parsed = TrialStateFromName(*name);
@@ -240,14 +240,14 @@ int RunStudyTrials(const Invocation& inv) {
   int code = 0;
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
-  const std::string& study = Arg(inv, 0);
-  v1::StudyDesign design;
+  const std::string& campaign = Arg(inv, 0);
+  v1::CampaignDesign design;
   if (!inv.globals.json) {
-    absl::StatusOr<v1::StudyView> view = c->GetStudy(study);
+    absl::StatusOr<v1::CampaignView> view = c->GetCampaign(campaign);
     if (!view.ok()) return ServerError(inv, view.status());
     design = view->design();
   }
-  absl::StatusOr<std::vector<v1::Trial>> trials = c->ListAllTrials(study, state);
+  absl::StatusOr<std::vector<v1::Trial>> trials = c->ListAllTrials(campaign, state);
   if (!trials.ok()) return ServerError(inv, trials.status());
   if (inv.globals.json) {
     Print(JsonArray(*trials));
@@ -255,7 +255,7 @@ int RunStudyTrials(const Invocation& inv) {
     Print(TrialsCsv(design, *trials));
   } else if (trials->empty()) {
     Print(absl::StrCat("no ", state == v1::TRIAL_STATE_UNSPECIFIED ? "" : TrialStateName(state),
-                       state == v1::TRIAL_STATE_UNSPECIFIED ? "" : " ", "trials in study ", study,
+                       state == v1::TRIAL_STATE_UNSPECIFIED ? "" : " ", "trials in campaign ", campaign,
                        "\n"));
   } else {
     Print(TrialsTable(design, *trials));
@@ -290,21 +290,21 @@ int RunAsk(const Invocation& inv) {
   }
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
-  const std::string& study = Arg(inv, 0);
-  v1::StudyDesign design;
+  const std::string& campaign = Arg(inv, 0);
+  v1::CampaignDesign design;
   if (!inv.globals.json) {
-    absl::StatusOr<v1::StudyView> view = c->GetStudy(study);
+    absl::StatusOr<v1::CampaignView> view = c->GetCampaign(campaign);
     if (!view.ok()) return ServerError(inv, view.status());
     design = view->design();
   }
-  absl::StatusOr<v1::AskResponse> asked = c->Ask(study, static_cast<int>(count), worker, lease);
+  absl::StatusOr<v1::AskResponse> asked = c->Ask(campaign, static_cast<int>(count), worker, lease);
   if (!asked.ok()) return ServerError(inv, asked.status());
   if (inv.globals.json) {
     Print(JsonArray(asked->trials()));
   } else {
     const absl::TimeZone zone = absl::LocalTimeZone();
     for (const v1::Trial& t : asked->trials()) {
-      Print(inv.args.Has("--card") ? TrialCard(study, design, t, zone) : LeasedTrialText(design, t, zone));
+      Print(inv.args.Has("--card") ? TrialCard(campaign, design, t, zone) : LeasedTrialText(design, t, zone));
     }
   }
   if (asked->trials_size() < count) {
@@ -326,7 +326,7 @@ int RunTell(const Invocation& inv) {
   if (c == nullptr) return code;
   if (outcome->has_grade()) {
     // Labels match in any case; a typo is refused here, with the closest label suggested.
-    absl::StatusOr<v1::StudyView> view = c->GetStudy(Arg(inv, 0));
+    absl::StatusOr<v1::CampaignView> view = c->GetCampaign(Arg(inv, 0));
     if (!view.ok()) return ServerError(inv, view.status());
     if (view->design().objective().has_grade_scale()) {
       absl::StatusOr<std::string> grade = MatchGrade(outcome->grade(), view->design().objective().grade_scale(), "--grade");
@@ -372,7 +372,7 @@ int RunRenew(const Invocation& inv) {
   if (code != 0) return code;
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
-  const std::string& study = Arg(inv, 0);
+  const std::string& campaign = Arg(inv, 0);
 
   // Without --worker, each lease is renewed for the worker that holds it: the usual case is a
   // person who asked from one shell and renews from another (a different default worker name).
@@ -382,7 +382,7 @@ int RunRenew(const Invocation& inv) {
   } else {
     std::map<int64_t, std::string> holder;
     for (v1::TrialState state : {v1::TRIAL_STATE_LEASED, v1::TRIAL_STATE_LAPSED}) {
-      absl::StatusOr<std::vector<v1::Trial>> held = c->ListAllTrials(study, state);
+      absl::StatusOr<std::vector<v1::Trial>> held = c->ListAllTrials(campaign, state);
       if (!held.ok()) return ServerError(inv, held.status());
       for (const v1::Trial& t : *held) holder[t.number()] = t.worker();
     }
@@ -393,7 +393,7 @@ int RunRenew(const Invocation& inv) {
   }
   std::vector<v1::Trial> renewed;
   for (const auto& [worker, numbers] : by_worker) {
-    absl::StatusOr<v1::RenewResponse> r = c->Renew(study, numbers, worker, lease);
+    absl::StatusOr<v1::RenewResponse> r = c->Renew(campaign, numbers, worker, lease);
     if (!r.ok()) return ServerError(inv, r.status());
     renewed.insert(renewed.end(), r->trials().begin(), r->trials().end());
   }
@@ -422,7 +422,7 @@ absl::StatusOr<std::string> ReadWholeFile(const std::string& path, absl::string_
 }
 
 int RunImport(const Invocation& inv) {
-  const std::string& study = Arg(inv, 0);
+  const std::string& campaign = Arg(inv, 0);
   const std::string& path = Arg(inv, 1);
   absl::StatusOr<std::string> text = ReadWholeFile(path, "FILE");
   if (!text.ok()) return UsageError(*inv.command, text.status().message());
@@ -435,9 +435,9 @@ int RunImport(const Invocation& inv) {
   int code = 0;
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
-  absl::StatusOr<v1::StudyView> view = c->GetStudy(study);
+  absl::StatusOr<v1::CampaignView> view = c->GetCampaign(campaign);
   if (!view.ok()) return ServerError(inv, view.status());
-  absl::StatusOr<std::vector<v1::Trial>> trials = c->ListAllTrials(study, v1::TRIAL_STATE_UNSPECIFIED);
+  absl::StatusOr<std::vector<v1::Trial>> trials = c->ListAllTrials(campaign, v1::TRIAL_STATE_UNSPECIFIED);
   if (!trials.ok()) return ServerError(inv, trials.status());
   const ImportPlan plan = PlanImport(*records, view->design(), *trials);
   for (const BadRow& bad : plan.bad) {
@@ -462,7 +462,7 @@ int RunImport(const Invocation& inv) {
       *r.mutable_outcome() = plan.to_report[i].outcome;
       lines.push_back(plan.to_report[i].line);
     }
-    absl::StatusOr<v1::TellResponse> told = c->Tell(study, reports, worker);
+    absl::StatusOr<v1::TellResponse> told = c->Tell(campaign, reports, worker);
     if (!told.ok()) {
       std::fprintf(stderr, "%s: %d outcomes stored before the error below; importing the file again stores the rest\n",
                    Prefix(*inv.command).c_str(), stored);
@@ -513,52 +513,52 @@ int RunWorkCommand(const Invocation& inv) {
 // ---- The command table ----
 
 // What `ogive COMMAND --help` says besides the usage line and the options.
-constexpr char kStudyCreateHelp[] =
-    R"(Creates a study from the StudyDesign in FILE: protobuf text format, or JSON (the proto3
-JSON mapping) when FILE ends in .json. Prints the study's name and population size.
+constexpr char kCampaignCreateHelp[] =
+    R"(Creates a campaign from the CampaignDesign in FILE: protobuf text format, or JSON (the proto3
+JSON mapping) when FILE ends in .json. Prints the campaign's name and population size.
 Errors in the file are shown with their line and column.
 )";
 
-constexpr char kStudyListHelp[] = R"(Lists every study on the server in name order.
+constexpr char kCampaignListHelp[] = R"(Lists every campaign on the server in name order.
 )";
 
-constexpr char kStudyShowHelp[] =
-    R"(Shows the study's objective, phase, generation, trial and outcome counts, the best trial
+constexpr char kCampaignShowHelp[] =
+    R"(Shows the campaign's objective, phase, generation, trial and outcome counts, the best trial
 with its candidate, and the search distribution in the parameters' units: mean and spread
 of each real and integer parameter, P(on) of each flag, the probabilities of each
 categorical parameter's options; the step size and axis ratio; reports in the last hour
-and the workers seen in it. --json prints the StudyView.
+and the workers seen in it. --json prints the CampaignView.
 )";
 
-constexpr char kStudyWatchHelp[] =
-    R"(Follows the study live: on a terminal the screen is redrawn with the summary (as in
-'ogive study show') and a progress bar toward the trial budget each time something
+constexpr char kCampaignWatchHelp[] =
+    R"(Follows the campaign live: on a terminal the screen is redrawn with the summary (as in
+'ogive campaign show') and a progress bar toward the trial budget each time something
 changes; otherwise one line per change (time, phase, generation, trials by state, best
-outcome, budget used). --json prints each StudyView as one line of JSON. Stops when the
-study is done, or on Ctrl-C.
+outcome, budget used). --json prints each CampaignView as one line of JSON. Stops when the
+campaign is done, or on Ctrl-C.
 )";
 
-constexpr char kStudyPauseHelp[] =
-    R"(Pauses the study: asks are refused until it is resumed; leased trials may still report.
+constexpr char kCampaignPauseHelp[] =
+    R"(Pauses the campaign: asks are refused until it is resumed; leased trials may still report.
 )";
 
-constexpr char kStudyResumeHelp[] = R"(Resumes a paused study.
+constexpr char kCampaignResumeHelp[] = R"(Resumes a paused campaign.
 )";
 
-constexpr char kStudyFinishHelp[] =
-    R"(Finishes the study: it becomes done (reason stopped) and hands out no more
+constexpr char kCampaignFinishHelp[] =
+    R"(Finishes the campaign: it becomes done (reason stopped) and hands out no more
 candidates. This cannot be undone.
 )";
 
-constexpr char kStudyTrialsHelp[] =
-    R"(Lists the study's trials in number order: state, generation, worker, outcome, who
+constexpr char kCampaignTrialsHelp[] =
+    R"(Lists the campaign's trials in number order: state, generation, worker, outcome, who
 reported it (the label of the token used; '-' without tokens), whether it came late,
 what the search made of it (pending, consumed, too_stale), and the candidate.
 --csv prints CSV with a header row (RFC 4180 quoting); --json a JSON array of trials.
 )";
 
 constexpr char kAskHelp[] =
-    R"(Leases N trials of study NAME and prints each: its number, its lease deadline and its
+    R"(Leases N trials of campaign NAME and prints each: its number, its lease deadline and its
 candidate (name = value unit). Report each with 'ogive tell' before the lease runs out,
 or extend it with 'ogive renew'. --card prints a card per trial for the bench instead: the
 trial number in large digits, each parameter with its unit and description, and how to
@@ -566,9 +566,9 @@ report back; each card ends with a form feed, so printing starts each on a new p
 )";
 
 constexpr char kTellHelp[] =
-    R"(Reports the outcome of trial TRIAL of study NAME. Give exactly one of:
-  --score X        a measured number (finite), ordered by the study's direction
-  --grade LABEL    a label of the study's grade scale (any case; a typo is refused with
+    R"(Reports the outcome of trial TRIAL of campaign NAME. Give exactly one of:
+  --score X        a measured number (finite), ordered by the campaign's direction
+  --grade LABEL    a label of the campaign's grade scale (any case; a typo is refused with
                    the closest label suggested)
   --infeasible     evaluated, but it broke a constraint (ranks below every score)
   --void           nothing was learned (the run never happened)
@@ -579,14 +579,14 @@ constexpr char kImportHelp[] =
     R"(Reports outcomes measured in a batch, read from FILE (CSV, RFC 4180). Each row holds a
 trial number, an outcome and optionally a note: with a header row naming the columns
 'trial', 'outcome' and 'note' (any order), or without one in that order. An outcome is a
-number (a score), a label of the study's grade scale (any case), 'infeasible' or 'void'.
+number (a score), a label of the campaign's grade scale (any case), 'infeasible' or 'void'.
 Every row is checked first; each bad row is listed as FILE:LINE: reason, and then nothing
 is imported unless --skip-bad is given. Rows whose outcome is already stored are counted
 and left alone, so importing the same file again changes nothing.
 )";
 
 constexpr char kRenewHelp[] =
-    R"(Extends the leases of the given trials of study NAME. Without --worker each lease is
+    R"(Extends the leases of the given trials of campaign NAME. Without --worker each lease is
 renewed for the worker that holds it. A lapsed trial that has not reported is leased
 again.
 )";
@@ -596,78 +596,78 @@ constexpr char kWorkHelp[] =
 Each run sees the candidate in its environment:
   OGIVE_<NAME>=value     one per parameter; NAME upper-cased, '-' and '.' become '_';
                          reals exact (%.17g), integers, flags 1/0, options by name
-  OGIVE_STUDY, OGIVE_TRIAL, OGIVE_CANDIDATE_FILE (a JSON object name -> value)
+  OGIVE_CAMPAIGN, OGIVE_TRIAL, OGIVE_CANDIDATE_FILE (a JSON object name -> value)
 Standard input is /dev/null; standard output is copied through, and its last non-empty
-line is the outcome: a number is a score; a label of the study's grade scale (any case) is
+line is the outcome: a number is a score; a label of the campaign's grade scale (any case) is
 a grade; the word 'infeasible' is infeasible. Anything else, a non-zero exit status or
 death by a signal reports void, with a note saying why. The lease is renewed while
 PROGRAM runs.
 
-Stops when the study is done (exit 0), after N trials started (exit 0), or on a server
-error (exit 1); waits while the study is paused. On SIGTERM or SIGINT it sends SIGTERM to
+Stops when the campaign is done (exit 0), after N trials started (exit 0), or on a server
+error (exit 1); waits while the campaign is paused. On SIGTERM or SIGINT it sends SIGTERM to
 the running programs, reports their trials void and exits with 128 + the signal (143 for
 SIGTERM). One line per trial goes to standard error: 'trial 12: score 3.25 (41.2 s)'.
 )";
 
 std::vector<Command> MakeCommands() {
   std::vector<Command> commands;
-  commands.push_back({.words = {"study", "create"},
+  commands.push_back({.words = {"campaign", "create"},
                       .synopsis = "FILE",
-                      .summary = "create a study from a design file",
-                      .details = kStudyCreateHelp,
+                      .summary = "create a campaign from a design file",
+                      .details = kCampaignCreateHelp,
                       .min_positional = 1,
                       .max_positional = 1,
-                      .run = RunStudyCreate});
-  commands.push_back({.words = {"study", "list"},
+                      .run = RunCampaignCreate});
+  commands.push_back({.words = {"campaign", "list"},
                       .synopsis = "",
-                      .summary = "every study: phase, generation, trials by state, best outcome",
-                      .details = kStudyListHelp,
-                      .run = RunStudyList});
-  commands.push_back({.words = {"study", "show"},
+                      .summary = "every campaign: phase, generation, trials by state, best outcome",
+                      .details = kCampaignListHelp,
+                      .run = RunCampaignList});
+  commands.push_back({.words = {"campaign", "show"},
                       .synopsis = "NAME",
-                      .summary = "one study: status, best trial, search distribution",
-                      .details = kStudyShowHelp,
+                      .summary = "one campaign: status, best trial, search distribution",
+                      .details = kCampaignShowHelp,
                       .min_positional = 1,
                       .max_positional = 1,
-                      .run = RunStudyShow});
-  commands.push_back({.words = {"study", "watch"},
+                      .run = RunCampaignShow});
+  commands.push_back({.words = {"campaign", "watch"},
                       .synopsis = "NAME",
-                      .summary = "follow a study live (redraws on a terminal, a line per change otherwise)",
-                      .details = kStudyWatchHelp,
+                      .summary = "follow a campaign live (redraws on a terminal, a line per change otherwise)",
+                      .details = kCampaignWatchHelp,
                       .min_positional = 1,
                       .max_positional = 1,
-                      .run = RunStudyWatch});
-  commands.push_back({.words = {"study", "pause"},
+                      .run = RunCampaignWatch});
+  commands.push_back({.words = {"campaign", "pause"},
                       .synopsis = "NAME",
                       .summary = "stop handing out candidates (reports are still taken)",
-                      .details = kStudyPauseHelp,
+                      .details = kCampaignPauseHelp,
                       .min_positional = 1,
                       .max_positional = 1,
-                      .run = RunStudyPause});
-  commands.push_back({.words = {"study", "resume"},
+                      .run = RunCampaignPause});
+  commands.push_back({.words = {"campaign", "resume"},
                       .synopsis = "NAME",
                       .summary = "hand out candidates again",
-                      .details = kStudyResumeHelp,
+                      .details = kCampaignResumeHelp,
                       .min_positional = 1,
                       .max_positional = 1,
-                      .run = RunStudyResume});
-  commands.push_back({.words = {"study", "finish"},
+                      .run = RunCampaignResume});
+  commands.push_back({.words = {"campaign", "finish"},
                       .synopsis = "NAME",
-                      .summary = "end the study for good (done, reason stopped)",
-                      .details = kStudyFinishHelp,
+                      .summary = "end the campaign for good (done, reason stopped)",
+                      .details = kCampaignFinishHelp,
                       .min_positional = 1,
                       .max_positional = 1,
-                      .run = RunStudyFinish});
-  commands.push_back({.words = {"study", "trials"},
+                      .run = RunCampaignFinish});
+  commands.push_back({.words = {"campaign", "trials"},
                       .synopsis = "NAME [--state STATE] [--csv]",
-                      .summary = "a study's trials as a table, CSV or JSON",
-                      .details = kStudyTrialsHelp,
+                      .summary = "a campaign's trials as a table, CSV or JSON",
+                      .details = kCampaignTrialsHelp,
                       .options = {{"--state", "", "STATE",
                                    "only trials in this state: leased, reported, lapsed or voided"},
                                   {"--csv", "", "", "print CSV instead of a table"}},
                       .min_positional = 1,
                       .max_positional = 1,
-                      .run = RunStudyTrials});
+                      .run = RunCampaignTrials});
   for (Command& c : ReportCommands()) commands.push_back(std::move(c));
   commands.push_back(
       {.words = {"ask"},
@@ -677,7 +677,7 @@ std::vector<Command> MakeCommands() {
        .options = {{"-n", "", "N", "how many trials (default 1)"},
                    {"--worker", "", "ID",
                     "who evaluates them, shown in trial lists (default HOST:PID)"},
-                   {"--lease", "", "SECONDS", "lease length (default: the study's)"},
+                   {"--lease", "", "SECONDS", "lease length (default: the campaign's)"},
                    {"--card", "", "", "print a card per trial for the bench (large trial number, units, "
                                       "descriptions, how to report)"}},
        .min_positional = 1,
@@ -711,7 +711,7 @@ std::vector<Command> MakeCommands() {
        .synopsis = "NAME TRIAL... [--lease SECONDS] [--worker ID]",
        .summary = "extend leases",
        .details = kRenewHelp,
-       .options = {{"--lease", "", "SECONDS", "new lease length from now (default: the study's)"},
+       .options = {{"--lease", "", "SECONDS", "new lease length from now (default: the campaign's)"},
                    {"--worker", "", "ID", "the worker that holds the leases"}},
        .min_positional = 2,
        .max_positional = SIZE_MAX,
@@ -725,7 +725,7 @@ std::vector<Command> MakeCommands() {
        .options = {{"--max-trials", "", "N", "stop after starting N trials (default: no limit)"},
                    {"--parallel", "", "K", "run K trials at once (default 1)"},
                    {"--lease", "", "SECONDS",
-                    "lease length, renewed every third of it (default: the study's)"},
+                    "lease length, renewed every third of it (default: the campaign's)"},
                    {"--worker", "", "ID", "worker name shown in trial lists (default HOST:PID)"}},
        .min_positional = 1,
        .max_positional = 1,
@@ -797,7 +797,7 @@ std::string HelpText(const Command* command, const std::vector<std::string>& gro
     out +=
         "usage: ogive [global options] COMMAND [options] [arguments]\n"
         "\n"
-        "The command-line client of an ogive server: create and inspect studies, lease "
+        "The command-line client of an ogive server: create and inspect campaigns, lease "
         "candidates,\n"
         "report outcomes, and run the worker loop on cluster nodes.\n"
         "\n"
@@ -866,7 +866,7 @@ absl::StatusOr<Invocation> ParseCommandLine(absl::Span<const std::string> args,
       }
       continue;
     }
-    if (words.empty() && arg == "help") {  // `ogive help study create` reads as --help
+    if (words.empty() && arg == "help") {  // `ogive help campaign create` reads as --help
       inv.help = true;
       continue;
     }
@@ -994,7 +994,7 @@ absl::StatusOr<v1::Outcome> OutcomeFromOptions(const ParsedArgs& args) {
   } else if (std::optional<std::string> grade = args.Get("--grade"); grade.has_value()) {
     if (absl::StripAsciiWhitespace(*grade).empty()) {
       return absl::InvalidArgumentError(
-          "--grade: must be a label of the study's grade scale, got ''");
+          "--grade: must be a label of the campaign's grade scale, got ''");
     }
     outcome.set_grade(*grade);
   } else if (args.Has("--infeasible")) {
@@ -1009,7 +1009,7 @@ absl::StatusOr<v1::Outcome> OutcomeFromOptions(const ParsedArgs& args) {
 absl::StatusOr<WorkOptions> WorkOptionsFromArgs(const ParsedArgs& args,
                                                 const std::string& default_worker) {
   WorkOptions options;
-  if (!args.positional.empty()) options.study = args.positional[0];
+  if (!args.positional.empty()) options.campaign = args.positional[0];
   if (!args.has_separator || args.after_separator.empty()) {
     return absl::InvalidArgumentError(
         "give the program to run after '--', e.g. ogive work NAME -- ./evaluate.sh --fast");

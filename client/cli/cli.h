@@ -19,7 +19,7 @@
 #include "client/cli/args.h"
 #include "client/cli/work.h"
 #include "client/client_tls.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 
 namespace ogive::client {
 class Client;
@@ -35,9 +35,9 @@ inline constexpr char kDefaultServer[] = "127.0.0.1:7075";
 
 struct Invocation;
 
-// One subcommand: `ogive study create`, `ogive ask`, ...
+// One subcommand: `ogive campaign create`, `ogive ask`, ...
 struct Command {
-  std::vector<absl::string_view> words = {};  // {"study", "create"}
+  std::vector<absl::string_view> words = {};  // {"campaign", "create"}
   absl::string_view synopsis = "";            // what follows the words in the usage line
   absl::string_view summary = "";             // one line for `ogive --help`
   absl::string_view details = "";             // paragraphs for `ogive ... --help`
@@ -62,7 +62,7 @@ struct GlobalOptions {
 // A parsed command line.
 struct Invocation {
   const Command* command = nullptr;  // nullptr: no command (top-level help)
-  std::vector<std::string> group;    // for help on a group: {"study"}
+  std::vector<std::string> group;    // for help on a group: {"campaign"}
   bool help = false;                 // --help was asked for
   ParsedArgs args;                   // the command's options and arguments
   GlobalOptions globals;
@@ -81,7 +81,7 @@ const std::vector<Command>& Commands();
 absl::StatusOr<Invocation> ParseCommandLine(absl::Span<const std::string> args,
                                             const GetEnv& getenv);
 
-// The help text of `command`, of a group ({"study"}), or of `ogive` itself (both empty).
+// The help text of `command`, of a group ({"campaign"}), or of `ogive` itself (both empty).
 std::string HelpText(const Command* command, const std::vector<std::string>& group);
 
 // The outcome chosen by `ogive tell`'s options (exactly one of --score, --grade, --infeasible,

@@ -33,7 +33,7 @@ using ::testing::HasSubstr;
 
 v1::Objective Scored() {
   v1::Objective objective;
-  objective.set_direction(v1::LOWER_IS_BETTER);
+  objective.set_direction(v1::DIRECTION_LOWER_IS_BETTER);
   return objective;
 }
 
@@ -45,8 +45,8 @@ v1::Objective Graded() {
   return objective;
 }
 
-v1::StudyDesign Design(const std::string& text) {
-  v1::StudyDesign design;
+v1::CampaignDesign Design(const std::string& text) {
+  v1::CampaignDesign design;
   EXPECT_TRUE(google::protobuf::TextFormat::ParseFromString(text, &design)) << text;
   return design;
 }
@@ -70,7 +70,7 @@ constexpr char kMixedDesign[] = R"pb(
     name: "gas"
     categorical { options: "argon" options: "nitrogen" }
   }
-  objective { direction: LOWER_IS_BETTER }
+  objective { direction: DIRECTION_LOWER_IS_BETTER }
 )pb";
 
 v1::Candidate MixedCandidate() {
@@ -139,7 +139,7 @@ TEST(OutcomeLineTest, GradeLabelsMatchInAnyCaseAndKeepTheScaleSpelling) {
   EXPECT_THAT(unknown.note(), HasSubstr("\"excellent\""));
 }
 
-TEST(OutcomeLineTest, NumbersOnAGradedStudyAndLabelsOnAScoredStudyAreVoid) {
+TEST(OutcomeLineTest, NumbersOnAGradedCampaignAndLabelsOnAScoredCampaignAreVoid) {
   EXPECT_TRUE(ParseOutcomeLine("3.5", Graded()).has_void_());
   EXPECT_TRUE(ParseOutcomeLine("good", Scored()).has_void_());
 }
@@ -294,11 +294,11 @@ TEST(ViewsTest, TrialsTableShowsOutcomesAndParameters) {
 }
 
 TEST(ViewsTest, SummaryShowsTheDistributionInUserUnits) {
-  v1::StudyView view;
+  v1::CampaignView view;
   view.set_name("anneal");
   *view.mutable_design() = Design(kMixedDesign);
   v1::StatusSummary& s = *view.mutable_status();
-  s.set_phase(v1::STUDY_PHASE_DONE);
+  s.set_phase(v1::CAMPAIGN_PHASE_DONE);
   s.set_reason(v1::DONE_REASON_BUDGET);
   s.set_phase_message("the trial budget of 40 is spent");
   s.set_generation(5);
@@ -319,7 +319,7 @@ TEST(ViewsTest, SummaryShowsTheDistributionInUserUnits) {
   m->add_options("nitrogen");
   m->add_probabilities(0.75);
   m->add_probabilities(0.25);
-  const std::string text = StudySummary(view);
+  const std::string text = CampaignSummary(view);
   EXPECT_THAT(text, HasSubstr("done (budget): the trial budget of 40 is spent"));
   EXPECT_THAT(text, HasSubstr("score 3.25 (trial 12)"));
   EXPECT_THAT(text, HasSubstr("peak-temp = 812.5 degC"));
@@ -336,7 +336,7 @@ TEST(ViewsTest, ProgressBarFillsInProportion) {
 }
 
 TEST(ViewsTest, SummaryAndWatchLinesShowRecentActivityAndBudget) {
-  v1::StudyView view;
+  v1::CampaignView view;
   view.set_name("kiln");
   view.mutable_design()->set_trial_budget(120);
   v1::StatusSummary* s = view.mutable_status();
@@ -347,7 +347,7 @@ TEST(ViewsTest, SummaryAndWatchLinesShowRecentActivityAndBudget) {
   w->set_worker("kiln-2");
   w->set_reports_last_hour(12);
   w->set_last_seen_unix_ms(10'000'000 - 180'000);
-  const std::string summary = StudySummary(view);
+  const std::string summary = CampaignSummary(view);
   EXPECT_THAT(summary, ::testing::HasSubstr("12 reports in the last hour; 1 worker seen"));
   EXPECT_THAT(summary, ::testing::HasSubstr("kiln-2  12 reports, last seen 3 min ago"));
   EXPECT_THAT(WatchLine(view, absl::UTCTimeZone()), ::testing::HasSubstr("budget 30/120"));
@@ -436,9 +436,9 @@ TEST(ArgsTest, ValueParsers) {
 
 TEST(CommandLineTest, FindsTheCommandAndGlobalOptionsAnywhere) {
   absl::StatusOr<Invocation> inv =
-      Parse({"--server", "db1:7000", "study", "trials", "S", "--state", "voided", "--json"});
+      Parse({"--server", "db1:7000", "campaign", "trials", "S", "--state", "voided", "--json"});
   ASSERT_TRUE(inv.ok()) << inv.status();
-  EXPECT_THAT(inv->command->words, ElementsAre("study", "trials"));
+  EXPECT_THAT(inv->command->words, ElementsAre("campaign", "trials"));
   EXPECT_EQ(inv->globals.server, "db1:7000");
   EXPECT_TRUE(inv->globals.json);
   EXPECT_THAT(inv->args.positional, ElementsAre("S"));
@@ -446,18 +446,18 @@ TEST(CommandLineTest, FindsTheCommandAndGlobalOptionsAnywhere) {
 }
 
 TEST(CommandLineTest, ServerFromTheEnvironmentUnlessGiven) {
-  EXPECT_EQ(Parse({"study", "list"})->globals.server, kDefaultServer);
-  EXPECT_EQ(Parse({"study", "list"}, {{"OGIVE_SERVER", "h:1"}})->globals.server, "h:1");
-  EXPECT_EQ(Parse({"study", "list", "--server=h:2"}, {{"OGIVE_SERVER", "h:1"}})->globals.server,
+  EXPECT_EQ(Parse({"campaign", "list"})->globals.server, kDefaultServer);
+  EXPECT_EQ(Parse({"campaign", "list"}, {{"OGIVE_SERVER", "h:1"}})->globals.server, "h:1");
+  EXPECT_EQ(Parse({"campaign", "list", "--server=h:2"}, {{"OGIVE_SERVER", "h:1"}})->globals.server,
             "h:2");
-  EXPECT_THAT(UsageMessage({"study", "list", "--server", "nohost"}),
+  EXPECT_THAT(UsageMessage({"campaign", "list", "--server", "nohost"}),
               HasSubstr("--server: must be HOST:PORT"));
-  EXPECT_THAT(UsageMessage({"study", "list", "--timeout", "-1"}),
+  EXPECT_THAT(UsageMessage({"campaign", "list", "--timeout", "-1"}),
               HasSubstr("--timeout: must be a positive number of seconds"));
 }
 
 TEST(CommandLineTest, TlsOptionsFromTheCommandLineElseTheEnvironment) {
-  const client::ClientTls plain = Parse({"study", "list"})->globals.tls;
+  const client::ClientTls plain = Parse({"campaign", "list"})->globals.tls;
   EXPECT_FALSE(plain.on());
   absl::StatusOr<Invocation> given =
       Parse({"--tls-ca", "ca.pem", "work", "S", "--tls-cert=c.pem", "--tls-key", "c.key", "--tls-server-name",
@@ -476,10 +476,10 @@ TEST(CommandLineTest, TlsOptionsFromTheCommandLineElseTheEnvironment) {
   EXPECT_EQ(env->globals.tls.ca_path, "env-ca.pem");
   EXPECT_EQ(env->globals.tls.cert_path, "e.pem");
   EXPECT_EQ(env->globals.tls.key_path, "e.key");
-  EXPECT_TRUE(Parse({"study", "list", "--tls"})->globals.tls.on());
-  EXPECT_THAT(UsageMessage({"study", "list", "--tls-cert", "c.pem"}), HasSubstr("--tls-cert: needs --tls-key"));
-  EXPECT_THAT(UsageMessage({"study", "list", "--tls-key", "c.key"}), HasSubstr("--tls-key: needs --tls-cert"));
-  EXPECT_THAT(UsageMessage({"study", "list", "--tls-server-name", "x"}),
+  EXPECT_TRUE(Parse({"campaign", "list", "--tls"})->globals.tls.on());
+  EXPECT_THAT(UsageMessage({"campaign", "list", "--tls-cert", "c.pem"}), HasSubstr("--tls-cert: needs --tls-key"));
+  EXPECT_THAT(UsageMessage({"campaign", "list", "--tls-key", "c.key"}), HasSubstr("--tls-key: needs --tls-cert"));
+  EXPECT_THAT(UsageMessage({"campaign", "list", "--tls-server-name", "x"}),
               HasSubstr("--tls-server-name: applies to TLS only"));
 }
 
@@ -517,13 +517,13 @@ TEST(ClientTlsTest, UnusableFilesNameTheOptionAndThePath) {
 TEST(CommandLineTest, UsageErrorsNameTheProblem) {
   EXPECT_THAT(UsageMessage({}), HasSubstr("ogive: missing command"));
   EXPECT_THAT(UsageMessage({"frob"}), HasSubstr("unknown command 'frob'"));
-  EXPECT_THAT(UsageMessage({"study", "frob"}), HasSubstr("ogive study: unknown command 'frob'"));
-  EXPECT_THAT(UsageMessage({"study"}), HasSubstr("missing subcommand: create, list, show"));
+  EXPECT_THAT(UsageMessage({"campaign", "frob"}), HasSubstr("ogive campaign: unknown command 'frob'"));
+  EXPECT_THAT(UsageMessage({"campaign"}), HasSubstr("missing subcommand: create, list, show"));
   EXPECT_THAT(UsageMessage({"ask", "S", "--frob"}),
               HasSubstr("ogive ask: unknown option '--frob'\n(see 'ogive ask --help')"));
   EXPECT_THAT(UsageMessage({"ask", "S", "--lease"}), HasSubstr("option --lease needs a value"));
   EXPECT_THAT(UsageMessage({"ask"}), HasSubstr("missing argument: NAME"));
-  EXPECT_THAT(UsageMessage({"study", "show", "A", "B"}), HasSubstr("unexpected argument 'B'"));
+  EXPECT_THAT(UsageMessage({"campaign", "show", "A", "B"}), HasSubstr("unexpected argument 'B'"));
   EXPECT_THAT(UsageMessage({"ask", "S", "--", "x"}), HasSubstr("'--' is only for 'ogive work'"));
   EXPECT_THAT(UsageMessage({"--worker", "w", "ask", "S"}),
               HasSubstr("unknown option '--worker' (a command's options go after it)"));
@@ -535,10 +535,10 @@ TEST(CommandLineTest, HelpWinsOverOtherProblems) {
   ASSERT_TRUE(inv.ok()) << inv.status();
   EXPECT_TRUE(inv->help);
   EXPECT_THAT(inv->command->words, ElementsAre("ask"));
-  inv = Parse({"study", "-h"});
+  inv = Parse({"campaign", "-h"});
   ASSERT_TRUE(inv.ok());
   EXPECT_TRUE(inv->help);
-  EXPECT_THAT(inv->group, ElementsAre("study"));
+  EXPECT_THAT(inv->group, ElementsAre("campaign"));
   inv = Parse({"help", "work"});
   ASSERT_TRUE(inv.ok());
   EXPECT_TRUE(inv->help);
@@ -566,7 +566,7 @@ TEST(WorkArgsTest, TheProgramFollowsTheSeparator) {
   ASSERT_TRUE(inv.ok()) << inv.status();
   absl::StatusOr<WorkOptions> options = WorkOptionsFromArgs(inv->args, "host:1");
   ASSERT_TRUE(options.ok()) << options.status();
-  EXPECT_EQ(options->study, "S");
+  EXPECT_EQ(options->campaign, "S");
   EXPECT_THAT(options->command, ElementsAre("./eval.sh", "--fast", "-n", "3"));
   EXPECT_EQ(options->parallel, 4);
   EXPECT_EQ(options->max_trials, 10);
@@ -627,7 +627,7 @@ TEST(DesignFileTest, ChoosesTheFormatByName) {
 }
 
 TEST(DesignFileTest, ReadsTextFormat) {
-  absl::StatusOr<v1::StudyDesign> d = ParseDesign("d.txtpb", kMixedDesign);
+  absl::StatusOr<v1::CampaignDesign> d = ParseDesign("d.txtpb", kMixedDesign);
   ASSERT_TRUE(d.ok()) << d.status();
   EXPECT_EQ(d->name(), "anneal");
   ASSERT_EQ(d->parameters_size(), 4);
@@ -636,7 +636,7 @@ TEST(DesignFileTest, ReadsTextFormat) {
 }
 
 TEST(DesignFileTest, TextErrorsNameFileLineAndColumn) {
-  absl::StatusOr<v1::StudyDesign> d = ParseDesign("d.textproto",
+  absl::StatusOr<v1::CampaignDesign> d = ParseDesign("d.textproto",
                                                   "name: \"x\"\n"
                                                   "parameters {\n"
                                                   "  nmae: \"a\"\n"
@@ -657,7 +657,7 @@ TEST(DesignFileTest, TextErrorsNameFileLineAndColumn) {
 // Found by the design_text fuzz target: a description saved in Latin-1, or written with an octal
 // escape, was accepted here and then refused by the server's gRPC layer with no hint of where.
 TEST(DesignFileTest, RefusesStringsThatAreNotUtf8) {
-  absl::StatusOr<v1::StudyDesign> d =
+  absl::StatusOr<v1::CampaignDesign> d =
       ParseDesign("d.txtpb", "name: \"x\"\nparameters { name: \"t\" unit: \"\xb0" "C\" }\n");
   ASSERT_FALSE(d.ok());
   EXPECT_EQ(d.status().code(), absl::StatusCode::kInvalidArgument);
@@ -681,7 +681,7 @@ TEST(DesignFileTest, RefusesStringsThatAreNotUtf8) {
 }
 
 TEST(DesignFileTest, ReadsJson) {
-  absl::StatusOr<v1::StudyDesign> d = ParseDesign("d.json", R"({
+  absl::StatusOr<v1::CampaignDesign> d = ParseDesign("d.json", R"({
     "name": "anneal",
     "parameters": [
       {"name": "t", "unit": "degC", "real": {"low": 700, "high": 900, "log": false}},
@@ -700,7 +700,7 @@ TEST(DesignFileTest, ReadsJson) {
 }
 
 TEST(DesignFileTest, JsonSyntaxErrorsNameLineAndColumn) {
-  absl::StatusOr<v1::StudyDesign> d = ParseDesign("d.json",
+  absl::StatusOr<v1::CampaignDesign> d = ParseDesign("d.json",
                                                   "{\n"
                                                   "  \"name\": \"x\",\n"
                                                   "  \"parameters\": [1, 2,, 3]\n"
@@ -724,7 +724,7 @@ TEST(DesignFileTest, JsonFieldErrorsPointAtTheField) {
       "    {\"name\": \"b\", \"real\": {\"lowx\": 1}}\n"
       "  ]\n"
       "}\n";
-  absl::StatusOr<v1::StudyDesign> d = ParseDesign("d.json", text);
+  absl::StatusOr<v1::CampaignDesign> d = ParseDesign("d.json", text);
   ASSERT_FALSE(d.ok());
   EXPECT_THAT(std::string(d.status().message()), HasSubstr("d.json:5:28: "));
   EXPECT_THAT(std::string(d.status().message()), HasSubstr("lowx"));
@@ -741,7 +741,7 @@ TEST(DesignFileTest, JsonFieldErrorsPointAtTheField) {
 }
 
 TEST(DesignFileTest, MissingFileIsNamed) {
-  absl::StatusOr<v1::StudyDesign> d = ReadDesignFile("/nonexistent/design.txtpb");
+  absl::StatusOr<v1::CampaignDesign> d = ReadDesignFile("/nonexistent/design.txtpb");
   ASSERT_FALSE(d.ok());
   EXPECT_THAT(std::string(d.status().message()),
               HasSubstr("cannot read design file '/nonexistent/design.txtpb': No such file"));

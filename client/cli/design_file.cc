@@ -63,15 +63,15 @@ class FirstError : public google::protobuf::io::ErrorCollector {
   std::string message_;
 };
 
-absl::StatusOr<v1::StudyDesign> ParseText(absl::string_view file_name, absl::string_view contents) {
+absl::StatusOr<v1::CampaignDesign> ParseText(absl::string_view file_name, absl::string_view contents) {
   FirstError errors;
   google::protobuf::TextFormat::Parser parser;
   parser.RecordErrorsTo(&errors);
-  v1::StudyDesign design;
+  v1::CampaignDesign design;
   if (!parser.ParseFromString(std::string(contents), &design)) {
     if (errors.found()) return absl::InvalidArgumentError(errors.Describe(file_name, contents));
     return absl::InvalidArgumentError(
-        absl::StrCat(file_name, ":1:1: not a StudyDesign in text format"));
+        absl::StrCat(file_name, ":1:1: not a CampaignDesign in text format"));
   }
   return design;
 }
@@ -345,13 +345,13 @@ Position Locate(const JsonNode& root, absl::string_view path, absl::string_view 
   return at;
 }
 
-absl::StatusOr<v1::StudyDesign> ParseJson(absl::string_view file_name, absl::string_view contents) {
+absl::StatusOr<v1::CampaignDesign> ParseJson(absl::string_view file_name, absl::string_view contents) {
   JsonNode root;
   JsonReader reader(contents);
   if (!reader.Read(&root)) {
     return absl::InvalidArgumentError(absl::StrCat(file_name, ":", reader.error()));
   }
-  v1::StudyDesign design;
+  v1::CampaignDesign design;
   google::protobuf::util::JsonParseOptions options;
   options.ignore_unknown_fields = false;
   const auto status = google::protobuf::util::JsonStringToMessage(
@@ -471,10 +471,10 @@ bool IsJsonFileName(absl::string_view file_name) {
   return absl::EndsWithIgnoreCase(file_name, ".json");
 }
 
-absl::StatusOr<v1::StudyDesign> ParseDesign(absl::string_view file_name,
+absl::StatusOr<v1::CampaignDesign> ParseDesign(absl::string_view file_name,
                                             absl::string_view contents) {
   if (absl::Status s = CheckFileIsUtf8(file_name, contents); !s.ok()) return s;
-  absl::StatusOr<v1::StudyDesign> design =
+  absl::StatusOr<v1::CampaignDesign> design =
       IsJsonFileName(file_name) ? ParseJson(file_name, contents) : ParseText(file_name, contents);
   if (!design.ok()) return design;
   if (std::optional<std::string> field = NonUtf8Field(*design, ""); field.has_value()) {
@@ -484,7 +484,7 @@ absl::StatusOr<v1::StudyDesign> ParseDesign(absl::string_view file_name,
   return design;
 }
 
-absl::StatusOr<v1::StudyDesign> ReadDesignFile(const std::string& path) {
+absl::StatusOr<v1::CampaignDesign> ReadDesignFile(const std::string& path) {
   std::FILE* file = std::fopen(path.c_str(), "rb");
   if (file == nullptr) {
     const int error = errno;

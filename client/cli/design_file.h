@@ -1,4 +1,4 @@
-// Reading a StudyDesign from a file for `ogive study create`: protobuf text format, or JSON (the
+// Reading a CampaignDesign from a file for `ogive campaign create`: protobuf text format, or JSON (the
 // proto3 JSON mapping) for files ending in ".json". Every error names the file, the line and the
 // column, so a typo in a design is found at once.
 #ifndef OGIVE_CLIENT_CLI_DESIGN_FILE_H_
@@ -8,7 +8,7 @@
 
 #include "absl/status/statusor.h"
 #include "absl/strings/string_view.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 
 namespace ogive::cli {
 
@@ -22,11 +22,11 @@ bool IsJsonFileName(absl::string_view file_name);
 // an unknown field, a value of the wrong type, or a byte that is not UTF-8 (columns count bytes);
 // "FILE: FIELD: ..." when an escape puts bytes that are not UTF-8 into a string. The design's rules
 // (bounds, names) are the server's to check.
-absl::StatusOr<v1::StudyDesign> ParseDesign(absl::string_view file_name,
+absl::StatusOr<v1::CampaignDesign> ParseDesign(absl::string_view file_name,
                                             absl::string_view contents);
 
 // Reads and parses the file at `path`; NOT_FOUND (or the errno's meaning) if it cannot be read.
-absl::StatusOr<v1::StudyDesign> ReadDesignFile(const std::string& path);
+absl::StatusOr<v1::CampaignDesign> ReadDesignFile(const std::string& path);
 
 }  // namespace ogive::cli
 

@@ -49,13 +49,13 @@ absl::string_view OutcomeUseName(v1::OutcomeUse use) {
   }
 }
 
-absl::string_view PhaseName(v1::StudyPhase phase) {
+absl::string_view PhaseName(v1::CampaignPhase phase) {
   switch (phase) {
-    case v1::STUDY_PHASE_OPEN:
+    case v1::CAMPAIGN_PHASE_OPEN:
       return "open";
-    case v1::STUDY_PHASE_PAUSED:
+    case v1::CAMPAIGN_PHASE_PAUSED:
       return "paused";
-    case v1::STUDY_PHASE_DONE:
+    case v1::CAMPAIGN_PHASE_DONE:
       return "done";
     default:
       return "";
@@ -79,7 +79,7 @@ absl::string_view DoneReasonName(v1::DoneReason reason) {
 
 std::string PhaseWithReason(const v1::StatusSummary& status) {
   std::string text(PhaseName(status.phase()));
-  if (status.phase() == v1::STUDY_PHASE_DONE && status.reason() != v1::DONE_REASON_UNSPECIFIED) {
+  if (status.phase() == v1::CAMPAIGN_PHASE_DONE && status.reason() != v1::DONE_REASON_UNSPECIFIED) {
     absl::StrAppend(&text, " (", DoneReasonName(status.reason()), ")");
   }
   return text;

@@ -9,7 +9,7 @@
 #include "absl/strings/string_view.h"
 #include "absl/time/time.h"
 #include "ogive/v1/service.pb.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 
 namespace ogive::cli {
 
@@ -23,7 +23,7 @@ std::string FormatShort(double value);
 // The unspecified value gives "".
 absl::string_view TrialStateName(v1::TrialState state);
 absl::string_view OutcomeUseName(v1::OutcomeUse use);
-absl::string_view PhaseName(v1::StudyPhase phase);
+absl::string_view PhaseName(v1::CampaignPhase phase);
 absl::string_view DoneReasonName(v1::DoneReason reason);
 // "open", "paused", "done (budget)".
 std::string PhaseWithReason(const v1::StatusSummary& status);

@@ -49,7 +49,7 @@ absl::StatusOr<std::string> MatchGrade(absl::string_view typed, const v1::GradeS
     }
   }
   std::string message =
-      absl::StrCat(field, ": '", text, "' is not a grade of the study's scale (worst first: ",
+      absl::StrCat(field, ": '", text, "' is not a grade of the campaign's scale (worst first: ",
                    absl::StrJoin(scale.labels(), " < "), ")");
   const size_t allowed = std::max<size_t>(1, text.size() / 3);
   if (closest != nullptr && !tie && best <= allowed) {

@@ -1,4 +1,4 @@
-// Matching what a technician typed against a study's grade scale: labels match in any case, and a
+// Matching what a technician typed against a campaign's grade scale: labels match in any case, and a
 // typo gets the closest label suggested (Levenshtein edit distance). Pure, unit-tested.
 #ifndef OGIVE_CLIENT_CLI_GRADE_MATCH_H_
 #define OGIVE_CLIENT_CLI_GRADE_MATCH_H_
@@ -8,7 +8,7 @@
 
 #include "absl/status/statusor.h"
 #include "absl/strings/string_view.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 
 namespace ogive::cli {
 

@@ -84,7 +84,7 @@ std::string OutcomeSummary(const v1::Outcome& outcome) {
   }
 }
 
-ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::StudyDesign& design,
+ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::CampaignDesign& design,
                       const std::vector<v1::Trial>& trials) {
   ImportPlan plan;
   absl::flat_hash_map<int64_t, const v1::Trial*> by_number;
@@ -136,7 +136,7 @@ ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::StudyDesi
     }
     auto found = by_number.find(number);
     if (found == by_number.end()) {
-      bad(absl::StrCat("trial ", number, ": no such trial in this study"));
+      bad(absl::StrCat("trial ", number, ": no such trial in this campaign"));
       continue;
     }
     absl::StatusOr<v1::Outcome> outcome = ParseOutcomeField(*outcome_text, design.objective());

@@ -52,7 +52,7 @@ v1::Outcome ParseOutcomeLine(absl::string_view line, const v1::Objective& object
         absl::StrCat("the last line of output is not a finite number: ", QuoteForNote(text)));
   }
   if (objective.has_grade_scale()) {
-    return Void(absl::StrCat("the last line of output is not a grade of the study's scale (",
+    return Void(absl::StrCat("the last line of output is not a grade of the campaign's scale (",
                              absl::StrJoin(objective.grade_scale().labels(), ", "),
                              ") nor 'infeasible': ", QuoteForNote(text)));
   }

@@ -8,16 +8,16 @@
 #include <string>
 
 #include "absl/strings/string_view.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 
 namespace ogive::cli {
 
 // The outcome that `line` (the last non-empty line of output, without its newline) stands for on a
-// study with `objective`:
+// campaign with `objective`:
 //   - the word `infeasible` (any case)                  -> infeasible
-//   - on a graded study, one of the scale's labels (any case) -> that grade, spelled as in the
+//   - on a graded campaign, one of the scale's labels (any case) -> that grade, spelled as in the
 //   scale
-//   - on a scored study, a finite number (strtod syntax, the whole line) -> that score
+//   - on a scored campaign, a finite number (strtod syntax, the whole line) -> that score
 //   - anything else, including an empty line, NaN or an infinity -> void, with a note quoting the
 //   line
 // Blanks around the line are ignored.

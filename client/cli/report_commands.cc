@@ -17,7 +17,7 @@ namespace ogive::cli {
 namespace {
 
 constexpr char kReportHelp[] =
-    R"(Writes one self-contained HTML page about study NAME to FILE: its phase and status, plots
+    R"(Writes one self-contained HTML page about campaign NAME to FILE: its phase and status, plots
 of the best outcome against trials, the step size and axis ratio against generation, the
 trials' states, the staleness of consumed outcomes and each parameter's distribution over
 the generations (mean +/- 2 spreads within its bounds, or stacked probabilities), a table of
@@ -27,7 +27,7 @@ in the current directory; '-o -' writes it to standard output.
 )";
 
 constexpr char kExportHelp[] =
-    R"(Prints every trial of study NAME, in trial-number order, with its state, outcome (kind,
+    R"(Prints every trial of campaign NAME, in trial-number order, with its state, outcome (kind,
 score, grade label), note, candidate (one column per parameter, the unit in the header),
 the generation it came from and the one that consumed it, use, late, worker, who reported
 it, when (ISO 8601, UTC) and its lease deadline.
@@ -54,33 +54,33 @@ int Emit(const Invocation& inv, const std::string& path, const std::string& cont
   return kExitOk;
 }
 
-int RunStudyReport(const Invocation& inv) {
+int RunCampaignReport(const Invocation& inv) {
   const std::string path = inv.args.Get("--output").value_or(absl::StrCat(inv.args.positional[0], ".html"));
   if (path.empty()) return CommandUsageError(*inv.command, "-o: give the file to write, e.g. -o report.html");
   absl::StatusOr<std::unique_ptr<client::Client>> c = ClientFor(inv);
   if (!c.ok()) return CommandUsageError(*inv.command, c.status().message());
-  const std::string& study = inv.args.positional[0];
+  const std::string& campaign = inv.args.positional[0];
   ReportInput input;
-  absl::StatusOr<v1::StudyView> view = (*c)->GetStudy(study);
+  absl::StatusOr<v1::CampaignView> view = (*c)->GetCampaign(campaign);
   if (!view.ok()) return CommandServerError(inv, view.status());
   input.view = *std::move(view);
-  absl::StatusOr<std::vector<v1::Trial>> trials = (*c)->ListAllTrials(study);
+  absl::StatusOr<std::vector<v1::Trial>> trials = (*c)->ListAllTrials(campaign);
   if (!trials.ok()) return CommandServerError(inv, trials.status());
   input.trials = *std::move(trials);
-  absl::StatusOr<std::vector<v1::GenerationView>> generations = (*c)->ListAllGenerations(study);
+  absl::StatusOr<std::vector<v1::GenerationView>> generations = (*c)->ListAllGenerations(campaign);
   if (!generations.ok()) return CommandServerError(inv, generations.status());
   input.generations = *std::move(generations);
   input.generated_at = absl::Now();
   input.server = inv.globals.server;
-  const int code = Emit(inv, path, StudyReportHtml(input));
+  const int code = Emit(inv, path, CampaignReportHtml(input));
   if (code == kExitOk && path != "-") {
-    std::fprintf(stderr, "wrote the report of study %s (%zu trials, %zu generations) to %s\n", study.c_str(),
+    std::fprintf(stderr, "wrote the report of campaign %s (%zu trials, %zu generations) to %s\n", campaign.c_str(),
                  input.trials.size(), input.generations.size(), path.c_str());
   }
   return code;
 }
 
-int RunStudyExport(const Invocation& inv) {
+int RunCampaignExport(const Invocation& inv) {
   const bool csv = inv.args.Has("--csv");
   const bool json = inv.globals.json;
   if (csv == json) {
@@ -89,10 +89,10 @@ int RunStudyExport(const Invocation& inv) {
   }
   absl::StatusOr<std::unique_ptr<client::Client>> c = ClientFor(inv);
   if (!c.ok()) return CommandUsageError(*inv.command, c.status().message());
-  const std::string& study = inv.args.positional[0];
-  absl::StatusOr<v1::StudyView> view = (*c)->GetStudy(study);
+  const std::string& campaign = inv.args.positional[0];
+  absl::StatusOr<v1::CampaignView> view = (*c)->GetCampaign(campaign);
   if (!view.ok()) return CommandServerError(inv, view.status());
-  absl::StatusOr<std::vector<v1::Trial>> trials = (*c)->ListAllTrials(study);
+  absl::StatusOr<std::vector<v1::Trial>> trials = (*c)->ListAllTrials(campaign);
   if (!trials.ok()) return CommandServerError(inv, trials.status());
   const std::string contents =
       csv ? TrialsExportCsv(view->design(), *trials) : TrialsExportJson(view->design(), *trials);
@@ -119,16 +119,16 @@ absl::Status WriteFileAtomically(const std::string& path, const std::string& con
 
 std::vector<Command> ReportCommands() {
   std::vector<Command> commands;
-  commands.push_back({.words = {"study", "report"},
+  commands.push_back({.words = {"campaign", "report"},
                       .synopsis = "NAME [-o FILE.html]",
-                      .summary = "write an HTML page with plots of a study's progress",
+                      .summary = "write an HTML page with plots of a campaign's progress",
                       .details = kReportHelp,
                       .options = {{"--output", "-o", "FILE", "the HTML file to write (default NAME.html; '-' for standard output)"}},
                       .min_positional = 1,
                       .max_positional = 1,
                       .prints_data = false,
-                      .run = RunStudyReport});
-  commands.push_back({.words = {"study", "export"},
+                      .run = RunCampaignReport});
+  commands.push_back({.words = {"campaign", "export"},
                       .synopsis = "NAME [-o FILE] (--csv | --json)",
                       .summary = "every trial with values, outcome, who reported it and when",
                       .details = kExportHelp,
@@ -136,7 +136,7 @@ std::vector<Command> ReportCommands() {
                                   {"--output", "-o", "FILE", "write to FILE instead of standard output"}},
                       .min_positional = 1,
                       .max_positional = 1,
-                      .run = RunStudyExport});
+                      .run = RunCampaignExport});
   return commands;
 }
 

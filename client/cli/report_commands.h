@@ -1,5 +1,5 @@
-// The commands that turn a study's record into files: `ogive study report NAME -o FILE.html` (the
-// HTML page of report_page.h) and `ogive study export NAME --csv|--json [-o FILE]` (trial_export.h).
+// The commands that turn a campaign's record into files: `ogive campaign report NAME -o FILE.html` (the
+// HTML page of report_page.h) and `ogive campaign export NAME --csv|--json [-o FILE]` (trial_export.h).
 // Registered in cli.cc's command table; they reach the server through cli.h's ClientFor().
 #ifndef OGIVE_CLIENT_CLI_REPORT_COMMANDS_H_
 #define OGIVE_CLIENT_CLI_REPORT_COMMANDS_H_

@@ -51,7 +51,7 @@ std::vector<BestPoint> RunningBest(const std::vector<v1::Trial>& trials, const v
   }
   std::sort(sorted.begin(), sorted.end(),
             [](const v1::Trial* a, const v1::Trial* b) { return a->number() < b->number(); });
-  const bool lower_is_better = objective.direction() == v1::LOWER_IS_BETTER;
+  const bool lower_is_better = objective.direction() == v1::DIRECTION_LOWER_IS_BETTER;
   std::vector<BestPoint> out;
   for (const v1::Trial* t : sorted) {
     double value = 0;
@@ -137,7 +137,7 @@ bool RanksBefore(const v1::Outcome& a, const v1::Outcome& b, const v1::Objective
   if (a.has_grade() || b.has_grade()) {
     return GradeIndex(objective, a.grade()) > GradeIndex(objective, b.grade());
   }
-  return objective.direction() == v1::HIGHER_IS_BETTER ? a.score() > b.score() : a.score() < b.score();
+  return objective.direction() == v1::DIRECTION_HIGHER_IS_BETTER ? a.score() > b.score() : a.score() < b.score();
 }
 
 std::vector<v1::Trial> BestTrials(const std::vector<v1::Trial>& trials, const v1::Objective& objective,

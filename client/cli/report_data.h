@@ -1,7 +1,7 @@
-// The numbers a study report plots, shaped from what the server returns (the study's view, its
+// The numbers a campaign report plots, shaped from what the server returns (the campaign's view, its
 // trials, its generation views): the running best outcome, the band of each parameter within its
 // bounds, trial states per block of trial numbers, the staleness of each consumed outcome, and the
-// best trials in the study's order. Pure functions of the protos; report_page.h draws them.
+// best trials in the campaign's order. Pure functions of the protos; report_page.h draws them.
 #ifndef OGIVE_CLIENT_CLI_REPORT_DATA_H_
 #define OGIVE_CLIENT_CLI_REPORT_DATA_H_
 
@@ -9,7 +9,7 @@
 #include <vector>
 
 #include "ogive/v1/service.pb.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 
 namespace ogive::cli {
 
@@ -57,7 +57,7 @@ struct ConsumedOutcome {
 };
 std::vector<ConsumedOutcome> ConsumedStaleness(const std::vector<v1::Trial>& trials);
 
-// True when outcome `a` ranks before `b` in the study's order: scores and grades by the objective,
+// True when outcome `a` ranks before `b` in the campaign's order: scores and grades by the objective,
 // both above infeasible; trials without an informative outcome last. Ties are not "before".
 bool RanksBefore(const v1::Outcome& a, const v1::Outcome& b, const v1::Objective& objective);
 

@@ -80,7 +80,7 @@ std::string ObjectiveText(const v1::Objective& objective) {
   if (objective.has_grade_scale()) {
     return StrCat("grades, worst first: ", absl::StrJoin(objective.grade_scale().labels(), " < "));
   }
-  return objective.direction() == v1::HIGHER_IS_BETTER ? "scores, higher is better" : "scores, lower is better";
+  return objective.direction() == v1::DIRECTION_HIGHER_IS_BETTER ? "scores, higher is better" : "scores, lower is better";
 }
 
 std::string KindText(const v1::Parameter& p) {
@@ -130,7 +130,7 @@ plot::Chart BestChart(const ReportInput& in) {
       max = std::max(max, p.value);
     }
     const bool log = !best.empty() && min > 0 && max / min >= kLogScoreSpan;
-    c.subtitle = objective.direction() == v1::HIGHER_IS_BETTER ? "higher is better" : "lower is better";
+    c.subtitle = objective.direction() == v1::DIRECTION_HIGHER_IS_BETTER ? "higher is better" : "lower is better";
     c.y = {.label = log ? "score (log scale)" : "score", .log = log};
   }
   if (!running.points.empty()) {
@@ -330,7 +330,7 @@ plot::Chart ParameterChart(const ReportInput& in, int index) {
 
 std::string SummaryTable(const ReportInput& in) {
   const v1::StatusSummary& s = in.view.status();
-  const v1::StudyDesign& d = in.view.design();
+  const v1::CampaignDesign& d = in.view.design();
   std::string out = "<table class=\"summary\">\n";
   Row(&out, "objective", ObjectiveText(d.objective()));
   Row(&out, "phase", StrCat(PhaseWithReason(s), s.phase_message().empty() ? "" : ": ", s.phase_message()));
@@ -353,7 +353,7 @@ std::string SummaryTable(const ReportInput& in) {
 }
 
 std::string BestTrialsTable(const ReportInput& in) {
-  const v1::StudyDesign& d = in.view.design();
+  const v1::CampaignDesign& d = in.view.design();
   const std::vector<v1::Trial> best = BestTrials(in.trials, d.objective(), kReportBestTrials);
   if (best.empty()) return "<p>No informative outcome yet.</p>\n";
   std::string out = "<table class=\"best\">\n<tr><th>rank</th><th>trial</th><th>outcome</th>";
@@ -378,7 +378,7 @@ std::string BestTrialsTable(const ReportInput& in) {
 }
 
 std::string DesignTables(const ReportInput& in) {
-  const v1::StudyDesign& d = in.view.design();
+  const v1::CampaignDesign& d = in.view.design();
   std::string out = "<table class=\"parameters\">\n<tr><th>parameter</th><th>kind and range</th><th>unit</th>"
                     "<th>description</th></tr>\n";
   for (const v1::Parameter& p : d.parameters()) {
@@ -410,12 +410,12 @@ double AxisRatio(const v1::GenerationView& g) { return g.axis_ratio(); }
 
 }  // namespace
 
-std::string StudyReportHtml(const ReportInput& in) {
-  const v1::StudyDesign& d = in.view.design();
+std::string CampaignReportHtml(const ReportInput& in) {
+  const v1::CampaignDesign& d = in.view.design();
   const std::string name = Escape(in.view.name());
   std::string out = "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n";
-  StrAppend(&out, "<title>ogive study report: ", name, "</title>\n<style>", kStyle, "</style>\n</head>\n<body>\n");
-  StrAppend(&out, "<h1>Study ", name, "</h1>\n");
+  StrAppend(&out, "<title>ogive campaign report: ", name, "</title>\n<style>", kStyle, "</style>\n</head>\n<body>\n");
+  StrAppend(&out, "<h1>Campaign ", name, "</h1>\n");
   StrAppend(&out, "<p class=\"meta\"><span class=\"phase\">", Escape(PhaseWithReason(in.view.status())), "</span>",
             in.view.status().phase_message().empty() ? "" : StrCat(": ", Escape(in.view.status().phase_message())),
             " \xc2\xb7 generation ", in.view.status().generation(), " \xc2\xb7 ", in.trials.size(), " trials</p>\n");

@@ -1,5 +1,5 @@
-// The study report: one self-contained HTML page (inline CSS and SVG; no scripts, no external
-// references) with the study's phase and status, a safety caution, plots of its progress (best
+// The campaign report: one self-contained HTML page (inline CSS and SVG; no scripts, no external
+// references) with the campaign's phase and status, a safety caution, plots of its progress (best
 // outcome against trials, step size and axis ratio against generation, trial states, staleness of
 // consumed outcomes), each parameter's distribution over the generations, a table of the best trials
 // with their candidates, and the design. Pure: the protos and a time in, the page out; every piece of
@@ -12,12 +12,12 @@
 
 #include "absl/time/time.h"
 #include "ogive/v1/service.pb.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 
 namespace ogive::cli {
 
 struct ReportInput {
-  v1::StudyView view;                           // with its design
+  v1::CampaignView view;                           // with its design
   std::vector<v1::Trial> trials;                // every trial
   std::vector<v1::GenerationView> generations;  // every update, in generation order
   absl::Time generated_at;                      // shown in the header (UTC)
@@ -28,7 +28,7 @@ struct ReportInput {
 inline constexpr size_t kReportBestTrials = 10;
 
 // The page, as UTF-8 HTML.
-std::string StudyReportHtml(const ReportInput& input);
+std::string CampaignReportHtml(const ReportInput& input);
 
 }  // namespace ogive::cli
 

@@ -1,4 +1,4 @@
-// Tests of `ogive study report` and `ogive study export` that need no server: the numbers the plots
+// Tests of `ogive campaign report` and `ogive campaign export` that need no server: the numbers the plots
 // are drawn from (bands clipped to bounds, running best, state blocks, staleness, ranking), the page
 // (every plot, the caution, user text escaped, nothing loaded from elsewhere) and the CSV and JSON
 // records. Rendering in a browser and round trips through Python are tests/report/.
@@ -90,12 +90,12 @@ TEST(TwoSpreadBand, IsSymmetricInTheLogarithmOnALogScale) {
   EXPECT_EQ(b.upper, 10);
 }
 
-TEST(RunningBest, FollowsTheStudysDirectionInTrialNumberOrder) {
+TEST(RunningBest, FollowsTheCampaignsDirectionInTrialNumberOrder) {
   std::vector<v1::Trial> trials = {Scored(3, 5), Scored(1, 8), Scored(2, 9), WithState(4, v1::TRIAL_STATE_VOIDED),
                                    Scored(5, 2), WithState(6, v1::TRIAL_STATE_LEASED)};
   trials.push_back(Scored(7, 0));
   trials.back().mutable_outcome()->mutable_infeasible();  // infeasible: not a score, not on the line
-  std::vector<BestPoint> best = RunningBest(trials, Direction(v1::LOWER_IS_BETTER));
+  std::vector<BestPoint> best = RunningBest(trials, Direction(v1::DIRECTION_LOWER_IS_BETTER));
   ASSERT_EQ(best.size(), 4u);
   EXPECT_EQ(best[0].trial, 1);
   EXPECT_EQ(best[1].trial, 2);
@@ -105,7 +105,7 @@ TEST(RunningBest, FollowsTheStudysDirectionInTrialNumberOrder) {
   EXPECT_EQ(best[1].best, 8);
   EXPECT_EQ(best[2].best, 5);
   EXPECT_EQ(best[3].best, 2);
-  best = RunningBest(trials, Direction(v1::HIGHER_IS_BETTER));
+  best = RunningBest(trials, Direction(v1::DIRECTION_HIGHER_IS_BETTER));
   EXPECT_EQ(best[1].best, 9);
   EXPECT_EQ(best[3].best, 9);
   EXPECT_THAT(InfeasibleTrials(trials), ElementsAre(7));
@@ -181,9 +181,9 @@ TEST(BestTrials, RanksScoresThenInfeasibleAndBreaksTiesByNumber) {
     for (const v1::Trial& t : ts) n.push_back(t.number());
     return n;
   };
-  EXPECT_THAT(numbers(BestTrials(trials, Direction(v1::LOWER_IS_BETTER), 10)), ElementsAre(2, 1, 3, 4, 7));
-  EXPECT_THAT(numbers(BestTrials(trials, Direction(v1::HIGHER_IS_BETTER), 10)), ElementsAre(4, 1, 3, 2, 7));
-  EXPECT_THAT(numbers(BestTrials(trials, Direction(v1::LOWER_IS_BETTER), 2)), ElementsAre(2, 1));
+  EXPECT_THAT(numbers(BestTrials(trials, Direction(v1::DIRECTION_LOWER_IS_BETTER), 10)), ElementsAre(2, 1, 3, 4, 7));
+  EXPECT_THAT(numbers(BestTrials(trials, Direction(v1::DIRECTION_HIGHER_IS_BETTER), 10)), ElementsAre(4, 1, 3, 2, 7));
+  EXPECT_THAT(numbers(BestTrials(trials, Direction(v1::DIRECTION_LOWER_IS_BETTER), 2)), ElementsAre(2, 1));
   std::vector<v1::Trial> graded(3);
   const char* grades[] = {"fair", "good", "poor"};
   for (int i = 0; i < 3; ++i) {
@@ -205,10 +205,10 @@ TEST(RestartGenerations, AreWhereTheEpochGrows) {
 
 // ---- The page ----
 
-// A study with every parameter kind and user text that HTML would take as markup.
+// A campaign with every parameter kind and user text that HTML would take as markup.
 ReportInput MixedReport() {
   ReportInput in;
-  in.view = Parse<v1::StudyView>(R"pb(
+  in.view = Parse<v1::CampaignView>(R"pb(
     name: "kiln-7"
     design {
       name: "kiln-7"
@@ -218,10 +218,10 @@ ReportInput MixedReport() {
       parameters { name: "hold" unit: "min" integer { low: 0 high: 60 } }
       parameters { name: "reduce" flag {} }
       parameters { name: "glaze" categorical { options: "cel & don" options: "<tenmoku>" options: "shino" } }
-      objective { direction: LOWER_IS_BETTER }
+      objective { direction: DIRECTION_LOWER_IS_BETTER }
       trial_budget: 40
     }
-    status { phase: STUDY_PHASE_DONE reason: DONE_REASON_BUDGET phase_message: "budget <spent>" generation: 3
+    status { phase: CAMPAIGN_PHASE_DONE reason: DONE_REASON_BUDGET phase_message: "budget <spent>" generation: 3
              population_size: 4 step_size: 0.2 axis_ratio: 2 }
   )pb");
   for (int g = 1; g <= 3; ++g) {
@@ -260,8 +260,8 @@ ReportInput MixedReport() {
   return in;
 }
 
-TEST(StudyReportHtml, HasEveryPlotTheCautionAndTheTables) {
-  const std::string html = StudyReportHtml(MixedReport());
+TEST(CampaignReportHtml, HasEveryPlotTheCautionAndTheTables) {
+  const std::string html = CampaignReportHtml(MixedReport());
   EXPECT_THAT(html, HasSubstr("<!DOCTYPE html>"));
   EXPECT_THAT(html, HasSubstr("<meta charset=\"utf-8\">"));
   for (const char* id : {"plot-best", "plot-step-size", "plot-axis-ratio", "plot-states", "plot-staleness",
@@ -294,8 +294,8 @@ TEST(StudyReportHtml, HasEveryPlotTheCautionAndTheTables) {
   EXPECT_THAT(html, HasSubstr("score (log scale)"));
 }
 
-TEST(StudyReportHtml, EscapesUserTextAndLoadsNothing) {
-  const std::string html = StudyReportHtml(MixedReport());
+TEST(CampaignReportHtml, EscapesUserTextAndLoadsNothing) {
+  const std::string html = CampaignReportHtml(MixedReport());
   EXPECT_THAT(html, Not(HasSubstr("<script")));
   EXPECT_THAT(html, Not(HasSubstr("<b>")));
   EXPECT_THAT(html, Not(HasSubstr("<tenmoku>")));
@@ -312,9 +312,9 @@ TEST(StudyReportHtml, EscapesUserTextAndLoadsNothing) {
   EXPECT_FALSE(std::regex_search(html, std::regex("url\\([^#]")));
 }
 
-TEST(StudyReportHtml, AGradedStudyPlotsGradesOnTheirScale) {
+TEST(CampaignReportHtml, AGradedCampaignPlotsGradesOnTheirScale) {
   ReportInput in;
-  in.view = Parse<v1::StudyView>(R"pb(
+  in.view = Parse<v1::CampaignView>(R"pb(
     name: "glaze"
     design { name: "glaze" parameters { name: "temp" real { low: 0 high: 1 } }
              objective { grade_scale { labels: "cracked" labels: "poor" labels: "good" } } }
@@ -325,7 +325,7 @@ TEST(StudyReportHtml, AGradedStudyPlotsGradesOnTheirScale) {
     t.set_state(v1::TRIAL_STATE_REPORTED);
     t.mutable_outcome()->set_grade(n == 2 ? "good" : "poor");
   }
-  const std::string html = StudyReportHtml(in);
+  const std::string html = CampaignReportHtml(in);
   const size_t best = html.find("id=\"plot-best\"");
   ASSERT_NE(best, std::string::npos);
   const std::string svg = html.substr(best, html.find("</svg>", best) - best);
@@ -335,11 +335,11 @@ TEST(StudyReportHtml, AGradedStudyPlotsGradesOnTheirScale) {
   EXPECT_THAT(html, HasSubstr(">no update yet</text>"));
 }
 
-TEST(StudyReportHtml, AFreshStudySaysWhatIsMissingInEveryPlot) {
+TEST(CampaignReportHtml, AFreshCampaignSaysWhatIsMissingInEveryPlot) {
   ReportInput in = MixedReport();
   in.trials.clear();
   in.generations.clear();
-  const std::string html = StudyReportHtml(in);
+  const std::string html = CampaignReportHtml(in);
   EXPECT_THAT(html, Not(HasSubstr("<g class=\"data\"")));
   EXPECT_THAT(html, HasSubstr(">no scored or graded trial yet</text>"));
   EXPECT_THAT(html, HasSubstr(">no trials yet</text>"));
@@ -353,8 +353,8 @@ TEST(StudyReportHtml, AFreshStudySaysWhatIsMissingInEveryPlot) {
 
 // ---- Export ----
 
-v1::StudyDesign ExportDesign() {
-  return Parse<v1::StudyDesign>(R"pb(
+v1::CampaignDesign ExportDesign() {
+  return Parse<v1::CampaignDesign>(R"pb(
     name: "e"
     parameters { name: "peak" unit: "deg, C" real { low: 0 high: 10 } }
     parameters { name: "hold" integer { low: 0 high: 9 } }
@@ -443,20 +443,20 @@ TEST(ReportCommands, AreRegisteredWithTheirOptions) {
   const auto parse = [](std::vector<std::string> args) {
     return ParseCommandLine(args, [](const char*) -> const char* { return nullptr; });
   };
-  absl::StatusOr<Invocation> inv = parse({"study", "report", "kiln", "-o", "k.html"});
+  absl::StatusOr<Invocation> inv = parse({"campaign", "report", "kiln", "-o", "k.html"});
   ASSERT_TRUE(inv.ok()) << inv.status();
   EXPECT_EQ(inv->args.Get("--output"), "k.html");
-  inv = parse({"study", "export", "kiln", "--csv", "--output=t.csv"});
+  inv = parse({"campaign", "export", "kiln", "--csv", "--output=t.csv"});
   ASSERT_TRUE(inv.ok()) << inv.status();
   EXPECT_TRUE(inv->args.Has("--csv"));
-  inv = parse({"--json", "study", "export", "kiln"});
+  inv = parse({"--json", "campaign", "export", "kiln"});
   ASSERT_TRUE(inv.ok()) << inv.status();
   EXPECT_TRUE(inv->globals.json);
   // The report is a file, not data: --json does not apply.
-  inv = parse({"study", "report", "kiln", "--json"});
+  inv = parse({"campaign", "report", "kiln", "--json"});
   ASSERT_FALSE(inv.ok());
   EXPECT_THAT(std::string(inv.status().message()), HasSubstr("--json does not apply"));
-  inv = parse({"study", "export"});
+  inv = parse({"campaign", "export"});
   ASSERT_FALSE(inv.ok());
   EXPECT_THAT(std::string(inv.status().message()), HasSubstr("missing argument: NAME"));
 }

@@ -20,14 +20,14 @@ namespace {
 using ::testing::HasSubstr;
 using ::testing::Not;
 
-v1::StudyDesign Design(const std::string& text) {
-  v1::StudyDesign design;
+v1::CampaignDesign Design(const std::string& text) {
+  v1::CampaignDesign design;
   EXPECT_TRUE(google::protobuf::TextFormat::ParseFromString(text, &design)) << text;
   return design;
 }
 
 // A kiln firing recipe graded on an ordered scale (demo scenario).
-v1::StudyDesign Kiln() {
+v1::CampaignDesign Kiln() {
   return Design(R"pb(
     name: "kiln"
     parameters { name: "peak_temperature" unit: "degC" description: "hold temperature at the top of the ramp"
@@ -38,11 +38,11 @@ v1::StudyDesign Kiln() {
   )pb");
 }
 
-v1::StudyDesign Scored() {
+v1::CampaignDesign Scored() {
   return Design(R"pb(
     name: "farm"
     parameters { name: "relax" real { low: 0.1 high: 1.9 } }
-    objective { direction: LOWER_IS_BETTER }
+    objective { direction: DIRECTION_LOWER_IS_BETTER }
   )pb");
 }
 
@@ -59,14 +59,14 @@ TEST(EditDistanceTest, KnownDistances) {
 }
 
 TEST(MatchGradeTest, AnyCaseGivesTheScaleSpelling) {
-  const v1::StudyDesign kiln = Kiln();
+  const v1::CampaignDesign kiln = Kiln();
   const v1::GradeScale& scale = kiln.objective().grade_scale();
   EXPECT_EQ(*MatchGrade("GOOD", scale, "--grade"), "good");
   EXPECT_EQ(*MatchGrade("  Excellent ", scale, "--grade"), "excellent");
 }
 
 TEST(MatchGradeTest, TyposGetTheClosestLabelSuggested) {
-  const v1::StudyDesign kiln = Kiln();
+  const v1::CampaignDesign kiln = Kiln();
   const v1::GradeScale& scale = kiln.objective().grade_scale();
   absl::StatusOr<std::string> typo = MatchGrade("exellent", scale, "--grade");
   ASSERT_FALSE(typo.ok());
@@ -108,7 +108,7 @@ TEST(CardTest, ShowsEveryParameterWithUnitDescriptionAndHowToReport) {
   (*trial.mutable_candidate()->mutable_values())["hold"].set_integer(17);
   (*trial.mutable_candidate()->mutable_values())["reduction"].set_flag(true);
   const std::string card = TrialCard("kiln", Kiln(), trial, absl::UTCTimeZone());
-  EXPECT_THAT(card, HasSubstr("Study kiln"));
+  EXPECT_THAT(card, HasSubstr("Campaign kiln"));
   EXPECT_THAT(card, HasSubstr(BlockDigits(42)));
   EXPECT_THAT(card, HasSubstr("peak_temperature = 1234.5 degC"));
   EXPECT_THAT(card, HasSubstr("hold temperature at the top of the ramp"));
@@ -174,7 +174,7 @@ TEST(ImportPlanTest, EveryBadRowIsNamedByLineAndReason) {
                                          "4,poor,\n"            // 7: same trial, other outcome in file
                                          "3,infeasible,broke\n"  // 8: ok
                                          "1,good,again\n"       // 9: same outcome twice: once
-                                         "5,3.5\n"),            // 10: a number on a graded study
+                                         "5,3.5\n"),            // 10: a number on a graded campaign
                                      Kiln(), trials);
   ASSERT_EQ(plan.to_report.size(), 2u);
   EXPECT_EQ(plan.to_report[0].trial, 1);

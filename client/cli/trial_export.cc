@@ -79,7 +79,7 @@ std::string JsonString(const std::string& text) {
   return out;
 }
 
-std::vector<std::string> ExportHeader(const v1::StudyDesign& design) {
+std::vector<std::string> ExportHeader(const v1::CampaignDesign& design) {
   std::vector<std::string> header = {"trial", "state", "outcome", "score", "grade", "note"};
   for (const v1::Parameter& p : design.parameters()) {
     header.push_back(p.unit().empty() ? p.name() : StrCat(p.name(), " (", p.unit(), ")"));
@@ -91,7 +91,7 @@ std::vector<std::string> ExportHeader(const v1::StudyDesign& design) {
   return header;
 }
 
-std::string TrialsExportCsv(const v1::StudyDesign& design, const std::vector<v1::Trial>& trials) {
+std::string TrialsExportCsv(const v1::CampaignDesign& design, const std::vector<v1::Trial>& trials) {
   std::string out = CsvRecord(ExportHeader(design));
   for (const v1::Trial& t : trials) {
     const v1::Outcome& o = t.outcome();
@@ -118,7 +118,7 @@ std::string TrialsExportCsv(const v1::StudyDesign& design, const std::vector<v1:
   return out;
 }
 
-std::string TrialsExportJson(const v1::StudyDesign& design, const std::vector<v1::Trial>& trials) {
+std::string TrialsExportJson(const v1::CampaignDesign& design, const std::vector<v1::Trial>& trials) {
   const auto or_null = [](const std::string& text) { return text.empty() ? std::string("null") : JsonString(text); };
   std::string out = "[";
   for (size_t i = 0; i < trials.size(); ++i) {

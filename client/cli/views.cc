@@ -9,7 +9,7 @@
 namespace ogive::cli {
 namespace {
 
-const v1::Parameter* FindParameter(const v1::StudyDesign& design, absl::string_view name) {
+const v1::Parameter* FindParameter(const v1::CampaignDesign& design, absl::string_view name) {
   for (const v1::Parameter& p : design.parameters()) {
     if (p.name() == name) return &p;
   }
@@ -65,9 +65,9 @@ std::string ObjectiveText(const v1::Objective& objective) {
                         absl::StrJoin(objective.grade_scale().labels(), " < "));
   }
   switch (objective.direction()) {
-    case v1::LOWER_IS_BETTER:
+    case v1::DIRECTION_LOWER_IS_BETTER:
       return "scores, lower is better";
-    case v1::HIGHER_IS_BETTER:
+    case v1::DIRECTION_HIGHER_IS_BETTER:
       return "scores, higher is better";
     default:
       return "-";
@@ -126,10 +126,10 @@ std::string BestText(const v1::StatusSummary& status) {
                       ")");
 }
 
-std::string StudyListTable(const v1::ListStudiesResponse& studies) {
-  Table table({"STUDY", "PHASE", "GENERATION", "LEASED", "REPORTED", "LAPSED", "VOIDED", "BEST"},
+std::string CampaignListTable(const v1::ListCampaignsResponse& campaigns) {
+  Table table({"CAMPAIGN", "PHASE", "GENERATION", "LEASED", "REPORTED", "LAPSED", "VOIDED", "BEST"},
               {false, false, true, true, true, true, true, false});
-  for (const v1::StudyView& view : studies.studies()) {
+  for (const v1::CampaignView& view : campaigns.campaigns()) {
     const v1::StatusSummary& s = view.status();
     table.AddRow({view.name(), PhaseWithReason(s), absl::StrCat(s.generation()),
                   absl::StrCat(s.leased()), absl::StrCat(s.reported()), absl::StrCat(s.lapsed()),
@@ -138,11 +138,11 @@ std::string StudyListTable(const v1::ListStudiesResponse& studies) {
   return table.Render();
 }
 
-std::string StudySummary(const v1::StudyView& view) {
-  const v1::StudyDesign& design = view.design();
+std::string CampaignSummary(const v1::CampaignView& view) {
+  const v1::CampaignDesign& design = view.design();
   const v1::StatusSummary& s = view.status();
   std::string out;
-  absl::StrAppend(&out, "study         ", view.name(), "\n");
+  absl::StrAppend(&out, "campaign         ", view.name(), "\n");
   absl::StrAppend(&out, "objective     ", ObjectiveText(design.objective()), "\n");
   absl::StrAppend(&out, "phase         ", PhaseWithReason(s), s.phase_message().empty() ? "" : ": ",
                   s.phase_message(), "\n");
@@ -190,7 +190,7 @@ std::string ProgressBar(int64_t done, int64_t total, int width) {
                       static_cast<int>(fraction * 100), "%)");
 }
 
-std::string WatchLine(const v1::StudyView& view, absl::TimeZone zone) {
+std::string WatchLine(const v1::CampaignView& view, absl::TimeZone zone) {
   const v1::StatusSummary& s = view.status();
   std::string line = absl::StrCat(FormatUnixMs(s.as_of_unix_ms(), zone), "  ", view.name(), "  ", PhaseWithReason(s),
                                   "  generation ", s.generation(), "  leased ", s.leased(), " reported ",
@@ -202,18 +202,18 @@ std::string WatchLine(const v1::StudyView& view, absl::TimeZone zone) {
   return line + "\n";
 }
 
-std::string WatchScreen(const v1::StudyView& view, absl::TimeZone zone) {
-  std::string out = absl::StrCat("ogive study watch ", view.name(), "    ", FormatUnixMs(view.status().as_of_unix_ms(), zone),
+std::string WatchScreen(const v1::CampaignView& view, absl::TimeZone zone) {
+  std::string out = absl::StrCat("ogive campaign watch ", view.name(), "    ", FormatUnixMs(view.status().as_of_unix_ms(), zone),
                                  "    (Ctrl-C to stop)\n\n");
   if (view.design().trial_budget() > 0) {
     absl::StrAppend(&out, "budget        ", ProgressBar(view.status().reported(), view.design().trial_budget(), 40),
                     "\n");
   }
-  out += StudySummary(view);
+  out += CampaignSummary(view);
   return out;
 }
 
-std::string TrialsTable(const v1::StudyDesign& design, const std::vector<v1::Trial>& trials) {
+std::string TrialsTable(const v1::CampaignDesign& design, const std::vector<v1::Trial>& trials) {
   std::vector<std::string> header = {"TRIAL", "STATE", "GEN", "WORKER", "OUTCOME", "REPORTED BY", "LATE", "USE"};
   std::vector<bool> right = {true, false, true, false, false, false, false, false};
   for (const v1::Parameter& p : design.parameters()) {
@@ -237,7 +237,7 @@ std::string TrialsTable(const v1::StudyDesign& design, const std::vector<v1::Tri
   return table.Render();
 }
 
-std::string TrialsCsv(const v1::StudyDesign& design, const std::vector<v1::Trial>& trials) {
+std::string TrialsCsv(const v1::CampaignDesign& design, const std::vector<v1::Trial>& trials) {
   std::vector<std::string> header = {"number", "state", "generation", "worker",      "outcome",
                                      "score",  "grade", "note",       "reported_by", "late",
                                      "use",    "consumed_by"};
@@ -267,7 +267,7 @@ std::string TrialsCsv(const v1::StudyDesign& design, const std::vector<v1::Trial
   return out;
 }
 
-std::string LeasedTrialText(const v1::StudyDesign& design, const v1::Trial& trial,
+std::string LeasedTrialText(const v1::CampaignDesign& design, const v1::Trial& trial,
                             absl::TimeZone zone) {
   std::string out =
       absl::StrCat("trial ", trial.number(), "  (generation ", trial.generation(), ", lease until ",

@@ -187,13 +187,13 @@ std::vector<std::string> ChildEnvironment(
 }
 
 // Starts the program for `r.trial`; on failure returns false with `error` set.
-bool Spawn(const WorkOptions& options, const v1::StudyDesign& design, Running& r,
+bool Spawn(const WorkOptions& options, const v1::CampaignDesign& design, Running& r,
            std::string* error) {
   r.candidate_file = WriteCandidateFile(CandidateJson(design, r.trial.candidate()), error);
   if (r.candidate_file.empty()) return false;
 
   std::vector<std::pair<std::string, std::string>> vars = CandidateEnv(design, r.trial.candidate());
-  vars.emplace_back(kStudyVariable, options.study);
+  vars.emplace_back(kCampaignVariable, options.campaign);
   vars.emplace_back(kTrialVariable, absl::StrCat(r.trial.number()));
   vars.emplace_back(kCandidateFileVariable, r.candidate_file);
   const std::vector<std::string> env = ChildEnvironment(vars);
@@ -324,7 +324,7 @@ class WorkLoop {
 
   client::Client& client_;
   const WorkOptions& options_;
-  v1::StudyDesign design_;
+  v1::CampaignDesign design_;
   std::vector<std::unique_ptr<Running>> running_;
   int64_t started_ = 0;
   Stop stop_ = Stop::kNone;
@@ -357,14 +357,14 @@ bool WorkLoop::Patient(const absl::Status& status, absl::string_view what) {
 }
 
 int WorkLoop::Run() {
-  absl::StatusOr<v1::StudyView> view = client_.GetStudy(options_.study);
+  absl::StatusOr<v1::CampaignView> view = client_.GetCampaign(options_.campaign);
   if (!view.ok()) {
     Log(absl::StrCat("ogive work: ", ErrorText(view.status())));
     return 1;
   }
   design_ = view->design();
   if (absl::Status s = CheckEnvNames(design_); !s.ok()) {
-    Log(absl::StrCat("ogive work: study '", options_.study, "': ", s.message()));
+    Log(absl::StrCat("ogive work: campaign '", options_.campaign, "': ", s.message()));
     return 2;
   }
   std::string error;
@@ -372,7 +372,7 @@ int WorkLoop::Run() {
     Log(absl::StrCat("ogive work: ", error));
     return 1;
   }
-  Log(absl::StrCat("ogive work: study ", options_.study, ", worker ", options_.worker, ", ",
+  Log(absl::StrCat("ogive work: campaign ", options_.campaign, ", worker ", options_.worker, ", ",
                    options_.parallel, options_.parallel == 1 ? " slot" : " slots",
                    options_.max_trials > 0
                        ? absl::StrCat(", at most ", options_.max_trials,
@@ -420,7 +420,7 @@ void WorkLoop::AskForTrials() {
   if (options_.max_trials > 0) count = std::min(count, options_.max_trials - started_);
   if (count <= 0) return;
   absl::StatusOr<v1::AskResponse> asked =
-      client_.Ask(options_.study, static_cast<int>(count), options_.worker, options_.lease_seconds);
+      client_.Ask(options_.campaign, static_cast<int>(count), options_.worker, options_.lease_seconds);
   if (!asked.ok()) {
     HandleAskRefusal(asked.status());
     return;
@@ -444,31 +444,31 @@ void WorkLoop::HandleAskRefusal(const absl::Status& status) {
   }
   // The phase decides, not the wording: done ends the loop; paused (or a trial budget taken up by
   // outstanding trials) means asking again later.
-  v1::StudyPhase phase = v1::STUDY_PHASE_UNSPECIFIED;
+  v1::CampaignPhase phase = v1::CAMPAIGN_PHASE_UNSPECIFIED;
   std::string done_text;
-  if (absl::StatusOr<v1::StudyView> view = client_.GetStudy(options_.study); view.ok()) {
+  if (absl::StatusOr<v1::CampaignView> view = client_.GetCampaign(options_.campaign); view.ok()) {
     phase = view->status().phase();
     done_text = PhaseWithReason(view->status());
     if (!view->status().phase_message().empty()) {
       absl::StrAppend(&done_text, ": ", view->status().phase_message());
     }
   } else if (absl::StrContains(status.message(), "done")) {
-    phase = v1::STUDY_PHASE_DONE;
+    phase = v1::CAMPAIGN_PHASE_DONE;
     done_text = std::string(status.message());
   }
-  if (phase == v1::STUDY_PHASE_DONE) {
+  if (phase == v1::CAMPAIGN_PHASE_DONE) {
     stop_ = Stop::kDone;
-    stop_message_ = absl::StrCat("study ", options_.study, " is ", done_text, "; stopping");
+    stop_message_ = absl::StrCat("campaign ", options_.campaign, " is ", done_text, "; stopping");
     if (!running_.empty()) {
-      Log(absl::StrCat("ogive work: study ", options_.study, " is done; waiting for ",
+      Log(absl::StrCat("ogive work: campaign ", options_.campaign, " is done; waiting for ",
                        running_.size(),
                        running_.size() == 1 ? " running trial" : " running trials"));
     }
     return;
   }
   const std::string message =
-      phase == v1::STUDY_PHASE_PAUSED
-          ? absl::StrCat("study ", options_.study, " is paused; asking again every ",
+      phase == v1::CAMPAIGN_PHASE_PAUSED
+          ? absl::StrCat("campaign ", options_.campaign, " is paused; asking again every ",
                          absl::FormatDuration(options_.retry_interval), " until it is resumed")
           : absl::StrCat("waiting: ", status.message());
   if (message != waiting_message_) Log(absl::StrCat("ogive work: ", message));
@@ -506,7 +506,7 @@ void WorkLoop::Start(const v1::Trial& trial) {
     return;
   }
   r->renewer = std::make_unique<client::LeaseRenewer>(
-      &client_, options_.study, std::vector<int64_t>{trial.number()}, options_.worker,
+      &client_, options_.campaign, std::vector<int64_t>{trial.number()}, options_.worker,
       options_.lease_seconds, absl::Seconds(RenewIntervalSeconds(trial)));
   running_.push_back(std::move(r));
 }
@@ -542,14 +542,14 @@ void WorkLoop::Tell(const std::vector<std::pair<const Running*, v1::Outcome>>& r
     *report.mutable_outcome() = outcome;
     request.push_back(std::move(report));
   }
-  absl::StatusOr<v1::TellResponse> told = client_.Tell(options_.study, request, options_.worker);
+  absl::StatusOr<v1::TellResponse> told = client_.Tell(options_.campaign, request, options_.worker);
   // An outcome is worth waiting for: retry while the server restarts (Tell is idempotent), unless
   // the worker is being stopped.
   while (!told.ok() && Patient(told.status(), "reporting") && StopSignal() == 0) {
     pollfd fd = {signal_pipe[0], POLLIN, 0};
     poll(&fd, 1, static_cast<int>(absl::ToInt64Milliseconds(options_.retry_interval)));
     if (StopSignal() != 0) break;
-    told = client_.Tell(options_.study, request, options_.worker);
+    told = client_.Tell(options_.campaign, request, options_.worker);
   }
   if (told.ok()) unavailable_since_ = absl::InfiniteFuture();
   for (size_t i = 0; i < reports.size(); ++i) {

@@ -1,11 +1,11 @@
 // `ogive work`: the worker loop that runs on cluster nodes. It asks the server for one trial per
 // free slot, runs the evaluation program for each (no shell: the program and its arguments as
 // given), keeps the lease alive while it runs, reads the outcome from the program's last line of
-// standard output and tells it, until the study is done, a trial limit is reached, or the scheduler
+// standard output and tells it, until the campaign is done, a trial limit is reached, or the scheduler
 // stops the job with SIGTERM.
 //
 // The program sees the candidate as environment variables (OGIVE_<NAME>=value, see candidate_env.h)
-// plus OGIVE_STUDY, OGIVE_TRIAL and OGIVE_CANDIDATE_FILE (a JSON file {name: value}, removed
+// plus OGIVE_CAMPAIGN, OGIVE_TRIAL and OGIVE_CANDIDATE_FILE (a JSON file {name: value}, removed
 // afterwards). It runs in its own process group with standard input from /dev/null; its standard
 // output is copied to ours, its standard error passes through.
 //
@@ -24,18 +24,18 @@
 namespace ogive::cli {
 
 struct WorkOptions {
-  std::string study;
+  std::string campaign;
   std::vector<std::string> command;  // the program and its arguments; not empty
   std::string worker;                // who asks, shown in trial lists; not empty
   int64_t max_trials = 0;            // stop after starting this many trials; 0 = no limit
   int parallel = 1;                  // trials run at once (slots), >= 1
-  double lease_seconds = 0;          // lease asked for and renewed; 0 = the study's default
-  absl::Duration retry_interval = absl::Seconds(5);  // asking again while the study is paused
+  double lease_seconds = 0;          // lease asked for and renewed; 0 = the campaign's default
+  absl::Duration retry_interval = absl::Seconds(5);  // asking again while the campaign is paused
   absl::Duration stop_grace = absl::Seconds(10);     // after SIGTERM, before SIGKILL
 };
 
-// Runs the loop and returns the process exit status: 0 when the study is done or --max-trials is
-// reached, 1 on a server error (printed with its code), 2 if the study cannot be run this way (a
+// Runs the loop and returns the process exit status: 0 when the campaign is done or --max-trials is
+// reached, 1 on a server error (printed with its code), 2 if the campaign cannot be run this way (a
 // parameter name that collides in the environment, a program that cannot be found), 128 + the
 // signal number after SIGTERM (143) or SIGINT (130), having voided every trial that was running.
 int RunWork(client::Client& client, const WorkOptions& options);

@@ -5,10 +5,10 @@
 #
 # Makes an admin token (sent from $OGIVE_TOKEN), starts ogived on a temporary database and a free
 # loopback port, creates a scored and a graded
-# study (one real, one integer, one flag, one categorical parameter) from text-format designs, and
+# campaign (one real, one integer, one flag, one categorical parameter) from text-format designs, and
 # runs the worker loop against programs that print a score, print a grade, print 'infeasible', print
 # something unreadable, exit non-zero, kill themselves with SIGKILL, and run until the worker gets
-# SIGTERM. Then it checks every trial's state and outcome through `ogive study trials --csv` and
+# SIGTERM. Then it checks every trial's state and outcome through `ogive campaign trials --csv` and
 # `--json`, and that ogived stops cleanly on SIGTERM. Every step is bounded in time.
 set -euo pipefail
 
@@ -27,11 +27,11 @@ export OGIVE_TOKEN
   >"$TMP/ogived.log" 2>&1 &
 OGIVED_PID=$!
 for _ in $(seq 100); do
-  if timeout 5 "$OGIVE" study list --timeout 1 >/dev/null 2>&1; then break; fi
+  if timeout 5 "$OGIVE" campaign list --timeout 1 >/dev/null 2>&1; then break; fi
   kill -0 "$OGIVED_PID" 2>/dev/null || fail "ogived exited at start"
   sleep 0.1
 done
-timeout 5 "$OGIVE" study list >/dev/null 2>&1 || fail "ogived does not answer on $OGIVE_SERVER"
+timeout 5 "$OGIVE" campaign list >/dev/null 2>&1 || fail "ogived does not answer on $OGIVE_SERVER"
 
 # ---- Designs and programs ----
 PARAMETERS='
@@ -47,7 +47,7 @@ lease_seconds: 30
 '
 cat >"$TMP/scored.txtpb" <<EOF
 name: "e2e-scored"
-objective { direction: LOWER_IS_BETTER }
+objective { direction: DIRECTION_LOWER_IS_BETTER }
 $PARAMETERS
 EOF
 cat >"$TMP/graded.txtpb" <<EOF
@@ -66,7 +66,7 @@ echo "$OGIVE_CANDIDATE_FILE" >>"$TMPDIR/candidate_files.txt"
 import json, math, os, sys
 env = os.environ
 c = json.load(open(env["OGIVE_CANDIDATE_FILE"]))
-assert env["OGIVE_STUDY"] == "e2e-scored", env["OGIVE_STUDY"]
+assert env["OGIVE_CAMPAIGN"] == "e2e-scored", env["OGIVE_CAMPAIGN"]
 assert int(env["OGIVE_TRIAL"]) >= 1
 assert set(c) == {"temp", "passes", "vacuum", "carrier-gas"}, c
 assert 100 <= float(env["OGIVE_TEMP"]) <= 200 and float(env["OGIVE_TEMP"]) == c["temp"], c
@@ -118,11 +118,11 @@ wait
 EOF
 chmod +x "$TMP"/*.sh
 
-work() {  # work STUDY LOG ARGS... ; sets RC
-  local study=$1 log=$2
+work() {  # work CAMPAIGN LOG ARGS... ; sets RC
+  local campaign=$1 log=$2
   shift 2
   RC=0
-  timeout 90 "$OGIVE" work "$study" "$@" >"$TMP/$log.out" 2>"$TMP/$log.log" || RC=$?
+  timeout 90 "$OGIVE" work "$campaign" "$@" >"$TMP/$log.out" 2>"$TMP/$log.log" || RC=$?
 }
 expect_rc() {  # expect_rc WANT WHAT
   [[ "$RC" -eq "$1" ]] || fail "$2: exit status $RC, expected $1"
@@ -131,11 +131,11 @@ expect_log() {  # expect_log LOG TEXT
   grep -qF -- "$2" "$TMP/$1.log" || fail "$1: no line with '$2' in its log"
 }
 
-step "create the studies"
-timeout 10 "$OGIVE" study create "$TMP/scored.txtpb" >"$TMP/create.out" || fail "study create"
-grep -q "created study e2e-scored (population" "$TMP/create.out" ||
+step "create the campaigns"
+timeout 10 "$OGIVE" campaign create "$TMP/scored.txtpb" >"$TMP/create.out" || fail "campaign create"
+grep -q "created campaign e2e-scored (population" "$TMP/create.out" ||
   fail "create: $(cat "$TMP/create.out")"
-timeout 10 "$OGIVE" study create "$TMP/graded.txtpb" >/dev/null || fail "study create graded"
+timeout 10 "$OGIVE" campaign create "$TMP/graded.txtpb" >/dev/null || fail "campaign create graded"
 
 step "(a) programs that print a score, two at a time"
 work e2e-scored a --max-trials 4 --parallel 2 -- "$TMP/score.sh"
@@ -149,7 +149,7 @@ while read -r f; do
 done <"$TMP/candidate_files.txt"
 [[ $(wc -l <"$TMP/candidate_files.txt") -eq 4 ]] || fail "(a): expected 4 candidate files"
 
-step "(b) a program that prints a grade, on the graded study"
+step "(b) a program that prints a grade, on the graded campaign"
 work e2e-graded b --max-trials 2 -- "$TMP/grade.sh"
 expect_rc 0 "(b)"
 [[ $(grep -c ': grade good (' "$TMP/b.log") -eq 2 ]] || fail "(b): expected 2 'grade good' lines"
@@ -212,30 +212,30 @@ if kill -0 "$LONG_CHILD" 2>/dev/null; then
   fail "(e): the program's child survived the worker's SIGTERM"
 fi
 
-step "a paused study: the worker waits, and goes on when it is resumed"
-timeout 10 "$OGIVE" study pause e2e-graded >/dev/null
+step "a paused campaign: the worker waits, and goes on when it is resumed"
+timeout 10 "$OGIVE" campaign pause e2e-graded >/dev/null
 "$OGIVE" work e2e-graded --max-trials 1 -- "$TMP/grade.sh" >"$TMP/paused.out" 2>"$TMP/paused.log" &
 WORK_PID=$!
 for _ in $(seq 200); do
   grep -qs "is paused" "$TMP/paused.log" && break
   sleep 0.05
 done
-grep -q "is paused" "$TMP/paused.log" || fail "paused: the worker did not say the study is paused"
-timeout 10 "$OGIVE" study resume e2e-graded >/dev/null
+grep -q "is paused" "$TMP/paused.log" || fail "paused: the worker did not say the campaign is paused"
+timeout 10 "$OGIVE" campaign resume e2e-graded >/dev/null
 wait_bounded "$WORK_PID" 30
 expect_rc 0 "paused"
 expect_log paused ": grade good ("
 
-step "a done study: the worker says so and exits 0"
-timeout 10 "$OGIVE" study finish e2e-graded >/dev/null
+step "a done campaign: the worker says so and exits 0"
+timeout 10 "$OGIVE" campaign finish e2e-graded >/dev/null
 work e2e-graded done -- "$TMP/grade.sh"
 expect_rc 0 "done"
-expect_log done "study e2e-graded is done (stopped)"
+expect_log done "campaign e2e-graded is done (stopped)"
 
 step "check the trials (CSV and JSON)"
-timeout 10 "$OGIVE" study trials e2e-scored --csv >"$TMP/scored.csv" || fail "study trials --csv"
-timeout 10 "$OGIVE" study trials e2e-graded --json >"$TMP/graded.json" || fail "study trials --json"
-timeout 10 "$OGIVE" study trials e2e-scored --state voided >"$TMP/voided.txt" || fail "--state"
+timeout 10 "$OGIVE" campaign trials e2e-scored --csv >"$TMP/scored.csv" || fail "campaign trials --csv"
+timeout 10 "$OGIVE" campaign trials e2e-graded --json >"$TMP/graded.json" || fail "campaign trials --json"
+timeout 10 "$OGIVE" campaign trials e2e-scored --state voided >"$TMP/voided.txt" || fail "--state"
 "$PY" - "$TMP/scored.csv" "$TMP/graded.json" <<'PY' || fail "trial states and outcomes"
 import csv, json, math, sys
 rows = list(csv.DictReader(open(sys.argv[1], newline="")))
@@ -272,7 +272,7 @@ assert len(graded) == 3, graded
 for t in graded:
     assert t["state"] == "TRIAL_STATE_REPORTED", t
     assert t["outcome"]["grade"] == "good", t  # "Good" matched the scale's label, spelled as there
-print("trials ok: %d scored-study trials, %d graded-study trials" % (len(rows), len(graded)))
+print("trials ok: %d scored-campaign trials, %d graded-campaign trials" % (len(rows), len(graded)))
 PY
 [[ $(grep -c voided "$TMP/voided.txt") -eq 4 ]] || fail "--state voided: $(cat "$TMP/voided.txt")"
 

@@ -8,7 +8,7 @@
 #include "gtest/gtest.h"
 #include "server/codec/design_codec.h"
 #include "server/codec/state_codec.h"
-#include "server/codec/study_codec.h"
+#include "server/codec/campaign_codec.h"
 #include "server/search/random_stream.h"
 
 namespace ogive::codec {
@@ -16,8 +16,8 @@ namespace {
 
 using ::testing::HasSubstr;
 
-v1::StudyDesign ParseDesign(const std::string& text) {
-  v1::StudyDesign design;
+v1::CampaignDesign ParseDesign(const std::string& text) {
+  v1::CampaignDesign design;
   EXPECT_TRUE(google::protobuf::TextFormat::ParseFromString(text, &design)) << text;
   return design;
 }
@@ -30,11 +30,11 @@ constexpr char kMixedDesign[] = R"pb(
   parameters { name: "hold_minutes" integer { low: 0 high: 60 } }
   parameters { name: "reduction" flag {} }
   parameters { name: "glaze" categorical { options: "celadon" options: "tenmoku" options: "shino" } }
-  objective { direction: LOWER_IS_BETTER }
+  objective { direction: DIRECTION_LOWER_IS_BETTER }
 )pb";
 
 TEST(DesignCodec, ConvertsEveryParameterKind) {
-  const v1::StudyDesign design = ParseDesign(kMixedDesign);
+  const v1::CampaignDesign design = ParseDesign(kMixedDesign);
   absl::StatusOr<search::Space> space = SpaceFromDesign(design);
   ASSERT_TRUE(space.ok()) << space.status();
   ASSERT_EQ(space->size(), 5);
@@ -53,7 +53,7 @@ struct BadDesign {
 class BadDesignTest : public ::testing::TestWithParam<BadDesign> {};
 
 TEST_P(BadDesignTest, IsRefusedWithAMessageNamingTheField) {
-  const v1::StudyDesign design = ParseDesign(GetParam().text);
+  const v1::CampaignDesign design = ParseDesign(GetParam().text);
   absl::Status status = SpaceFromDesign(design).status();
   if (status.ok()) status = OrderFromObjective(design.objective()).status();
   if (status.ok()) status = DistributionOptionsFromDesign(design, *SpaceFromDesign(design)).status();
@@ -64,33 +64,33 @@ TEST_P(BadDesignTest, IsRefusedWithAMessageNamingTheField) {
 INSTANTIATE_TEST_SUITE_P(
     Cases, BadDesignTest,
     ::testing::Values(
-        BadDesign{R"pb(parameters { name: "t" real { low: 5 high: 5 } } objective { direction: LOWER_IS_BETTER })pb",
+        BadDesign{R"pb(parameters { name: "t" real { low: 5 high: 5 } } objective { direction: DIRECTION_LOWER_IS_BETTER })pb",
                   "parameter 't' (real): low must be < high"},
         BadDesign{R"pb(parameters { name: "r" real { low: 0 high: 5 log: true } }
-                       objective { direction: LOWER_IS_BETTER })pb",
+                       objective { direction: DIRECTION_LOWER_IS_BETTER })pb",
                   "log scale needs low > 0"},
         BadDesign{R"pb(parameters { name: "a" flag {} } parameters { name: "a" flag {} }
-                       objective { direction: LOWER_IS_BETTER })pb",
+                       objective { direction: DIRECTION_LOWER_IS_BETTER })pb",
                   "parameter 'a': the name appears twice"},
-        BadDesign{R"pb(parameters { name: "c" categorical {} } objective { direction: LOWER_IS_BETTER })pb",
+        BadDesign{R"pb(parameters { name: "c" categorical {} } objective { direction: DIRECTION_LOWER_IS_BETTER })pb",
                   "needs at least two options"},
-        BadDesign{R"pb(parameters { name: "k" } objective { direction: LOWER_IS_BETTER })pb",
+        BadDesign{R"pb(parameters { name: "k" } objective { direction: DIRECTION_LOWER_IS_BETTER })pb",
                   "parameters[0] 'k': kind must be set to one of real, integer, categorical, flag"},
         BadDesign{R"pb(parameters { name: "f" flag {} } objective { grade_scale { labels: "good" } })pb",
                   "objective.grade_scale.labels: needs at least two labels"},
         BadDesign{R"pb(parameters { name: "f" flag {} } objective { direction: DIRECTION_UNSPECIFIED })pb",
-                  "objective.direction: must be LOWER_IS_BETTER or HIGHER_IS_BETTER"},
+                  "objective.direction: must be DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER"},
         BadDesign{R"pb(parameters { name: "f" flag {} })pb", "objective: set either direction"},
-        BadDesign{R"pb(parameters { name: "f" flag {} } objective { direction: LOWER_IS_BETTER }
+        BadDesign{R"pb(parameters { name: "f" flag {} } objective { direction: DIRECTION_LOWER_IS_BETTER }
                        initial_spread: 2)pb",
                   "initial_spread: must be 0 (default) or in (0, 1]"},
-        BadDesign{R"pb(parameters { name: "f" flag {} } objective { direction: LOWER_IS_BETTER }
+        BadDesign{R"pb(parameters { name: "f" flag {} } objective { direction: DIRECTION_LOWER_IS_BETTER }
                        population_size: 1)pb",
                   "population_size: must be 0 (default) or at least 2"},
-        BadDesign{R"pb(parameters { name: "x" real { low: 0 high: 1 } } objective { direction: LOWER_IS_BETTER }
+        BadDesign{R"pb(parameters { name: "x" real { low: 0 high: 1 } } objective { direction: DIRECTION_LOWER_IS_BETTER }
                        start { values { key: "x" value { real: 3 } } })pb",
                   "start: parameter 'x' (real): value 3 is outside [0, 1]"},
-        BadDesign{R"pb(parameters { name: "x" real { low: 0 high: 1 } } objective { direction: LOWER_IS_BETTER }
+        BadDesign{R"pb(parameters { name: "x" real { low: 0 high: 1 } } objective { direction: DIRECTION_LOWER_IS_BETTER }
                        start { values { key: "y" value { real: 0.5 } } })pb",
                   "start: unknown parameter 'y'"}));
 
@@ -111,7 +111,7 @@ TEST(DesignCodec, GradesAreLookedUpInTheScale) {
 
 TEST(DesignCodec, NonFiniteScoresAreRefused) {
   v1::Objective objective;
-  objective.set_direction(v1::HIGHER_IS_BETTER);
+  objective.set_direction(v1::DIRECTION_HIGHER_IS_BETTER);
   v1::Outcome outcome;
   outcome.set_score(std::nan(""));
   EXPECT_THAT(std::string(OutcomeFromProto(outcome, objective).status().message()), HasSubstr("outcome.score"));
@@ -133,7 +133,7 @@ TEST(DesignCodec, CandidateRoundTrip) {
 }
 
 TEST(DesignCodec, PartialStartSetsOnlyTheGivenParameters) {
-  v1::StudyDesign design = ParseDesign(kMixedDesign);
+  v1::CampaignDesign design = ParseDesign(kMixedDesign);
   (*design.mutable_start()->mutable_values())["peak_temp"].set_real(1270);
   (*design.mutable_start()->mutable_values())["glaze"].set_categorical("tenmoku");
   const search::Space space = *SpaceFromDesign(design);
@@ -204,15 +204,15 @@ TEST(StateCodec, InconsistentSizesAreRefused) {
   EXPECT_THAT(std::string(DistributionStateFromProto(proto).status().message()), HasSubstr("covariance"));
 }
 
-// Drives a study with three workers on the kiln design: asks, out-of-order reports, a void, a lapse.
-void Drive(study::Study& s, absl::Time& now, int steps) {
+// Drives a campaign with three workers on the kiln design: asks, out-of-order reports, a void, a lapse.
+void Drive(campaign::Campaign& s, absl::Time& now, int steps) {
   for (int k = 0; k < steps; ++k) {
     now += absl::Minutes(7);
-    absl::StatusOr<std::vector<study::Trial>> asked = s.Ask(3, "node-" + std::to_string(k % 3), absl::Minutes(30), now);
+    absl::StatusOr<std::vector<campaign::Trial>> asked = s.Ask(3, "node-" + std::to_string(k % 3), absl::Minutes(30), now);
     ASSERT_TRUE(asked.ok()) << asked.status();
-    std::vector<study::Report> reports;
+    std::vector<campaign::Report> reports;
     for (size_t i = 0; i < asked->size(); ++i) {
-      const study::Trial& t = (*asked)[asked->size() - 1 - i];
+      const campaign::Trial& t = (*asked)[asked->size() - 1 - i];
       if ((t.number % 11) == 0) continue;  // never reported: lapses later
       const double f = (t.x.head(3).array() - 0.4).square().sum() + t.x[3];
       reports.push_back({t.number, (t.number % 7) == 0 ? search::Outcome::Void() : search::Outcome::Score(f), "n"});
@@ -223,23 +223,23 @@ void Drive(study::Study& s, absl::Time& now, int steps) {
   }
 }
 
-TEST(StudyCodec, SnapshotThroughTheWireContinuesBitIdentically) {
-  const v1::StudyDesign design = ParseDesign(kMixedDesign);
+TEST(CampaignCodec, SnapshotThroughTheWireContinuesBitIdentically) {
+  const v1::CampaignDesign design = ParseDesign(kMixedDesign);
   const search::Space space = *SpaceFromDesign(design);
   const search::OutcomeOrder order = *OrderFromObjective(design.objective());
   const search::DistributionOptions options = *DistributionOptionsFromDesign(design, space);
-  study::StudyOptions study_options = *StudyOptionsFromDesign(design);
-  study_options.seed = 99;
-  study::Study original = *study::Study::Create(space, order, options, study_options);
+  campaign::CampaignOptions campaign_options = *CampaignOptionsFromDesign(design);
+  campaign_options.seed = 99;
+  campaign::Campaign original = *campaign::Campaign::Create(space, order, options, campaign_options);
   absl::Time now = absl::FromUnixSeconds(1700000000);
   Drive(original, now, 20);
   ASSERT_GT(original.engine().generation, 3);
 
-  v1::StudySnapshot parsed;
+  v1::CampaignSnapshot parsed;
   ASSERT_TRUE(parsed.ParseFromString(SnapshotToProto(original.Snapshot()).SerializeAsString()));
-  absl::StatusOr<study::StudySnapshot> snapshot = SnapshotFromProto(parsed, space);
+  absl::StatusOr<campaign::CampaignSnapshot> snapshot = SnapshotFromProto(parsed, space);
   ASSERT_TRUE(snapshot.ok()) << snapshot.status();
-  absl::StatusOr<study::Study> restored = study::Study::Restore(space, order, options, study_options, *snapshot);
+  absl::StatusOr<campaign::Campaign> restored = campaign::Campaign::Restore(space, order, options, campaign_options, *snapshot);
   ASSERT_TRUE(restored.ok()) << restored.status();
   EXPECT_EQ(restored->counts().total(), original.counts().total());
   EXPECT_EQ(restored->counts().pending, original.counts().pending);
@@ -251,38 +251,38 @@ TEST(StudyCodec, SnapshotThroughTheWireContinuesBitIdentically) {
             SnapshotToProto(restored->Snapshot()).SerializeAsString());
 }
 
-TEST(StudyCodec, TheReporterOfATrialRoundTrips) {
-  study::Trial t;
+TEST(CampaignCodec, TheReporterOfATrialRoundTrips) {
+  campaign::Trial t;
   t.number = 4;
-  t.state = study::TrialState::kReported;
+  t.state = campaign::TrialState::kReported;
   t.outcome = search::Outcome::Score(1.5);
   t.reported_by = "farm-a";
   v1::TrialRecord record;
   ASSERT_TRUE(record.ParseFromString(TrialToProto(t).SerializeAsString()));
   EXPECT_EQ(record.reported_by(), "farm-a");
-  absl::StatusOr<study::Trial> back = TrialFromProto(record);
+  absl::StatusOr<campaign::Trial> back = TrialFromProto(record);
   ASSERT_TRUE(back.ok()) << back.status();
   EXPECT_EQ(back->reported_by, "farm-a");
 }
 
-TEST(StudyCodec, DesignEngineSettings) {
-  v1::StudyDesign design = ParseDesign(kMixedDesign);
+TEST(CampaignCodec, DesignEngineSettings) {
+  v1::CampaignDesign design = ParseDesign(kMixedDesign);
   design.set_lease_seconds(90);
   design.set_trial_budget(500);
   design.set_target(12.5);
-  absl::StatusOr<study::StudyOptions> options = StudyOptionsFromDesign(design);
+  absl::StatusOr<campaign::CampaignOptions> options = CampaignOptionsFromDesign(design);
   ASSERT_TRUE(options.ok()) << options.status();
   EXPECT_EQ(options->default_lease, absl::Seconds(90));
   EXPECT_EQ(options->trial_budget, 500);
   EXPECT_EQ(options->target->score, 12.5);
   design.set_target_grade("good");
-  EXPECT_THAT(std::string(StudyOptionsFromDesign(design).status().message()), HasSubstr("at most one"));
+  EXPECT_THAT(std::string(CampaignOptionsFromDesign(design).status().message()), HasSubstr("at most one"));
   design.clear_target();
-  EXPECT_THAT(std::string(StudyOptionsFromDesign(design).status().message()),
-              HasSubstr("this study takes scores"));
+  EXPECT_THAT(std::string(CampaignOptionsFromDesign(design).status().message()),
+              HasSubstr("this campaign takes scores"));
   design.clear_target_grade();
   design.set_staleness_limit(-1);
-  EXPECT_THAT(std::string(StudyOptionsFromDesign(design).status().message()), HasSubstr("staleness_limit"));
+  EXPECT_THAT(std::string(CampaignOptionsFromDesign(design).status().message()), HasSubstr("staleness_limit"));
 }
 
 }  // namespace

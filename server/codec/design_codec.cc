@@ -39,7 +39,7 @@ absl::StatusOr<search::Value> ValueFromProto(const v1::Value& value, const searc
 
 }  // namespace
 
-absl::StatusOr<search::Space> SpaceFromDesign(const v1::StudyDesign& design) {
+absl::StatusOr<search::Space> SpaceFromDesign(const v1::CampaignDesign& design) {
   std::vector<search::ParameterSpec> specs;
   for (int i = 0; i < design.parameters_size(); ++i) {
     const v1::Parameter& p = design.parameters(i);
@@ -78,15 +78,15 @@ absl::StatusOr<search::OutcomeOrder> OrderFromObjective(const v1::Objective& obj
   switch (objective.order_case()) {
     case v1::Objective::kDirection:
       switch (objective.direction()) {
-        case v1::LOWER_IS_BETTER:
+        case v1::DIRECTION_LOWER_IS_BETTER:
           order.direction = search::Direction::kLowerIsBetter;
           return order;
-        case v1::HIGHER_IS_BETTER:
+        case v1::DIRECTION_HIGHER_IS_BETTER:
           order.direction = search::Direction::kHigherIsBetter;
           return order;
         default:
-          return absl::InvalidArgumentError(absl::StrCat("objective.direction: must be LOWER_IS_BETTER or "
-                                                         "HIGHER_IS_BETTER, got ",
+          return absl::InvalidArgumentError(absl::StrCat("objective.direction: must be DIRECTION_LOWER_IS_BETTER or "
+                                                         "DIRECTION_HIGHER_IS_BETTER, got ",
                                                          static_cast<int>(objective.direction())));
       }
     case v1::Objective::kGradeScale: {
@@ -111,10 +111,10 @@ absl::StatusOr<search::OutcomeOrder> OrderFromObjective(const v1::Objective& obj
       break;
   }
   return absl::InvalidArgumentError(
-      "objective: set either direction (LOWER_IS_BETTER or HIGHER_IS_BETTER) or grade_scale");
+      "objective: set either direction (DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER) or grade_scale");
 }
 
-absl::StatusOr<search::DistributionOptions> DistributionOptionsFromDesign(const v1::StudyDesign& design,
+absl::StatusOr<search::DistributionOptions> DistributionOptionsFromDesign(const v1::CampaignDesign& design,
                                                                          const search::Space& space) {
   search::DistributionOptions options;
   if (design.population_size() < 0 || design.population_size() == 1) {
@@ -221,7 +221,7 @@ absl::StatusOr<search::Outcome> OutcomeFromProto(const v1::Outcome& outcome, con
         if (labels[i] == outcome.grade()) index = i;
       }
       if (!order->graded) {
-        return absl::InvalidArgumentError("outcome.grade: this study takes scores; report a score, not a grade");
+        return absl::InvalidArgumentError("outcome.grade: this campaign takes scores; report a score, not a grade");
       }
       if (index < 0) {
         return absl::InvalidArgumentError(absl::StrCat("outcome.grade: '", outcome.grade(),

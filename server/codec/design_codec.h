@@ -1,6 +1,6 @@
-// Conversion between the wire messages of study.proto and the search core's domain types. This is the
-// one place where StudyDesign, Candidate and Outcome messages become Space, Candidate and Outcome
-// values (and back); the study engine and the service call it, the search core never sees protobuf.
+// Conversion between the wire messages of campaign.proto and the search core's domain types. This is the
+// one place where CampaignDesign, Candidate and Outcome messages become Space, Candidate and Outcome
+// values (and back); the campaign engine and the service call it, the search core never sees protobuf.
 //
 // Every error is INVALID_ARGUMENT and names the field (with its index or parameter name) and what is
 // allowed.
@@ -11,7 +11,7 @@
 #include <vector>
 
 #include "absl/status/statusor.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 #include "server/search/ranking.h"
 #include "server/search/search_distribution.h"
 #include "server/search/space.h"
@@ -19,7 +19,7 @@
 namespace ogive::codec {
 
 // The validated search space of a design's parameters.
-absl::StatusOr<search::Space> SpaceFromDesign(const v1::StudyDesign& design);
+absl::StatusOr<search::Space> SpaceFromDesign(const v1::CampaignDesign& design);
 
 // The outcome order of a design's objective: a direction, or a grade scale of at least two distinct
 // non-empty labels (worst first).
@@ -27,7 +27,7 @@ absl::StatusOr<search::OutcomeOrder> OrderFromObjective(const v1::Objective& obj
 
 // The distribution options of a design (population size, expected workers, start point, initial
 // spread, Gaussian model). REQUIRES: space == SpaceFromDesign(design).
-absl::StatusOr<search::DistributionOptions> DistributionOptionsFromDesign(const v1::StudyDesign& design,
+absl::StatusOr<search::DistributionOptions> DistributionOptionsFromDesign(const v1::CampaignDesign& design,
                                                                          const search::Space& space);
 
 // A candidate message as domain values in the space's parameter order. Every parameter must be

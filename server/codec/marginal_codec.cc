@@ -41,7 +41,7 @@ void SetRealOrInteger(const search::ParameterSpec& p, double u, double s, v1::Ma
 }  // namespace
 
 std::vector<v1::Marginal> MarginalsToProto(const search::DistributionSummary& summary, const search::Space& space,
-                                           const v1::StudyDesign& design) {
+                                           const v1::CampaignDesign& design) {
   std::vector<v1::Marginal> out;
   out.reserve(space.size());
   int gaussian_k = 0, flag_k = 0, categorical_k = 0;
@@ -75,7 +75,7 @@ std::vector<v1::Marginal> MarginalsToProto(const search::DistributionSummary& su
 absl::Status CheckGenerationFits(const v1::GenerationSummary& g, const search::Space& space) {
   const auto mismatch = [&](absl::string_view field, int expected, int got) {
     return absl::DataLossError(absl::StrCat("generation ", g.generation(), ": stored summary has ", got, " ",
-                                            field, ", the study's parameters need ", expected));
+                                            field, ", the campaign's parameters need ", expected));
   };
   const int n = static_cast<int>(space.gaussian_indices().size());
   if (n > 0 && g.mean_size() != n) return mismatch("means", n, g.mean_size());
@@ -115,7 +115,7 @@ search::DistributionSummary SummaryFromGeneration(const v1::GenerationSummary& g
 
 absl::StatusOr<v1::GenerationView> GenerationViewFromSummary(const v1::GenerationSummary& g,
                                                              const search::Space& space,
-                                                             const v1::StudyDesign& design) {
+                                                             const v1::CampaignDesign& design) {
   if (absl::Status s = CheckGenerationFits(g, space); !s.ok()) return s;
   const search::DistributionSummary summary = SummaryFromGeneration(g, space);
   v1::GenerationView view;

@@ -1,4 +1,4 @@
-// The search distribution in the user's units: each parameter's Marginal (study.proto's internal
+// The search distribution in the user's units: each parameter's Marginal (campaign.proto's internal
 // coordinates turned into the parameter's unit and bounds), for status views and for the stored
 // per-generation history. The one place that knows how an internal coordinate maps back to a value:
 // reals affinely onto [low, high] (after ln for log scales), integers onto [low - 1/2, high + 1/2].
@@ -11,7 +11,7 @@
 
 #include "absl/status/statusor.h"
 #include "ogive/v1/service.pb.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 #include "server/search/search_distribution.h"
 #include "server/search/space.h"
 
@@ -22,7 +22,7 @@ namespace ogive::codec {
 // bounds; flags: P(on); categoricals: the options and their probabilities. Units come from
 // `design`. REQUIRES: space == SpaceFromDesign(design) and `summary` is a summary over `space`.
 std::vector<v1::Marginal> MarginalsToProto(const search::DistributionSummary& summary, const search::Space& space,
-                                           const v1::StudyDesign& design);
+                                           const v1::CampaignDesign& design);
 
 // OK when a stored GenerationSummary fits `space`: a mean and a spread per real and integer parameter,
 // a probability per flag, one per option of every categorical parameter. DATA_LOSS saying which
@@ -38,7 +38,7 @@ search::DistributionSummary SummaryFromGeneration(const v1::GenerationSummary& g
 // REQUIRES: space == SpaceFromDesign(design).
 absl::StatusOr<v1::GenerationView> GenerationViewFromSummary(const v1::GenerationSummary& generation,
                                                              const search::Space& space,
-                                                             const v1::StudyDesign& design);
+                                                             const v1::CampaignDesign& design);
 
 }  // namespace ogive::codec
 

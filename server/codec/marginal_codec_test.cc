@@ -25,11 +25,11 @@ constexpr char kDesign[] = R"pb(
   parameters { name: "level" integer { low: 1 high: 8 } }
   parameters { name: "reorder" flag {} }
   parameters { name: "glaze" categorical { options: "a" options: "b" options: "c" } }
-  objective { direction: LOWER_IS_BETTER }
+  objective { direction: DIRECTION_LOWER_IS_BETTER }
 )pb";
 
-v1::StudyDesign Design() {
-  v1::StudyDesign design;
+v1::CampaignDesign Design() {
+  v1::CampaignDesign design;
   EXPECT_TRUE(google::protobuf::TextFormat::ParseFromString(kDesign, &design));
   return design;
 }
@@ -55,7 +55,7 @@ v1::GenerationSummary Summary() {
 }
 
 TEST(MarginalCodec, ConvertsEveryKindToUserUnits) {
-  const v1::StudyDesign design = Design();
+  const v1::CampaignDesign design = Design();
   absl::StatusOr<search::Space> space = SpaceFromDesign(design);
   ASSERT_TRUE(space.ok()) << space.status();
   absl::StatusOr<v1::GenerationView> view = GenerationViewFromSummary(Summary(), *space, design);
@@ -102,7 +102,7 @@ TEST(MarginalCodec, ConvertsEveryKindToUserUnits) {
 }
 
 TEST(MarginalCodec, StatusViewAndHistoryShareOneConversion) {
-  const v1::StudyDesign design = Design();
+  const v1::CampaignDesign design = Design();
   absl::StatusOr<search::Space> space = SpaceFromDesign(design);
   ASSERT_TRUE(space.ok());
   const std::vector<v1::Marginal> direct =
@@ -116,9 +116,9 @@ TEST(MarginalCodec, StatusViewAndHistoryShareOneConversion) {
 }
 
 TEST(MarginalCodec, NoGaussianBlockLeavesStepSizeAtZero) {
-  v1::StudyDesign design;
+  v1::CampaignDesign design;
   ASSERT_TRUE(google::protobuf::TextFormat::ParseFromString(R"pb(
-    name: "flags" parameters { name: "f" flag {} } objective { direction: LOWER_IS_BETTER })pb", &design));
+    name: "flags" parameters { name: "f" flag {} } objective { direction: DIRECTION_LOWER_IS_BETTER })pb", &design));
   absl::StatusOr<search::Space> space = SpaceFromDesign(design);
   ASSERT_TRUE(space.ok());
   v1::GenerationSummary g;
@@ -132,7 +132,7 @@ TEST(MarginalCodec, NoGaussianBlockLeavesStepSizeAtZero) {
 }
 
 TEST(MarginalCodec, RefusesSummariesThatDoNotFitTheSpace) {
-  const v1::StudyDesign design = Design();
+  const v1::CampaignDesign design = Design();
   absl::StatusOr<search::Space> space = SpaceFromDesign(design);
   ASSERT_TRUE(space.ok());
   struct Case {
@@ -140,7 +140,7 @@ TEST(MarginalCodec, RefusesSummariesThatDoNotFitTheSpace) {
     std::string message;
   };
   const Case cases[] = {
-      {[](v1::GenerationSummary& g) { g.mutable_mean()->RemoveLast(); }, "2 means, the study's parameters need 3"},
+      {[](v1::GenerationSummary& g) { g.mutable_mean()->RemoveLast(); }, "2 means, the campaign's parameters need 3"},
       {[](v1::GenerationSummary& g) { g.add_spread(0.1); }, "4 spreads"},
       {[](v1::GenerationSummary& g) { g.clear_flag_probabilities(); }, "0 flag probabilities"},
       {[](v1::GenerationSummary& g) { g.add_option_probabilities(0.1); }, "4 option probabilities"},

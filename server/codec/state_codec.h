@@ -1,11 +1,11 @@
-// Conversion of a search distribution's full state to the DistributionState message of study.proto and
+// Conversion of a search distribution's full state to the DistributionState message of campaign.proto and
 // back. Doubles are copied as they are, so a round trip is bit-exact and a restored distribution
 // continues exactly where the stored one stopped.
 #ifndef OGIVE_SERVER_CODEC_STATE_CODEC_H_
 #define OGIVE_SERVER_CODEC_STATE_CODEC_H_
 
 #include "absl/status/statusor.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 #include "server/search/search_distribution.h"
 
 namespace ogive::codec {

@@ -32,7 +32,7 @@ TEST(HistogramDeathTest, BoundsMustIncrease) {
 TEST(MetricRegistryTest, FamiliesInRegistrationOrderSeriesInLabelOrder) {
   MetricRegistry registry;
   CounterFamily& requests = registry.AddCounter("ogive_requests_total", "Requests.", {"method", "code"});
-  GaugeFamily& leases = registry.AddGauge("ogive_open_leases", "Leases.", {"study"});
+  GaugeFamily& leases = registry.AddGauge("ogive_open_leases", "Leases.", {"campaign"});
   registry.AddCollected("ogive_store_size_bytes", "Size.", MetricType::kGauge,
                         [](std::vector<Sample>& samples) { samples.push_back({"", {}, 4096}); });
   requests.WithLabels({"Tell", "OK"}).Increment(2);
@@ -48,7 +48,7 @@ TEST(MetricRegistryTest, FamiliesInRegistrationOrderSeriesInLabelOrder) {
             "ogive_requests_total{method=\"Tell\",code=\"OK\"} 2\n"
             "# HELP ogive_open_leases Leases.\n"
             "# TYPE ogive_open_leases gauge\n"
-            "ogive_open_leases{study=\"kiln\"} 3\n"
+            "ogive_open_leases{campaign=\"kiln\"} 3\n"
             "# HELP ogive_store_size_bytes Size.\n"
             "# TYPE ogive_store_size_bytes gauge\n"
             "ogive_store_size_bytes 4096\n");

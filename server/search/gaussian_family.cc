@@ -13,7 +13,7 @@ namespace ogive::search {
 namespace {
 
 // Eigenvalues of C are floored at this fraction of the largest one, so C^{-1/2} stays finite. The
-// study's termination test stops at a condition number of 1e14, far before the floor matters.
+// campaign's termination test stops at a condition number of 1e14, far before the floor matters.
 constexpr double kEigenvalueFloor = 1e-20;
 
 // z with P(N(0,1) > z) = alpha, by bisection on the complementary error function.
@@ -29,7 +29,7 @@ double UpperNormalQuantile(double alpha) {
 bool AllFinite(const Eigen::VectorXd& v) { return v.allFinite(); }
 
 // Beyond this marginal standard deviation (internal units, where a range is 1 wide) a distribution has
-// stopped meaning anything, and squares of its samples would overflow; the study restarts it.
+// stopped meaning anything, and squares of its samples would overflow; the campaign restarts it.
 constexpr double kMaxSpread = 1e100;
 
 // True if the state can no longer be sampled: non-finite numbers, σ = 0, or a runaway spread.
@@ -273,7 +273,7 @@ void GaussianFamily::UpdateMargin() {
     if (cell < w - 1) distance = std::max(distance, std::abs((cell + 1) / w - st.mean[j]));
     const double c_jj = st.diagonal ? st.covariance(j, 0) : st.covariance(j, j);
     const double spread = st.sigma * std::sqrt(std::max(c_jj, 0.0));
-    // With no spread at all (σ underflowed) no finite scale helps; such a study is converged.
+    // With no spread at all (σ underflowed) no finite scale helps; such a campaign is converged.
     st.margin_scale[j] = spread > 0.0 ? std::max(1.0, distance / (z_alpha * spread)) : 1.0;
   }
 }

@@ -1,11 +1,11 @@
 // RandomStream: the seeded source of randomness that the search core draws from.
 //
 // The generator is xoshiro256** (Blackman and Vigna, "Scrambled linear pseudorandom number generators",
-// ACM TOMS 47(4), 2021), seeded through splitmix64. Its whole position is four 64-bit words, so a study
+// ACM TOMS 47(4), 2021), seeded through splitmix64. Its whole position is four 64-bit words, so a campaign
 // can store where its stream stands and continue it bit-identically after a restart. Normal deviates use
 // the Box-Muller transform without a cached spare, so the position alone determines every future draw.
 //
-// Not thread-safe; each study owns its stream.
+// Not thread-safe; each campaign owns its stream.
 #ifndef OGIVE_SERVER_SEARCH_RANDOM_STREAM_H_
 #define OGIVE_SERVER_SEARCH_RANDOM_STREAM_H_
 

@@ -34,7 +34,7 @@ absl::Status CheckOutcome(const Outcome& outcome, const OutcomeOrder& order) {
   switch (outcome.kind) {
     case Outcome::Kind::kScore:
       if (order.graded) {
-        return absl::InvalidArgumentError("outcome: this study is graded; report a grade, not a score");
+        return absl::InvalidArgumentError("outcome: this campaign is graded; report a grade, not a score");
       }
       if (!std::isfinite(outcome.score)) {
         return absl::InvalidArgumentError(
@@ -43,7 +43,7 @@ absl::Status CheckOutcome(const Outcome& outcome, const OutcomeOrder& order) {
       return absl::OkStatus();
     case Outcome::Kind::kGrade:
       if (!order.graded) {
-        return absl::InvalidArgumentError("outcome: this study takes scores; report a score, not a grade");
+        return absl::InvalidArgumentError("outcome: this campaign takes scores; report a score, not a grade");
       }
       if (outcome.grade < 0 || outcome.grade >= order.grade_count) {
         return absl::InvalidArgumentError(absl::StrCat("outcome.grade: index ", outcome.grade,

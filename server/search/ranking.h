@@ -2,7 +2,7 @@
 //
 // Only the order of outcomes is used (Ollivier, Arnold, Auger, Hansen, "Information-Geometric
 // Optimization Algorithms: A Unifying Picture via Invariance Principles", JMLR 18, 2017; the IGO
-// paper). Scores compare by the study's direction, grades by their place in the scale; an infeasible
+// paper). Scores compare by the campaign's direction, grades by their place in the scale; an infeasible
 // outcome ranks below every score or grade, and infeasible outcomes tie with each other. Void outcomes
 // carry no information and never enter a ranking.
 //
@@ -22,7 +22,7 @@ namespace ogive::search {
 
 enum class Direction { kLowerIsBetter, kHigherIsBetter };
 
-// How a study orders outcomes: by a direction for scores, or by a scale of `grade_count` grades where
+// How a campaign orders outcomes: by a direction for scores, or by a scale of `grade_count` grades where
 // grade 0 is the worst.
 struct OutcomeOrder {
   bool graded = false;
@@ -52,7 +52,7 @@ struct TieSpan {
 };
 
 // Checks that an outcome fits the order: a score for a direction (finite), a grade within the scale
-// for a graded study, or infeasible. INVALID_ARGUMENT otherwise.
+// for a graded campaign, or infeasible. INVALID_ARGUMENT otherwise.
 absl::Status CheckOutcome(const Outcome& outcome, const OutcomeOrder& order);
 
 // -1 if a is better than b, +1 if worse, 0 if they tie. REQUIRES: both pass CheckOutcome, none void.

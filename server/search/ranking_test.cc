@@ -212,7 +212,7 @@ TEST(RankCohortTest, GradesOutsideTheScaleAreRefused) {
   }
 }
 
-TEST(RankCohortTest, ScoreForAGradedStudyAndGradeForAScoredStudyAreRefused) {
+TEST(RankCohortTest, ScoreForAGradedCampaignAndGradeForAScoredCampaignAreRefused) {
   const OutcomeOrder graded{true, Direction::kLowerIsBetter, 3};
   absl::StatusOr<std::vector<TieSpan>> a =
       RankCohort({Outcome::Grade(1), Outcome::Score(0.5)}, graded);

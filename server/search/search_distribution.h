@@ -85,7 +85,7 @@ class SearchDistribution {
   static absl::StatusOr<SearchDistribution> Create(Space space, const DistributionOptions& options);
   static absl::StatusOr<SearchDistribution> FromState(Space space, DistributionState state);
 
-  // The population size a study uses by default: max(4 + ⌊3 ln n⌋, expected_workers, 2).
+  // The population size a campaign uses by default: max(4 + ⌊3 ln n⌋, expected_workers, 2).
   static int DefaultPopulationSize(const Space& space, int expected_workers);
 
   const Space& space() const { return space_; }

@@ -92,7 +92,7 @@ const char* KindName(ParameterKind kind) {
 
 absl::StatusOr<Space> Space::Create(std::vector<ParameterSpec> parameters) {
   if (parameters.empty()) {
-    return absl::InvalidArgumentError("parameters: a study needs at least one parameter");
+    return absl::InvalidArgumentError("parameters: a campaign needs at least one parameter");
   }
   absl::flat_hash_set<std::string> names;
   for (const ParameterSpec& p : parameters) {

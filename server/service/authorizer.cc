@@ -30,8 +30,8 @@ absl::Status AuthOptions::Validate() const {
   return absl::OkStatus();
 }
 
-bool Caller::MayUse(absl::string_view study) const {
-  return studies.empty() || std::find(studies.begin(), studies.end(), study) != studies.end();
+bool Caller::MayUse(absl::string_view campaign) const {
+  return campaigns.empty() || std::find(campaigns.begin(), campaigns.end(), campaign) != campaigns.end();
 }
 
 Authorizer::Authorizer(storage::Store* store, AuthOptions options, Clock clock)
@@ -116,7 +116,7 @@ int Authorizer::valid_tokens() const {
 }
 
 absl::StatusOr<Caller> Authorizer::Check(absl::Span<const absl::string_view> authorization, Method method,
-                                         absl::string_view study) {
+                                         absl::string_view campaign) {
   if (!options_.require_tokens) return Caller{};
   if (authorization.empty()) {
     return absl::UnauthenticatedError(absl::StrCat(
@@ -158,11 +158,11 @@ absl::StatusOr<Caller> Authorizer::Check(absl::Span<const absl::string_view> aut
     return absl::PermissionDeniedError(absl::StrCat(MethodName(method), " needs role ", RolesAllowed(method),
                                                     "; token '", stored->label, "' has role ", stored->role));
   }
-  Caller caller{stored->label, *role, std::move(stored->studies)};
-  if (!study.empty() && !caller.MayUse(study)) {
-    return absl::PermissionDeniedError(absl::StrCat("study '", study, "': token '", caller.label,
-                                                    "' is limited to the studies ",
-                                                    absl::StrJoin(caller.studies, ", ")));
+  Caller caller{stored->label, *role, std::move(stored->campaigns)};
+  if (!campaign.empty() && !caller.MayUse(campaign)) {
+    return absl::PermissionDeniedError(absl::StrCat("campaign '", campaign, "': token '", caller.label,
+                                                    "' is limited to the campaigns ",
+                                                    absl::StrJoin(caller.campaigns, ", ")));
   }
   return caller;
 }

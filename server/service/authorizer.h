@@ -1,6 +1,6 @@
 // Authorizer: decides, before a handler does anything else, whether a call may proceed — who sent it
 // (the bearer token in its `authorization` metadata), whether that token's role may call the method,
-// whether its study scope covers the study, and whether the token is within its request rate.
+// whether its campaign scope covers the campaign, and whether the token is within its request rate.
 //
 // It runs inside the service, not as a gRPC AuthMetadataProcessor, because gRPC skips those on
 // insecure credentials (loopback development without TLS) and every call must be checked.
@@ -15,7 +15,7 @@
 // came.
 //
 // Codes: UNAUTHENTICATED for a missing, malformed, unknown or revoked token; PERMISSION_DENIED for a
-// role that may not call the method or a study outside the token's scope; RESOURCE_EXHAUSTED beyond
+// role that may not call the method or a campaign outside the token's scope; RESOURCE_EXHAUSTED beyond
 // the rate. Messages name the role needed and never contain a token.
 //
 // Thread-safe. The store and the clock outlive the Authorizer.
@@ -56,10 +56,10 @@ struct AuthOptions {
 struct Caller {
   std::string label;                 // the token's label, recorded for the audit; "" without tokens
   Role role = Role::kAdmin;
-  std::vector<std::string> studies;  // the token's study scope; empty: every study
+  std::vector<std::string> campaigns;  // the token's campaign scope; empty: every campaign
 
-  // Whether the scope covers the study named `study`.
-  bool MayUse(absl::string_view study) const;
+  // Whether the scope covers the campaign named `campaign`.
+  bool MayUse(absl::string_view campaign) const;
 };
 
 class Authorizer {
@@ -71,11 +71,11 @@ class Authorizer {
   static absl::StatusOr<std::unique_ptr<Authorizer>> Create(storage::Store* store, AuthOptions options,
                                                             Clock clock);
 
-  // Checks one call of `method` about `study` ("" for ListStudies, which filters with
+  // Checks one call of `method` about `campaign` ("" for ListCampaigns, which filters with
   // Caller::MayUse instead). `authorization` holds every value of the call's `authorization`
   // metadata (normally one).
   absl::StatusOr<Caller> Check(absl::Span<const absl::string_view> authorization, Method method,
-                               absl::string_view study);
+                               absl::string_view campaign);
 
   // Whether the token labelled `label` that Check() let through is still valid (not revoked), as of
   // a copy of the table at most refresh_interval old. For long calls (Watch). Always true without

@@ -1,5 +1,5 @@
 // Tests of the Authorizer on a real token table (SqliteStore on a temporary file, tokens made by
-// TokenAdmin) and a hand-driven clock: the role table of every method, study scopes, every way a
+// TokenAdmin) and a hand-driven clock: the role table of every method, campaign scopes, every way a
 // token can be missing or wrong, revocation and new tokens seen without a restart, and the per-token
 // rate limit.
 #include "server/service/authorizer.h"
@@ -57,11 +57,11 @@ class AuthorizerTest : public ::testing::Test {
   }
 
   // Makes a token and returns its `authorization` value.
-  std::string MakeToken(const std::string& label, const std::string& role, std::vector<std::string> studies = {}) {
+  std::string MakeToken(const std::string& label, const std::string& role, std::vector<std::string> campaigns = {}) {
     v1::CreateTokenRequest request;
     request.set_label(label);
     request.set_role(role);
-    for (const std::string& s : studies) request.add_studies(s);
+    for (const std::string& s : campaigns) request.add_campaigns(s);
     absl::StatusOr<v1::CreateTokenResponse> created = admin_->Create(request);
     EXPECT_TRUE(created.ok()) << created.status();
     return created.ok() ? "Bearer " + created->secret() : "";
@@ -74,9 +74,9 @@ class AuthorizerTest : public ::testing::Test {
     authorizer_ = *std::move(authorizer);
   }
 
-  absl::StatusOr<Caller> Check(const std::string& header, Method method, const std::string& study = "kiln") {
+  absl::StatusOr<Caller> Check(const std::string& header, Method method, const std::string& campaign = "kiln") {
     std::vector<absl::string_view> values = {header};
-    return authorizer_->Check(values, method, study);
+    return authorizer_->Check(values, method, campaign);
   }
 
   static inline int test_number_ = 0;
@@ -87,8 +87,8 @@ class AuthorizerTest : public ::testing::Test {
   std::unique_ptr<Authorizer> authorizer_;
 };
 
-// The role table as the issue states it: reader (GetStudy, ListStudies, ListTrials, Watch), worker
-// (+ Ask, Tell, Renew), admin (+ CreateStudy, SetPhase). Written out, not derived from the code.
+// The role table as the issue states it: reader (GetCampaign, ListCampaigns, ListTrials, Watch), worker
+// (+ Ask, Tell, Renew), admin (+ CreateCampaign, SetPhase). Written out, not derived from the code.
 struct RoleCase {
   const char* role;
   Method method;
@@ -116,20 +116,20 @@ TEST_P(RoleTableTest, RoleMayCallExactlyItsMethods) {
 INSTANTIATE_TEST_SUITE_P(
     EveryRoleAndMethod, RoleTableTest,
     ::testing::Values(
-        RoleCase{"reader", Method::kGetStudy, true}, RoleCase{"reader", Method::kListStudies, true},
+        RoleCase{"reader", Method::kGetCampaign, true}, RoleCase{"reader", Method::kListCampaigns, true},
         RoleCase{"reader", Method::kListTrials, true}, RoleCase{"reader", Method::kListGenerations, true}, RoleCase{"reader", Method::kWatch, true},
         RoleCase{"reader", Method::kAsk, false}, RoleCase{"reader", Method::kTell, false},
-        RoleCase{"reader", Method::kRenew, false}, RoleCase{"reader", Method::kCreateStudy, false},
+        RoleCase{"reader", Method::kRenew, false}, RoleCase{"reader", Method::kCreateCampaign, false},
         RoleCase{"reader", Method::kSetPhase, false},
-        RoleCase{"worker", Method::kGetStudy, true}, RoleCase{"worker", Method::kListStudies, true},
+        RoleCase{"worker", Method::kGetCampaign, true}, RoleCase{"worker", Method::kListCampaigns, true},
         RoleCase{"worker", Method::kListTrials, true}, RoleCase{"worker", Method::kWatch, true},
         RoleCase{"worker", Method::kAsk, true}, RoleCase{"worker", Method::kTell, true},
-        RoleCase{"worker", Method::kRenew, true}, RoleCase{"worker", Method::kCreateStudy, false},
+        RoleCase{"worker", Method::kRenew, true}, RoleCase{"worker", Method::kCreateCampaign, false},
         RoleCase{"worker", Method::kSetPhase, false},
-        RoleCase{"admin", Method::kGetStudy, true}, RoleCase{"admin", Method::kListStudies, true},
+        RoleCase{"admin", Method::kGetCampaign, true}, RoleCase{"admin", Method::kListCampaigns, true},
         RoleCase{"admin", Method::kListTrials, true}, RoleCase{"admin", Method::kWatch, true},
         RoleCase{"admin", Method::kAsk, true}, RoleCase{"admin", Method::kTell, true},
-        RoleCase{"admin", Method::kRenew, true}, RoleCase{"admin", Method::kCreateStudy, true},
+        RoleCase{"admin", Method::kRenew, true}, RoleCase{"admin", Method::kCreateCampaign, true},
         RoleCase{"admin", Method::kSetPhase, true}),
     [](const ::testing::TestParamInfo<RoleCase>& param_info) {
       return absl::StrCat(param_info.param.role, "_", MethodName(param_info.param.method));
@@ -151,32 +151,32 @@ TEST_F(AuthorizerTest, MissingMalformedRepeatedAndUnknownTokensAreUnauthenticate
   EXPECT_THAT(authorizer_->Check({}, Method::kAsk, "kiln"),
               StatusIs(absl::StatusCode::kUnauthenticated,
                        AllOf(HasSubstr("Ask needs a token (role worker or admin)"), HasSubstr("Bearer"))));
-  EXPECT_THAT(Check("Basic QWxhZGRpbjpvcGVuIHNlc2FtZQ==", Method::kGetStudy),
+  EXPECT_THAT(Check("Basic QWxhZGRpbjpvcGVuIHNlc2FtZQ==", Method::kGetCampaign),
               StatusIs(absl::StatusCode::kUnauthenticated, HasSubstr("expected 'Bearer <token>'")));
-  EXPECT_THAT(Check("Bearer", Method::kGetStudy), StatusIs(absl::StatusCode::kUnauthenticated, _));
+  EXPECT_THAT(Check("Bearer", Method::kGetCampaign), StatusIs(absl::StatusCode::kUnauthenticated, _));
   std::vector<absl::string_view> twice = {good, good};
-  EXPECT_THAT(authorizer_->Check(twice, Method::kGetStudy, "kiln"),
+  EXPECT_THAT(authorizer_->Check(twice, Method::kGetCampaign, "kiln"),
               StatusIs(absl::StatusCode::kUnauthenticated, HasSubstr("sent 2 times")));
   // A well-formed token this server never issued, and a real one with one character changed.
-  EXPECT_THAT(Check("Bearer ogt_aaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaa", Method::kGetStudy),
+  EXPECT_THAT(Check("Bearer ogt_aaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaa", Method::kGetCampaign),
               StatusIs(absl::StatusCode::kUnauthenticated, HasSubstr("knows no such token")));
   std::string altered = good;
   altered.back() = altered.back() == 'a' ? 'b' : 'a';
-  EXPECT_THAT(Check(altered, Method::kGetStudy),
+  EXPECT_THAT(Check(altered, Method::kGetCampaign),
               StatusIs(absl::StatusCode::kUnauthenticated, Not(HasSubstr(altered.substr(7)))));
-  EXPECT_TRUE(Check(good, Method::kGetStudy).ok());
+  EXPECT_TRUE(Check(good, Method::kGetCampaign).ok());
 }
 
-TEST_F(AuthorizerTest, AStudyScopeAdmitsItsStudiesOnly) {
+TEST_F(AuthorizerTest, ACampaignScopeAdmitsItsCampaignsOnly) {
   const std::string scoped = MakeToken("kiln-line", "worker", {"kiln", "glaze"});
   StartAuthorizer();
   EXPECT_TRUE(Check(scoped, Method::kAsk, "kiln").ok());
   EXPECT_TRUE(Check(scoped, Method::kTell, "glaze").ok());
-  EXPECT_THAT(Check(scoped, Method::kGetStudy, "furnace"),
+  EXPECT_THAT(Check(scoped, Method::kGetCampaign, "furnace"),
               StatusIs(absl::StatusCode::kPermissionDenied,
-                       AllOf(HasSubstr("study 'furnace'"), HasSubstr("limited to the studies kiln, glaze"))));
-  // ListStudies names no study: it passes, and the caller's scope filters the list.
-  absl::StatusOr<Caller> lister = Check(scoped, Method::kListStudies, "");
+                       AllOf(HasSubstr("campaign 'furnace'"), HasSubstr("limited to the campaigns kiln, glaze"))));
+  // ListCampaigns names no campaign: it passes, and the caller's scope filters the list.
+  absl::StatusOr<Caller> lister = Check(scoped, Method::kListCampaigns, "");
   ASSERT_TRUE(lister.ok()) << lister.status();
   EXPECT_TRUE(lister->MayUse("kiln"));
   EXPECT_FALSE(lister->MayUse("furnace"));
@@ -218,9 +218,9 @@ TEST_F(AuthorizerTest, ANewTokenIsFoundOnItsFirstUse) {
   EXPECT_EQ(authorizer_->valid_tokens(), 0);
   const std::string token = MakeToken("late", "reader");  // no Reload()
   // A miss re-reads the table at most every miss_refresh_interval: the copy is from kStart.
-  EXPECT_THAT(Check(token, Method::kGetStudy), StatusIs(absl::StatusCode::kUnauthenticated, _));
+  EXPECT_THAT(Check(token, Method::kGetCampaign), StatusIs(absl::StatusCode::kUnauthenticated, _));
   now_ += absl::Milliseconds(100);
-  EXPECT_TRUE(Check(token, Method::kGetStudy).ok());
+  EXPECT_TRUE(Check(token, Method::kGetCampaign).ok());
   EXPECT_EQ(authorizer_->valid_tokens(), 1);
 }
 

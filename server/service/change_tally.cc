@@ -2,11 +2,11 @@
 
 namespace ogive::service {
 
-ChangeTally TallyChange(const study::Study& before, const study::Change& change) {
+ChangeTally TallyChange(const campaign::Campaign& before, const campaign::Change& change) {
   ChangeTally tally;
-  for (const study::Trial& t : change.trials) {
-    const study::Trial* old = before.trial(t.number);  // nullptr for a new trial
-    if (t.state == study::TrialState::kLapsed && (old == nullptr || old->state != study::TrialState::kLapsed)) {
+  for (const campaign::Trial& t : change.trials) {
+    const campaign::Trial* old = before.trial(t.number);  // nullptr for a new trial
+    if (t.state == campaign::TrialState::kLapsed && (old == nullptr || old->state != campaign::TrialState::kLapsed)) {
       ++tally.lapses;
     }
     if (t.outcome.has_value() && (old == nullptr || !old->outcome.has_value())) {

@@ -1,6 +1,6 @@
-// ChangeTally: what one planned study::Change does, counted the way ogived's metrics count it —
+// ChangeTally: what one planned campaign::Change does, counted the way ogived's metrics count it —
 // reports stored by outcome kind, leases that lapsed, distribution updates and restarts. A pure
-// function of the study before the change and the change itself; the study host adds the tally to
+// function of the campaign before the change and the change itself; the campaign host adds the tally to
 // the metrics once the change committed.
 #ifndef OGIVE_SERVER_SERVICE_CHANGE_TALLY_H_
 #define OGIVE_SERVER_SERVICE_CHANGE_TALLY_H_
@@ -9,7 +9,7 @@
 #include <cstdint>
 
 #include "server/search/ranking.h"
-#include "server/study/study.h"
+#include "server/campaign/campaign.h"
 
 namespace ogive::service {
 
@@ -25,7 +25,7 @@ struct ChangeTally {
 };
 
 // The tally of `change`, planned on `before` and not yet applied to it.
-ChangeTally TallyChange(const study::Study& before, const study::Change& change);
+ChangeTally TallyChange(const campaign::Campaign& before, const campaign::Change& change);
 
 }  // namespace ogive::service
 

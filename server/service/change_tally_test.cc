@@ -1,44 +1,44 @@
-// TallyChange on plans of a real study engine: each kind of report counted once (duplicates not),
+// TallyChange on plans of a real campaign engine: each kind of report counted once (duplicates not),
 // lapses only on the way from leased to lapsed, updates and restarts from the change.
 #include "server/service/change_tally.h"
 
 #include <vector>
 
 #include "gtest/gtest.h"
-#include "server/study/study_test_util.h"
+#include "server/campaign/campaign_test_util.h"
 
 namespace ogive::service {
 namespace {
 
 using search::Outcome;
-using study::Report;
-using study::Study;
-using namespace study::test_util;
+using campaign::Report;
+using campaign::Campaign;
+using namespace campaign::test_util;
 
 // Applies a planned change and returns its tally.
 template <typename Plan>
-ChangeTally ApplyTallied(Study& s, Plan plan) {
+ChangeTally ApplyTallied(Campaign& s, Plan plan) {
   ChangeTally tally = TallyChange(s, plan.change);
   s.Apply(std::move(plan.change));
   return tally;
 }
 
 TEST(ChangeTallyTest, ReportsByKindLapsesAndUpdates) {
-  study::StudyOptions options;
+  campaign::CampaignOptions options;
   options.seed = 5;
   search::DistributionOptions distribution;
   distribution.population_size = 4;
-  Study s = MakeStudy(RealSpace(2, 0, 1), kMinimize, distribution, options);
+  Campaign s = MakeCampaign(RealSpace(2, 0, 1), kMinimize, distribution, options);
   absl::Time now = Origin();
 
-  absl::StatusOr<study::AskPlan> ask = s.PlanAsk(6, "w", absl::Seconds(10), now);
+  absl::StatusOr<campaign::AskPlan> ask = s.PlanAsk(6, "w", absl::Seconds(10), now);
   ASSERT_TRUE(ask.ok());
   EXPECT_TRUE(ApplyTallied(s, *std::move(ask)).empty());  // asking counts nothing
 
   // Three scores, one infeasible, one void: one update from the four informative outcomes.
   std::vector<Report> reports = {{1, Outcome::Score(1), ""}, {2, Outcome::Score(2), ""}, {3, Outcome::Score(3), ""},
                                  {4, Outcome::Infeasible(), ""}, {5, Outcome::Void(), ""}};
-  absl::StatusOr<study::TellPlan> tell = s.PlanTell(reports, now);
+  absl::StatusOr<campaign::TellPlan> tell = s.PlanTell(reports, now);
   ASSERT_TRUE(tell.ok());
   ChangeTally t = ApplyTallied(s, *std::move(tell));
   EXPECT_EQ(t.tells_of(Outcome::Kind::kScore), 3);
@@ -68,24 +68,24 @@ TEST(ChangeTallyTest, ReportsByKindLapsesAndUpdates) {
 }
 
 TEST(ChangeTallyTest, RestartIsCounted) {
-  study::StudyOptions options;
+  campaign::CampaignOptions options;
   options.seed = 11;
   options.restarts = true;
   options.adapt_population = false;
-  Study s = MakeStudy(RealSpace(2, -1, 1), kMinimize, {}, options);
+  Campaign s = MakeCampaign(RealSpace(2, -1, 1), kMinimize, {}, options);
   absl::Time now = Origin();
   ChangeTally total;
-  // Tied cohorts converge the study after 20 updates (study_restart_test.cc); with restarts on that is
+  // Tied cohorts converge the campaign after 20 updates (campaign_restart_test.cc); with restarts on that is
   // a restart. Stop at the first one.
   for (int round = 0; round < 40 && total.restarts == 0; ++round) {
     const int lambda = s.distribution().population_size();
-    absl::StatusOr<study::AskPlan> ask = s.PlanAsk(lambda, "w", std::nullopt, now);
+    absl::StatusOr<campaign::AskPlan> ask = s.PlanAsk(lambda, "w", std::nullopt, now);
     ASSERT_TRUE(ask.ok());
     const std::vector<int64_t> numbers = ask->trials;
     ApplyTallied(s, *std::move(ask));
     std::vector<Report> reports;
     for (int64_t n : numbers) reports.push_back({n, Outcome::Score(1.0), ""});
-    absl::StatusOr<study::TellPlan> tell = s.PlanTell(reports, now);
+    absl::StatusOr<campaign::TellPlan> tell = s.PlanTell(reports, now);
     ASSERT_TRUE(tell.ok());
     const ChangeTally t = ApplyTallied(s, *std::move(tell));
     total.generations += t.generations;

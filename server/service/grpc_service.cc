@@ -17,9 +17,9 @@ namespace {
 std::string CodeName(const absl::Status& s) { return absl::StatusCodeToString(s.code()); }
 
 template <typename Response>
-grpc::Status Finish(const char* method, const std::string& study, const std::string& worker, const Caller& caller,
+grpc::Status Finish(const char* method, const std::string& campaign, const std::string& worker, const Caller& caller,
                     absl::StatusOr<Response> result, Response* out, std::string detail = "") {
-  LogLine({{"event", method}, {"study", study}, {"worker", worker}, {"token", caller.label},
+  LogLine({{"event", method}, {"campaign", campaign}, {"worker", worker}, {"token", caller.label},
            {"code", CodeName(result.status())},
            {"detail", result.ok() ? detail : std::string(result.status().message())}});
   if (!result.ok()) return ToGrpc(result.status());
@@ -29,9 +29,9 @@ grpc::Status Finish(const char* method, const std::string& study, const std::str
 
 // Reads answer without a log line when they succeed (they are many and change nothing).
 template <typename Response>
-grpc::Status FinishRead(const char* method, const std::string& study, const Caller& caller,
+grpc::Status FinishRead(const char* method, const std::string& campaign, const Caller& caller,
                         absl::StatusOr<Response> result, Response* out) {
-  if (!result.ok()) return Finish(method, study, "", caller, std::move(result), out);
+  if (!result.ok()) return Finish(method, campaign, "", caller, std::move(result), out);
   *out = *std::move(result);
   return grpc::Status::OK;
 }
@@ -76,15 +76,15 @@ grpc::Status ToGrpc(const absl::Status& status) {
 }
 
 absl::StatusOr<Caller> OgiveService::Authorize(const grpc::ServerContextBase& context, Method method,
-                                               const std::string& study) {
+                                               const std::string& campaign) {
   std::vector<absl::string_view> authorization;
   const auto range = context.client_metadata().equal_range("authorization");
   for (auto it = range.first; it != range.second; ++it) {
     authorization.emplace_back(it->second.data(), it->second.size());
   }
-  absl::StatusOr<Caller> caller = authorizer_->Check(authorization, method, study);
+  absl::StatusOr<Caller> caller = authorizer_->Check(authorization, method, campaign);
   if (!caller.ok()) {
-    LogLine({{"event", "refused"}, {"method", MethodName(method)}, {"study", study}, {"peer", context.peer()},
+    LogLine({{"event", "refused"}, {"method", MethodName(method)}, {"campaign", campaign}, {"peer", context.peer()},
              {"code", CodeName(caller.status())}, {"detail", std::string(caller.status().message())}});
   }
   return caller;
@@ -100,12 +100,12 @@ grpc::Status OgiveService::Counted(const char* method, Steady::time_point start,
 
 template <typename Body>
 grpc::Status OgiveService::Guarded(const char* name, const grpc::ServerContextBase& context, Method method,
-                                   const std::string& study, Body body) {
+                                   const std::string& campaign, Body body) {
   const Steady::time_point start = Steady::now();
   return Counted(name, start, [&]() -> grpc::Status {
     CallScope scope(this);
     if (!scope.admitted()) return CallScope::Refusal();
-    absl::StatusOr<Caller> caller = Authorize(context, method, study);
+    absl::StatusOr<Caller> caller = Authorize(context, method, campaign);
     if (!caller.ok()) return ToGrpc(caller.status());
     return body(*caller);
   }());
@@ -123,7 +123,7 @@ grpc::ServerUnaryReactor* OgiveService::ReplyAfterCommit(const char* name, const
     reactor->Finish(Counted(name, start, CallScope::Refusal()));
     return reactor;
   }
-  absl::StatusOr<Caller> caller = Authorize(*context, method, request->study());
+  absl::StatusOr<Caller> caller = Authorize(*context, method, request->campaign());
   if (!caller.ok()) {
     reactor->Finish(Counted(name, start, ToGrpc(caller.status())));
     return reactor;
@@ -134,7 +134,7 @@ grpc::ServerUnaryReactor* OgiveService::ReplyAfterCommit(const char* name, const
                      scope = std::move(scope)](absl::StatusOr<Response> result) mutable {
     const std::string detail = result.ok() ? describe(*result) : "";
     const grpc::Status status = Counted(
-        name, start, Finish(event, request->study(), request->worker(), who, std::move(result), response, detail));
+        name, start, Finish(event, request->campaign(), request->worker(), who, std::move(result), response, detail));
     // Out of flight before the reactor finishes: once every reactor finished, the server may go, and
     // this continuation may be destroyed later, on another thread. A Drain() that returns in the
     // microseconds between leaves this reply to the server's shutdown deadline (ogived: 200 ms); a
@@ -145,25 +145,25 @@ grpc::ServerUnaryReactor* OgiveService::ReplyAfterCommit(const char* name, const
   return reactor;
 }
 
-grpc::Status OgiveService::CreateStudy(grpc::ServerContext* context, const v1::CreateStudyRequest* request,
-                                       v1::StudyView* response) {
-  return Guarded("CreateStudy", *context, Method::kCreateStudy, request->design().name(), [&](const Caller& caller) {
-    return Finish("create", request->design().name(), "", caller, service::CreateStudy(*registry_, *request),
+grpc::Status OgiveService::CreateCampaign(grpc::ServerContext* context, const v1::CreateCampaignRequest* request,
+                                       v1::CampaignView* response) {
+  return Guarded("CreateCampaign", *context, Method::kCreateCampaign, request->design().name(), [&](const Caller& caller) {
+    return Finish("create", request->design().name(), "", caller, service::CreateCampaign(*registry_, *request),
                 response);
   });
 }
 
-grpc::Status OgiveService::GetStudy(grpc::ServerContext* context, const v1::GetStudyRequest* request,
-                                    v1::StudyView* response) {
-  return Guarded("GetStudy", *context, Method::kGetStudy, request->study(), [&](const Caller& caller) {
-    return FinishRead("get", request->study(), caller, service::GetStudy(*registry_, *request), response);
+grpc::Status OgiveService::GetCampaign(grpc::ServerContext* context, const v1::GetCampaignRequest* request,
+                                    v1::CampaignView* response) {
+  return Guarded("GetCampaign", *context, Method::kGetCampaign, request->campaign(), [&](const Caller& caller) {
+    return FinishRead("get", request->campaign(), caller, service::GetCampaign(*registry_, *request), response);
   });
 }
 
-grpc::Status OgiveService::ListStudies(grpc::ServerContext* context, const v1::ListStudiesRequest* request,
-                                       v1::ListStudiesResponse* response) {
-  return Guarded("ListStudies", *context, Method::kListStudies, "", [&](const Caller& caller) {
-    return FinishRead("list_studies", "", caller, service::ListStudies(*registry_, *request, caller.studies),
+grpc::Status OgiveService::ListCampaigns(grpc::ServerContext* context, const v1::ListCampaignsRequest* request,
+                                       v1::ListCampaignsResponse* response) {
+  return Guarded("ListCampaigns", *context, Method::kListCampaigns, "", [&](const Caller& caller) {
+    return FinishRead("list_campaigns", "", caller, service::ListCampaigns(*registry_, *request, caller.campaigns),
                     response);
   });
 }
@@ -202,48 +202,48 @@ grpc::ServerUnaryReactor* OgiveService::Tell(grpc::CallbackServerContext* contex
 
 grpc::Status OgiveService::Renew(grpc::ServerContext* context, const v1::RenewRequest* request,
                                  v1::RenewResponse* response) {
-  return Guarded("Renew", *context, Method::kRenew, request->study(), [&](const Caller& caller) {
-    return Finish("renew", request->study(), request->worker(), caller,
+  return Guarded("Renew", *context, Method::kRenew, request->campaign(), [&](const Caller& caller) {
+    return Finish("renew", request->campaign(), request->worker(), caller,
                 service::Renew(*registry_, *request, clock_()), response);
   });
 }
 
 grpc::Status OgiveService::ListTrials(grpc::ServerContext* context, const v1::ListTrialsRequest* request,
                                       v1::ListTrialsResponse* response) {
-  return Guarded("ListTrials", *context, Method::kListTrials, request->study(), [&](const Caller& caller) {
-    return FinishRead("list_trials", request->study(), caller, service::ListTrials(*registry_, *request), response);
+  return Guarded("ListTrials", *context, Method::kListTrials, request->campaign(), [&](const Caller& caller) {
+    return FinishRead("list_trials", request->campaign(), caller, service::ListTrials(*registry_, *request), response);
   });
 }
 
 grpc::Status OgiveService::ListGenerations(grpc::ServerContext* context, const v1::ListGenerationsRequest* request,
                                            v1::ListGenerationsResponse* response) {
-  return Guarded("ListGenerations", *context, Method::kListGenerations, request->study(), [&](const Caller& caller) {
-    return FinishRead("list_generations", request->study(), caller, service::ListGenerations(*registry_, *request),
+  return Guarded("ListGenerations", *context, Method::kListGenerations, request->campaign(), [&](const Caller& caller) {
+    return FinishRead("list_generations", request->campaign(), caller, service::ListGenerations(*registry_, *request),
                     response);
   });
 }
 
 grpc::Status OgiveService::SetPhase(grpc::ServerContext* context, const v1::SetPhaseRequest* request,
-                                    v1::StudyView* response) {
-  return Guarded("SetPhase", *context, Method::kSetPhase, request->study(), [&](const Caller& caller) {
-    return Finish("set_phase", request->study(), "", caller,
+                                    v1::CampaignView* response) {
+  return Guarded("SetPhase", *context, Method::kSetPhase, request->campaign(), [&](const Caller& caller) {
+    return Finish("set_phase", request->campaign(), "", caller,
                 service::SetPhase(*registry_, *request, clock_(), caller.label), response,
                 v1::PhaseCommand_Name(request->command()));
   });
 }
 
 grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRequest* request,
-                                 grpc::ServerWriter<v1::StudyView>* writer) {
-  return Guarded("Watch", *context, Method::kWatch, request->study(), [&](const Caller& caller) -> grpc::Status {
+                                 grpc::ServerWriter<v1::CampaignView>* writer) {
+  return Guarded("Watch", *context, Method::kWatch, request->campaign(), [&](const Caller& caller) -> grpc::Status {
     if (absl::Status s = ValidateWatch(*request, registry_->limits()); !s.ok()) return ToGrpc(s);
-    absl::StatusOr<std::shared_ptr<StudyHost>> host = registry_->Find(request->study());
+    absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry_->Find(request->campaign());
     if (!host.ok()) return ToGrpc(host.status());
     // Each view comes with the version it shows, so no change is sent twice or missed. Wake up at
     // least every 200 ms to notice a cancelled call, a draining server or a revoked token. The view
-    // after the change that ended the study is the last one sent.
+    // after the change that ended the campaign is the last one sent.
     int64_t version = 0;
-    v1::StudyView view = (*host)->View(/*brief=*/false, &version);
-    while (writer->Write(view) && view.status().phase() != v1::STUDY_PHASE_DONE) {
+    v1::CampaignView view = (*host)->View(/*brief=*/false, &version);
+    while (writer->Write(view) && view.status().phase() != v1::CAMPAIGN_PHASE_DONE) {
       for (;;) {
         if (context->IsCancelled() || stopping_) return grpc::Status::OK;
         if (!authorizer_->StillValid(caller.label)) {

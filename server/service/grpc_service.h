@@ -1,5 +1,5 @@
 // OgiveService: the gRPC adapter of the handlers (handlers.h). Each method first has the Authorizer
-// check the call's bearer token against the method and the study it names (nothing else happens for
+// check the call's bearer token against the method and the campaign it names (nothing else happens for
 // a refused call), then converts absl::Status to grpc::Status (the codes are the same numbers), logs
 // one structured line (with the token's label, never the token), and calls the handler with the
 // server's clock and the label for the audit. Ask and Tell, the calls workers make all day, use
@@ -48,21 +48,21 @@ class OgiveService final
   // waiting for idle clients to notice the server's goaway.
   bool Drain(absl::Duration timeout);
 
-  grpc::Status CreateStudy(grpc::ServerContext*, const v1::CreateStudyRequest*, v1::StudyView*) override;
-  grpc::Status GetStudy(grpc::ServerContext*, const v1::GetStudyRequest*, v1::StudyView*) override;
-  grpc::Status ListStudies(grpc::ServerContext*, const v1::ListStudiesRequest*, v1::ListStudiesResponse*) override;
+  grpc::Status CreateCampaign(grpc::ServerContext*, const v1::CreateCampaignRequest*, v1::CampaignView*) override;
+  grpc::Status GetCampaign(grpc::ServerContext*, const v1::GetCampaignRequest*, v1::CampaignView*) override;
+  grpc::Status ListCampaigns(grpc::ServerContext*, const v1::ListCampaignsRequest*, v1::ListCampaignsResponse*) override;
   grpc::ServerUnaryReactor* Ask(grpc::CallbackServerContext*, const v1::AskRequest*, v1::AskResponse*) override;
   grpc::ServerUnaryReactor* Tell(grpc::CallbackServerContext*, const v1::TellRequest*, v1::TellResponse*) override;
   grpc::Status Renew(grpc::ServerContext*, const v1::RenewRequest*, v1::RenewResponse*) override;
   grpc::Status ListTrials(grpc::ServerContext*, const v1::ListTrialsRequest*, v1::ListTrialsResponse*) override;
   grpc::Status ListGenerations(grpc::ServerContext*, const v1::ListGenerationsRequest*,
                                v1::ListGenerationsResponse*) override;
-  grpc::Status SetPhase(grpc::ServerContext*, const v1::SetPhaseRequest*, v1::StudyView*) override;
-  grpc::Status Watch(grpc::ServerContext*, const v1::WatchRequest*, grpc::ServerWriter<v1::StudyView>*) override;
+  grpc::Status SetPhase(grpc::ServerContext*, const v1::SetPhaseRequest*, v1::CampaignView*) override;
+  grpc::Status Watch(grpc::ServerContext*, const v1::WatchRequest*, grpc::ServerWriter<v1::CampaignView>*) override;
 
  private:
   // The Authorizer's verdict on this call; a refusal is logged here.
-  absl::StatusOr<Caller> Authorize(const grpc::ServerContextBase& context, Method method, const std::string& study);
+  absl::StatusOr<Caller> Authorize(const grpc::ServerContextBase& context, Method method, const std::string& campaign);
   class CallScope;  // counts one call in flight, unless draining
   using Steady = std::chrono::steady_clock;
   // Counts one finished call of `method` that arrived at `start`; returns `status`.
@@ -71,7 +71,7 @@ class OgiveService final
   // then `body(caller)`; latency and code counted under `name`.
   template <typename Body>
   grpc::Status Guarded(const char* name, const grpc::ServerContextBase& context, Method method,
-                       const std::string& study, Body body);
+                       const std::string& campaign, Body body);
   // A callback method (Ask, Tell): counted in flight (refused while draining), the caller checked,
   // then `start_call(token_label, reply)`; `reply` finishes the call once the write committed,
   // logging `event` with `describe(response)` as detail; latency and code counted under `name`.

@@ -11,7 +11,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/synchronization/notification.h"
 #include "server/codec/design_codec.h"
-#include "server/codec/study_codec.h"
+#include "server/codec/campaign_codec.h"
 #include "server/service/validation.h"
 
 namespace ogive::service {
@@ -38,26 +38,26 @@ absl::StatusOr<Response> AwaitReply(absl::FunctionRef<void(Reply<Response>)> sta
 
 }  // namespace
 
-absl::StatusOr<v1::StudyView> CreateStudy(Registry& registry, const v1::CreateStudyRequest& request) {
-  if (absl::Status s = ValidateCreateStudy(request, registry.limits()); !s.ok()) return s;
-  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Create(request.design(), request.request_id());
+absl::StatusOr<v1::CampaignView> CreateCampaign(Registry& registry, const v1::CreateCampaignRequest& request) {
+  if (absl::Status s = ValidateCreateCampaign(request, registry.limits()); !s.ok()) return s;
+  absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Create(request.design(), request.request_id());
   if (!host.ok()) return host.status();
   return (*host)->View(false);
 }
 
-absl::StatusOr<v1::StudyView> GetStudy(Registry& registry, const v1::GetStudyRequest& request) {
-  if (absl::Status s = ValidateGetStudy(request, registry.limits()); !s.ok()) return s;
-  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
+absl::StatusOr<v1::CampaignView> GetCampaign(Registry& registry, const v1::GetCampaignRequest& request) {
+  if (absl::Status s = ValidateGetCampaign(request, registry.limits()); !s.ok()) return s;
+  absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return host.status();
   return (*host)->View(false);
 }
 
-absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1::ListStudiesRequest&,
+absl::StatusOr<v1::ListCampaignsResponse> ListCampaigns(Registry& registry, const v1::ListCampaignsRequest&,
                                                     const std::vector<std::string>& scope) {
-  v1::ListStudiesResponse response;
+  v1::ListCampaignsResponse response;
   for (const auto& host : registry.All()) {
     if (!scope.empty() && std::find(scope.begin(), scope.end(), host->name()) == scope.end()) continue;
-    *response.add_studies() = host->View(true);
+    *response.add_campaigns() = host->View(true);
   }
   return response;
 }
@@ -65,7 +65,7 @@ absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1
 void Ask(Registry& registry, const v1::AskRequest& request, absl::Time now, const std::string& token_label,
          Reply<v1::AskResponse> reply) {
   if (absl::Status s = ValidateAsk(request, registry.limits()); !s.ok()) return reply(s);
-  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
+  absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return reply(host.status());
   (*host)->Ask(request.count(), request.worker(), LeaseOf(request.lease_seconds()), request.request_id(), now,
                token_label, [host = *host, reply = std::move(reply)](absl::StatusOr<v1::AskResponse> r) mutable {
@@ -76,10 +76,10 @@ void Ask(Registry& registry, const v1::AskRequest& request, absl::Time now, cons
 void Tell(Registry& registry, const v1::TellRequest& request, absl::Time now, const std::string& token_label,
           Reply<v1::TellResponse> reply) {
   if (absl::Status s = ValidateTell(request, registry.limits()); !s.ok()) return reply(s);
-  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
+  absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return reply(host.status());
   const v1::Objective& objective = (*host)->design().objective();
-  std::vector<study::Report> reports;
+  std::vector<campaign::Report> reports;
   for (int i = 0; i < request.reports_size(); ++i) {
     const v1::Report& r = request.reports(i);
     absl::StatusOr<search::Outcome> outcome = codec::OutcomeFromProto(r.outcome(), objective);
@@ -108,7 +108,7 @@ absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest&
 
 absl::StatusOr<v1::RenewResponse> Renew(Registry& registry, const v1::RenewRequest& request, absl::Time now) {
   if (absl::Status s = ValidateRenew(request, registry.limits()); !s.ok()) return s;
-  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
+  absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return host.status();
   return (*host)->Renew(std::vector<int64_t>(request.trials().begin(), request.trials().end()), request.worker(),
                         LeaseOf(request.lease_seconds()), now);
@@ -121,13 +121,13 @@ absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::
       (request.page_token()[0] != 't' || !absl::SimpleAtoi(request.page_token().substr(1), &after) || after < 0)) {
     return absl::InvalidArgumentError("page_token: not a token this server issued; pass next_page_token as is");
   }
-  std::optional<study::TrialState> state;
+  std::optional<campaign::TrialState> state;
   if (request.state() != v1::TRIAL_STATE_UNSPECIFIED) {
-    absl::StatusOr<study::TrialState> s = codec::TrialStateFromProto(request.state());
+    absl::StatusOr<campaign::TrialState> s = codec::TrialStateFromProto(request.state());
     if (!s.ok()) return absl::InvalidArgumentError(absl::StrCat("state: ", s.status().message()));
     state = *s;
   }
-  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
+  absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return host.status();
   int64_t next_after = 0;
   v1::ListTrialsResponse response;
@@ -146,7 +146,7 @@ absl::StatusOr<v1::ListGenerationsResponse> ListGenerations(Registry& registry,
       (request.page_token()[0] != 'g' || !absl::SimpleAtoi(request.page_token().substr(1), &after) || after < 0)) {
     return absl::InvalidArgumentError("page_token: not a token this server issued; pass next_page_token as is");
   }
-  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
+  absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return host.status();
   int64_t next_after = 0;
   absl::StatusOr<std::vector<v1::GenerationView>> views =
@@ -158,25 +158,25 @@ absl::StatusOr<v1::ListGenerationsResponse> ListGenerations(Registry& registry,
   return response;
 }
 
-absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now,
+absl::StatusOr<v1::CampaignView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now,
                                        const std::string& token_label) {
   if (absl::Status s = ValidateSetPhase(request, registry.limits()); !s.ok()) return s;
-  study::PhaseCommand command;
+  campaign::PhaseCommand command;
   switch (request.command()) {
     case v1::PHASE_COMMAND_PAUSE:
-      command = study::PhaseCommand::kPause;
+      command = campaign::PhaseCommand::kPause;
       break;
     case v1::PHASE_COMMAND_RESUME:
-      command = study::PhaseCommand::kResume;
+      command = campaign::PhaseCommand::kResume;
       break;
     case v1::PHASE_COMMAND_FINISH:
-      command = study::PhaseCommand::kFinish;
+      command = campaign::PhaseCommand::kFinish;
       break;
     default:
       return absl::InvalidArgumentError(
           "command: must be PHASE_COMMAND_PAUSE, PHASE_COMMAND_RESUME or PHASE_COMMAND_FINISH");
   }
-  absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(request.study());
+  absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return host.status();
   return (*host)->SetPhase(command, now, token_label);
 }

@@ -1,5 +1,5 @@
 // The ogive service's methods as plain functions over the Registry: each validates its request (errors
-// name the field and the allowed values), converts it to domain types, calls the study host and
+// name the field and the allowed values), converts it to domain types, calls the campaign host and
 // converts back. The gRPC layer (grpc_service.h) checks the caller's token first (authorizer.h) and
 // only adapts these; tests call them directly. Ask and Tell come in two forms: one that replies
 // through a continuation once the write committed (the gRPC layer's, so that no thread waits for an
@@ -21,10 +21,10 @@
 
 namespace ogive::service {
 
-absl::StatusOr<v1::StudyView> CreateStudy(Registry& registry, const v1::CreateStudyRequest& request);
-absl::StatusOr<v1::StudyView> GetStudy(Registry& registry, const v1::GetStudyRequest& request);
-// Only the studies named in `scope` when it is not empty (the caller's token is limited to them).
-absl::StatusOr<v1::ListStudiesResponse> ListStudies(Registry& registry, const v1::ListStudiesRequest& request,
+absl::StatusOr<v1::CampaignView> CreateCampaign(Registry& registry, const v1::CreateCampaignRequest& request);
+absl::StatusOr<v1::CampaignView> GetCampaign(Registry& registry, const v1::GetCampaignRequest& request);
+// Only the campaigns named in `scope` when it is not empty (the caller's token is limited to them).
+absl::StatusOr<v1::ListCampaignsResponse> ListCampaigns(Registry& registry, const v1::ListCampaignsRequest& request,
                                                     const std::vector<std::string>& scope = {});
 void Ask(Registry& registry, const v1::AskRequest& request, absl::Time now, const std::string& token_label,
          Reply<v1::AskResponse> reply);
@@ -39,10 +39,10 @@ absl::StatusOr<v1::TellResponse> Tell(Registry& registry, const v1::TellRequest&
                                       const std::string& token_label = "");
 absl::StatusOr<v1::RenewResponse> Renew(Registry& registry, const v1::RenewRequest& request, absl::Time now);
 absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::ListTrialsRequest& request);
-// Generation views of a study from the store, in generation order, page by page.
+// Generation views of a campaign from the store, in generation order, page by page.
 absl::StatusOr<v1::ListGenerationsResponse> ListGenerations(Registry& registry,
                                                             const v1::ListGenerationsRequest& request);
-absl::StatusOr<v1::StudyView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now,
+absl::StatusOr<v1::CampaignView> SetPhase(Registry& registry, const v1::SetPhaseRequest& request, absl::Time now,
                                        const std::string& token_label = "");
 
 }  // namespace ogive::service

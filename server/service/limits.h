@@ -4,7 +4,7 @@
 // field it refuses.
 //
 // Requests beyond a count limit (message bytes, parameters, options, labels, trials per Ask or Renew,
-// reports per Tell, studies) get RESOURCE_EXHAUSTED; strings beyond their length limit and other
+// reports per Tell, campaigns) get RESOURCE_EXHAUSTED; strings beyond their length limit and other
 // malformed values get INVALID_ARGUMENT. Either message names the field and the limit.
 #ifndef OGIVE_SERVER_SERVICE_LIMITS_H_
 #define OGIVE_SERVER_SERVICE_LIMITS_H_
@@ -23,11 +23,11 @@ struct ServiceLimits {
   int max_reports_per_tell = 1000;      // reports per Tell
   int max_parameters = 1000;            // parameters per design
   int max_options = 1000;               // options per categorical parameter, labels per grade scale
-  int max_name_bytes = 128;             // study, parameter, option, grade and worker names; units
+  int max_name_bytes = 128;             // campaign, parameter, option, grade and worker names; units
   int max_request_id_bytes = 128;       // request ids (the C++ client sends 32)
   int max_note_bytes = 4096;            // the note of a report
   int max_description_bytes = 1024;     // a parameter's description
-  int max_studies = 10000;              // studies per server
+  int max_campaigns = 10000;              // campaigns per server
   int max_page_size = 1000;             // trials per ListTrials page, generations per ListGenerations page
   int max_lease_seconds = 30 * 24 * 3600;  // longest lease, 30 days
 

@@ -1,4 +1,4 @@
-// Structured log lines on standard error: `ts=2026-12-01T22:50:01.123Z event=tell study=kiln trial=12
+// Structured log lines on standard error: `ts=2026-12-01T22:50:01.123Z event=tell campaign=kiln trial=12
 // worker=node-3 code=OK`. Keys are stable; values with spaces are quoted. Never log a token.
 //
 // A request never waits for standard error: LogLine formats the line and queues it, and one thread

@@ -1,5 +1,5 @@
-// Registry: the studies one ogived serves, by name. Creates studies (validating the whole design),
-// loads every stored study at start, and hands out StudyHosts to the handlers.
+// Registry: the campaigns one ogived serves, by name. Creates campaigns (validating the whole design),
+// loads every stored campaign at start, and hands out CampaignHosts to the handlers.
 //
 // Thread-safe; a lookup never waits for a creation's commit. Owns the hosts and the CommitWaiter their replies run on; the store outlives the
 // registry.
@@ -14,9 +14,9 @@
 #include "absl/status/statusor.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/time/time.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 #include "server/service/limits.h"
-#include "server/service/study_host.h"
+#include "server/service/campaign_host.h"
 #include "storage/store.h"
 
 namespace ogive::service {
@@ -29,18 +29,18 @@ class Registry {
   Registry(storage::Store* store, ServiceLimits limits, ServiceMetrics* metrics = nullptr)
       : store_(store), limits_(limits), metrics_(metrics) {}
 
-  // Restores every stored study exactly (same generation, same next candidate). DATA_LOSS names the
-  // study that could not be restored.
+  // Restores every stored campaign exactly (same generation, same next candidate). DATA_LOSS names the
+  // campaign that could not be restored.
   absl::Status LoadAll();
 
-  // Validates and creates a study. ALREADY_EXISTS when the name is taken by another request;
-  // the same request id returns the existing study. RESOURCE_EXHAUSTED beyond max_studies.
-  absl::StatusOr<std::shared_ptr<StudyHost>> Create(const v1::StudyDesign& design, const std::string& request_id);
+  // Validates and creates a campaign. ALREADY_EXISTS when the name is taken by another request;
+  // the same request id returns the existing campaign. RESOURCE_EXHAUSTED beyond max_campaigns.
+  absl::StatusOr<std::shared_ptr<CampaignHost>> Create(const v1::CampaignDesign& design, const std::string& request_id);
 
-  // NOT_FOUND naming the study when there is none by that name.
-  absl::StatusOr<std::shared_ptr<StudyHost>> Find(const std::string& name) const;
+  // NOT_FOUND naming the campaign when there is none by that name.
+  absl::StatusOr<std::shared_ptr<CampaignHost>> Find(const std::string& name) const;
 
-  std::vector<std::shared_ptr<StudyHost>> All() const;
+  std::vector<std::shared_ptr<CampaignHost>> All() const;
 
   const ServiceLimits& limits() const { return limits_; }
 
@@ -50,7 +50,7 @@ class Registry {
   ServiceMetrics* const metrics_;
   absl::Mutex create_mu_ ABSL_ACQUIRED_BEFORE(mu_);  // held through a creation, its commit included
   mutable absl::Mutex mu_;
-  absl::btree_map<std::string, std::shared_ptr<StudyHost>> studies_ ABSL_GUARDED_BY(mu_);
+  absl::btree_map<std::string, std::shared_ptr<CampaignHost>> campaigns_ ABSL_GUARDED_BY(mu_);
   // Last, so it is destroyed first: its remaining continuations still reach the hosts.
   CommitWaiter waiter_;
 };

@@ -1,7 +1,7 @@
-// Tests of the Registry's locking around a study's creation: the creation's commit (an fsync) must
-// not hold up the lookups every Ask and Tell of every other study make, and two creations of one
+// Tests of the Registry's locking around a campaign's creation: the creation's commit (an fsync) must
+// not hold up the lookups every Ask and Tell of every other campaign make, and two creations of one
 // name must still be decided one after the other. The store is a real SqliteStore behind a wrapper
-// whose CreateStudy waits until the test lets it go (a slow disk, faked in the environment).
+// whose CreateCampaign waits until the test lets it go (a slow disk, faked in the environment).
 #include "server/service/registry.h"
 
 #include <unistd.h>
@@ -26,18 +26,18 @@ namespace {
 class SlowCreateStore final : public testing::ForwardingStore {
  public:
   using ForwardingStore::ForwardingStore;
-  // From now on CreateStudy waits in the store until Release().
+  // From now on CreateCampaign waits in the store until Release().
   void Hold() { hold_ = true; }
   void Release() { released_.Notify(); }
   void WaitUntilACreationIsHeld() { entered_.WaitForNotification(); }
 
-  absl::StatusOr<int64_t> CreateStudy(const std::string& name, const v1::StudyDesign& design,
+  absl::StatusOr<int64_t> CreateCampaign(const std::string& name, const v1::CampaignDesign& design,
                                       const v1::EngineState& engine, const std::string& request_id) override {
     if (hold_) {
       if (!entered_.HasBeenNotified()) entered_.Notify();
       released_.WaitForNotification();
     }
-    return ForwardingStore::CreateStudy(name, design, engine, request_id);
+    return ForwardingStore::CreateCampaign(name, design, engine, request_id);
   }
 
  private:
@@ -46,8 +46,8 @@ class SlowCreateStore final : public testing::ForwardingStore {
   absl::Notification released_;
 };
 
-v1::StudyDesign KilnDesign(const std::string& name) {
-  v1::StudyDesign d;
+v1::CampaignDesign KilnDesign(const std::string& name) {
+  v1::CampaignDesign d;
   d.set_name(name);
   for (const char* parameter : {"peak_temp", "soak_minutes"}) {
     v1::Parameter* p = d.add_parameters();
@@ -55,7 +55,7 @@ v1::StudyDesign KilnDesign(const std::string& name) {
     p->mutable_real()->set_low(0);
     p->mutable_real()->set_high(10);
   }
-  d.mutable_objective()->set_direction(v1::LOWER_IS_BETTER);
+  d.mutable_objective()->set_direction(v1::DIRECTION_LOWER_IS_BETTER);
   d.set_seed(3);
   return d;
 }
@@ -98,8 +98,8 @@ TEST_F(RegistryTest, LookupsDoNotWaitForACreationsCommit) {
     return registry_->Find("kiln-a").ok() && registry_->All().size() == 1;
   });
   const bool in_time = found.wait_for(std::chrono::seconds(5)) == std::future_status::ready;
-  EXPECT_TRUE(in_time) << "Find waited for another study's creation to commit";
-  // A study being created is not found before its commit.
+  EXPECT_TRUE(in_time) << "Find waited for another campaign's creation to commit";
+  // A campaign being created is not found before its commit.
   EXPECT_EQ(registry_->Find("kiln-b").status().code(), absl::StatusCode::kNotFound);
   store_->Release();
   creating.join();
@@ -110,7 +110,7 @@ TEST_F(RegistryTest, LookupsDoNotWaitForACreationsCommit) {
 
 TEST_F(RegistryTest, CreationsOfOneNameAreDecidedOneAfterTheOther) {
   store_->Hold();
-  absl::StatusOr<std::shared_ptr<StudyHost>> first, retried, other;
+  absl::StatusOr<std::shared_ptr<CampaignHost>> first, retried, other;
   std::thread a([&] { first = registry_->Create(KilnDesign("kiln-c"), "create-c"); });
   store_->WaitUntilACreationIsHeld();
   // A retry of the same request and a different request for the same name, both while the first
@@ -124,7 +124,7 @@ TEST_F(RegistryTest, CreationsOfOneNameAreDecidedOneAfterTheOther) {
   c.join();
   ASSERT_TRUE(first.ok()) << first.status();
   ASSERT_TRUE(retried.ok()) << retried.status();
-  EXPECT_EQ(retried->get(), first->get());  // the retry gets the study its first attempt created
+  EXPECT_EQ(retried->get(), first->get());  // the retry gets the campaign its first attempt created
   EXPECT_EQ(other.status().code(), absl::StatusCode::kAlreadyExists) << other.status();
   EXPECT_EQ(registry_->All().size(), 1u);
 }

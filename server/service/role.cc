@@ -23,12 +23,12 @@ std::optional<Role> ParseRole(absl::string_view name) {
 
 const char* MethodName(Method method) {
   switch (method) {
-    case Method::kCreateStudy:
-      return "CreateStudy";
-    case Method::kGetStudy:
-      return "GetStudy";
-    case Method::kListStudies:
-      return "ListStudies";
+    case Method::kCreateCampaign:
+      return "CreateCampaign";
+    case Method::kGetCampaign:
+      return "GetCampaign";
+    case Method::kListCampaigns:
+      return "ListCampaigns";
     case Method::kAsk:
       return "Ask";
     case Method::kTell:
@@ -49,8 +49,8 @@ const char* MethodName(Method method) {
 
 Role RequiredRole(Method method) {
   switch (method) {
-    case Method::kGetStudy:
-    case Method::kListStudies:
+    case Method::kGetCampaign:
+    case Method::kListCampaigns:
     case Method::kListTrials:
     case Method::kListGenerations:
     case Method::kWatch:
@@ -59,7 +59,7 @@ Role RequiredRole(Method method) {
     case Method::kTell:
     case Method::kRenew:
       return Role::kWorker;
-    case Method::kCreateStudy:
+    case Method::kCreateCampaign:
     case Method::kSetPhase:
       return Role::kAdmin;
   }

@@ -1,6 +1,6 @@
 // Roles and the methods of the ogive service they may call. Roles are ordered: a reader may read
-// (GetStudy, ListStudies, ListTrials, Watch); a worker may also Ask, Tell and Renew; an admin may
-// also CreateStudy and SetPhase. Plain values; thread-safe.
+// (GetCampaign, ListCampaigns, ListTrials, Watch); a worker may also Ask, Tell and Renew; an admin may
+// also CreateCampaign and SetPhase. Plain values; thread-safe.
 #ifndef OGIVE_SERVER_SERVICE_ROLE_H_
 #define OGIVE_SERVER_SERVICE_ROLE_H_
 
@@ -19,9 +19,9 @@ std::optional<Role> ParseRole(absl::string_view name);
 
 // The methods of ogive.v1.Ogive that carry a token check.
 enum class Method {
-  kCreateStudy,
-  kGetStudy,
-  kListStudies,
+  kCreateCampaign,
+  kGetCampaign,
+  kListCampaigns,
   kAsk,
   kTell,
   kRenew,

@@ -4,7 +4,7 @@
 #include <vector>
 
 #include "server/service/registry.h"
-#include "server/study/study.h"
+#include "server/campaign/campaign.h"
 
 namespace ogive::service {
 namespace {
@@ -18,7 +18,7 @@ const std::vector<double> kLatencyBounds = {0.0001, 0.00025, 0.0005, 0.001, 0.00
                                             0.05,   0.1,     0.25,   0.5,   1,      2.5,   5,     10};
 
 // The methods of ogive.v1.Ogive, so that each shows a zero series before its first call.
-constexpr const char* kMethods[] = {"CreateStudy", "GetStudy", "ListStudies", "Ask",  "Tell",
+constexpr const char* kMethods[] = {"CreateCampaign", "GetCampaign", "ListCampaigns", "Ask",  "Tell",
                                     "Renew",       "ListTrials", "SetPhase",  "Watch"};
 
 constexpr std::array<const char*, 4> kOutcomeKinds = {"score", "grade", "infeasible", "void"};
@@ -48,7 +48,7 @@ ServiceMetrics::ServiceMetrics(metrics::MetricRegistry* registry, absl::Time sta
                                         "Updates of a search distribution (one generation each).", {})
                        .WithLabels({})),
       restarts_(registry->AddCounter("ogive_restarts_total",
-                                     "Restarts of a converged study with a doubled population.", {})
+                                     "Restarts of a converged campaign with a doubled population.", {})
                     .WithLabels({})),
       commit_seconds_(registry
                           ->AddHistogram("ogive_store_commit_duration_seconds",
@@ -58,7 +58,7 @@ ServiceMetrics::ServiceMetrics(metrics::MetricRegistry* registry, absl::Time sta
                           .WithLabels({})),
       writes_per_transaction_(registry
                                   ->AddHistogram("ogive_store_writes_per_transaction",
-                                                 "Writes (one per request that changed a study) sharing one "
+                                                 "Writes (one per request that changed a campaign) sharing one "
                                                  "transaction and its fsync: group commit at work.",
                                                  {}, metrics::ExponentialBuckets(1, 2, 9))
                                   .WithLabels({})) {
@@ -93,43 +93,43 @@ void ServiceMetrics::ObserveTransaction(const storage::SqliteTransactionReport& 
   writes_per_transaction_.Observe(static_cast<double>(report.writes));
 }
 
-void ServiceMetrics::CollectStudies(const Registry* studies) {
+void ServiceMetrics::CollectCampaigns(const Registry* campaigns) {
   registry_->AddCollected(
-      "ogive_studies", "Studies this server holds, by phase: open, paused, done.", MetricType::kGauge,
-      [studies](std::vector<Sample>& out) {
+      "ogive_campaigns", "Campaigns this server holds, by phase: open, paused, done.", MetricType::kGauge,
+      [campaigns](std::vector<Sample>& out) {
         std::array<int64_t, 3> by_phase{};
-        for (const auto& host : studies->All()) ++by_phase[static_cast<size_t>(host->Gauges().phase)];
-        for (study::Phase p : {study::Phase::kOpen, study::Phase::kPaused, study::Phase::kDone}) {
-          out.push_back({"", {{"phase", study::PhaseName(p)}}, static_cast<double>(by_phase[static_cast<size_t>(p)])});
+        for (const auto& host : campaigns->All()) ++by_phase[static_cast<size_t>(host->Gauges().phase)];
+        for (campaign::Phase p : {campaign::Phase::kOpen, campaign::Phase::kPaused, campaign::Phase::kDone}) {
+          out.push_back({"", {{"phase", campaign::PhaseName(p)}}, static_cast<double>(by_phase[static_cast<size_t>(p)])});
         }
       });
-  registry_->AddCollected("ogive_open_leases", "Trials leased to a worker and not yet reported or lapsed, per study.",
-                          MetricType::kGauge, [studies](std::vector<Sample>& out) {
-                            for (const auto& host : studies->All()) {
-                              out.push_back({"", {{"study", host->name()}},
+  registry_->AddCollected("ogive_open_leases", "Trials leased to a worker and not yet reported or lapsed, per campaign.",
+                          MetricType::kGauge, [campaigns](std::vector<Sample>& out) {
+                            for (const auto& host : campaigns->All()) {
+                              out.push_back({"", {{"campaign", host->name()}},
                                              static_cast<double>(host->Gauges().counts.leased)});
                             }
                           });
   registry_->AddCollected(
-      "ogive_trials", "Trials per study by state: leased, reported, lapsed, voided.", MetricType::kGauge,
-      [studies](std::vector<Sample>& out) {
-        for (const auto& host : studies->All()) {
-          const study::TrialCounts c = host->Gauges().counts;
-          const std::pair<study::TrialState, int64_t> states[] = {{study::TrialState::kLeased, c.leased},
-                                                                  {study::TrialState::kReported, c.reported},
-                                                                  {study::TrialState::kLapsed, c.lapsed},
-                                                                  {study::TrialState::kVoided, c.voided}};
+      "ogive_trials", "Trials per campaign by state: leased, reported, lapsed, voided.", MetricType::kGauge,
+      [campaigns](std::vector<Sample>& out) {
+        for (const auto& host : campaigns->All()) {
+          const campaign::TrialCounts c = host->Gauges().counts;
+          const std::pair<campaign::TrialState, int64_t> states[] = {{campaign::TrialState::kLeased, c.leased},
+                                                                  {campaign::TrialState::kReported, c.reported},
+                                                                  {campaign::TrialState::kLapsed, c.lapsed},
+                                                                  {campaign::TrialState::kVoided, c.voided}};
           for (const auto& [state, n] : states) {
-            out.push_back({"", {{"study", host->name()}, {"state", study::TrialStateName(state)}},
+            out.push_back({"", {{"campaign", host->name()}, {"state", campaign::TrialStateName(state)}},
                            static_cast<double>(n)});
           }
         }
       });
-  registry_->AddCollected("ogive_study_generation", "Updates of the study's search distribution so far, per study.",
-                          MetricType::kGauge, [studies](std::vector<Sample>& out) {
-                            for (const auto& host : studies->All()) {
+  registry_->AddCollected("ogive_campaign_generation", "Updates of the campaign's search distribution so far, per campaign.",
+                          MetricType::kGauge, [campaigns](std::vector<Sample>& out) {
+                            for (const auto& host : campaigns->All()) {
                               out.push_back(
-                                  {"", {{"study", host->name()}}, static_cast<double>(host->Gauges().generation)});
+                                  {"", {{"campaign", host->name()}}, static_cast<double>(host->Gauges().generation)});
                             }
                           });
 }
@@ -142,7 +142,7 @@ void ServiceMetrics::CollectStore(storage::SqliteStore* store) {
     });
   };
   counter("ogive_store_transactions_total", "Write transactions committed.", &Stats::transactions);
-  counter("ogive_store_writes_total", "Writes stored (one per request that changed a study).", &Stats::committed_writes);
+  counter("ogive_store_writes_total", "Writes stored (one per request that changed a campaign).", &Stats::committed_writes);
   counter("ogive_store_failed_writes_total", "Writes refused or lost with their transaction.", &Stats::failed_writes);
   counter("ogive_store_failed_transactions_total", "Write transactions whose BEGIN or COMMIT failed.",
           &Stats::failed_transactions);

@@ -1,8 +1,8 @@
-// ServiceMetrics: what ogived counts about its requests, its studies and its store, as Prometheus
+// ServiceMetrics: what ogived counts about its requests, its campaigns and its store, as Prometheus
 // metrics in a MetricRegistry (docs/operations.md, "Metrics", lists them). Counters and histograms
 // are updated as things happen: by the gRPC adapter once a call has its status (one place per
-// method), by the study hosts once a change committed, and by the store after each transaction.
-// Gauges of studies and of the store are collected at scrape time from the objects that hold them.
+// method), by the campaign hosts once a change committed, and by the store after each transaction.
+// Gauges of campaigns and of the store are collected at scrape time from the objects that hold them.
 //
 // Thread-safe. The metric registry outlives this object; so do the Registry and the store given to
 // the Collect* calls, until the registry is no longer scraped.
@@ -29,14 +29,14 @@ class ServiceMetrics {
   // One finished call of `method` (the gRPC method name, e.g. "Ask") with `code`, `seconds` after
   // it arrived.
   void ObserveRequest(const std::string& method, absl::StatusCode code, double seconds);
-  // A study change that committed.
+  // A campaign change that committed.
   void ObserveCommitted(const ChangeTally& tally);
   // One write transaction of the store (SqliteStoreOptions::on_transaction).
   void ObserveTransaction(const storage::SqliteTransactionReport& report);
 
-  // Registers the gauges collected from `studies` at scrape time: studies by phase, trials by state
-  // and open leases per study, and each study's generation.
-  void CollectStudies(const Registry* studies);
+  // Registers the gauges collected from `campaigns` at scrape time: campaigns by phase, trials by state
+  // and open leases per campaign, and each campaign's generation.
+  void CollectCampaigns(const Registry* campaigns);
   // Registers the store's counters, queue and size, collected at scrape time.
   void CollectStore(storage::SqliteStore* store);
 

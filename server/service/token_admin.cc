@@ -16,8 +16,8 @@ bool LabelCharacterOk(char c) {
          c == '.' || c == '@';
 }
 
-// The naming rule of study names (design.name; see ValidateDesignShape in registry.h).
-bool StudyNameOk(const std::string& name) {
+// The naming rule of campaign names (design.name; see ValidateDesignShape in registry.h).
+bool CampaignNameOk(const std::string& name) {
   if (name.empty() || name.size() > 128) return false;
   return std::all_of(name.begin(), name.end(), [](char c) {
     return (c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '_' || c == '-' ||
@@ -31,7 +31,7 @@ v1::TokenInfo InfoOf(const storage::StoredToken& t) {
   v1::TokenInfo info;
   info.set_label(t.label);
   info.set_role(t.role);
-  for (const std::string& s : t.studies) info.add_studies(s);
+  for (const std::string& s : t.campaigns) info.add_campaigns(s);
   info.set_created_at_unix_ms(UnixMillisOfNanos(t.created_at_ns));
   info.set_revoked(t.revoked_at_ns.has_value());
   if (t.revoked_at_ns.has_value()) info.set_revoked_at_unix_ms(UnixMillisOfNanos(*t.revoked_at_ns));
@@ -58,18 +58,18 @@ absl::StatusOr<v1::CreateTokenResponse> TokenAdmin::Create(const v1::CreateToken
     return absl::InvalidArgumentError(
         absl::StrCat("role: must be reader, worker or admin, got '", request.role(), "'"));
   }
-  if (request.studies_size() > kMaxTokenStudies) {
+  if (request.campaigns_size() > kMaxTokenCampaigns) {
     return absl::InvalidArgumentError(
-        absl::StrCat("studies: at most ", kMaxTokenStudies, " per token, got ", request.studies_size()));
+        absl::StrCat("campaigns: at most ", kMaxTokenCampaigns, " per token, got ", request.campaigns_size()));
   }
   storage::StoredToken token;
-  for (const std::string& study : request.studies()) {
-    if (!StudyNameOk(study)) {
+  for (const std::string& campaign : request.campaigns()) {
+    if (!CampaignNameOk(campaign)) {
       return absl::InvalidArgumentError(absl::StrCat(
-          "studies: '", study, "' is not a study name (1..128 letters, digits, '_', '-' and '.')"));
+          "campaigns: '", campaign, "' is not a campaign name (1..128 letters, digits, '_', '-' and '.')"));
     }
-    if (std::find(token.studies.begin(), token.studies.end(), study) == token.studies.end()) {
-      token.studies.push_back(study);
+    if (std::find(token.campaigns.begin(), token.campaigns.end(), campaign) == token.campaigns.end()) {
+      token.campaigns.push_back(campaign);
     }
   }
   absl::StatusOr<std::string> secret = NewTokenSecret();

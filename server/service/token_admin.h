@@ -17,7 +17,7 @@
 namespace ogive::service {
 
 inline constexpr int kMaxTokenLabelBytes = 64;
-inline constexpr int kMaxTokenStudies = 100;
+inline constexpr int kMaxTokenCampaigns = 100;
 
 class TokenAdmin {
  public:
@@ -26,7 +26,7 @@ class TokenAdmin {
   // server's Authorizer re-read the table at once.
   TokenAdmin(storage::Store* store, Clock clock, std::function<void()> on_change = {});
 
-  // INVALID_ARGUMENT naming label, role or studies; ALREADY_EXISTS when the label is taken (revoked
+  // INVALID_ARGUMENT naming label, role or campaigns; ALREADY_EXISTS when the label is taken (revoked
   // tokens included); INTERNAL when no random secret could be made; the store's errors.
   absl::StatusOr<v1::CreateTokenResponse> Create(const v1::CreateTokenRequest& request);
   absl::StatusOr<v1::ListTokensResponse> List();

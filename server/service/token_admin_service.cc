@@ -12,7 +12,7 @@ grpc::Status TokenAdminService::CreateToken(grpc::ServerContext*, const v1::Crea
                                             v1::CreateTokenResponse* response) {
   absl::StatusOr<v1::CreateTokenResponse> created = admin_->Create(*request);
   LogLine({{"event", "token_create"}, {"label", request->label()}, {"role", request->role()},
-           {"studies", absl::StrJoin(request->studies(), ",")},
+           {"campaigns", absl::StrJoin(request->campaigns(), ",")},
            {"code", absl::StatusCodeToString(created.status().code())},
            {"detail", std::string(created.status().message())}});
   if (!created.ok()) return ToGrpc(created.status());

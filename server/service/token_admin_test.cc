@@ -62,11 +62,11 @@ class TokenAdminTest : public ::testing::Test {
     for (const char* suffix : {"", "-wal", "-shm", ".lock"}) std::remove(absl::StrCat(path_, suffix).c_str());
   }
   absl::StatusOr<v1::CreateTokenResponse> Create(const std::string& label, const std::string& role,
-                                                 std::vector<std::string> studies = {}) {
+                                                 std::vector<std::string> campaigns = {}) {
     v1::CreateTokenRequest request;
     request.set_label(label);
     request.set_role(role);
-    for (const std::string& s : studies) request.add_studies(s);
+    for (const std::string& s : campaigns) request.add_campaigns(s);
     return admin_->Create(request);
   }
   absl::StatusOr<v1::RevokeTokenResponse> Revoke(const std::string& label) {
@@ -89,7 +89,7 @@ TEST_F(TokenAdminTest, CreateReturnsTheSecretOnceAndStoresItsDigest) {
   EXPECT_THAT(created->secret(), StartsWith("ogt_"));
   EXPECT_EQ(created->token().label(), "farm-a");
   EXPECT_EQ(created->token().role(), "worker");
-  EXPECT_THAT(created->token().studies(), ElementsAre("kiln", "glaze"));  // the repeat is dropped
+  EXPECT_THAT(created->token().campaigns(), ElementsAre("kiln", "glaze"));  // the repeat is dropped
   EXPECT_EQ(created->token().created_at_unix_ms(), absl::ToUnixMillis(kStart));
   EXPECT_FALSE(created->token().revoked());
   EXPECT_EQ(changes_, 1);
@@ -150,8 +150,8 @@ TEST_F(TokenAdminTest, FieldsAreCheckedAndNamed) {
                        HasSubstr("role: must be reader, worker or admin, got 'operator'")));
   EXPECT_THAT(Create("bob", "Admin"), StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("role")));
   EXPECT_THAT(Create("bob", "worker", {"kiln,glaze"}),
-              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("studies: 'kiln,glaze' is not a study name")));
-  EXPECT_THAT(Create("bob", "worker", {""}), StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("studies")));
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("campaigns: 'kiln,glaze' is not a campaign name")));
+  EXPECT_THAT(Create("bob", "worker", {""}), StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("campaigns")));
   std::vector<std::string> many(101, "s");
   for (int i = 0; i < 101; ++i) many[i] = absl::StrCat("s", i);
   EXPECT_THAT(Create("bob", "worker", many), StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("at most 100")));

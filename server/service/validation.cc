@@ -22,7 +22,7 @@ constexpr int kMaxPopulation = 100000;
 
 // Environment variables `ogive work` sets or reads itself, without the OGIVE_ prefix
 // (client/cli/candidate_env.cc, client/cli/cli.cc). A parameter must not shadow them.
-constexpr const char* kReservedEnvNames[] = {"STUDY",  "TRIAL",  "CANDIDATE_FILE", "SERVER",  "TOKEN",
+constexpr const char* kReservedEnvNames[] = {"CAMPAIGN",  "TRIAL",  "CANDIDATE_FILE", "SERVER",  "TOKEN",
                                              "TLS",    "TLS_CA", "TLS_CERT",       "TLS_KEY", "TLS_SERVER_NAME"};
 
 absl::Status Invalid(absl::string_view path, absl::string_view rule) {
@@ -187,11 +187,11 @@ absl::Status CheckParameterKind(const std::string& path, const v1::Parameter& p,
 absl::Status CheckObjective(const v1::Objective& objective, const ServiceLimits& limits) {
   switch (objective.order_case()) {
     case v1::Objective::kDirection:
-      if (objective.direction() == v1::LOWER_IS_BETTER || objective.direction() == v1::HIGHER_IS_BETTER) {
+      if (objective.direction() == v1::DIRECTION_LOWER_IS_BETTER || objective.direction() == v1::DIRECTION_HIGHER_IS_BETTER) {
         return absl::OkStatus();
       }
       return Invalid("design.objective.direction",
-                     StrCat("must be LOWER_IS_BETTER or HIGHER_IS_BETTER, got ", static_cast<int>(objective.direction())));
+                     StrCat("must be DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER, got ", static_cast<int>(objective.direction())));
     case v1::Objective::kGradeScale: {
       const auto& labels = objective.grade_scale().labels();
       if (absl::Status s = CheckCount("design.objective.grade_scale.labels", labels.size(), 2, limits.max_options,
@@ -213,7 +213,7 @@ absl::Status CheckObjective(const v1::Objective& objective, const ServiceLimits&
     case v1::Objective::ORDER_NOT_SET:
       break;
   }
-  return Invalid("design.objective", "set either direction (LOWER_IS_BETTER or HIGHER_IS_BETTER) or grade_scale");
+  return Invalid("design.objective", "set either direction (DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER) or grade_scale");
 }
 
 // One start value against its parameter's kind and bounds.
@@ -256,12 +256,12 @@ absl::Status CheckStartValue(const std::string& path, const v1::Value& value, co
 
 }  // namespace
 
-absl::Status ValidateStudyName(absl::string_view field, const std::string& name, const ServiceLimits& limits) {
+absl::Status ValidateCampaignName(absl::string_view field, const std::string& name, const ServiceLimits& limits) {
   return CheckIdentifier(field, name, limits.max_name_bytes, true);
 }
 
-absl::Status ValidateDesignShape(const v1::StudyDesign& design, const ServiceLimits& limits) {
-  if (absl::Status s = ValidateStudyName("design.name", design.name(), limits); !s.ok()) return s;
+absl::Status ValidateDesignShape(const v1::CampaignDesign& design, const ServiceLimits& limits) {
+  if (absl::Status s = ValidateCampaignName("design.name", design.name(), limits); !s.ok()) return s;
   if (absl::Status s = CheckCount("design.parameters", design.parameters_size(), 1, limits.max_parameters,
                                   "parameters");
       !s.ok()) {
@@ -298,7 +298,7 @@ absl::Status ValidateDesignShape(const v1::StudyDesign& design, const ServiceLim
     if (absl::Status s = CheckParameterKind(path, p, limits); !s.ok()) return s;
   }
   if (!design.has_objective()) {
-    return Invalid("design.objective", "required: direction (LOWER_IS_BETTER or HIGHER_IS_BETTER) or grade_scale");
+    return Invalid("design.objective", "required: direction (DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER) or grade_scale");
   }
   if (absl::Status s = CheckObjective(design.objective(), limits); !s.ok()) return s;
   const bool graded = design.objective().has_grade_scale();
@@ -321,11 +321,11 @@ absl::Status ValidateDesignShape(const v1::StudyDesign& design, const ServiceLim
     return Invalid("design.target", "set at most one of target and target_grade");
   }
   if (design.has_target()) {
-    if (graded) return Invalid("design.target", "a graded study takes target_grade, not target");
+    if (graded) return Invalid("design.target", "a graded campaign takes target_grade, not target");
     if (absl::Status s = CheckFinite("design.target", design.target()); !s.ok()) return s;
   }
   if (design.has_target_grade()) {
-    if (!graded) return Invalid("design.target_grade", "a scored study takes target, not target_grade");
+    if (!graded) return Invalid("design.target_grade", "a scored campaign takes target, not target_grade");
     if (absl::Status s = CheckLabel("design.target_grade", design.target_grade(), limits.max_name_bytes); !s.ok()) {
       return s;
     }
@@ -363,17 +363,17 @@ absl::Status ValidateDesignShape(const v1::StudyDesign& design, const ServiceLim
   return absl::OkStatus();
 }
 
-absl::Status ValidateCreateStudy(const v1::CreateStudyRequest& request, const ServiceLimits& limits) {
+absl::Status ValidateCreateCampaign(const v1::CreateCampaignRequest& request, const ServiceLimits& limits) {
   if (absl::Status s = CheckRequestId("request_id", request.request_id(), limits); !s.ok()) return s;
   return ValidateDesignShape(request.design(), limits);
 }
 
-absl::Status ValidateGetStudy(const v1::GetStudyRequest& request, const ServiceLimits& limits) {
-  return ValidateStudyName("study", request.study(), limits);
+absl::Status ValidateGetCampaign(const v1::GetCampaignRequest& request, const ServiceLimits& limits) {
+  return ValidateCampaignName("campaign", request.campaign(), limits);
 }
 
 absl::Status ValidateAsk(const v1::AskRequest& request, const ServiceLimits& limits) {
-  if (absl::Status s = ValidateStudyName("study", request.study(), limits); !s.ok()) return s;
+  if (absl::Status s = ValidateCampaignName("campaign", request.campaign(), limits); !s.ok()) return s;
   if (absl::Status s = CheckCount("count", request.count(), 1, limits.max_ask_count, "trials"); !s.ok()) return s;
   if (absl::Status s = CheckWorker("worker", request.worker(), limits); !s.ok()) return s;
   if (absl::Status s = CheckLease("lease_seconds", request.lease_seconds(), limits); !s.ok()) return s;
@@ -381,7 +381,7 @@ absl::Status ValidateAsk(const v1::AskRequest& request, const ServiceLimits& lim
 }
 
 absl::Status ValidateTell(const v1::TellRequest& request, const ServiceLimits& limits) {
-  if (absl::Status s = ValidateStudyName("study", request.study(), limits); !s.ok()) return s;
+  if (absl::Status s = ValidateCampaignName("campaign", request.campaign(), limits); !s.ok()) return s;
   if (absl::Status s = CheckCount("reports", request.reports_size(), 1, limits.max_reports_per_tell, "reports");
       !s.ok()) {
     return s;
@@ -416,7 +416,7 @@ absl::Status ValidateTell(const v1::TellRequest& request, const ServiceLimits& l
 }
 
 absl::Status ValidateRenew(const v1::RenewRequest& request, const ServiceLimits& limits) {
-  if (absl::Status s = ValidateStudyName("study", request.study(), limits); !s.ok()) return s;
+  if (absl::Status s = ValidateCampaignName("campaign", request.campaign(), limits); !s.ok()) return s;
   if (absl::Status s = CheckCount("trials", request.trials_size(), 1, limits.max_ask_count, "trial numbers");
       !s.ok()) {
     return s;
@@ -426,7 +426,7 @@ absl::Status ValidateRenew(const v1::RenewRequest& request, const ServiceLimits&
 }
 
 absl::Status ValidateListTrials(const v1::ListTrialsRequest& request, const ServiceLimits& limits) {
-  if (absl::Status s = ValidateStudyName("study", request.study(), limits); !s.ok()) return s;
+  if (absl::Status s = ValidateCampaignName("campaign", request.campaign(), limits); !s.ok()) return s;
   switch (request.state()) {
     case v1::TRIAL_STATE_UNSPECIFIED:
     case v1::TRIAL_STATE_LEASED:
@@ -450,7 +450,7 @@ absl::Status ValidateListTrials(const v1::ListTrialsRequest& request, const Serv
 }
 
 absl::Status ValidateListGenerations(const v1::ListGenerationsRequest& request, const ServiceLimits& limits) {
-  if (absl::Status s = ValidateStudyName("study", request.study(), limits); !s.ok()) return s;
+  if (absl::Status s = ValidateCampaignName("campaign", request.campaign(), limits); !s.ok()) return s;
   if (request.page_size() < 0 || request.page_size() > limits.max_page_size) {
     return Invalid("page_size",
                    StrCat("must be 0 (100) or in 1..", limits.max_page_size, ", got ", request.page_size()));
@@ -462,7 +462,7 @@ absl::Status ValidateListGenerations(const v1::ListGenerationsRequest& request, 
 }
 
 absl::Status ValidateSetPhase(const v1::SetPhaseRequest& request, const ServiceLimits& limits) {
-  if (absl::Status s = ValidateStudyName("study", request.study(), limits); !s.ok()) return s;
+  if (absl::Status s = ValidateCampaignName("campaign", request.campaign(), limits); !s.ok()) return s;
   switch (request.command()) {
     case v1::PHASE_COMMAND_PAUSE:
     case v1::PHASE_COMMAND_RESUME:
@@ -476,7 +476,7 @@ absl::Status ValidateSetPhase(const v1::SetPhaseRequest& request, const ServiceL
 }
 
 absl::Status ValidateWatch(const v1::WatchRequest& request, const ServiceLimits& limits) {
-  return ValidateStudyName("study", request.study(), limits);
+  return ValidateCampaignName("campaign", request.campaign(), limits);
 }
 
 }  // namespace ogive::service

@@ -5,8 +5,8 @@
 // limit (ServiceLimits), INVALID_ARGUMENT for everything else (missing or malformed values, unknown
 // enum values, NaN and infinities, strings too long or with characters not allowed).
 //
-// What depends on stored state (does the study exist, is the grade on this study's scale, is the trial
-// leased to this worker) is checked later, by the codec and the study engine.
+// What depends on stored state (does the campaign exist, is the grade on this campaign's scale, is the trial
+// leased to this worker) is checked later, by the codec and the campaign engine.
 //
 // Free functions over protos; no state.
 #ifndef OGIVE_SERVER_SERVICE_VALIDATION_H_
@@ -17,7 +17,7 @@
 #include "absl/status/status.h"
 #include "absl/strings/string_view.h"
 #include "ogive/v1/service.pb.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 #include "server/service/limits.h"
 
 namespace ogive::service {
@@ -26,19 +26,19 @@ namespace ogive::service {
 // kinds and bounds, options and grade labels, the objective, every number of the design, the start
 // point against the parameters. Also refuses parameter names that would give the same OGIVE_<NAME>
 // environment variable to `ogive work`'s programs (they differ only in case or '-' / '_'), or one the
-// CLI uses itself (OGIVE_STUDY, OGIVE_TRIAL, ...).
-absl::Status ValidateDesignShape(const v1::StudyDesign& design, const ServiceLimits& limits);
+// CLI uses itself (OGIVE_CAMPAIGN, OGIVE_TRIAL, ...).
+absl::Status ValidateDesignShape(const v1::CampaignDesign& design, const ServiceLimits& limits);
 
-// A study name as requests carry it (`field` is its path, e.g. "study"): 1..max_name_bytes of letters,
+// A campaign name as requests carry it (`field` is its path, e.g. "campaign"): 1..max_name_bytes of letters,
 // digits, '_', '-' and '.'.
-absl::Status ValidateStudyName(absl::string_view field, const std::string& name, const ServiceLimits& limits);
+absl::Status ValidateCampaignName(absl::string_view field, const std::string& name, const ServiceLimits& limits);
 
-absl::Status ValidateCreateStudy(const v1::CreateStudyRequest& request, const ServiceLimits& limits);
-absl::Status ValidateGetStudy(const v1::GetStudyRequest& request, const ServiceLimits& limits);
+absl::Status ValidateCreateCampaign(const v1::CreateCampaignRequest& request, const ServiceLimits& limits);
+absl::Status ValidateGetCampaign(const v1::GetCampaignRequest& request, const ServiceLimits& limits);
 absl::Status ValidateAsk(const v1::AskRequest& request, const ServiceLimits& limits);
 // Counts, that each report has an outcome, finite scores, grade labels, note lengths. Whether a grade is
-// on the study's scale is the codec's check; a trial number that names no trial is a per-report
-// NOT_FOUND, left to the study.
+// on the campaign's scale is the codec's check; a trial number that names no trial is a per-report
+// NOT_FOUND, left to the campaign.
 absl::Status ValidateTell(const v1::TellRequest& request, const ServiceLimits& limits);
 absl::Status ValidateRenew(const v1::RenewRequest& request, const ServiceLimits& limits);
 absl::Status ValidateListTrials(const v1::ListTrialsRequest& request, const ServiceLimits& limits);

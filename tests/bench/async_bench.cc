@@ -1,4 +1,4 @@
-// ogive-bench-async: a discrete-event simulation of W workers driving one Study, against a synchronous
+// ogive-bench-async: a discrete-event simulation of W workers driving one Campaign, against a synchronous
 // barrier baseline on the same problems and random streams. Prints one JSON object.
 //
 // Workers: each evaluation takes a random duration (lognormal with σ = 1 and median 1 time unit, or a
@@ -8,7 +8,7 @@
 // little later (duplicates). Workers never renew, so evaluations longer than the lease arrive late.
 //
 // Modes:
-//   engine                  the Study with expected_workers = W (λ = max(default, W)) and IPOP restarts,
+//   engine                  the Campaign with expected_workers = W (λ = max(default, W)) and IPOP restarts,
 //                           one ask per free
 //                           worker, reports as they come;
 //   engine-underestimated   the design says 1 worker while W = 4 λ_default work;
@@ -32,7 +32,7 @@
 #include "server/search/cma_parameters.h"
 #include "server/search/random_stream.h"
 #include "server/search/search_distribution.h"
-#include "server/study/study.h"
+#include "server/campaign/campaign.h"
 #include "tests/support/problems.h"
 
 namespace {
@@ -52,7 +52,7 @@ constexpr double kDuplicate = 0.05;
 
 enum class Durations { kLognormal, kPareto };
 
-// The workers' random behaviour, from its own stream (separate from the study's).
+// The workers' random behaviour, from its own stream (separate from the campaign's).
 struct WorkerModel {
   Durations durations;
   RandomStream random;
@@ -85,12 +85,12 @@ struct Event {
 Result RunEngine(const Problem& problem, int workers, int expected_workers, Durations durations, uint64_t seed) {
   ogive::search::DistributionOptions options = problem.options;
   options.expected_workers = expected_workers;
-  ogive::study::StudyOptions study_options;
-  study_options.seed = seed;
-  study_options.default_lease = absl::Seconds(kLease);
-  study_options.restarts = true;  // part of the engine: a run caught in a local minimum restarts (IPOP)
-  ogive::study::Study study =
-      *ogive::study::Study::Create(problem.space, ogive::search::OutcomeOrder{}, options, study_options);
+  ogive::campaign::CampaignOptions campaign_options;
+  campaign_options.seed = seed;
+  campaign_options.default_lease = absl::Seconds(kLease);
+  campaign_options.restarts = true;  // part of the engine: a run caught in a local minimum restarts (IPOP)
+  ogive::campaign::Campaign campaign =
+      *ogive::campaign::Campaign::Create(problem.space, ogive::search::OutcomeOrder{}, options, campaign_options);
   WorkerModel model{durations, RandomStream(seed * 7919 + 1)};
   std::priority_queue<Event, std::vector<Event>, std::greater<Event>> events;
   long sequence = 0;
@@ -100,9 +100,9 @@ Result RunEngine(const Problem& problem, int workers, int expected_workers, Dura
     const Event e = events.top();
     events.pop();
     if (e.kind == Event::kFree) {
-      absl::StatusOr<std::vector<ogive::study::Trial>> asked = study.Ask(1, "w", std::nullopt, At(e.time));
+      absl::StatusOr<std::vector<ogive::campaign::Trial>> asked = campaign.Ask(1, "w", std::nullopt, At(e.time));
       if (!asked.ok()) break;  // done (converged) before reaching the target
-      const ogive::study::Trial& t = asked->front();
+      const ogive::campaign::Trial& t = asked->front();
       const double duration = model.Duration();
       if (model.Happens(kVanish)) {
         // Vanishes part-way; a fresh worker asks at once. The lease lapses on its own.
@@ -111,14 +111,14 @@ Result RunEngine(const Problem& problem, int workers, int expected_workers, Dura
       }
       Outcome outcome = Outcome::Void();
       if (!model.Happens(kVoid)) {
-        const double gap = problem.gap(study.space().Decode(t.x));
+        const double gap = problem.gap(campaign.space().Decode(t.x));
         outcome = Outcome::Score(gap);
       }
       events.push({e.time + duration, sequence++, Event::kReport, t.number, outcome});
       continue;
     }
-    const ogive::study::Report report{e.trial, e.outcome, ""};
-    (void)study.Tell({&report, 1}, At(e.time));
+    const ogive::campaign::Report report{e.trial, e.outcome, ""};
+    (void)campaign.Tell({&report, 1}, At(e.time));
     if (e.kind == Event::kDuplicate) continue;
     ++result.evaluations;
     if (e.outcome.informative() && e.outcome.score <= kTarget) {

@@ -148,7 +148,7 @@ struct Schedule {
 
 // Each client: Ask(1), Tell(score) until the end; latency per pair begun after the warm-up. CPU times
 // of `server` (0 when not ours) and of this process are taken over the measured part.
-Measurement RunAskTell(const std::string& target, const std::string& study, int clients, double warmup,
+Measurement RunAskTell(const std::string& target, const std::string& campaign, int clients, double warmup,
                        double seconds, pid_t server) {
   std::vector<std::vector<double>> latencies(clients), ask_latencies(clients), tell_latencies(clients);
   std::vector<long> errors(clients, 0);
@@ -164,7 +164,7 @@ Measurement RunAskTell(const std::string& target, const std::string& study, int 
       while (Clock::now() < schedule.end) {
         const auto start = Clock::now();
         ogive::v1::AskRequest ask;
-        ask.set_study(study);
+        ask.set_campaign(campaign);
         ask.set_count(1);
         ask.set_worker(worker);
         ask.set_lease_seconds(600);
@@ -178,11 +178,11 @@ Measurement RunAskTell(const std::string& target, const std::string& study, int 
           continue;
         }
         ogive::v1::TellRequest tell;
-        tell.set_study(study);
+        tell.set_campaign(campaign);
         tell.set_worker(worker);
         ogive::v1::Report& report = *tell.add_reports();
         report.set_trial(asked.trials(0).number());
-        // Random scores: the study keeps searching (it never converges and ends) however long the run.
+        // Random scores: the campaign keeps searching (it never converges and ends) however long the run.
         report.mutable_outcome()->set_score(static_cast<double>(rng() >> 11) * 0x1.0p-53);
         ogive::v1::TellResponse told;
         const grpc::Status tell_status = CallAndWait(
@@ -310,7 +310,7 @@ int main(int argc, char** argv) {
     _exit(127);
   }
   auto client = ogive::client::Client::Connect(target);
-  ogive::v1::StudyDesign design;
+  ogive::v1::CampaignDesign design;
   design.set_name("load");
   for (int j = 0; j < 4; ++j) {
     ogive::v1::Parameter* p = design.add_parameters();
@@ -318,16 +318,16 @@ int main(int argc, char** argv) {
     p->mutable_real()->set_low(-5);
     p->mutable_real()->set_high(5);
   }
-  design.mutable_objective()->set_direction(ogive::v1::LOWER_IS_BETTER);
+  design.mutable_objective()->set_direction(ogive::v1::DIRECTION_LOWER_IS_BETTER);
   design.set_seed(1);
   design.set_restarts(true);
   bool created = false;
   for (int attempt = 0; attempt < 100 && !created; ++attempt) {
-    created = client->CreateStudy(design).ok();
+    created = client->CreateCampaign(design).ok();
     if (!created) std::this_thread::sleep_for(std::chrono::milliseconds(100));
   }
   if (!created) {
-    std::fprintf(stderr, "ogive-bench-load: could not create the study on %s (see %s/ogived.log)\n",
+    std::fprintf(stderr, "ogive-bench-load: could not create the campaign on %s (see %s/ogived.log)\n",
                  target.c_str(), dir.c_str());
     if (server > 0) kill(server, SIGTERM);
     return 1;

@@ -12,7 +12,7 @@ are grpc probes on the container's grpc port; the metrics port is the one --metr
 the Services select the pod and reach both ports; every ogived flag is one `ogived --help` lists,
 and ogived started with the manifest's arguments (moved to loopback and a temporary directory)
 serves /metrics and stops on SIGTERM within the grace period; the worker Job is Indexed, its
-command is `ogive ... work STUDY ... -- PROGRAM` with options the CLI knows, its token comes from a
+command is `ogive ... work CAMPAIGN ... -- PROGRAM` with options the CLI knows, its token comes from a
 Secret mounted where --token-file points, every $(VAR) is defined, and OGIVE_SERVER names the
 Service and its gRPC port.
 """

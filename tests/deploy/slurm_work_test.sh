@@ -51,13 +51,13 @@ grep -qE '^#SBATCH --signal=B:TERM@[0-9]+$' "$SCRIPT" || fail "no #SBATCH --sign
 grep -qE '^#SBATCH --time=' "$SCRIPT" || fail "no #SBATCH --time"
 bash -n "$SCRIPT" || fail "bash -n"
 
-step "start ogived and create a study"
+step "start ogived and create a campaign"
 PORT=$("$PY" -c 'import socket; s = socket.socket(); s.bind(("127.0.0.1", 0)); print(s.getsockname()[1])')
 export OGIVE_SERVER="127.0.0.1:$PORT"
 "$OGIVED" --db "$TMP/ogive.db" --listen "$OGIVE_SERVER" --no-auth >"$TMP/ogived.log" 2>&1 &
 OGIVED_PID=$!
 for _ in $(seq 100); do
-  timeout 5 "$OGIVE" --timeout 1 study list >/dev/null 2>&1 && break
+  timeout 5 "$OGIVE" --timeout 1 campaign list >/dev/null 2>&1 && break
   kill -0 "$OGIVED_PID" 2>/dev/null || fail "ogived exited at start"
   sleep 0.1
 done
@@ -65,11 +65,11 @@ cat >"$TMP/design.txtpb" <<'EOF2'
 name: "array"
 parameters { name: "x" real { low: -2 high: 2 } }
 parameters { name: "y" real { low: -2 high: 2 } }
-objective { direction: LOWER_IS_BETTER }
+objective { direction: DIRECTION_LOWER_IS_BETTER }
 population_size: 4
 seed: 8
 EOF2
-timeout 30 "$OGIVE" study create "$TMP/design.txtpb" >/dev/null || fail "study create"
+timeout 30 "$OGIVE" campaign create "$TMP/design.txtpb" >/dev/null || fail "campaign create"
 
 # The programs a task runs for its trials: one scores at once, one runs until it is stopped.
 cat >"$TMP/quick-program" <<'EOF2'
@@ -85,7 +85,7 @@ chmod +x "$TMP/quick-program" "$TMP/slow-program"
 echo "not-a-real-token" >"$TMP/token"
 chmod 600 "$TMP/token"
 
-trials_json() { timeout 30 "$OGIVE" study trials array --json; }
+trials_json() { timeout 30 "$OGIVE" campaign trials array --json; }
 # "worker state note" for every trial of a worker.
 trials_of() {
   trials_json | "$PY" -c '

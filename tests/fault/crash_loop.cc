@@ -13,10 +13,10 @@
 // the same request id.
 //
 // Now and then a restarted server is killed again a few milliseconds into its start (while SQLite
-// recovers the log and the study loads). After every kill, with the server down, the file is read
+// recovers the log and the campaign loads). After every kill, with the server down, the file is read
 // directly (tests/support/db_inspector.h) and must pass PRAGMA integrity_check and the checks of
 // durability_checks.h against the journal. After every restart, the server's answers must hold
-// everything the file held and every acknowledged outcome. After the last cycle the server runs on without kills until the study's
+// everything the file held and every acknowledged outcome. After the last cycle the server runs on without kills until the campaign's
 // best score reaches the target; then, with the workers stopped and every lease run out, the
 // server's view must equal the file trial by trial, a SIGTERM must stop it with status 0 at once,
 // and the checks pass once more.
@@ -57,9 +57,9 @@
 namespace ogive::testing {
 namespace {
 
-constexpr char kStudy[] = "crash-sphere";
-// The target the study must reach once the kills are over: score = f(x) - f_opt of the sphere, so
-// 0 at the optimum. The design has no target (the study would be done and idle for the remaining
+constexpr char kCampaign[] = "crash-sphere";
+// The target the campaign must reach once the kills are over: score = f(x) - f_opt of the sphere, so
+// 0 at the optimum. The design has no target (the campaign would be done and idle for the remaining
 // cycles); it restarts with a doubled population when it converges, so a long run keeps working.
 constexpr double kTarget = 1e-10;
 
@@ -154,16 +154,16 @@ struct Counters {
       late{0}, unavailable{0}, done_refusals{0};
 };
 
-v1::StudyDesign Design(const Flags& flags) {
-  v1::StudyDesign design;
-  design.set_name(kStudy);
+v1::CampaignDesign Design(const Flags& flags) {
+  v1::CampaignDesign design;
+  design.set_name(kCampaign);
   for (int i = 0; i < flags.dimension; ++i) {
     v1::Parameter* p = design.add_parameters();
     p->set_name(absl::StrCat("x", i));
     p->mutable_real()->set_low(-5);
     p->mutable_real()->set_high(5);
   }
-  design.mutable_objective()->set_direction(v1::LOWER_IS_BETTER);
+  design.mutable_objective()->set_direction(v1::DIRECTION_LOWER_IS_BETTER);
   design.set_expected_workers(flags.workers);
   design.set_seed(flags.seed);
   design.set_restarts(true);
@@ -190,7 +190,7 @@ class Worker {
     std::uniform_real_distribution<double> unit(0.0, 1.0);
     while (!stop_->load()) {
       const int count = unit(rng_) < 0.2 ? 2 : 1;
-      absl::StatusOr<v1::AskResponse> asked = client_->Ask(kStudy, count, name_);
+      absl::StatusOr<v1::AskResponse> asked = client_->Ask(kCampaign, count, name_);
       if (!asked.ok()) {
         if (asked.status().code() == absl::StatusCode::kUnavailable) {
           ++counters_->unavailable;
@@ -235,7 +235,7 @@ class Worker {
   // Tells `reports` until acknowledged (or the loop stops); journals what was acknowledged.
   void TellUntilAcknowledged(const std::vector<v1::Report>& reports) {
     while (!stop_->load()) {
-      absl::StatusOr<v1::TellResponse> told = client_->Tell(kStudy, reports, name_);
+      absl::StatusOr<v1::TellResponse> told = client_->Tell(kCampaign, reports, name_);
       if (!told.ok()) {
         if (told.status().code() == absl::StatusCode::kUnavailable) {
           ++counters_->unavailable;
@@ -279,7 +279,7 @@ class Worker {
     report.set_trial(trial);
     report.mutable_outcome()->set_score(score);
     while (!stop_->load()) {
-      absl::StatusOr<v1::TellResponse> told = client_->Tell(kStudy, {report}, name_);
+      absl::StatusOr<v1::TellResponse> told = client_->Tell(kCampaign, {report}, name_);
       if (!told.ok() && told.status().code() == absl::StatusCode::kUnavailable) {
         absl::SleepFor(absl::Milliseconds(20));
         continue;
@@ -307,8 +307,8 @@ class Worker {
   std::vector<std::pair<int64_t, double>> mine_;  // this worker's acknowledged tells
 };
 
-// Reads the study from the file and checks it against the journal; returns what it read.
-StoredStudyState CheckFile(const std::string& db, const std::string& where,
+// Reads the campaign from the file and checks it against the journal; returns what it read.
+StoredCampaignState CheckFile(const std::string& db, const std::string& where,
                            const std::map<int64_t, double>& journal, Findings& findings) {
   absl::StatusOr<DbInspector> inspector = DbInspector::Open(db);
   if (!inspector.ok()) {
@@ -320,20 +320,20 @@ StoredStudyState CheckFile(const std::string& db, const std::string& where,
     findings.Add(where, absl::StrCat("integrity_check: ",
                                      integrity.ok() ? *integrity : integrity.status().ToString()));
   }
-  absl::StatusOr<StoredStudyState> stored = inspector->ReadStudy(kStudy);
+  absl::StatusOr<StoredCampaignState> stored = inspector->ReadCampaign(kCampaign);
   if (!stored.ok()) {
     findings.Add(where, stored.status().ToString());
     return {};
   }
-  findings.Add(where, CheckStoredStudy(*stored, journal));
+  findings.Add(where, CheckStoredCampaign(*stored, journal));
   return *std::move(stored);
 }
 
 // The server's view and every trial, read through one client.
-bool ReadServed(client::Client& reader, v1::StudyView& view, std::vector<v1::Trial>& trials,
+bool ReadServed(client::Client& reader, v1::CampaignView& view, std::vector<v1::Trial>& trials,
                 const std::string& where, Findings& findings) {
-  absl::StatusOr<v1::StudyView> got = reader.GetStudy(kStudy);
-  absl::StatusOr<std::vector<v1::Trial>> listed = reader.ListAllTrials(kStudy);
+  absl::StatusOr<v1::CampaignView> got = reader.GetCampaign(kCampaign);
+  absl::StatusOr<std::vector<v1::Trial>> listed = reader.ListAllTrials(kCampaign);
   if (!got.ok() || !listed.ok()) {
     findings.Add(where, absl::StrCat("reads: ", got.status().ToString(), " ", listed.status().ToString()));
     return false;
@@ -393,7 +393,7 @@ int Run(const Flags& flags) {
     return 1;
   }
   std::unique_ptr<client::Client> reader = server.NewClient();
-  if (absl::StatusOr<v1::StudyView> created = reader->CreateStudy(Design(flags)); !created.ok()) {
+  if (absl::StatusOr<v1::CampaignView> created = reader->CreateCampaign(Design(flags)); !created.ok()) {
     findings.Add("create", created.status().ToString());
   }
 
@@ -416,7 +416,7 @@ int Run(const Flags& flags) {
     server_pid = -1;
     // Every tell acknowledged so far was acknowledged before the kill: it must be on disk.
     const std::map<int64_t, double> acked = journal.Snapshot();
-    const StoredStudyState stored = CheckFile(options.db, where, acked, findings);
+    const StoredCampaignState stored = CheckFile(options.db, where, acked, findings);
     if (static_cast<int64_t>(acked.size()) > last_acked) ++cycles_with_progress;
     last_acked = static_cast<int64_t>(acked.size());
     std::printf("cycle %2d: killed after %4d ms; on disk %5zu trials, %4zu generations, %5zu "
@@ -424,7 +424,7 @@ int Run(const Flags& flags) {
                 cycle, up, stored.trials.size(), stored.generations.size(), acked.size(),
                 findings.empty() ? "pass" : "FAIL");
     std::fflush(stdout);
-    // Now and then the restarted server dies again while it opens the file and loads the study.
+    // Now and then the restarted server dies again while it opens the file and loads the campaign.
     if (std::uniform_real_distribution<double>(0, 1)(rng) < 0.2) {
       const int delay_ms = std::uniform_int_distribution<int>(0, 30)(rng);
       if (absl::Status spawned = server.Spawn(); !spawned.ok()) {
@@ -444,11 +444,11 @@ int Run(const Flags& flags) {
                 static_cast<long long>(absl::ToInt64Milliseconds(absl::Now() - restart_began)));
     // Journal first: whatever it holds was acknowledged before the reads below began.
     const std::map<int64_t, double> acked_before_reads = journal.Snapshot();
-    v1::StudyView view;
+    v1::CampaignView view;
     std::vector<v1::Trial> trials;
     if (ReadServed(*reader, view, trials, where, findings)) {
       findings.Add(absl::StrCat(where, ", after the restart"),
-                   CheckServedStudy(view, trials, stored, acked_before_reads));
+                   CheckServedCampaign(view, trials, stored, acked_before_reads));
     }
   }
   if (cycles_with_progress < (flags.cycles + 1) / 2) {
@@ -456,22 +456,22 @@ int Run(const Flags& flags) {
                                           " cycles saw new acknowledged tells"));
   }
 
-  // No more kills: the study goes on to the target.
+  // No more kills: the campaign goes on to the target.
   const absl::Time cycles_ended = absl::Now();
   bool reached = false;
   double best = INFINITY;
   const absl::Time converge_deadline =
       started + absl::Seconds(flags.time_limit_seconds) - absl::Seconds(15);
   while (findings.empty() && server.running() && absl::Now() < converge_deadline) {
-    absl::StatusOr<v1::StudyView> view = reader->GetStudy(kStudy);
+    absl::StatusOr<v1::CampaignView> view = reader->GetCampaign(kCampaign);
     if (view.ok()) {
       if (view->status().has_best()) best = view->status().best().outcome().score();
       if (best <= kTarget) {
         reached = true;
         break;
       }
-      if (view->status().phase() != v1::STUDY_PHASE_OPEN) {
-        findings.Add("convergence", absl::StrCat("the study stopped short of the target: ",
+      if (view->status().phase() != v1::CAMPAIGN_PHASE_OPEN) {
+        findings.Add("convergence", absl::StrCat("the campaign stopped short of the target: ",
                                                  view->status().ShortDebugString()));
         break;
       }
@@ -489,14 +489,14 @@ int Run(const Flags& flags) {
   // Quiet first: the sweeper would lapse leases between reading the server and reading the file.
   const absl::Time quiet_deadline = absl::Now() + absl::Seconds(15);
   while (server.running() && absl::Now() < quiet_deadline) {
-    absl::StatusOr<v1::StudyView> view = reader->GetStudy(kStudy);
+    absl::StatusOr<v1::CampaignView> view = reader->GetCampaign(kCampaign);
     if (view.ok() && view->status().leased() == 0) break;
     absl::SleepFor(absl::Milliseconds(200));
   }
   if (server.running()) {
-    v1::StudyView view;
+    v1::CampaignView view;
     std::vector<v1::Trial> trials;
-    const StoredStudyState stored = CheckFile(options.db, "at the end", journal.Snapshot(), findings);
+    const StoredCampaignState stored = CheckFile(options.db, "at the end", journal.Snapshot(), findings);
     if (ReadServed(*reader, view, trials, "at the end", findings)) {
       findings.Add("at the end, served against the file", CheckServedEqualsStored(view, trials, stored));
     }
@@ -513,7 +513,7 @@ int Run(const Flags& flags) {
     if (!WIFEXITED(wstatus) || WEXITSTATUS(wstatus) != 0) {
       findings.Add("SIGTERM", absl::StrCat("ogived ended with wait status ", wstatus));
     }
-    const StoredStudyState after = CheckFile(options.db, "after SIGTERM", journal.Snapshot(), findings);
+    const StoredCampaignState after = CheckFile(options.db, "after SIGTERM", journal.Snapshot(), findings);
     if (start_server("last restart") && ReadServed(*reader, view, trials, "last restart", findings)) {
       findings.Add("last restart, served against the file", CheckServedEqualsStored(view, trials, after));
     }

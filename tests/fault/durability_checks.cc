@@ -57,7 +57,7 @@ int64_t AckJournal::size() const {
   return static_cast<int64_t>(acked_.size());
 }
 
-std::vector<std::string> CheckStoredStudy(const StoredStudyState& stored,
+std::vector<std::string> CheckStoredCampaign(const StoredCampaignState& stored,
                                           const std::map<int64_t, double>& journal) {
   std::vector<std::string> findings;
   const v1::EngineState& engine = stored.engine;
@@ -173,9 +173,9 @@ std::vector<std::string> CheckStoredStudy(const StoredStudyState& stored,
   return findings;
 }
 
-std::vector<std::string> CheckServedStudy(const v1::StudyView& view,
+std::vector<std::string> CheckServedCampaign(const v1::CampaignView& view,
                                           const std::vector<v1::Trial>& trials,
-                                          const StoredStudyState& before_restart,
+                                          const StoredCampaignState& before_restart,
                                           const std::map<int64_t, double>& journal) {
   std::vector<std::string> findings;
   if (view.status().generation() < before_restart.engine.generation()) {
@@ -213,9 +213,9 @@ std::vector<std::string> CheckServedStudy(const v1::StudyView& view,
   return findings;
 }
 
-std::vector<std::string> CheckServedEqualsStored(const v1::StudyView& view,
+std::vector<std::string> CheckServedEqualsStored(const v1::CampaignView& view,
                                                  const std::vector<v1::Trial>& trials,
-                                                 const StoredStudyState& stored) {
+                                                 const StoredCampaignState& stored) {
   std::vector<std::string> findings;
   const v1::StatusSummary& s = view.status();
   if (s.generation() != stored.engine.generation()) {

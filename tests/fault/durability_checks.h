@@ -1,5 +1,5 @@
 // The durability checks of the process-level fault tests: a journal of the tells the clients saw
-// acknowledged, and the rules a study's stored state must obey after any crash — every
+// acknowledged, and the rules a campaign's stored state must obey after any crash — every
 // acknowledged outcome stored once and equal, every report applied once, generations matching the
 // consumed outcomes, no trial consumed twice.
 //
@@ -42,22 +42,22 @@ class AckJournal {
 // - generation summaries are numbered 1..engine.generation; each cohort has population_size
 //   trials, every trial is in at most one cohort, and a trial is in the cohort of generation g
 //   exactly when its record says consumed_by = g (and use CONSUMED).
-std::vector<std::string> CheckStoredStudy(const StoredStudyState& stored,
+std::vector<std::string> CheckStoredCampaign(const StoredCampaignState& stored,
                                           const std::map<int64_t, double>& journal);
 
-// What the server answers (read through GetStudy and ListTrials while clients may still be
+// What the server answers (read through GetCampaign and ListTrials while clients may still be
 // telling) against what was on disk before it restarted and against the journal: nothing stored is
 // gone or changed, every journaled outcome is there, the generation did not go back.
-std::vector<std::string> CheckServedStudy(const v1::StudyView& view,
+std::vector<std::string> CheckServedCampaign(const v1::CampaignView& view,
                                           const std::vector<v1::Trial>& trials,
-                                          const StoredStudyState& before_restart,
+                                          const StoredCampaignState& before_restart,
                                           const std::map<int64_t, double>& journal);
 
 // With no request in flight: the server's view and trial list equal the file, trial by trial
 // (state, outcome, use, consumed_by, late), and its counts equal the file's.
-std::vector<std::string> CheckServedEqualsStored(const v1::StudyView& view,
+std::vector<std::string> CheckServedEqualsStored(const v1::CampaignView& view,
                                                  const std::vector<v1::Trial>& trials,
-                                                 const StoredStudyState& stored);
+                                                 const StoredCampaignState& stored);
 
 }  // namespace ogive::testing
 

@@ -110,8 +110,8 @@ bool WaitFor(const std::function<bool()>& condition, absl::Duration timeout) {
   return true;
 }
 
-v1::StudyDesign Design(const std::string& name, double lease_seconds) {
-  v1::StudyDesign design;
+v1::CampaignDesign Design(const std::string& name, double lease_seconds) {
+  v1::CampaignDesign design;
   design.set_name(name);
   for (const char* p : {"x0", "x1"}) {
     v1::Parameter* parameter = design.add_parameters();
@@ -119,7 +119,7 @@ v1::StudyDesign Design(const std::string& name, double lease_seconds) {
     parameter->mutable_real()->set_low(-5);
     parameter->mutable_real()->set_high(5);
   }
-  design.mutable_objective()->set_direction(v1::LOWER_IS_BETTER);
+  design.mutable_objective()->set_direction(v1::DIRECTION_LOWER_IS_BETTER);
   design.set_population_size(4);
   design.set_seed(11);
   design.set_lease_seconds(lease_seconds);
@@ -133,8 +133,8 @@ v1::Report Score(int64_t trial, double score) {
   return report;
 }
 
-// Reads the study from the file (integrity_check included) and checks it against `journal`.
-StoredStudyState CheckFile(const std::string& db, const std::string& study,
+// Reads the campaign from the file (integrity_check included) and checks it against `journal`.
+StoredCampaignState CheckFile(const std::string& db, const std::string& campaign,
                            const std::map<int64_t, double>& journal) {
   absl::StatusOr<DbInspector> inspector = DbInspector::Open(db);
   EXPECT_TRUE(inspector.ok()) << inspector.status();
@@ -142,10 +142,10 @@ StoredStudyState CheckFile(const std::string& db, const std::string& study,
   absl::StatusOr<std::string> integrity = inspector->IntegrityCheck();
   EXPECT_TRUE(integrity.ok() && *integrity == "ok")
       << (integrity.ok() ? *integrity : integrity.status().ToString());
-  absl::StatusOr<StoredStudyState> stored = inspector->ReadStudy(study);
+  absl::StatusOr<StoredCampaignState> stored = inspector->ReadCampaign(campaign);
   EXPECT_TRUE(stored.ok()) << stored.status();
   if (!stored.ok()) return {};
-  EXPECT_THAT(CheckStoredStudy(*stored, journal), IsEmpty());
+  EXPECT_THAT(CheckStoredCampaign(*stored, journal), IsEmpty());
   return *std::move(stored);
 }
 
@@ -189,7 +189,7 @@ TEST_F(ProcessFaultTest, KilledWorkersTrialsLapseAndLateDuplicateAndOutOfOrderTe
   OgivedProcess& server = Server(db);
   ASSERT_TRUE(server.Start().ok());
   std::unique_ptr<client::Client> client = server.NewClient();
-  ASSERT_TRUE(client->CreateStudy(Design("lapse", 30)).ok());
+  ASSERT_TRUE(client->CreateCampaign(Design("lapse", 30)).ok());
 
   // Three `ogive work` workers whose program takes 0.6 s and prints x0 as the score; leases of
   // 1 s, renewed while the program runs.
@@ -273,7 +273,7 @@ TEST_F(ProcessFaultTest, KilledWorkersTrialsLapseAndLateDuplicateAndOutOfOrderTe
 
   // All of it survives a crash of the server.
   server.Crash();
-  const StoredStudyState stored = CheckFile(db, "lapse", journal.Snapshot());
+  const StoredCampaignState stored = CheckFile(db, "lapse", journal.Snapshot());
   ASSERT_EQ(stored.trials.count(late), 1u);
   EXPECT_TRUE(stored.trials.at(late).late());
   EXPECT_EQ(stored.trials.at(late).state(), v1::TRIAL_STATE_REPORTED);
@@ -283,7 +283,7 @@ TEST_F(ProcessFaultTest, KilledWorkersTrialsLapseAndLateDuplicateAndOutOfOrderTe
     }
   }
   ASSERT_TRUE(server.Start().ok());
-  absl::StatusOr<v1::StudyView> view = client->GetStudy("lapse");
+  absl::StatusOr<v1::CampaignView> view = client->GetCampaign("lapse");
   absl::StatusOr<std::vector<v1::Trial>> all = client->ListAllTrials("lapse");
   ASSERT_TRUE(view.ok() && all.ok());
   EXPECT_THAT(CheckServedEqualsStored(*view, *all, stored), IsEmpty());
@@ -306,7 +306,7 @@ TEST_F(ProcessFaultTest, AFullDiskFailsWritesClearlyKeepsReadsAndRecoversWhenSpa
   client::ClientOptions options = server.ClientOptions();
   options.max_attempts = 2;  // see the failure at once
   std::unique_ptr<client::Client> client = server.NewClient(options);
-  ASSERT_TRUE(client->CreateStudy(Design("full", 600)).ok());
+  ASSERT_TRUE(client->CreateCampaign(Design("full", 600)).ok());
   absl::StatusOr<v1::AskResponse> asked = client->Ask("full", 1000, "kiln-1");
   ASSERT_TRUE(asked.ok()) << asked.status();
 
@@ -348,11 +348,11 @@ TEST_F(ProcessFaultTest, AFullDiskFailsWritesClearlyKeepsReadsAndRecoversWhenSpa
   // Reads go on, the file is sound, everything acknowledged is there — also after a crash.
   auto check_reads = [&](const std::string& when) {
     SCOPED_TRACE(when);
-    absl::StatusOr<v1::StudyView> view = client->GetStudy("full");
+    absl::StatusOr<v1::CampaignView> view = client->GetCampaign("full");
     absl::StatusOr<std::vector<v1::Trial>> trials = client->ListAllTrials("full");
     ASSERT_TRUE(view.ok()) << view.status();
     ASSERT_TRUE(trials.ok()) << trials.status();
-    const StoredStudyState stored = CheckFile(db, "full", journal.Snapshot());
+    const StoredCampaignState stored = CheckFile(db, "full", journal.Snapshot());
     EXPECT_THAT(CheckServedEqualsStored(*view, *trials, stored), IsEmpty());
     EXPECT_EQ(view->status().reported(), journal.size());
   };
@@ -387,7 +387,7 @@ TEST_F(ProcessFaultTest, AReadOnlyDatabaseFileIsRefusedClearlyOrServedReadOnly) 
     OgivedProcess& server = Server(db);
     ASSERT_TRUE(server.Start().ok());
     std::unique_ptr<client::Client> client = server.NewClient();
-    ASSERT_TRUE(client->CreateStudy(Design("frozen", 600)).ok());
+    ASSERT_TRUE(client->CreateCampaign(Design("frozen", 600)).ok());
     absl::StatusOr<v1::AskResponse> asked = client->Ask("frozen", 6, "kiln-1");
     ASSERT_TRUE(asked.ok());
     for (int i = 0; i < 5; ++i) {
@@ -416,18 +416,18 @@ TEST_F(ProcessFaultTest, AReadOnlyDatabaseFileIsRefusedClearlyOrServedReadOnly) 
     OgivedProcess& server = Server(db, {"--read-only"}, 65534);
     ASSERT_TRUE(server.Start().ok());
     std::unique_ptr<client::Client> client = server.NewClient();
-    absl::StatusOr<v1::StudyView> view = client->GetStudy("frozen");
+    absl::StatusOr<v1::CampaignView> view = client->GetCampaign("frozen");
     absl::StatusOr<std::vector<v1::Trial>> trials = client->ListAllTrials("frozen");
     ASSERT_TRUE(view.ok()) << view.status();
     ASSERT_TRUE(trials.ok()) << trials.status();
-    const StoredStudyState stored = CheckFile(db, "frozen", journal.Snapshot());
+    const StoredCampaignState stored = CheckFile(db, "frozen", journal.Snapshot());
     EXPECT_THAT(CheckServedEqualsStored(*view, *trials, stored), IsEmpty());
     absl::StatusOr<v1::AskResponse> ask = client->Ask("frozen", 1, "kiln-1");
     EXPECT_EQ(ask.status().code(), absl::StatusCode::kFailedPrecondition) << ask.status();
     EXPECT_THAT(std::string(ask.status().message()), AllOf(HasSubstr(db), HasSubstr("read-only")));
     absl::StatusOr<v1::TellResponse> tell = client->Tell("frozen", {Score(6, 3.0)}, "kiln-1");
     EXPECT_EQ(tell.status().code(), absl::StatusCode::kFailedPrecondition) << tell.status();
-    absl::StatusOr<v1::StudyView> again = client->GetStudy("frozen");
+    absl::StatusOr<v1::CampaignView> again = client->GetCampaign("frozen");
     ASSERT_TRUE(again.ok());
     EXPECT_EQ(again->status().reported(), 5);
     // A connected but idle client does not hold up a clean stop (it used to, for 10 s).

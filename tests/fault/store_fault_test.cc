@@ -48,20 +48,20 @@ std::string Bytes(const google::protobuf::MessageLite& message) {
   return out;
 }
 
-v1::StudyDesign Design() {
-  v1::StudyDesign design;
+v1::CampaignDesign Design() {
+  v1::CampaignDesign design;
   design.set_name("kiln");
   v1::Parameter* p = design.add_parameters();
   p->set_name("peak_temp");
   p->mutable_real()->set_low(900);
   p->mutable_real()->set_high(1300);
-  design.mutable_objective()->set_direction(v1::LOWER_IS_BETTER);
+  design.mutable_objective()->set_direction(v1::DIRECTION_LOWER_IS_BETTER);
   return design;
 }
 
 v1::EngineState Engine(int64_t next_trial) {
   v1::EngineState engine;
-  engine.set_phase(v1::STUDY_PHASE_OPEN);
+  engine.set_phase(v1::CAMPAIGN_PHASE_OPEN);
   for (uint64_t word : {1u, 2u, 3u, 4u}) engine.add_random_state(word);
   engine.set_next_trial(next_trial);
   engine.set_generation(next_trial - 1);
@@ -71,11 +71,11 @@ v1::EngineState Engine(int64_t next_trial) {
   return engine;
 }
 
-// Write n of a study: trial n reported (its record padded with `internal_values` numbers), the engine
+// Write n of a campaign: trial n reported (its record padded with `internal_values` numbers), the engine
 // at next_trial n + 1, generation n, one event. Four parts, so that a half-applied write shows.
-StudyWrite WriteNumber(int64_t study_id, int64_t n, int internal_values = 8) {
-  StudyWrite write;
-  write.study_id = study_id;
+CampaignWrite WriteNumber(int64_t campaign_id, int64_t n, int internal_values = 8) {
+  CampaignWrite write;
+  write.campaign_id = campaign_id;
   v1::TrialRecord& trial = write.trials.emplace_back();
   trial.set_number(n);
   trial.set_state(v1::TRIAL_STATE_REPORTED);
@@ -92,16 +92,16 @@ StudyWrite WriteNumber(int64_t study_id, int64_t n, int internal_values = 8) {
   return write;
 }
 
-// Everything stored of the study, as comparable bytes.
+// Everything stored of the campaign, as comparable bytes.
 std::string Fingerprint(SqliteStore& store, int64_t id) {
-  absl::StatusOr<StoredStudy> study = store.LoadStudy(id);
+  absl::StatusOr<StoredCampaign> campaign = store.LoadCampaign(id);
   absl::StatusOr<std::vector<v1::GenerationSummary>> generations = store.ListGenerations(id);
   absl::StatusOr<std::vector<Event>> events = store.ListEvents(id, 1 << 20);
-  if (!study.ok() || !generations.ok() || !events.ok()) {
-    return absl::StrCat("<unreadable: ", study.status().ToString(), generations.status().ToString(),
+  if (!campaign.ok() || !generations.ok() || !events.ok()) {
+    return absl::StrCat("<unreadable: ", campaign.status().ToString(), generations.status().ToString(),
                         events.status().ToString(), ">");
   }
-  std::string out = Bytes(study->snapshot);
+  std::string out = Bytes(campaign->snapshot);
   for (const v1::GenerationSummary& g : *generations) absl::StrAppend(&out, "|g", Bytes(g));
   for (const Event& e : *events) absl::StrAppend(&out, "|e", e.kind, e.trial, e.message);
   return out;
@@ -111,10 +111,10 @@ std::string Fingerprint(SqliteStore& store, int64_t id) {
 // writes 1..n-1 are stored.
 int PartsOf(SqliteStore& store, int64_t id, int64_t n) {
   int parts = 0;
-  absl::StatusOr<StoredStudy> study = store.LoadStudy(id);
-  if (!study.ok()) return -1;
-  for (const v1::TrialRecord& t : study->snapshot.trials()) parts += t.number() == n;
-  parts += study->snapshot.engine().next_trial() > n;  // write n sets it to n + 1, later ones beyond
+  absl::StatusOr<StoredCampaign> campaign = store.LoadCampaign(id);
+  if (!campaign.ok()) return -1;
+  for (const v1::TrialRecord& t : campaign->snapshot.trials()) parts += t.number() == n;
+  parts += campaign->snapshot.engine().next_trial() > n;  // write n sets it to n + 1, later ones beyond
   absl::StatusOr<std::vector<v1::GenerationSummary>> generations = store.ListGenerations(id);
   if (generations.ok()) {
     for (const v1::GenerationSummary& g : *generations) parts += g.generation() == n;
@@ -193,7 +193,7 @@ TEST_P(StoreFaultTest, EveryWritePointOfACommitFailsCleanly) {
   {
     std::unique_ptr<SqliteStore> store = Open();
     ASSERT_NE(store, nullptr);
-    absl::StatusOr<int64_t> created = store->CreateStudy("kiln", Design(), Engine(1), "create-1");
+    absl::StatusOr<int64_t> created = store->CreateCampaign("kiln", Design(), Engine(1), "create-1");
     ASSERT_TRUE(created.ok()) << created.status();
     id = *created;
     ASSERT_TRUE(store->Commit(WriteNumber(id, 1)).ok());
@@ -291,7 +291,7 @@ TEST_F(StoreFaultFixture, TheCommitAfterAFailedFsyncReplacesItInTheLog) {
   {
     std::unique_ptr<SqliteStore> store = Open();
     ASSERT_NE(store, nullptr);
-    absl::StatusOr<int64_t> created = store->CreateStudy("kiln", Design(), Engine(1), "create-1");
+    absl::StatusOr<int64_t> created = store->CreateCampaign("kiln", Design(), Engine(1), "create-1");
     ASSERT_TRUE(created.ok()) << created.status();
     id = *created;
   }
@@ -318,13 +318,13 @@ TEST_F(StoreFaultFixture, TheCommitAfterAFailedFsyncReplacesItInTheLog) {
     std::unique_ptr<SqliteStore> store = Open();
     ASSERT_NE(store, nullptr);
     EXPECT_TRUE(store->CheckIntegrity().ok());
-    absl::StatusOr<StoredStudy> study = store->LoadStudy(id);
-    ASSERT_TRUE(study.ok()) << study.status();
-    ASSERT_EQ(study->snapshot.trials_size(), n);
+    absl::StatusOr<StoredCampaign> campaign = store->LoadCampaign(id);
+    ASSERT_TRUE(campaign.ok()) << campaign.status();
+    ASSERT_EQ(campaign->snapshot.trials_size(), n);
     if (WEXITSTATUS(wstatus) == 1) break;  // stored long: every fsync point is covered
     ASSERT_EQ(WEXITSTATUS(wstatus), 0);
     ++points;
-    EXPECT_EQ(study->snapshot.trials(static_cast<int>(n - 1)).internal_size(), 2)
+    EXPECT_EQ(campaign->snapshot.trials(static_cast<int>(n - 1)).internal_size(), 2)
         << "the failed commit's record came back";
     EXPECT_EQ(PartsOf(*store, id, n), 4);
   }
@@ -337,7 +337,7 @@ TEST_F(StoreFaultFixture, AFailingCheckpointDoesNotFailTheCommitsItFollows) {
   FaultVfs& vfs = FaultVfs::Get(kVfs);
   std::unique_ptr<SqliteStore> store = Open();
   ASSERT_NE(store, nullptr);
-  absl::StatusOr<int64_t> created = store->CreateStudy("kiln", Design(), Engine(1), "create-1");
+  absl::StatusOr<int64_t> created = store->CreateCampaign("kiln", Design(), Engine(1), "create-1");
   ASSERT_TRUE(created.ok()) << created.status();
   const int64_t id = *created;
 

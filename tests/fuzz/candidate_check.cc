@@ -7,7 +7,7 @@
 
 namespace ogive::fuzz {
 
-void RequireCandidateInDesign(const v1::Candidate& candidate, const v1::StudyDesign& design) {
+void RequireCandidateInDesign(const v1::Candidate& candidate, const v1::CampaignDesign& design) {
   OGIVE_FUZZ_REQUIRE(candidate.values_size() == design.parameters_size(), "candidate has ",
                      candidate.values_size(), " values for ", design.parameters_size(), " parameters: ",
                      candidate.ShortDebugString());
@@ -37,7 +37,7 @@ void RequireCandidateInDesign(const v1::Candidate& candidate, const v1::StudyDes
         OGIVE_FUZZ_REQUIRE(v.has_flag(), where);
         break;
       case v1::Parameter::KIND_NOT_SET:
-        OGIVE_FUZZ_REQUIRE(false, "a study was created with a parameter of no kind: ", where);
+        OGIVE_FUZZ_REQUIRE(false, "a campaign was created with a parameter of no kind: ", where);
     }
   }
 }

@@ -5,11 +5,11 @@
 #ifndef OGIVE_TESTS_FUZZ_CANDIDATE_CHECK_H_
 #define OGIVE_TESTS_FUZZ_CANDIDATE_CHECK_H_
 
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 
 namespace ogive::fuzz {
 
-void RequireCandidateInDesign(const v1::Candidate& candidate, const v1::StudyDesign& design);
+void RequireCandidateInDesign(const v1::Candidate& candidate, const v1::CampaignDesign& design);
 
 }  // namespace ogive::fuzz
 

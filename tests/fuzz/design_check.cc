@@ -22,7 +22,7 @@ constexpr int kRounds = 4;
 
 // An outcome for the k-th candidate of a round: scores with some ties and an infeasible one now and
 // then, or grades spread over the scale, so that updates see every kind of ranking.
-v1::Outcome OutcomeFor(const v1::StudyDesign& design, int round, int k) {
+v1::Outcome OutcomeFor(const v1::CampaignDesign& design, int round, int k) {
   v1::Outcome o;
   if (k % 5 == 4) {
     o.mutable_infeasible();
@@ -37,12 +37,12 @@ v1::Outcome OutcomeFor(const v1::StudyDesign& design, int round, int k) {
 
 }  // namespace
 
-void CheckDesign(const v1::StudyDesign& design) {
+void CheckDesign(const v1::CampaignDesign& design) {
   MemoryStore store;
   service::Registry registry(&store, service::ServiceLimits());
-  v1::CreateStudyRequest create;
+  v1::CreateCampaignRequest create;
   *create.mutable_design() = design;
-  absl::StatusOr<v1::StudyView> created = service::CreateStudy(registry, create);
+  absl::StatusOr<v1::CampaignView> created = service::CreateCampaign(registry, create);
   if (!created.ok()) {
     const absl::StatusCode code = created.status().code();
     OGIVE_FUZZ_REQUIRE(code == absl::StatusCode::kInvalidArgument || code == absl::StatusCode::kResourceExhausted,
@@ -54,22 +54,22 @@ void CheckDesign(const v1::StudyDesign& design) {
   }
   OGIVE_FUZZ_REQUIRE(design.parameters_size() >= 1, "a design without parameters was accepted");
   OGIVE_FUZZ_REQUIRE(google::protobuf::util::MessageDifferencer::Equals(created->design(), design),
-                     "the study's design differs from the one created: ", created->design().ShortDebugString());
+                     "the campaign's design differs from the one created: ", created->design().ShortDebugString());
   absl::StatusOr<search::Space> space = codec::SpaceFromDesign(design);
   OGIVE_FUZZ_REQUIRE(space.ok(), "an accepted design has no valid space: ", space.status().ToString());
 
   const absl::Time start = absl::FromUnixSeconds(1800000000);
   for (int round = 0; round < kRounds; ++round) {
     const absl::Time now = start + absl::Seconds(round);
-    v1::GetStudyRequest get;
-    get.set_study(design.name());
-    absl::StatusOr<v1::StudyView> view = service::GetStudy(registry, get);
+    v1::GetCampaignRequest get;
+    get.set_campaign(design.name());
+    absl::StatusOr<v1::CampaignView> view = service::GetCampaign(registry, get);
     OGIVE_FUZZ_REQUIRE(view.ok(), view.status().ToString());
     const int population = view->status().population_size();
     OGIVE_FUZZ_REQUIRE(population >= 2, "population size ", population);
 
     v1::AskRequest ask;
-    ask.set_study(design.name());
+    ask.set_campaign(design.name());
     ask.set_count(std::min(population, kMaxAskPerRound));
     ask.set_worker("fuzz");
     absl::StatusOr<v1::AskResponse> asked = service::Ask(registry, ask, now);
@@ -81,7 +81,7 @@ void CheckDesign(const v1::StudyDesign& design) {
     OGIVE_FUZZ_REQUIRE(asked->trials_size() >= 1 && asked->trials_size() <= ask.count(), "asked for ", ask.count(),
                        ", got ", asked->trials_size());
     v1::TellRequest tell;
-    tell.set_study(design.name());
+    tell.set_campaign(design.name());
     for (int k = 0; k < asked->trials_size(); ++k) {
       const v1::Trial& trial = asked->trials(k);
       RequireCandidateInDesign(trial.candidate(), design);
@@ -100,22 +100,22 @@ void CheckDesign(const v1::StudyDesign& design) {
   }
   OGIVE_FUZZ_REQUIRE(store.failed_writes() == 0, "the store refused a write the service made");
 
-  // What is stored brings the study back as it was.
+  // What is stored brings the campaign back as it was.
   service::Registry restarted(&store, service::ServiceLimits());
   absl::Status loaded = restarted.LoadAll();
   OGIVE_FUZZ_REQUIRE(loaded.ok(), loaded.ToString());
-  v1::GetStudyRequest get;
-  get.set_study(design.name());
-  absl::StatusOr<v1::StudyView> before = service::GetStudy(registry, get);
-  absl::StatusOr<v1::StudyView> after = service::GetStudy(restarted, get);
+  v1::GetCampaignRequest get;
+  get.set_campaign(design.name());
+  absl::StatusOr<v1::CampaignView> before = service::GetCampaign(registry, get);
+  absl::StatusOr<v1::CampaignView> after = service::GetCampaign(restarted, get);
   OGIVE_FUZZ_REQUIRE(before.ok() && after.ok(), before.status().ToString(), after.status().ToString());
   // Recent activity (workers seen, reports in the last hour) is kept in memory and dated by the clock:
   // a restart rebuilds it from the stored reports only, so it is not compared.
-  for (v1::StudyView* view : {&*before, &*after}) {
+  for (v1::CampaignView* view : {&*before, &*after}) {
     testing::ClearActivity(view->mutable_status());
   }
   OGIVE_FUZZ_REQUIRE(google::protobuf::util::MessageDifferencer::Equals(*before, *after),
-                     "the study reloaded from the store differs:\n", before->ShortDebugString(), "\nvs\n",
+                     "the campaign reloaded from the store differs:\n", before->ShortDebugString(), "\nvs\n",
                      after->ShortDebugString());
 }
 

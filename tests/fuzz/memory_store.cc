@@ -30,36 +30,36 @@ absl::Status RoundTrip(const Message& in, Message& out, const std::string& what)
 
 }  // namespace
 
-absl::StatusOr<std::vector<storage::StoredStudy>> MemoryStore::LoadAll() {
+absl::StatusOr<std::vector<storage::StoredCampaign>> MemoryStore::LoadAll() {
   absl::ReaderMutexLock lock(&mu_);
-  std::vector<storage::StoredStudy> all;
-  for (const auto& [id, data] : studies_) all.push_back(data.stored);
+  std::vector<storage::StoredCampaign> all;
+  for (const auto& [id, data] : campaigns_) all.push_back(data.stored);
   return all;
 }
 
-const storage::StoredStudy* MemoryStore::Peek(int64_t study_id) const {
+const storage::StoredCampaign* MemoryStore::Peek(int64_t campaign_id) const {
   absl::ReaderMutexLock lock(&mu_);
-  auto it = studies_.find(study_id);
-  return it == studies_.end() ? nullptr : &it->second.stored;
+  auto it = campaigns_.find(campaign_id);
+  return it == campaigns_.end() ? nullptr : &it->second.stored;
 }
 
-const std::vector<v1::GenerationSummary>* MemoryStore::PeekGenerations(int64_t study_id) const {
+const std::vector<v1::GenerationSummary>* MemoryStore::PeekGenerations(int64_t campaign_id) const {
   absl::ReaderMutexLock lock(&mu_);
-  auto it = studies_.find(study_id);
-  return it == studies_.end() ? nullptr : &it->second.generations;
+  auto it = campaigns_.find(campaign_id);
+  return it == campaigns_.end() ? nullptr : &it->second.generations;
 }
 
-absl::StatusOr<int64_t> MemoryStore::CreateStudy(const std::string& name, const v1::StudyDesign& design,
+absl::StatusOr<int64_t> MemoryStore::CreateCampaign(const std::string& name, const v1::CampaignDesign& design,
                                                  const v1::EngineState& engine, const std::string& request_id) {
   absl::MutexLock lock(&mu_);
-  for (const auto& [id, data] : studies_) {
+  for (const auto& [id, data] : campaigns_) {
     if (data.stored.name == name) {
       ++failed_writes_;
-      return absl::AlreadyExistsError(absl::StrCat("study '", name, "' already exists"));
+      return absl::AlreadyExistsError(absl::StrCat("campaign '", name, "' already exists"));
     }
   }
-  const int64_t id = studies_.empty() ? 1 : studies_.rbegin()->first + 1;
-  StudyData data;
+  const int64_t id = campaigns_.empty() ? 1 : campaigns_.rbegin()->first + 1;
+  CampaignData data;
   data.stored.id = id;
   data.stored.name = name;
   data.stored.create_request_id = request_id;
@@ -69,18 +69,18 @@ absl::StatusOr<int64_t> MemoryStore::CreateStudy(const std::string& name, const 
     ++failed_writes_;
     return s;
   }
-  studies_.emplace(id, std::move(data));
+  campaigns_.emplace(id, std::move(data));
   ++committed_writes_;
   return id;
 }
 
-std::unique_ptr<storage::PendingCommit> MemoryStore::CommitAsync(storage::StudyWrite write) {
+std::unique_ptr<storage::PendingCommit> MemoryStore::CommitAsync(storage::CampaignWrite write) {
   absl::MutexLock lock(&mu_);
-  const std::pair<int64_t, int64_t> chain{write.study_id, write.chain};
+  const std::pair<int64_t, int64_t> chain{write.campaign_id, write.chain};
   absl::Status status;
   if (write.chain != 0 && broken_chains_.count(chain) > 0) {
-    status = absl::UnavailableError(absl::StrCat("study id ", write.study_id,
-                                                 ": an earlier write of this study failed; nothing of this write was stored"));
+    status = absl::UnavailableError(absl::StrCat("campaign id ", write.campaign_id,
+                                                 ": an earlier write of this campaign failed; nothing of this write was stored"));
   } else {
     status = Apply(write);
     if (!status.ok() && write.chain != 0) broken_chains_.insert(chain);
@@ -95,11 +95,11 @@ std::unique_ptr<storage::PendingCommit> MemoryStore::CommitAsync(storage::StudyW
 
 // Checks the whole write first and changes nothing unless all of it is good, like the SAVEPOINT of
 // the real store.
-absl::Status MemoryStore::Apply(storage::StudyWrite& write) {
-  auto it = studies_.find(write.study_id);
-  if (it == studies_.end()) return absl::NotFoundError(absl::StrCat("study id ", write.study_id, ": no such study"));
-  StudyData& data = it->second;
-  const std::string where = absl::StrCat("study id ", write.study_id, ": ");
+absl::Status MemoryStore::Apply(storage::CampaignWrite& write) {
+  auto it = campaigns_.find(write.campaign_id);
+  if (it == campaigns_.end()) return absl::NotFoundError(absl::StrCat("campaign id ", write.campaign_id, ": no such campaign"));
+  CampaignData& data = it->second;
+  const std::string where = absl::StrCat("campaign id ", write.campaign_id, ": ");
   std::vector<v1::TrialRecord> trials(write.trials.size());
   int64_t count = data.stored.snapshot.trials_size();
   for (size_t i = 0; i < write.trials.size(); ++i) {
@@ -163,11 +163,11 @@ absl::Status MemoryStore::Apply(storage::StudyWrite& write) {
   return absl::OkStatus();
 }
 
-absl::StatusOr<storage::TrialPage> MemoryStore::ListTrials(int64_t study_id, std::optional<v1::TrialState> state,
+absl::StatusOr<storage::TrialPage> MemoryStore::ListTrials(int64_t campaign_id, std::optional<v1::TrialState> state,
                                                            int64_t after_number, int limit) {
   absl::ReaderMutexLock lock(&mu_);
-  auto it = studies_.find(study_id);
-  if (it == studies_.end()) return absl::NotFoundError(absl::StrCat("study id ", study_id, ": no such study"));
+  auto it = campaigns_.find(campaign_id);
+  if (it == campaigns_.end()) return absl::NotFoundError(absl::StrCat("campaign id ", campaign_id, ": no such campaign"));
   storage::TrialPage page;
   for (const v1::TrialRecord& t : it->second.stored.snapshot.trials()) {
     if (t.number() <= after_number || (state.has_value() && t.state() != *state)) continue;
@@ -180,17 +180,17 @@ absl::StatusOr<storage::TrialPage> MemoryStore::ListTrials(int64_t study_id, std
   return page;
 }
 
-absl::StatusOr<std::vector<v1::GenerationSummary>> MemoryStore::ListGenerations(int64_t study_id) {
+absl::StatusOr<std::vector<v1::GenerationSummary>> MemoryStore::ListGenerations(int64_t campaign_id) {
   absl::ReaderMutexLock lock(&mu_);
-  auto it = studies_.find(study_id);
-  if (it == studies_.end()) return absl::NotFoundError(absl::StrCat("study id ", study_id, ": no such study"));
+  auto it = campaigns_.find(campaign_id);
+  if (it == campaigns_.end()) return absl::NotFoundError(absl::StrCat("campaign id ", campaign_id, ": no such campaign"));
   return it->second.generations;
 }
 
-absl::StatusOr<std::vector<storage::Event>> MemoryStore::ListEvents(int64_t study_id, int limit) {
+absl::StatusOr<std::vector<storage::Event>> MemoryStore::ListEvents(int64_t campaign_id, int limit) {
   absl::ReaderMutexLock lock(&mu_);
-  auto it = studies_.find(study_id);
-  if (it == studies_.end()) return absl::NotFoundError(absl::StrCat("study id ", study_id, ": no such study"));
+  auto it = campaigns_.find(campaign_id);
+  if (it == campaigns_.end()) return absl::NotFoundError(absl::StrCat("campaign id ", campaign_id, ": no such campaign"));
   const std::vector<storage::Event>& events = it->second.events;
   const size_t first = events.size() > static_cast<size_t>(limit) ? events.size() - limit : 0;
   return std::vector<storage::Event>(events.begin() + first, events.end());

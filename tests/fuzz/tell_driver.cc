@@ -15,7 +15,7 @@
 namespace ogive::fuzz {
 namespace {
 
-constexpr char kStudy[] = "fuzz-study";
+constexpr char kCampaign[] = "fuzz-campaign";
 constexpr double kInf = std::numeric_limits<double>::infinity();
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 
@@ -74,12 +74,12 @@ TellDriver::TellDriver(ByteReader& input) : in_(input), now_(absl::FromUnixSecon
     for (const char* option : {"ash", "celadon", "tenmoku"}) c->add_options(option);
   }
   if (mask & 16) add("vent")->mutable_flag();
-  design_.set_name(kStudy);
+  design_.set_name(kCampaign);
   const int objective = in_.Below(3);
   if (objective == 2) {
     for (int i = 0; i < 4; ++i) design_.mutable_objective()->mutable_grade_scale()->add_labels(kLabels[i]);
   } else {
-    design_.mutable_objective()->set_direction(objective == 0 ? v1::LOWER_IS_BETTER : v1::HIGHER_IS_BETTER);
+    design_.mutable_objective()->set_direction(objective == 0 ? v1::DIRECTION_LOWER_IS_BETTER : v1::DIRECTION_HIGHER_IS_BETTER);
   }
   design_.set_population_size(in_.Pick({0, 2, 3, 4, 6}));
   design_.set_expected_workers(in_.Pick({0, 1, 3}));
@@ -101,9 +101,9 @@ TellDriver::TellDriver(ByteReader& input) : in_(input), now_(absl::FromUnixSecon
 
 void TellDriver::Run() {
   registry_ = std::make_unique<service::Registry>(&store_, service::ServiceLimits());
-  v1::CreateStudyRequest create;
+  v1::CreateCampaignRequest create;
   *create.mutable_design() = design_;
-  absl::StatusOr<v1::StudyView> created = service::CreateStudy(*registry_, create);
+  absl::StatusOr<v1::CampaignView> created = service::CreateCampaign(*registry_, create);
   OGIVE_FUZZ_REQUIRE(created.ok(), created.status().ToString(), " for ", design_.ShortDebugString());
   absl::StatusOr<search::Space> space = codec::SpaceFromDesign(design_);
   absl::StatusOr<search::OutcomeOrder> order = codec::OrderFromObjective(design_.objective());
@@ -143,22 +143,22 @@ void TellDriver::Run() {
     }
     Refresh();
   }
-  Restart();  // every input ends with the study reloaded from the store
+  Restart();  // every input ends with the campaign reloaded from the store
   Refresh();
 }
 
 void TellDriver::Refresh() {
   OGIVE_FUZZ_REQUIRE(store_.failed_writes() == 0, "the store refused a write the service made");
-  absl::StatusOr<std::shared_ptr<service::StudyHost>> host = registry_->Find(kStudy);
+  absl::StatusOr<std::shared_ptr<service::CampaignHost>> host = registry_->Find(kCampaign);
   OGIVE_FUZZ_REQUIRE(host.ok(), host.status().ToString());
   stored_ = store_.Peek((*host)->id());
   generations_ = store_.PeekGenerations((*host)->id());
-  OGIVE_FUZZ_REQUIRE(stored_ != nullptr && generations_ != nullptr, "the store does not hold the study");
-  v1::GetStudyRequest get;
-  get.set_study(kStudy);
-  absl::StatusOr<v1::StudyView> view = service::GetStudy(*registry_, get);
+  OGIVE_FUZZ_REQUIRE(stored_ != nullptr && generations_ != nullptr, "the store does not hold the campaign");
+  v1::GetCampaignRequest get;
+  get.set_campaign(kCampaign);
+  absl::StatusOr<v1::CampaignView> view = service::GetCampaign(*registry_, get);
   OGIVE_FUZZ_REQUIRE(view.ok(), view.status().ToString());
-  RequireStudyInvariants(model_, *stored_, *generations_, *view, now_);
+  RequireCampaignInvariants(model_, *stored_, *generations_, *view, now_);
 }
 
 const v1::TrialRecord* TellDriver::Record(int64_t number) const {
@@ -212,7 +212,7 @@ absl::Duration TellDriver::LeaseFor(double seconds) const {
 
 void TellDriver::Ask() {
   v1::AskRequest r;
-  r.set_study(kStudy);
+  r.set_campaign(kCampaign);
   const uint8_t b = in_.Byte();
   r.set_count(b < 240 ? 1 + b % 8 : std::vector<int>{0, -1, 1000, 1001}[b % 4]);
   r.set_worker(in_.Pick(kWorkers));
@@ -229,7 +229,7 @@ std::optional<v1::AskResponse> TellDriver::SendAsk(const v1::AskRequest& r) {
   absl::StatusCode expected = absl::StatusCode::kOk;
   std::vector<int64_t> numbers;
   const bool retry = !r.request_id().empty() && ask_requests_.count(r.request_id()) > 0;
-  // The count is checked right after the study name (always valid here): below 1 it is malformed,
+  // The count is checked right after the campaign name (always valid here): below 1 it is malformed,
   // above the server's limit RESOURCE_EXHAUSTED; every other bad field is INVALID_ARGUMENT.
   if (r.count() > limits.max_ask_count) {
     expected = absl::StatusCode::kResourceExhausted;
@@ -238,7 +238,7 @@ std::optional<v1::AskResponse> TellDriver::SendAsk(const v1::AskRequest& r) {
     expected = absl::StatusCode::kInvalidArgument;
   } else if (retry) {
     numbers = ask_requests_[r.request_id()];
-  } else if (engine.phase() != v1::STUDY_PHASE_OPEN) {
+  } else if (engine.phase() != v1::CAMPAIGN_PHASE_OPEN) {
     expected = absl::StatusCode::kFailedPrecondition;
   } else {
     int64_t n = r.count();
@@ -280,7 +280,7 @@ std::optional<v1::AskResponse> TellDriver::SendAsk(const v1::AskRequest& r) {
 
 void TellDriver::Tell() {
   v1::TellRequest r;
-  r.set_study(kStudy);
+  r.set_campaign(kCampaign);
   r.set_worker(in_.Pick(kWorkers));
   const int n = in_.Below(5);
   for (int k = 0; k < n; ++k) {
@@ -382,12 +382,12 @@ void TellDriver::SendTell(const v1::TellRequest& r) {
 }
 
 void TellDriver::AskAndTellCohort() {
-  v1::GetStudyRequest get;
-  get.set_study(kStudy);
-  absl::StatusOr<v1::StudyView> view = service::GetStudy(*registry_, get);
+  v1::GetCampaignRequest get;
+  get.set_campaign(kCampaign);
+  absl::StatusOr<v1::CampaignView> view = service::GetCampaign(*registry_, get);
   OGIVE_FUZZ_REQUIRE(view.ok(), view.status().ToString());
   v1::AskRequest ask;
-  ask.set_study(kStudy);
+  ask.set_campaign(kCampaign);
   ask.set_worker("cohort");
   ask.set_count(std::min(view->status().population_size(), 16));
   std::optional<v1::AskResponse> asked = SendAsk(ask);
@@ -399,7 +399,7 @@ void TellDriver::AskAndTellCohort() {
   const int infeasible_every = in_.Pick({0, 0, 2, 3});
   const auto& labels = design_.objective().grade_scale().labels();
   v1::TellRequest tell;
-  tell.set_study(kStudy);
+  tell.set_campaign(kCampaign);
   tell.set_worker("cohort");
   for (int k = 0; k < asked->trials_size(); ++k) {
     v1::Report* report = tell.add_reports();
@@ -419,7 +419,7 @@ void TellDriver::AskAndTellCohort() {
 
 void TellDriver::Renew() {
   v1::RenewRequest r;
-  r.set_study(kStudy);
+  r.set_campaign(kCampaign);
   const int n = in_.Byte() >= 250 ? 0 : 1 + in_.Below(3);
   for (int k = 0; k < n; ++k) r.add_trials(PickTrial());
   r.set_worker(in_.Pick(kWorkers));
@@ -465,7 +465,7 @@ void TellDriver::Sweep() {
   for (const v1::TrialRecord& t : stored_->snapshot.trials()) {
     if (t.state() == v1::TRIAL_STATE_LEASED && t.lease_deadline_ns() <= absl::ToUnixNanos(now_)) ++expected;
   }
-  absl::StatusOr<std::shared_ptr<service::StudyHost>> host = registry_->Find(kStudy);
+  absl::StatusOr<std::shared_ptr<service::CampaignHost>> host = registry_->Find(kCampaign);
   OGIVE_FUZZ_REQUIRE(host.ok(), host.status().ToString());
   absl::StatusOr<int> lapsed = (*host)->Sweep(now_);
   OGIVE_FUZZ_REQUIRE(lapsed.ok() && *lapsed == expected, "sweep: expected ", expected, " lapses, got ",
@@ -474,25 +474,25 @@ void TellDriver::Sweep() {
 
 void TellDriver::SetPhase() {
   v1::SetPhaseRequest r;
-  r.set_study(kStudy);
+  r.set_campaign(kCampaign);
   r.set_command(in_.Pick({v1::PHASE_COMMAND_UNSPECIFIED, v1::PHASE_COMMAND_PAUSE, v1::PHASE_COMMAND_RESUME,
                           v1::PHASE_COMMAND_FINISH, static_cast<v1::PhaseCommand>(7)}));
   const v1::EngineState& engine = stored_->snapshot.engine();
-  const bool done = engine.phase() == v1::STUDY_PHASE_DONE;
+  const bool done = engine.phase() == v1::CAMPAIGN_PHASE_DONE;
   absl::StatusCode expected = absl::StatusCode::kOk;
-  v1::StudyPhase phase = engine.phase();
+  v1::CampaignPhase phase = engine.phase();
   v1::DoneReason reason = engine.reason();
   switch (r.command()) {
     case v1::PHASE_COMMAND_PAUSE:
       if (done) expected = absl::StatusCode::kFailedPrecondition;
-      phase = v1::STUDY_PHASE_PAUSED;
+      phase = v1::CAMPAIGN_PHASE_PAUSED;
       break;
     case v1::PHASE_COMMAND_RESUME:
       if (done) expected = absl::StatusCode::kFailedPrecondition;
-      phase = v1::STUDY_PHASE_OPEN;
+      phase = v1::CAMPAIGN_PHASE_OPEN;
       break;
     case v1::PHASE_COMMAND_FINISH:
-      phase = v1::STUDY_PHASE_DONE;
+      phase = v1::CAMPAIGN_PHASE_DONE;
       if (!done) reason = v1::DONE_REASON_STOPPED;
       break;
     default:
@@ -500,7 +500,7 @@ void TellDriver::SetPhase() {
   }
   const auto what = [&r] { return absl::StrCat("set phase ", r.ShortDebugString()); };
   const int64_t writes = store_.committed_writes();
-  absl::StatusOr<v1::StudyView> got = service::SetPhase(*registry_, r, now_);
+  absl::StatusOr<v1::CampaignView> got = service::SetPhase(*registry_, r, now_);
   RequireCode(got, expected, what);
   if (!got.ok()) {
     OGIVE_FUZZ_REQUIRE(store_.committed_writes() == writes, what(), ": refused but stored something");
@@ -512,7 +512,7 @@ void TellDriver::SetPhase() {
 
 void TellDriver::ListTrials() {
   v1::ListTrialsRequest r;
-  r.set_study(kStudy);
+  r.set_campaign(kCampaign);
   r.set_page_size(in_.Pick({0, 1, 2, 5, -1, 1001}));
   r.set_state(in_.Pick({v1::TRIAL_STATE_UNSPECIFIED, v1::TRIAL_STATE_LEASED, v1::TRIAL_STATE_REPORTED,
                         v1::TRIAL_STATE_LAPSED, v1::TRIAL_STATE_VOIDED, static_cast<v1::TrialState>(9)}));
@@ -554,18 +554,18 @@ void TellDriver::Restart() {
   auto restarted = std::make_unique<service::Registry>(&store_, service::ServiceLimits());
   absl::Status loaded = restarted->LoadAll();
   OGIVE_FUZZ_REQUIRE(loaded.ok(), "restart: ", loaded.ToString());
-  v1::GetStudyRequest get;
-  get.set_study(kStudy);
-  absl::StatusOr<v1::StudyView> before = service::GetStudy(*registry_, get);
-  absl::StatusOr<v1::StudyView> after = service::GetStudy(*restarted, get);
-  OGIVE_FUZZ_REQUIRE(before.ok() && after.ok(), "restart: the study is gone");
+  v1::GetCampaignRequest get;
+  get.set_campaign(kCampaign);
+  absl::StatusOr<v1::CampaignView> before = service::GetCampaign(*registry_, get);
+  absl::StatusOr<v1::CampaignView> after = service::GetCampaign(*restarted, get);
+  OGIVE_FUZZ_REQUIRE(before.ok() && after.ok(), "restart: the campaign is gone");
   // Recent activity (workers seen, reports in the last hour) is kept in memory and dated by the clock:
   // a restart rebuilds it from the stored reports only, so it is not compared.
-  for (v1::StudyView* view : {&*before, &*after}) {
+  for (v1::CampaignView* view : {&*before, &*after}) {
     testing::ClearActivity(view->mutable_status());
   }
   OGIVE_FUZZ_REQUIRE(google::protobuf::util::MessageDifferencer::Equals(*before, *after),
-                     "restart: the study reloaded from the store differs:\n", before->ShortDebugString(), "\nvs\n",
+                     "restart: the campaign reloaded from the store differs:\n", before->ShortDebugString(), "\nvs\n",
                      after->ShortDebugString());
   registry_ = std::move(restarted);
 }

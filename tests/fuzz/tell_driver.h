@@ -1,4 +1,4 @@
-// TellDriver: runs a fuzz input as the life of one study served in-process. The first bytes choose a
+// TellDriver: runs a fuzz input as the life of one campaign served in-process. The first bytes choose a
 // design (which parameter kinds, the objective, population, staleness limit, budget, target,
 // restarts, lease); the rest is a sequence of requests to the service handlers (server/service/
 // handlers.h) over a MemoryStore: ask, tell (scores from any bit pattern, NaN and infinities
@@ -7,8 +7,8 @@
 // a server restart from the store.
 //
 // Before each request the driver predicts its answer from what the store holds and what it told so
-// far (status code, trial numbers, duplicates, lateness); after each it checks the study's
-// bookkeeping (study_invariants.h). A wrong prediction or broken invariant aborts.
+// far (status code, trial numbers, duplicates, lateness); after each it checks the campaign's
+// bookkeeping (campaign_invariants.h). A wrong prediction or broken invariant aborts.
 //
 // Single-threaded; owns its store and registry.
 #ifndef OGIVE_TESTS_FUZZ_TELL_DRIVER_H_
@@ -28,7 +28,7 @@
 #include "storage/store.h"
 #include "tests/fuzz/byte_reader.h"
 #include "tests/fuzz/memory_store.h"
-#include "tests/fuzz/study_invariants.h"
+#include "tests/fuzz/campaign_invariants.h"
 
 namespace ogive::fuzz {
 
@@ -37,7 +37,7 @@ class TellDriver {
   // At most this many requests per input, so that one input stays quick.
   static constexpr int kMaxOperations = 96;
 
-  // Reads the design from the first bytes of `input` and creates the study.
+  // Reads the design from the first bytes of `input` and creates the campaign.
   explicit TellDriver(ByteReader& input);
   // Runs requests until the input is used up or kMaxOperations ran.
   void Run();
@@ -65,13 +65,13 @@ class TellDriver {
   ByteReader& in_;
   MemoryStore store_;
   std::unique_ptr<service::Registry> registry_;
-  v1::StudyDesign design_;
+  v1::CampaignDesign design_;
   std::optional<search::Space> space_;
-  StudyModel model_;
+  CampaignModel model_;
   absl::Time now_;
-  // The store's copy of the study after the last request; it changes with the next write, so every
+  // The store's copy of the campaign after the last request; it changes with the next write, so every
   // prediction is made before its request is sent.
-  const storage::StoredStudy* stored_ = nullptr;
+  const storage::StoredCampaign* stored_ = nullptr;
   const std::vector<v1::GenerationSummary>* generations_ = nullptr;
   std::map<std::string, std::vector<int64_t>> ask_requests_;  // request id -> trials it returned
 };

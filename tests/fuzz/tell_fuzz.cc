@@ -1,6 +1,6 @@
-// Fuzz target: the life of one study served in-process, driven by the input as a sequence of asks,
+// Fuzz target: the life of one campaign served in-process, driven by the input as a sequence of asks,
 // tells (with any outcome), renewals, sweeps, phase changes, listings and restarts; every answer is
-// predicted and the study's bookkeeping checked after each step (tell_driver.h).
+// predicted and the campaign's bookkeeping checked after each step (tell_driver.h).
 #include <cstddef>
 #include <cstdint>
 

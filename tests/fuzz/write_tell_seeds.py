@@ -79,11 +79,11 @@ SEEDS = {
     # A budget of 8 informative outcomes taken up by outstanding trials, then by reports.
     "seed-budget": header(mask=5, population=1, budget=2)
     + ask(6) + ask(6) + tell(score(0, 0), void(1), infeasible(2)) + ask(8) + cohort(0, 2) + cohort(0, 2),
-    # A plateau: every cohort tied, until EqualValues converges and the study restarts.
+    # A plateau: every cohort tied, until EqualValues converges and the campaign restarts.
     "seed-plateau-restarts": header(mask=16, population=1, bits=1)
     + b"".join(cohort(0, 0) for _ in range(40)) + list_trials(2, 3),
     # Outcomes the service must refuse: NaN, infinities, raw bit patterns, no outcome, long notes,
-    # grades in a score study, no reports, a worker name too long.
+    # grades in a score campaign, no reports, a worker name too long.
     "seed-refused-outcomes": header(mask=3, objective=1)
     + ask(4) + tell(score(0, 9)) + tell(score(1, 10)) + tell(score(2, 11))
     + tell(bytes([3, 0, 13]) + bytes([0x7F, 0xF8, 0, 0, 0, 0, 0, 1]))

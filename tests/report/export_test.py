@@ -1,10 +1,10 @@
 #!/usr/bin/python3
-"""`ogive study export` of a real study, read back with Python's csv and json modules and compared,
-trial by trial and field by field, with ListTrials (`ogive --json study trials`, protobuf JSON).
+"""`ogive campaign export` of a real campaign, read back with Python's csv and json modules and compared,
+trial by trial and field by field, with ListTrials (`ogive --json campaign trials`, protobuf JSON).
 
     /usr/bin/python3 export_test.py --ogived PATH --ogive PATH
 
-The study (study_fixture.py) has notes and worker names with commas, quotes, '<' and line breaks, a
+The campaign (campaign_fixture.py) has notes and worker names with commas, quotes, '<' and line breaks, a
 unit with markup in a column header, a late report, voids, infeasible outcomes and a lapsed trial.
 Checks that the CSV follows RFC 4180 (CRLF after every record, quoted fields where needed, the same
 number of fields in every record), that `-o FILE` writes the bytes standard output gets, that both
@@ -21,7 +21,7 @@ import os
 import sys
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-import study_fixture as fx  # noqa: E402
+import campaign_fixture as fx  # noqa: E402
 
 PARAMETERS = [("x", "x (<b>mm</b>)", "real"), ("rate", "rate (1/s)", "real"), ("layers", "layers (coats)", "integer"),
               ("solver", "solver", "categorical"), ("warm", "warm", "flag")]
@@ -123,33 +123,33 @@ def main():
     parser.add_argument("--ogive", required=True)
     args = parser.parse_args()
     with fx.temporary_directory() as workdir, fx.Ogived(args.ogived, args.ogive, workdir) as server:
-        note = fx.run_mixed_study(server, workdir)
-        trials = server.trials(fx.STUDY)
+        note = fx.run_mixed_campaign(server, workdir)
+        trials = server.trials(fx.CAMPAIGN)
         expected = [expected_record(t) for t in trials]
         fx.check([e["trial"] for e in expected] == list(range(1, len(expected) + 1)), "ListTrials skipped a number")
         states = {e["state"] for e in expected}
-        fx.check({"reported", "lapsed", "voided"} <= states, "the study lacks a state: %s" % states)
+        fx.check({"reported", "lapsed", "voided"} <= states, "the campaign lacks a state: %s" % states)
         fx.check(any(e["late"] for e in expected) and any(e["outcome"] == "infeasible" for e in expected),
-                 "the study lacks a late report or an infeasible outcome")
+                 "the campaign lacks a late report or an infeasible outcome")
         fx.check(expected[0]["note"] == note, "trial 1 does not carry the late report's note")
 
-        exported = server.run("study", "export", fx.STUDY, "--csv").stdout
+        exported = server.run("campaign", "export", fx.CAMPAIGN, "--csv").stdout
         check_csv(exported, expected)
         path = os.path.join(workdir, "trials.csv")
-        server.run("study", "export", fx.STUDY, "--csv", "-o", path)
+        server.run("campaign", "export", fx.CAMPAIGN, "--csv", "-o", path)
         with open(path, "rb") as f:
             fx.check(f.read() == exported, "-o FILE wrote other bytes than standard output got")
 
-        check_json(server.run("--json", "study", "export", fx.STUDY).stdout, expected)
+        check_json(server.run("--json", "campaign", "export", fx.CAMPAIGN).stdout, expected)
 
-        for bad, message in ((["study", "export", fx.STUDY], b"--csv or --json"),
-                             (["--json", "study", "export", fx.STUDY, "--csv"], b"choose one"),
-                             (["study", "export", fx.STUDY, "--csv", "-o", "/nonexistent/t.csv"], b"/nonexistent")):
+        for bad, message in ((["campaign", "export", fx.CAMPAIGN], b"--csv or --json"),
+                             (["--json", "campaign", "export", fx.CAMPAIGN, "--csv"], b"choose one"),
+                             (["campaign", "export", fx.CAMPAIGN, "--csv", "-o", "/nonexistent/t.csv"], b"/nonexistent")):
             result = server.run(*bad, check_status=False)
             fx.check(result.returncode == 2 and message in result.stderr,
                      "%s: exit %d, %r" % (" ".join(bad), result.returncode, result.stderr))
-        missing = server.run("study", "export", "no-such-study", "--csv", check_status=False)
-        fx.check(missing.returncode == 1 and b"NOT_FOUND" in missing.stderr, "unknown study: %r" % missing.stderr)
+        missing = server.run("campaign", "export", "no-such-campaign", "--csv", check_status=False)
+        fx.check(missing.returncode == 1 and b"NOT_FOUND" in missing.stderr, "unknown campaign: %r" % missing.stderr)
     print("PASS: %d trials exported as CSV and JSON match ListTrials" % len(expected))
     return 0
 

@@ -1,9 +1,9 @@
 #!/usr/bin/python3
-"""`ogive study report` of real studies, rendered by Debian's headless Chromium.
+"""`ogive campaign report` of real campaigns, rendered by Debian's headless Chromium.
 
     /usr/bin/python3 report_render_test.py --ogived PATH --ogive PATH [--keep DIR]
 
-Runs a mixed study and a graded one against a real ogived (study_fixture.py), writes their reports
+Runs a mixed campaign and a graded one against a real ogived (campaign_fixture.py), writes their reports
 and checks:
   - the page is self-contained: no script element, nothing it would load (no src or href, no url()
     but the clip paths', no http:);
@@ -14,7 +14,7 @@ and checks:
   - a screenshot of the page at the layout Chromium reported has, inside every plot's frame, at
     least MIN_INK_PIXELS saturated pixels (the data colours; axes, grid and text are grey), and the
     page as a whole is not blank;
-  - the graded study's best-outcome plot labels its axis with the grades.
+  - the graded campaign's best-outcome plot labels its axis with the grades.
 The layout comes from a copy of the report with a small script that writes each plot frame's
 position into the document title (the report itself has no scripts); Chromium runs it while dumping
 the DOM.
@@ -34,7 +34,7 @@ import sys
 import time
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-import study_fixture as fx  # noqa: E402
+import campaign_fixture as fx  # noqa: E402
 
 SKIP = 77
 WIDTH = 1240
@@ -209,16 +209,16 @@ def main():
 
     started = time.monotonic()
     with fx.temporary_directory() as workdir, fx.Ogived(args.ogived, args.ogive, workdir) as server:
-        note = fx.run_mixed_study(server, workdir)
-        fx.run_graded_study(server, workdir)
+        note = fx.run_mixed_campaign(server, workdir)
+        fx.run_graded_campaign(server, workdir)
         studied = time.monotonic()
 
         mixed = os.path.join(workdir, "mixed.html")
-        server.run("study", "report", fx.STUDY, "-o", mixed)
+        server.run("campaign", "report", fx.CAMPAIGN, "-o", mixed)
         design_parameters = 5
         expected = ["plot-best", "plot-step-size", "plot-axis-ratio", "plot-states", "plot-staleness"] + [
             "plot-parameter-%d" % i for i in range(design_parameters)]
-        parsed, _ = render_and_check(args.chromium, workdir, mixed, expected, "mixed study", screenshot=True)
+        parsed, _ = render_and_check(args.chromium, workdir, mixed, expected, "mixed campaign", screenshot=True)
         text = "".join(parsed.text)
         fx.check("Offset <script>alert('x')</script> & \"more\"" in text,
                  "the description is not shown as text")
@@ -232,10 +232,10 @@ def main():
                      "the trial-state plot has no %r layer" % state)
 
         graded = os.path.join(workdir, "graded.html")
-        server.run("study", "report", fx.GRADED, "-o", graded)
+        server.run("campaign", "report", fx.GRADED, "-o", graded)
         expected = ["plot-best", "plot-step-size", "plot-axis-ratio", "plot-states", "plot-staleness",
                     "plot-parameter-0", "plot-parameter-1"]
-        _, dumped = render_and_check(args.chromium, workdir, graded, expected, "graded study", screenshot=False)
+        _, dumped = render_and_check(args.chromium, workdir, graded, expected, "graded campaign", screenshot=False)
         ticks = dumped.plots["plot-best"]["ticks"]
         for label in ("cracked", "poor", "fair", "good"):
             fx.check(label in ticks, "the graded best-outcome plot has no %r tick: %s" % (label, ticks))
@@ -244,7 +244,7 @@ def main():
             os.makedirs(args.keep, exist_ok=True)
             for name in ("mixed.html", "mixed.png", "graded.html"):
                 shutil.copy(os.path.join(workdir, name), args.keep)
-    print("report_render_test: studies %.1f s, reports and Chromium %.1f s" % (
+    print("report_render_test: campaigns %.1f s, reports and Chromium %.1f s" % (
         studied - started, time.monotonic() - studied))
     print("PASS")
     return 0

@@ -3,11 +3,11 @@
 // tokens made by TokenAdmin as `ogived token create` makes them), driven through the generated stub
 // with hand-set `authorization` metadata and through ogive::client::Client. The Authorizer runs on
 // a hand-driven clock (revocation refreshes and the rate limit are tested without sleeping); the
-// study engine on the real one.
+// campaign engine on the real one.
 //
 // Covers: every role against every method (allowed calls succeed, refused ones get
 // PERMISSION_DENIED and store nothing), missing, malformed and unknown tokens (UNAUTHENTICATED),
-// the health service without a token, study-limited tokens (ListStudies filtered, other studies
+// the health service without a token, campaign-limited tokens (ListCampaigns filtered, other campaigns
 // refused whether they exist or not), revocation in force without a restart (for new calls and an
 // open Watch), the audit labels stored with reports and phase changes (kept across a restart), and
 // the per-token rate limit.
@@ -104,11 +104,11 @@ class AuthServer {
   }
 
   // A new token's `authorization` value, as `ogived token create` would print the token.
-  std::string MakeToken(const std::string& label, const std::string& role, std::vector<std::string> studies = {}) {
+  std::string MakeToken(const std::string& label, const std::string& role, std::vector<std::string> campaigns = {}) {
     v1::CreateTokenRequest request;
     request.set_label(label);
     request.set_role(role);
-    for (const std::string& s : studies) request.add_studies(s);
+    for (const std::string& s : campaigns) request.add_campaigns(s);
     absl::StatusOr<v1::CreateTokenResponse> created = admin_->Create(request);
     EXPECT_TRUE(created.ok()) << created.status();
     return created.ok() ? "Bearer " + created->secret() : "";
@@ -147,31 +147,31 @@ void Prepare(grpc::ClientContext& context, const std::string& authorization) {
   if (!authorization.empty()) context.AddMetadata("authorization", authorization);
 }
 
-v1::StudyDesign Design(const std::string& name) {
-  v1::StudyDesign d;
+v1::CampaignDesign Design(const std::string& name) {
+  v1::CampaignDesign d;
   d.set_name(name);
   v1::Parameter* p = d.add_parameters();
   p->set_name("temp");
   p->mutable_real()->set_low(0);
   p->mutable_real()->set_high(1);
-  d.mutable_objective()->set_direction(v1::LOWER_IS_BETTER);
+  d.mutable_objective()->set_direction(v1::DIRECTION_LOWER_IS_BETTER);
   d.set_seed(3);
   d.set_lease_seconds(600);
   d.set_population_size(4);
   return d;
 }
 
-enum class Call { kCreateStudy, kGetStudy, kListStudies, kAsk, kTell, kRenew, kListTrials, kSetPhase, kWatch };
+enum class Call { kCreateCampaign, kGetCampaign, kListCampaigns, kAsk, kTell, kRenew, kListTrials, kSetPhase, kWatch };
 
 const char* CallName(Call c) {
-  static const char* const kNames[] = {"CreateStudy", "GetStudy",   "ListStudies", "Ask",  "Tell",
+  static const char* const kNames[] = {"CreateCampaign", "GetCampaign",   "ListCampaigns", "Ask",  "Tell",
                                        "Renew",       "ListTrials", "SetPhase",    "Watch"};
   return kNames[static_cast<int>(c)];
 }
 
 // What a test needs to make each call valid.
 struct Fixture {
-  std::string study = "alpha";
+  std::string campaign = "alpha";
   int64_t tell_trial = 0;   // leased, to be reported
   int64_t renew_trial = 0;  // leased to worker "w"
 };
@@ -184,25 +184,25 @@ grpc::Status MakeCall(AuthServer& server, Call call, const std::string& authoriz
   Prepare(context, authorization);
   v1::Ogive::Stub& stub = server.stub();
   switch (call) {
-    case Call::kCreateStudy: {
-      v1::CreateStudyRequest request;
+    case Call::kCreateCampaign: {
+      v1::CreateCampaignRequest request;
       *request.mutable_design() = Design(absl::StrCat("made-by-", label));
-      v1::StudyView response;
-      return stub.CreateStudy(&context, request, &response);
+      v1::CampaignView response;
+      return stub.CreateCampaign(&context, request, &response);
     }
-    case Call::kGetStudy: {
-      v1::GetStudyRequest request;
-      request.set_study(f.study);
-      v1::StudyView response;
-      return stub.GetStudy(&context, request, &response);
+    case Call::kGetCampaign: {
+      v1::GetCampaignRequest request;
+      request.set_campaign(f.campaign);
+      v1::CampaignView response;
+      return stub.GetCampaign(&context, request, &response);
     }
-    case Call::kListStudies: {
-      v1::ListStudiesResponse response;
-      return stub.ListStudies(&context, v1::ListStudiesRequest(), &response);
+    case Call::kListCampaigns: {
+      v1::ListCampaignsResponse response;
+      return stub.ListCampaigns(&context, v1::ListCampaignsRequest(), &response);
     }
     case Call::kAsk: {
       v1::AskRequest request;
-      request.set_study(f.study);
+      request.set_campaign(f.campaign);
       request.set_count(1);
       request.set_worker("w");
       v1::AskResponse response;
@@ -210,7 +210,7 @@ grpc::Status MakeCall(AuthServer& server, Call call, const std::string& authoriz
     }
     case Call::kTell: {
       v1::TellRequest request;
-      request.set_study(f.study);
+      request.set_campaign(f.campaign);
       v1::Report* report = request.add_reports();
       report->set_trial(f.tell_trial);
       report->mutable_outcome()->set_score(0.5);
@@ -223,7 +223,7 @@ grpc::Status MakeCall(AuthServer& server, Call call, const std::string& authoriz
     }
     case Call::kRenew: {
       v1::RenewRequest request;
-      request.set_study(f.study);
+      request.set_campaign(f.campaign);
       request.add_trials(f.renew_trial);
       request.set_worker("w");
       v1::RenewResponse response;
@@ -231,22 +231,22 @@ grpc::Status MakeCall(AuthServer& server, Call call, const std::string& authoriz
     }
     case Call::kListTrials: {
       v1::ListTrialsRequest request;
-      request.set_study(f.study);
+      request.set_campaign(f.campaign);
       v1::ListTrialsResponse response;
       return stub.ListTrials(&context, request, &response);
     }
     case Call::kSetPhase: {
       v1::SetPhaseRequest request;
-      request.set_study(f.study);
-      request.set_command(v1::PHASE_COMMAND_RESUME);  // the study is open: allowed, changes nothing
-      v1::StudyView response;
+      request.set_campaign(f.campaign);
+      request.set_command(v1::PHASE_COMMAND_RESUME);  // the campaign is open: allowed, changes nothing
+      v1::CampaignView response;
       return stub.SetPhase(&context, request, &response);
     }
     case Call::kWatch: {
       v1::WatchRequest request;
-      request.set_study(f.study);
-      std::unique_ptr<grpc::ClientReader<v1::StudyView>> reader = stub.Watch(&context, request);
-      v1::StudyView view;
+      request.set_campaign(f.campaign);
+      std::unique_ptr<grpc::ClientReader<v1::CampaignView>> reader = stub.Watch(&context, request);
+      v1::CampaignView view;
       if (reader->Read(&view)) {
         context.TryCancel();
         (void)reader->Finish();
@@ -293,7 +293,7 @@ TEST_F(AuthTest, EachRoleCallsExactlyItsMethods) {
                                                      {"worker", server_->MakeToken("farm", "worker")},
                                                      {"admin", server_->MakeToken("alice", "admin")}};
   std::unique_ptr<client::Client> admin = ClientWith(tokens.at("admin"));
-  ASSERT_TRUE(admin->CreateStudy(Design("alpha")).ok());
+  ASSERT_TRUE(admin->CreateCampaign(Design("alpha")).ok());
   absl::StatusOr<v1::AskResponse> asked = admin->Ask("alpha", 2, "w");
   ASSERT_TRUE(asked.ok()) << asked.status();
   Fixture f;
@@ -301,14 +301,14 @@ TEST_F(AuthTest, EachRoleCallsExactlyItsMethods) {
   f.renew_trial = asked->trials(1).number();
 
   // The table, written out: reader reads; worker also asks, tells and renews; admin also
-  // creates studies and changes phases. Readers and workers try first, so a refused Tell would have
+  // creates campaigns and changes phases. Readers and workers try first, so a refused Tell would have
   // been the first to report the trial.
   const std::map<std::string, std::vector<Call>> allowed = {
-      {"reader", {Call::kGetStudy, Call::kListStudies, Call::kListTrials, Call::kWatch}},
-      {"worker", {Call::kGetStudy, Call::kListStudies, Call::kListTrials, Call::kWatch, Call::kAsk, Call::kTell,
+      {"reader", {Call::kGetCampaign, Call::kListCampaigns, Call::kListTrials, Call::kWatch}},
+      {"worker", {Call::kGetCampaign, Call::kListCampaigns, Call::kListTrials, Call::kWatch, Call::kAsk, Call::kTell,
                   Call::kRenew}},
-      {"admin", {Call::kGetStudy, Call::kListStudies, Call::kListTrials, Call::kWatch, Call::kAsk, Call::kTell,
-                 Call::kRenew, Call::kCreateStudy, Call::kSetPhase}}};
+      {"admin", {Call::kGetCampaign, Call::kListCampaigns, Call::kListTrials, Call::kWatch, Call::kAsk, Call::kTell,
+                 Call::kRenew, Call::kCreateCampaign, Call::kSetPhase}}};
   const std::map<std::string, std::string> labels = {{"reader", "viewer"}, {"worker", "farm"}, {"admin", "alice"}};
   for (const std::string role : {"reader", "worker", "admin"}) {
     for (int c = 0; c <= static_cast<int>(Call::kWatch); ++c) {
@@ -326,12 +326,12 @@ TEST_F(AuthTest, EachRoleCallsExactlyItsMethods) {
       }
     }
   }
-  // Refused calls stored nothing: the reader made no study and told nothing; the trial was reported
+  // Refused calls stored nothing: the reader made no campaign and told nothing; the trial was reported
   // by the worker, the first role allowed to.
-  absl::StatusOr<v1::ListStudiesResponse> studies = admin->ListStudies();
-  ASSERT_TRUE(studies.ok());
+  absl::StatusOr<v1::ListCampaignsResponse> campaigns = admin->ListCampaigns();
+  ASSERT_TRUE(campaigns.ok());
   std::vector<std::string> names;
-  for (const v1::StudyView& v : studies->studies()) names.push_back(v.name());
+  for (const v1::CampaignView& v : campaigns->campaigns()) names.push_back(v.name());
   EXPECT_THAT(names, ElementsAre("alpha", "made-by-alice"));
   absl::StatusOr<std::vector<v1::Trial>> trials = admin->ListAllTrials("alpha");
   ASSERT_TRUE(trials.ok());
@@ -341,34 +341,34 @@ TEST_F(AuthTest, EachRoleCallsExactlyItsMethods) {
 TEST_F(AuthTest, MissingMalformedAndUnknownTokensAreUnauthenticated) {
   server_->Start();
   const std::string admin_token = server_->MakeToken("alice", "admin");
-  ASSERT_TRUE(ClientWith(admin_token)->CreateStudy(Design("alpha")).ok());
+  ASSERT_TRUE(ClientWith(admin_token)->CreateCampaign(Design("alpha")).ok());
   Fixture f;
-  EXPECT_THAT(MakeCall(*server_, Call::kGetStudy, "", f, ""),
+  EXPECT_THAT(MakeCall(*server_, Call::kGetCampaign, "", f, ""),
               GrpcStatusIs(grpc::StatusCode::UNAUTHENTICATED,
-                           AllOf(HasSubstr("GetStudy needs a token"), HasSubstr("authorization: Bearer"))));
+                           AllOf(HasSubstr("GetCampaign needs a token"), HasSubstr("authorization: Bearer"))));
   EXPECT_THAT(MakeCall(*server_, Call::kWatch, "", f, ""), GrpcStatusIs(grpc::StatusCode::UNAUTHENTICATED, _));
   EXPECT_THAT(MakeCall(*server_, Call::kAsk, "Basic QWxhZGRpbjpvcGVuIHNlc2FtZQ==", f, ""),
               GrpcStatusIs(grpc::StatusCode::UNAUTHENTICATED, HasSubstr("expected 'Bearer <token>' (RFC 6750)")));
   EXPECT_THAT(MakeCall(*server_, Call::kAsk, admin_token.substr(7), f, ""),  // the token without a scheme
               GrpcStatusIs(grpc::StatusCode::UNAUTHENTICATED, HasSubstr("expected 'Bearer <token>'")));
-  EXPECT_THAT(MakeCall(*server_, Call::kListStudies, "Bearer ogt_aaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaa", f, ""),
+  EXPECT_THAT(MakeCall(*server_, Call::kListCampaigns, "Bearer ogt_aaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaa", f, ""),
               GrpcStatusIs(grpc::StatusCode::UNAUTHENTICATED, HasSubstr("knows no such token")));
   {  // Two authorization values.
     grpc::ClientContext context;
     Prepare(context, admin_token);
     context.AddMetadata("authorization", admin_token);
-    v1::ListStudiesResponse response;
-    EXPECT_THAT(server_->stub().ListStudies(&context, v1::ListStudiesRequest(), &response),
+    v1::ListCampaignsResponse response;
+    EXPECT_THAT(server_->stub().ListCampaigns(&context, v1::ListCampaignsRequest(), &response),
                 GrpcStatusIs(grpc::StatusCode::UNAUTHENTICATED, HasSubstr("sent 2 times")));
   }
   // An unauthenticated write stores nothing.
   f.tell_trial = 1;
   EXPECT_THAT(MakeCall(*server_, Call::kAsk, "", f, ""), GrpcStatusIs(grpc::StatusCode::UNAUTHENTICATED, _));
-  absl::StatusOr<v1::StudyView> view = ClientWith(admin_token)->GetStudy("alpha");
+  absl::StatusOr<v1::CampaignView> view = ClientWith(admin_token)->GetCampaign("alpha");
   ASSERT_TRUE(view.ok());
   EXPECT_EQ(view->status().leased(), 0);
   // The scheme is case-insensitive (RFC 7235 section 2.1).
-  EXPECT_TRUE(MakeCall(*server_, Call::kGetStudy, "bearer " + admin_token.substr(7), f, "").ok());
+  EXPECT_TRUE(MakeCall(*server_, Call::kGetCampaign, "bearer " + admin_token.substr(7), f, "").ok());
 }
 
 TEST_F(AuthTest, TheHealthServiceAnswersWithoutAToken) {
@@ -382,33 +382,33 @@ TEST_F(AuthTest, TheHealthServiceAnswersWithoutAToken) {
   EXPECT_EQ(response.status(), grpc::health::v1::HealthCheckResponse::SERVING);
 }
 
-TEST_F(AuthTest, AStudyLimitedTokenSeesAndUsesOnlyItsStudies) {
+TEST_F(AuthTest, ACampaignLimitedTokenSeesAndUsesOnlyItsCampaigns) {
   server_->Start();
   std::unique_ptr<client::Client> admin = ClientWith(server_->MakeToken("alice", "admin"));
-  ASSERT_TRUE(admin->CreateStudy(Design("alpha")).ok());
-  ASSERT_TRUE(admin->CreateStudy(Design("beta")).ok());
+  ASSERT_TRUE(admin->CreateCampaign(Design("alpha")).ok());
+  ASSERT_TRUE(admin->CreateCampaign(Design("beta")).ok());
   std::unique_ptr<client::Client> line = ClientWith(server_->MakeToken("line-a", "worker", {"alpha", "gamma"}));
 
-  absl::StatusOr<v1::ListStudiesResponse> listed = line->ListStudies();
+  absl::StatusOr<v1::ListCampaignsResponse> listed = line->ListCampaigns();
   ASSERT_TRUE(listed.ok()) << listed.status();
-  ASSERT_EQ(listed->studies_size(), 1);
-  EXPECT_EQ(listed->studies(0).name(), "alpha");
+  ASSERT_EQ(listed->campaigns_size(), 1);
+  EXPECT_EQ(listed->campaigns(0).name(), "alpha");
   EXPECT_TRUE(line->Ask("alpha", 1, "w").ok());
-  EXPECT_THAT(line->Ask("beta", 1, "w").status().message(), HasSubstr("study 'beta': token 'line-a' is limited"));
-  EXPECT_EQ(line->GetStudy("beta").status().code(), absl::StatusCode::kPermissionDenied);
-  // A study outside the scope is refused whether it exists or not: the token learns nothing.
-  EXPECT_EQ(line->GetStudy("delta").status().code(), absl::StatusCode::kPermissionDenied);
-  // Inside the scope, a study that does not exist yet is NOT_FOUND as usual.
-  EXPECT_EQ(line->GetStudy("gamma").status().code(), absl::StatusCode::kNotFound);
+  EXPECT_THAT(line->Ask("beta", 1, "w").status().message(), HasSubstr("campaign 'beta': token 'line-a' is limited"));
+  EXPECT_EQ(line->GetCampaign("beta").status().code(), absl::StatusCode::kPermissionDenied);
+  // A campaign outside the scope is refused whether it exists or not: the token learns nothing.
+  EXPECT_EQ(line->GetCampaign("delta").status().code(), absl::StatusCode::kPermissionDenied);
+  // Inside the scope, a campaign that does not exist yet is NOT_FOUND as usual.
+  EXPECT_EQ(line->GetCampaign("gamma").status().code(), absl::StatusCode::kNotFound);
 
-  // A limited admin may create the studies of its scope only.
+  // A limited admin may create the campaigns of its scope only.
   std::unique_ptr<client::Client> owner = ClientWith(server_->MakeToken("gamma-owner", "admin", {"gamma"}));
-  EXPECT_TRUE(owner->CreateStudy(Design("gamma")).ok());
-  EXPECT_EQ(owner->CreateStudy(Design("epsilon")).status().code(), absl::StatusCode::kPermissionDenied);
+  EXPECT_TRUE(owner->CreateCampaign(Design("gamma")).ok());
+  EXPECT_EQ(owner->CreateCampaign(Design("epsilon")).status().code(), absl::StatusCode::kPermissionDenied);
   EXPECT_EQ(owner->SetPhase("alpha", v1::PHASE_COMMAND_PAUSE).status().code(), absl::StatusCode::kPermissionDenied);
-  absl::StatusOr<v1::StudyView> alpha = admin->GetStudy("alpha");
+  absl::StatusOr<v1::CampaignView> alpha = admin->GetCampaign("alpha");
   ASSERT_TRUE(alpha.ok());
-  EXPECT_EQ(alpha->status().phase(), v1::STUDY_PHASE_OPEN);
+  EXPECT_EQ(alpha->status().phase(), v1::CAMPAIGN_PHASE_OPEN);
 }
 
 TEST_F(AuthTest, ARevokedTokenIsRefusedWithoutARestart) {
@@ -416,31 +416,31 @@ TEST_F(AuthTest, ARevokedTokenIsRefusedWithoutARestart) {
   options.refresh_interval = absl::Seconds(5);
   server_->Start(options);
   std::unique_ptr<client::Client> admin = ClientWith(server_->MakeToken("alice", "admin"));
-  ASSERT_TRUE(admin->CreateStudy(Design("alpha")).ok());
+  ASSERT_TRUE(admin->CreateCampaign(Design("alpha")).ok());
 
   // Through the server (as `ogived token revoke` does while a server runs): at once.
   std::unique_ptr<client::Client> temp = ClientWith(server_->MakeToken("temp", "worker"));
   ASSERT_TRUE(temp->Ask("alpha", 1, "w").ok());
   server_->Revoke("temp");
   EXPECT_THAT(temp->Ask("alpha", 1, "w").status().message(), HasSubstr("the token 'temp' was revoked"));
-  EXPECT_EQ(temp->GetStudy("alpha").status().code(), absl::StatusCode::kUnauthenticated);
+  EXPECT_EQ(temp->GetCampaign("alpha").status().code(), absl::StatusCode::kUnauthenticated);
 
   // Written to the table some other way: within the refresh interval.
   std::unique_ptr<client::Client> other = ClientWith(server_->MakeToken("other", "reader"));
-  ASSERT_TRUE(other->GetStudy("alpha").ok());
+  ASSERT_TRUE(other->GetCampaign("alpha").ok());
   ASSERT_TRUE(server_->store().RevokeToken("other", absl::ToUnixNanos(server_->now())).ok());
-  EXPECT_TRUE(other->GetStudy("alpha").ok());
+  EXPECT_TRUE(other->GetCampaign("alpha").ok());
   server_->Advance(absl::Seconds(5));
-  EXPECT_EQ(other->GetStudy("alpha").status().code(), absl::StatusCode::kUnauthenticated);
+  EXPECT_EQ(other->GetCampaign("alpha").status().code(), absl::StatusCode::kUnauthenticated);
 
   // An open Watch ends once its token is revoked.
   const std::string watcher = server_->MakeToken("watcher", "reader");
   grpc::ClientContext context;
   Prepare(context, watcher);
   v1::WatchRequest request;
-  request.set_study("alpha");
-  std::unique_ptr<grpc::ClientReader<v1::StudyView>> reader = server_->stub().Watch(&context, request);
-  v1::StudyView view;
+  request.set_campaign("alpha");
+  std::unique_ptr<grpc::ClientReader<v1::CampaignView>> reader = server_->stub().Watch(&context, request);
+  v1::CampaignView view;
   ASSERT_TRUE(reader->Read(&view));
   const absl::Time revoked_at = absl::Now();
   server_->Revoke("watcher");
@@ -455,7 +455,7 @@ TEST_F(AuthTest, ReportsAndPhaseChangesRecordTheTokenLabel) {
   std::unique_ptr<client::Client> admin = ClientWith(server_->MakeToken("alice", "admin"));
   std::unique_ptr<client::Client> farm = ClientWith(server_->MakeToken("farm-a", "worker"));
   std::unique_ptr<client::Client> second = ClientWith(server_->MakeToken("farm-b", "worker"));
-  ASSERT_TRUE(admin->CreateStudy(Design("alpha")).ok());
+  ASSERT_TRUE(admin->CreateCampaign(Design("alpha")).ok());
   absl::StatusOr<v1::AskResponse> asked = farm->Ask("alpha", 2, "node-1");
   ASSERT_TRUE(asked.ok());
   v1::Report report;
@@ -473,7 +473,7 @@ TEST_F(AuthTest, ReportsAndPhaseChangesRecordTheTokenLabel) {
     ASSERT_TRUE(trials.ok()) << when;
     EXPECT_EQ((*trials)[0].reported_by(), "farm-a") << when;
     EXPECT_EQ((*trials)[1].reported_by(), "") << when << ": not reported";
-    absl::StatusOr<v1::StudyView> view = admin->GetStudy("alpha");
+    absl::StatusOr<v1::CampaignView> view = admin->GetCampaign("alpha");
     ASSERT_TRUE(view.ok());
     EXPECT_EQ(view->status().best().reported_by(), "farm-a") << when;
   };
@@ -500,15 +500,15 @@ TEST_F(AuthTest, EachTokenIsHeldToItsRequestRate) {
   const std::string busy = server_->MakeToken("busy", "admin");
   const std::string calm = server_->MakeToken("calm", "reader");
   Fixture f;
-  EXPECT_TRUE(MakeCall(*server_, Call::kListStudies, busy, f, "").ok());
-  EXPECT_TRUE(MakeCall(*server_, Call::kListStudies, busy, f, "").ok());
-  EXPECT_THAT(MakeCall(*server_, Call::kListStudies, busy, f, ""),
+  EXPECT_TRUE(MakeCall(*server_, Call::kListCampaigns, busy, f, "").ok());
+  EXPECT_TRUE(MakeCall(*server_, Call::kListCampaigns, busy, f, "").ok());
+  EXPECT_THAT(MakeCall(*server_, Call::kListCampaigns, busy, f, ""),
               GrpcStatusIs(grpc::StatusCode::RESOURCE_EXHAUSTED,
                            AllOf(HasSubstr("token 'busy'"), HasSubstr("--max-requests-per-second-per-token"))));
-  EXPECT_TRUE(MakeCall(*server_, Call::kListStudies, calm, f, "").ok());
+  EXPECT_TRUE(MakeCall(*server_, Call::kListCampaigns, calm, f, "").ok());
   server_->Advance(absl::Seconds(1));
-  EXPECT_TRUE(MakeCall(*server_, Call::kListStudies, busy, f, "").ok());
-  EXPECT_EQ(MakeCall(*server_, Call::kListStudies, busy, f, "").error_code(), grpc::StatusCode::RESOURCE_EXHAUSTED);
+  EXPECT_TRUE(MakeCall(*server_, Call::kListCampaigns, busy, f, "").ok());
+  EXPECT_EQ(MakeCall(*server_, Call::kListCampaigns, busy, f, "").error_code(), grpc::StatusCode::RESOURCE_EXHAUSTED);
 }
 
 }  // namespace

@@ -3,11 +3,11 @@
 #
 #   backup_test.sh PATH/TO/ogived PATH/TO/ogive
 #
-# Starts ogived on a temporary database and a free loopback port, creates a study, asks and tells a
+# Starts ogived on a temporary database and a free loopback port, creates a campaign, asks and tells a
 # few trials, and backs the database up while the server runs. Checks the refusals (an existing
 # destination, a missing database, a file that is not a database, missing options) and that they
 # leave no file behind. Then takes a second backup while a worker keeps asking and telling. Stops
-# the server, and "restores": ogived started on a copy of the first backup shows the same study and
+# the server, and "restores": ogived started on a copy of the first backup shows the same campaign and
 # the same trials as the live server did when the backup was taken (compared as data); the backups
 # are single files (journal_mode delete) that pass PRAGMA integrity_check, and the one taken under
 # load serves too. Every step is bounded in time.
@@ -23,7 +23,7 @@ start_server() {  # DB
   "$OGIVED" --db "$1" --listen "$SERVER" --no-auth >>"$TMP/ogived.log" 2>&1 &
   OGIVED_PID=$!
   for _ in $(seq 100); do
-    timeout 5 "$OGIVE" --server "$SERVER" --timeout 1 study list >/dev/null 2>&1 && return 0
+    timeout 5 "$OGIVE" --server "$SERVER" --timeout 1 campaign list >/dev/null 2>&1 && return 0
     kill -0 "$OGIVED_PID" 2>/dev/null || fail "ogived exited at start on $1"
     sleep 0.1
   done
@@ -39,18 +39,18 @@ stop_server() {
 }
 backup() { timeout 60 "$OGIVED" backup "$@"; }
 
-step "start ogived, create a study, ask and tell"
+step "start ogived, create a campaign, ask and tell"
 start_server "$TMP/live.db"
 cat >"$TMP/design.txtpb" <<'EOF2'
 name: "kept"
 parameters { name: "flow" unit: "l/min" real { low: 1 high: 9 } }
 parameters { name: "stages" integer { low: 1 high: 4 } }
 parameters { name: "coat" categorical { options: "none" options: "thin" options: "thick" } }
-objective { direction: LOWER_IS_BETTER }
+objective { direction: DIRECTION_LOWER_IS_BETTER }
 population_size: 4
 seed: 21
 EOF2
-ogive study create "$TMP/design.txtpb" >/dev/null
+ogive campaign create "$TMP/design.txtpb" >/dev/null
 for i in $(seq 9); do
   n=$(ogive ask kept --worker w --json | first_number)
   ogive tell kept "$n" --score "$i.5" >/dev/null
@@ -60,8 +60,8 @@ held=$(ogive ask kept --worker w --json | first_number)  # left leased
 step "ogived backup while the server runs"
 backup --db "$TMP/live.db" --to "$TMP/first.db" >"$TMP/backup.out" 2>&1 || fail "backup: $(cat "$TMP/backup.out")"
 grep -q "copied '$TMP/live.db' to '$TMP/first.db'" "$TMP/backup.out" || fail "backup printed: $(cat "$TMP/backup.out")"
-ogive study show kept --json >"$TMP/show.json"
-ogive study trials kept --json >"$TMP/trials.json"
+ogive campaign show kept --json >"$TMP/show.json"
+ogive campaign trials kept --json >"$TMP/trials.json"
 
 step "refusals: existing destination, missing database, not a database, usage; nothing left behind"
 rc=0; backup --db "$TMP/live.db" --to "$TMP/first.db" >"$TMP/r.out" 2>&1 || rc=$?
@@ -117,8 +117,8 @@ step "restore: ogived on a copy of the first backup shows what the live server s
 mkdir "$TMP/restore"
 cp "$TMP/first.db" "$TMP/restore/ogive.db"  # the backup is not live: a file copy of it is fine
 start_server "$TMP/restore/ogive.db"
-ogive study show kept --json >"$TMP/show.restored.json"
-ogive study trials kept --json >"$TMP/trials.restored.json"
+ogive campaign show kept --json >"$TMP/show.restored.json"
+ogive campaign trials kept --json >"$TMP/trials.restored.json"
 "$PY" - "$TMP" "$held" <<'EOF2' || fail "restored state differs"
 import json, sys
 d, held = sys.argv[1], sys.argv[2]
@@ -128,7 +128,7 @@ trials, restored_trials = load("trials.json"), load("trials.restored.json")
 for view in (show, restored):  # recent activity is dated by the clock and asks are not stored
     for key in ("asOfUnixMs", "workers", "reportsLastHour"):
         view["status"].pop(key, None)
-assert show == restored, "study show differs"
+assert show == restored, "campaign show differs"
 assert trials == restored_trials, "trials differ"
 assert len(trials) == 10 and trials[-1]["number"] == held and trials[-1]["state"] == "TRIAL_STATE_LEASED", trials[-1]
 print("   %d trials, generation %s" % (len(trials), show["status"]["generation"]))
@@ -140,7 +140,7 @@ step "the backup taken under load serves too"
 mkdir "$TMP/restore2"
 cp "$TMP/loaded.db" "$TMP/restore2/ogive.db"
 start_server "$TMP/restore2/ogive.db"
-count=$(ogive study trials kept --json | "$PY" -c 'import json,sys; print(len(json.load(sys.stdin)))')
+count=$(ogive campaign trials kept --json | "$PY" -c 'import json,sys; print(len(json.load(sys.stdin)))')
 [[ "$count" -ge 13 ]] || fail "the backup under load holds $count trials (3 or more told before it began)"
 echo "   $count trials"
 stop_server

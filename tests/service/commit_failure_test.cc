@@ -1,4 +1,4 @@
-// A study whose commit fails: the request gets UNAVAILABLE, nothing of it is stored, the study goes
+// A campaign whose commit fails: the request gets UNAVAILABLE, nothing of it is stored, the campaign goes
 // back to what the database holds, and the next request succeeds. Two ways in (STYLE: fake the
 // environment, not the logic): a store wrapper that fails one chosen commit, and a real SqliteStore
 // over FaultVfs (tests/support/fault_vfs.h), whose disk fails beneath SQLite — a failed log write, a
@@ -42,7 +42,7 @@ class FaultyStore final : public testing::ForwardingStore {
   using ForwardingStore::ForwardingStore;
   void FailNextCommit() { fail_next_ = true; }
 
-  std::unique_ptr<storage::PendingCommit> CommitAsync(storage::StudyWrite write) override {
+  std::unique_ptr<storage::PendingCommit> CommitAsync(storage::CampaignWrite write) override {
     if (!fail_next_) return real()->CommitAsync(std::move(write));
     fail_next_ = false;
     write.trials.emplace_back().set_number(1);
@@ -66,8 +66,8 @@ class FaultyStore final : public testing::ForwardingStore {
   bool fail_next_ = false;
 };
 
-v1::StudyDesign Design() {
-  v1::StudyDesign d;
+v1::CampaignDesign Design() {
+  v1::CampaignDesign d;
   d.set_name("kiln-fault");
   for (const char* name : {"peak_temp", "soak"}) {
     v1::Parameter* p = d.add_parameters();
@@ -75,12 +75,12 @@ v1::StudyDesign Design() {
     p->mutable_real()->set_low(0);
     p->mutable_real()->set_high(10);
   }
-  d.mutable_objective()->set_direction(v1::LOWER_IS_BETTER);
+  d.mutable_objective()->set_direction(v1::DIRECTION_LOWER_IS_BETTER);
   d.set_seed(5);
   return d;
 }
 
-TEST(CommitFailureTest, AFailedCommitStoresNothingAndTheStudyKeepsServing) {
+TEST(CommitFailureTest, AFailedCommitStoresNothingAndTheCampaignKeepsServing) {
   const std::string dir = ::testing::TempDir() + "/commit_failure_" + std::to_string(::getpid());
   std::filesystem::create_directories(dir);
   const std::string path = dir + "/fault.db";
@@ -91,18 +91,18 @@ TEST(CommitFailureTest, AFailedCommitStoresNothingAndTheStudyKeepsServing) {
   Registry registry(&store, ServiceLimits());
   const absl::Time now = absl::FromUnixSeconds(1800000000);
 
-  v1::CreateStudyRequest create;
+  v1::CreateCampaignRequest create;
   *create.mutable_design() = Design();
-  ASSERT_TRUE(CreateStudy(registry, create).ok());
+  ASSERT_TRUE(CreateCampaign(registry, create).ok());
   v1::AskRequest ask;
-  ask.set_study("kiln-fault");
+  ask.set_campaign("kiln-fault");
   ask.set_count(3);
   ask.set_worker("kiln-1");
   absl::StatusOr<v1::AskResponse> asked = Ask(registry, ask, now);
   ASSERT_TRUE(asked.ok()) << asked.status();
 
   v1::TellRequest tell;
-  tell.set_study("kiln-fault");
+  tell.set_campaign("kiln-fault");
   v1::Report* report = tell.add_reports();
   report->set_trial(asked->trials(0).number());
   report->mutable_outcome()->set_score(2.5);
@@ -112,9 +112,9 @@ TEST(CommitFailureTest, AFailedCommitStoresNothingAndTheStudyKeepsServing) {
   EXPECT_EQ(failed.status().code(), absl::StatusCode::kUnavailable) << failed.status();
 
   // Memory went back to the database: the trial is still leased, nothing counts as reported.
-  v1::GetStudyRequest get;
-  get.set_study("kiln-fault");
-  absl::StatusOr<v1::StudyView> view = GetStudy(registry, get);
+  v1::GetCampaignRequest get;
+  get.set_campaign("kiln-fault");
+  absl::StatusOr<v1::CampaignView> view = GetCampaign(registry, get);
   ASSERT_TRUE(view.ok());
   EXPECT_EQ(view->status().reported(), 0);
   EXPECT_EQ(view->status().leased(), 3);
@@ -122,7 +122,7 @@ TEST(CommitFailureTest, AFailedCommitStoresNothingAndTheStudyKeepsServing) {
   ASSERT_TRUE(stored.ok());
   EXPECT_TRUE(stored->trials.empty());
 
-  // The retry succeeds and is stored; a restarted registry sees exactly the same study.
+  // The retry succeeds and is stored; a restarted registry sees exactly the same campaign.
   absl::StatusOr<v1::TellResponse> retried = Tell(registry, tell, now + absl::Seconds(1));
   ASSERT_TRUE(retried.ok()) << retried.status();
   EXPECT_EQ(retried->results(0).code(), 0);
@@ -133,11 +133,11 @@ TEST(CommitFailureTest, AFailedCommitStoresNothingAndTheStudyKeepsServing) {
 
   Registry restarted(&store, ServiceLimits());
   ASSERT_TRUE(restarted.LoadAll().ok());
-  absl::StatusOr<v1::StudyView> before = GetStudy(registry, get);
-  absl::StatusOr<v1::StudyView> after = GetStudy(restarted, get);
+  absl::StatusOr<v1::CampaignView> before = GetCampaign(registry, get);
+  absl::StatusOr<v1::CampaignView> after = GetCampaign(restarted, get);
   ASSERT_TRUE(before.ok() && after.ok());
   // Recent activity is dated by the clock and asks are kept in memory only: not compared.
-  for (v1::StudyView* compared : {&*before, &*after}) {
+  for (v1::CampaignView* compared : {&*before, &*after}) {
     testing::ClearActivity(compared->mutable_status());
   }
   // Compared as data: map fields (candidate values) serialize in no fixed order.
@@ -156,13 +156,13 @@ using ::testing::AllOf;
 using ::testing::HasSubstr;
 
 constexpr char kVfs[] = "ogive-fault-service";
-constexpr char kStudy[] = "kiln-disk";
+constexpr char kCampaign[] = "kiln-disk";
 
 bool Same(const google::protobuf::Message& a, const google::protobuf::Message& b) {
   return google::protobuf::util::MessageDifferencer::Equals(a, b);
 }
 
-// One kind of failure, as the study meets it.
+// One kind of failure, as the campaign meets it.
 struct DiskFailure {
   const char* name;
   FaultRule rule;     // armed for every write (times = kForever) while the failure lasts
@@ -176,9 +176,9 @@ struct WriteRequest {
   std::function<absl::Status(Registry&, absl::Time)> run;
 };
 
-// Everything a client can read of the study (its view and every trial), and what the file holds.
-struct StudyState {
-  v1::StudyView view;
+// Everything a client can read of the campaign (its view and every trial), and what the file holds.
+struct CampaignState {
+  v1::CampaignView view;
   v1::ListTrialsResponse trials;
   std::string stored;  // the stored snapshot, generations and events, as bytes
 };
@@ -198,20 +198,20 @@ class DiskFailureTest : public ::testing::TestWithParam<std::tuple<DiskFailure, 
     store_ = *std::move(store);
     registry_ = std::make_unique<Registry>(store_.get(), ServiceLimits());
 
-    // A study with 3 reports pending and one to go before an update (population 4), 4 trials leased.
-    v1::CreateStudyRequest create;
+    // A campaign with 3 reports pending and one to go before an update (population 4), 4 trials leased.
+    v1::CreateCampaignRequest create;
     *create.mutable_design() = Design();
-    create.mutable_design()->set_name(kStudy);
+    create.mutable_design()->set_name(kCampaign);
     create.mutable_design()->set_population_size(4);
-    ASSERT_TRUE(CreateStudy(*registry_, create).ok());
+    ASSERT_TRUE(CreateCampaign(*registry_, create).ok());
     v1::AskRequest ask;
-    ask.set_study(kStudy);
+    ask.set_campaign(kCampaign);
     ask.set_count(8);
     ask.set_worker("kiln-1");
     absl::StatusOr<v1::AskResponse> asked = Ask(*registry_, ask, now_);
     ASSERT_TRUE(asked.ok()) << asked.status();
     v1::TellRequest tell;
-    tell.set_study(kStudy);
+    tell.set_campaign(kCampaign);
     for (int64_t trial : {1, 2, 3}) {
       v1::Report* r = tell.add_reports();
       r->set_trial(trial);
@@ -228,20 +228,20 @@ class DiskFailureTest : public ::testing::TestWithParam<std::tuple<DiskFailure, 
     std::filesystem::remove_all(dir_, error);
   }
 
-  StudyState Read(Registry& registry) {
-    StudyState state;
-    v1::GetStudyRequest get;
-    get.set_study(kStudy);
-    absl::StatusOr<v1::StudyView> view = GetStudy(registry, get);
+  CampaignState Read(Registry& registry) {
+    CampaignState state;
+    v1::GetCampaignRequest get;
+    get.set_campaign(kCampaign);
+    absl::StatusOr<v1::CampaignView> view = GetCampaign(registry, get);
     EXPECT_TRUE(view.ok()) << view.status();
     if (view.ok()) state.view = *view;
     v1::ListTrialsRequest list;
-    list.set_study(kStudy);
+    list.set_campaign(kCampaign);
     list.set_page_size(1000);
     absl::StatusOr<v1::ListTrialsResponse> trials = ListTrials(registry, list);
     EXPECT_TRUE(trials.ok()) << trials.status();
     if (trials.ok()) state.trials = *trials;
-    absl::StatusOr<storage::StoredStudy> stored = store_->LoadStudy(1);
+    absl::StatusOr<storage::StoredCampaign> stored = store_->LoadCampaign(1);
     absl::StatusOr<std::vector<v1::GenerationSummary>> generations = store_->ListGenerations(1);
     absl::StatusOr<std::vector<storage::Event>> events = store_->ListEvents(1, 100000);
     EXPECT_TRUE(stored.ok() && generations.ok() && events.ok());
@@ -255,10 +255,10 @@ class DiskFailureTest : public ::testing::TestWithParam<std::tuple<DiskFailure, 
     return state;
   }
 
-  void ExpectSame(const StudyState& a, const StudyState& b) {
+  void ExpectSame(const CampaignState& a, const CampaignState& b) {
     // Recent activity is dated by the clock and asks are kept in memory only: not compared.
-    v1::StudyView va = a.view, vb = b.view;
-    for (v1::StudyView* v : {&va, &vb}) {
+    v1::CampaignView va = a.view, vb = b.view;
+    for (v1::CampaignView* v : {&va, &vb}) {
       testing::ClearActivity(v->mutable_status());
     }
     EXPECT_TRUE(Same(va, vb)) << va.DebugString() << "\nvs\n" << vb.DebugString();
@@ -293,7 +293,7 @@ class WriteLockHolder {
 TEST_P(DiskFailureTest, TheRequestFailsClearlyReadsGoOnAndWritesResumeAfterwards) {
   const auto& [failure, request] = GetParam();
   FaultVfs& vfs = FaultVfs::Get(kVfs);
-  const StudyState before = Read(*registry_);
+  const CampaignState before = Read(*registry_);
   const absl::Time at = now_ + absl::Seconds(1);
   {
     std::unique_ptr<WriteLockHolder> lock;
@@ -303,7 +303,7 @@ TEST_P(DiskFailureTest, TheRequestFailsClearlyReadsGoOnAndWritesResumeAfterwards
       vfs.Arm(failure.rule);
     }
     // While the failure lasts, the request fails with UNAVAILABLE naming the database and the
-    // cause, however often it is tried; the study reads as before, in memory and on disk.
+    // cause, however often it is tried; the campaign reads as before, in memory and on disk.
     for (int attempt = 0; attempt < 2; ++attempt) {
       const absl::Status failed = request.run(*registry_, at);
       EXPECT_EQ(failed.code(), absl::StatusCode::kUnavailable) << failed;
@@ -319,7 +319,7 @@ TEST_P(DiskFailureTest, TheRequestFailsClearlyReadsGoOnAndWritesResumeAfterwards
   // what the live one serves.
   const absl::Status retried = request.run(*registry_, at);
   ASSERT_TRUE(retried.ok()) << retried;
-  const StudyState after = Read(*registry_);
+  const CampaignState after = Read(*registry_);
   EXPECT_FALSE(Same(after.view, before.view)) << "the request changed nothing";
   Registry restarted(store_.get(), ServiceLimits());
   ASSERT_TRUE(restarted.LoadAll().ok());
@@ -340,7 +340,7 @@ const WriteRequest kWriteRequests[] = {
     {"tell_completing_a_cohort",
      [](Registry& registry, absl::Time now) {
        v1::TellRequest tell;
-       tell.set_study(kStudy);
+       tell.set_campaign(kCampaign);
        v1::Report* r = tell.add_reports();
        r->set_trial(4);
        r->mutable_outcome()->set_score(9.0);
@@ -349,7 +349,7 @@ const WriteRequest kWriteRequests[] = {
     {"ask_with_a_request_id",
      [](Registry& registry, absl::Time now) {
        v1::AskRequest ask;
-       ask.set_study(kStudy);
+       ask.set_campaign(kCampaign);
        ask.set_count(2);
        ask.set_worker("kiln-2");
        ask.set_request_id("ask-during-the-failure");
@@ -357,14 +357,14 @@ const WriteRequest kWriteRequests[] = {
      }},
     {"lease_sweep",
      [](Registry& registry, absl::Time now) {
-       absl::StatusOr<std::shared_ptr<StudyHost>> host = registry.Find(kStudy);
+       absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(kCampaign);
        if (!host.ok()) return host.status();
        return (*host)->Sweep(now + absl::Hours(24 * 40)).status();  // every lease ran out
      }},
     {"pause",
      [](Registry& registry, absl::Time now) {
        v1::SetPhaseRequest pause;
-       pause.set_study(kStudy);
+       pause.set_campaign(kCampaign);
        pause.set_command(v1::PHASE_COMMAND_PAUSE);
        return SetPhase(registry, pause, now).status();
      }},
@@ -409,16 +409,16 @@ TEST(DeadlineRetryTest, ARetryAfterAnExpiredDeadlineIsAppliedOnce) {
     return ((*stub).*method)(&context, request, response);
   };
 
-  v1::CreateStudyRequest create;
+  v1::CreateCampaignRequest create;
   *create.mutable_design() = Design();
-  v1::StudyView created;
-  ASSERT_TRUE(call(absl::Seconds(10), &v1::Ogive::Stub::CreateStudy, create, &created).ok());
+  v1::CampaignView created;
+  ASSERT_TRUE(call(absl::Seconds(10), &v1::Ogive::Stub::CreateCampaign, create, &created).ok());
   const FaultRule slow_fsync{FaultOp::kSync, FaultFile::kWal, 0, 1, 0, absl::Milliseconds(1500)};
 
   // Ask: the first attempt's deadline passes during the slow fsync; the retry, sent at once with
   // the same request id, gets the same trials.
   v1::AskRequest ask;
-  ask.set_study("kiln-fault");
+  ask.set_campaign("kiln-fault");
   ask.set_count(2);
   ask.set_worker("kiln-1");
   ask.set_request_id("ask-1");
@@ -436,7 +436,7 @@ TEST(DeadlineRetryTest, ARetryAfterAnExpiredDeadlineIsAppliedOnce) {
 
   // Tell: likewise; the retry is a duplicate of the stored report.
   v1::TellRequest tell;
-  tell.set_study("kiln-fault");
+  tell.set_campaign("kiln-fault");
   tell.set_worker("kiln-1");
   v1::Report* report = tell.add_reports();
   report->set_trial(1);
@@ -455,7 +455,7 @@ TEST(DeadlineRetryTest, ARetryAfterAnExpiredDeadlineIsAppliedOnce) {
 
   // Applied once: two trials, one report, one "tell" event; the same after a reload from the file.
   server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(5));
-  absl::StatusOr<storage::StoredStudy> stored = (*store)->LoadStudy(1);
+  absl::StatusOr<storage::StoredCampaign> stored = (*store)->LoadCampaign(1);
   ASSERT_TRUE(stored.ok()) << stored.status();
   EXPECT_EQ(stored->snapshot.trials_size(), 2);
   EXPECT_EQ(stored->snapshot.engine().report_sequence(), 1);

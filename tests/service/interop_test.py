@@ -6,15 +6,15 @@
 Generates the Python messages and stubs of ogive/v1/*.proto into a temporary directory, makes an
 admin token with `ogived token create`, starts ogived on a temporary database and a free loopback
 port, and with Debian's grpcio: checks the standard health service (without a token), that a call
-without a token is refused with UNAUTHENTICATED, creates a study, asks, tells (a score and a void),
-reads the status (GetStudy) and the trial list (ListTrials, with the token's label as reported_by),
-checks that a NaN score is refused naming the report, watches the study, and stops ogived with
+without a token is refused with UNAUTHENTICATED, creates a campaign, asks, tells (a score and a void),
+reads the status (GetCampaign) and the trial list (ListTrials, with the token's label as reported_by),
+checks that a NaN score is refused naming the report, watches the campaign, and stops ogived with
 SIGTERM while the Watch stream is open: it must exit 0 within a few seconds. Every call but the
 health check carries `authorization: Bearer <token>`, added by a client interceptor.
 
 The stubs come from protoc (Debian package protobuf-compiler) with grpc_python_plugin
 (protobuf-compiler-grpc). grpc_tools.protoc from Debian's python3-grpc-tools is not used: it
-bundles libprotoc 3.5.1, which refuses the proto3 `optional` fields of study.proto. A missing
+bundles libprotoc 3.5.1, which refuses the proto3 `optional` fields of campaign.proto. A missing
 package fails the test with the name of the package to install; nothing is skipped.
 """
 
@@ -54,15 +54,15 @@ def require_packages(protoc, plugin):
 
 def generate_stubs(proto_dir, out_dir, protoc, plugin):
     protos = [os.path.join(proto_dir, "ogive", "v1", name)
-              for name in ("study.proto", "service.proto")]
+              for name in ("campaign.proto", "service.proto")]
     command = [protoc, "-I", proto_dir, "--python_out", out_dir, "--grpc_python_out", out_dir,
                "--plugin=protoc-gen-grpc_python=%s" % plugin] + protos
     os.makedirs(out_dir)
     result = subprocess.run(command, capture_output=True, text=True, timeout=60)
     check(result.returncode == 0, "protoc failed: %s" % result.stderr.strip())
     sys.path.insert(0, out_dir)
-    from ogive.v1 import service_pb2, service_pb2_grpc, study_pb2  # noqa: generated at run time
-    return service_pb2, service_pb2_grpc, study_pb2
+    from ogive.v1 import service_pb2, service_pb2_grpc, campaign_pb2  # noqa: generated at run time
+    return service_pb2, service_pb2_grpc, campaign_pb2
 
 
 def bearer_interceptor(grpc, token):
@@ -112,7 +112,7 @@ def numbers(trials):
 def run(args, tmp):
     require_packages(args.protoc, args.grpc_python_plugin)
     import grpc
-    service_pb2, service_pb2_grpc, study_pb2 = generate_stubs(
+    service_pb2, service_pb2_grpc, campaign_pb2 = generate_stubs(
         args.proto_dir, os.path.join(tmp, "gen"), args.protoc, args.grpc_python_plugin)
     timeout = CALL_TIMEOUT_S
 
@@ -136,7 +136,7 @@ def run(args, tmp):
             time.sleep(0.1)
         check(health_status(channel) == 1, "health service does not answer SERVING")
         try:
-            service_pb2_grpc.OgiveStub(channel).ListStudies(service_pb2.ListStudiesRequest(),
+            service_pb2_grpc.OgiveStub(channel).ListCampaigns(service_pb2.ListCampaignsRequest(),
                                                             timeout=timeout)
             raise TestFailure("a call without a token was accepted")
         except grpc.RpcError as e:
@@ -145,24 +145,24 @@ def run(args, tmp):
         stub = service_pb2_grpc.OgiveStub(
             grpc.intercept_channel(channel, bearer_interceptor(grpc, token)))
 
-        # CreateStudy: every parameter kind.
-        design = study_pb2.StudyDesign(name="interop", seed=5, population_size=4,
+        # CreateCampaign: every parameter kind.
+        design = campaign_pb2.CampaignDesign(name="interop", seed=5, population_size=4,
                                        lease_seconds=60)
-        design.parameters.add(name="temp", unit="degC", real=study_pb2.RealRange(low=20, high=80))
-        design.parameters.add(name="rate", real=study_pb2.RealRange(low=1e-3, high=1, log=True))
-        design.parameters.add(name="passes", integer=study_pb2.IntegerRange(low=1, high=4))
-        design.parameters.add(name="gas", categorical=study_pb2.Categorical(options=["ar", "n2"]))
-        design.parameters.add(name="vacuum", flag=study_pb2.Flag())
-        design.objective.direction = study_pb2.LOWER_IS_BETTER
-        view = stub.CreateStudy(
-            service_pb2.CreateStudyRequest(design=design, request_id="py-create"), timeout=timeout)
-        check(view.name == "interop", "CreateStudy returned %r" % view.name)
-        check(view.status.phase == study_pb2.STUDY_PHASE_OPEN, "phase %d" % view.status.phase)
+        design.parameters.add(name="temp", unit="degC", real=campaign_pb2.RealRange(low=20, high=80))
+        design.parameters.add(name="rate", real=campaign_pb2.RealRange(low=1e-3, high=1, log=True))
+        design.parameters.add(name="passes", integer=campaign_pb2.IntegerRange(low=1, high=4))
+        design.parameters.add(name="gas", categorical=campaign_pb2.Categorical(options=["ar", "n2"]))
+        design.parameters.add(name="vacuum", flag=campaign_pb2.Flag())
+        design.objective.direction = campaign_pb2.DIRECTION_LOWER_IS_BETTER
+        view = stub.CreateCampaign(
+            service_pb2.CreateCampaignRequest(design=design, request_id="py-create"), timeout=timeout)
+        check(view.name == "interop", "CreateCampaign returned %r" % view.name)
+        check(view.status.phase == campaign_pb2.CAMPAIGN_PHASE_OPEN, "phase %d" % view.status.phase)
         check(view.status.population_size == 4, "population %d" % view.status.population_size)
         check(len(view.design.parameters) == 5, "design not returned")
 
         # Ask: three trials inside the bounds; a retry with the same request id, the same trials.
-        ask = service_pb2.AskRequest(study="interop", count=3, worker="py", request_id="py-ask")
+        ask = service_pb2.AskRequest(campaign="interop", count=3, worker="py", request_id="py-ask")
         asked = stub.Ask(ask, timeout=timeout)
         check(numbers(asked.trials) == [1, 2, 3], "trial numbers %s" % numbers(asked.trials))
         for t in asked.trials:
@@ -174,35 +174,35 @@ def run(args, tmp):
             check(1 <= v["passes"].integer <= 4, "passes %r" % v["passes"].integer)
             check(v["gas"].categorical in ("ar", "n2"), "gas %r" % v["gas"].categorical)
             check(v["vacuum"].WhichOneof("kind") == "flag", "vacuum %s" % v["vacuum"])
-            check(t.state == study_pb2.TRIAL_STATE_LEASED and t.worker == "py", "trial %s" % t)
+            check(t.state == campaign_pb2.TRIAL_STATE_LEASED and t.worker == "py", "trial %s" % t)
         retried = stub.Ask(ask, timeout=timeout)
         check(numbers(retried.trials) == [1, 2, 3], "a retried Ask gave other trials")
 
         # Tell: a score and a void.
         reports = [
-            service_pb2.Report(trial=1, outcome=study_pb2.Outcome(score=4.5, note="from python")),
+            service_pb2.Report(trial=1, outcome=campaign_pb2.Outcome(score=4.5, note="from python")),
             service_pb2.Report(trial=2,
-                               outcome=study_pb2.Outcome(void=study_pb2.Void(), note="no run")),
+                               outcome=campaign_pb2.Outcome(void=campaign_pb2.Void(), note="no run")),
         ]
-        told = stub.Tell(service_pb2.TellRequest(study="interop", reports=reports, worker="py"),
+        told = stub.Tell(service_pb2.TellRequest(campaign="interop", reports=reports, worker="py"),
                          timeout=timeout)
         check([(r.trial, r.code) for r in told.results] == [(1, 0), (2, 0)],
               "tell results %s" % told)
-        check(told.generation == 0 and told.phase == study_pb2.STUDY_PHASE_OPEN,
+        check(told.generation == 0 and told.phase == campaign_pb2.CAMPAIGN_PHASE_OPEN,
               "tell response %s" % told)
 
         # A NaN score is refused, naming the report; nothing is stored.
-        nan_report = service_pb2.Report(trial=3, outcome=study_pb2.Outcome(score=math.nan))
+        nan_report = service_pb2.Report(trial=3, outcome=campaign_pb2.Outcome(score=math.nan))
         try:
-            stub.Tell(service_pb2.TellRequest(study="interop", reports=[nan_report]),
+            stub.Tell(service_pb2.TellRequest(campaign="interop", reports=[nan_report]),
                       timeout=timeout)
             raise TestFailure("a NaN score was accepted")
         except grpc.RpcError as e:
             check(e.code() == grpc.StatusCode.INVALID_ARGUMENT, "NaN score: %s" % e.code())
             check("reports[0]" in e.details(), "NaN score message: %s" % e.details())
 
-        # GetStudy: the status counts.
-        status = stub.GetStudy(service_pb2.GetStudyRequest(study="interop"),
+        # GetCampaign: the status counts.
+        status = stub.GetCampaign(service_pb2.GetCampaignRequest(campaign="interop"),
                                timeout=timeout).status
         counts = (status.leased, status.reported, status.voided, status.lapsed, status.pending,
                   status.generation)
@@ -212,30 +212,30 @@ def run(args, tmp):
               "best %s" % status.best)
 
         # ListTrials: states, outcomes, notes, two pages.
-        page = stub.ListTrials(service_pb2.ListTrialsRequest(study="interop", page_size=2),
+        page = stub.ListTrials(service_pb2.ListTrialsRequest(campaign="interop", page_size=2),
                                timeout=timeout)
         check(numbers(page.trials) == [1, 2] and page.next_page_token, "first page %s" % page)
         rest = stub.ListTrials(
-            service_pb2.ListTrialsRequest(study="interop", page_size=2,
+            service_pb2.ListTrialsRequest(campaign="interop", page_size=2,
                                           page_token=page.next_page_token),
             timeout=timeout)
         check(numbers(rest.trials) == [3] and not rest.next_page_token, "second page %s" % rest)
         t1, t2, t3 = list(page.trials) + list(rest.trials)
-        check(t1.state == study_pb2.TRIAL_STATE_REPORTED and t1.outcome.score == 4.5
+        check(t1.state == campaign_pb2.TRIAL_STATE_REPORTED and t1.outcome.score == 4.5
               and t1.outcome.note == "from python"
-              and t1.use == study_pb2.OUTCOME_USE_PENDING
+              and t1.use == campaign_pb2.OUTCOME_USE_PENDING
               and t1.reported_by == "interop", "trial 1 %s" % t1)
-        check(t2.state == study_pb2.TRIAL_STATE_VOIDED and t2.outcome.WhichOneof("kind") == "void"
+        check(t2.state == campaign_pb2.TRIAL_STATE_VOIDED and t2.outcome.WhichOneof("kind") == "void"
               and t2.outcome.note == "no run", "trial 2 %s" % t2)
-        check(t3.state == study_pb2.TRIAL_STATE_LEASED and not t3.HasField("outcome"),
+        check(t3.state == campaign_pb2.TRIAL_STATE_LEASED and not t3.HasField("outcome"),
               "trial 3 %s" % t3)
 
         # Watch: the current view first, then one after a report.
-        watch = stub.Watch(service_pb2.WatchRequest(study="interop"), timeout=30)
+        watch = stub.Watch(service_pb2.WatchRequest(campaign="interop"), timeout=30)
         first = next(watch)
         check(first.name == "interop" and first.status.reported == 1, "first view %s" % first)
-        stub.Tell(service_pb2.TellRequest(study="interop", reports=[
-            service_pb2.Report(trial=3, outcome=study_pb2.Outcome(score=3.5))]), timeout=timeout)
+        stub.Tell(service_pb2.TellRequest(campaign="interop", reports=[
+            service_pb2.Report(trial=3, outcome=campaign_pb2.Outcome(score=3.5))]), timeout=timeout)
         second = next(watch)
         check(second.status.reported == 2, "view after a report %s" % second.status)
 

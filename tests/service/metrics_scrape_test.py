@@ -10,9 +10,9 @@ equal to it) and Prometheus's naming conventions (a counter's samples end in _to
 from memory of that documentation.
 
 Starts ogived on a temporary database with --metrics-listen on a free loopback port, creates a scored
-and a graded study with the CLI, asks and tells (scores, grades, an infeasible, a void, a duplicate,
-a call for an unknown study, a lease left to lapse), scrapes, and checks: every family's name and
-type; that the counters equal what was done; the trial and lease gauges against `ogive study show`;
+and a graded campaign with the CLI, asks and tells (scores, grades, an infeasible, a void, a duplicate,
+a call for an unknown campaign, a lease left to lapse), scrapes, and checks: every family's name and
+type; that the counters equal what was done; the trial and lease gauges against `ogive campaign show`;
 histogram buckets; that no label carries a trial number or a worker; then that counters only grow
 between scrapes, that other paths are 404, that a non-loopback --metrics-listen is refused without
 --allow-insecure-remote, and that SIGTERM stops ogived with status 0. Every step is bounded in time.
@@ -49,10 +49,10 @@ EXPECTED_TYPES = {
     "ogive_store_commit_duration_seconds": "histogram",
     "ogive_store_writes_per_transaction": "histogram",
     "ogive_process_start_time_seconds": "gauge",
-    "ogive_studies": "gauge",
+    "ogive_campaigns": "gauge",
     "ogive_open_leases": "gauge",
     "ogive_trials": "gauge",
-    "ogive_study_generation": "gauge",
+    "ogive_campaign_generation": "gauge",
     "ogive_store_transactions": "counter",
     "ogive_store_writes": "counter",
     "ogive_store_failed_writes": "counter",
@@ -62,7 +62,7 @@ EXPECTED_TYPES = {
     "ogive_store_queued_writes": "gauge",
     "ogive_store_size_bytes": "gauge",
 }
-ALLOWED_LABELS = {"method", "code", "kind", "study", "state", "phase", "le"}
+ALLOWED_LABELS = {"method", "code", "kind", "campaign", "state", "phase", "le"}
 
 
 class Run:
@@ -85,18 +85,18 @@ class Run:
             self.calls[(method, code)] = self.calls.get((method, code), 0) + 1
         return r
 
-    def ask(self, study, lease=None):
-        words = ["ask", study, "--json", "--worker", "metrics-test"]
+    def ask(self, campaign, lease=None):
+        words = ["ask", campaign, "--json", "--worker", "metrics-test"]
         if lease is not None:
             words += ["--lease", str(lease)]
         trials = json.loads(self.ogive(*words, method="Ask").stdout)
         check(len(trials) == 1, "ask returned %r" % trials)
         return int(trials[0]["number"])
 
-    def tell(self, study, trial, *outcome):
-        if "--grade" in outcome:  # the CLI reads the study's scale first, to match the label
-            self.calls[("GetStudy", "OK")] = self.calls.get(("GetStudy", "OK"), 0) + 1
-        self.ogive("tell", study, str(trial), *outcome, "--worker", "metrics-test", method="Tell")
+    def tell(self, campaign, trial, *outcome):
+        if "--grade" in outcome:  # the CLI reads the campaign's scale first, to match the label
+            self.calls[("GetCampaign", "OK")] = self.calls.get(("GetCampaign", "OK"), 0) + 1
+        self.ogive("tell", campaign, str(trial), *outcome, "--worker", "metrics-test", method="Tell")
 
 
 def scrape(url):
@@ -117,7 +117,7 @@ def value(families, name, suffix="", **labels):
     return found[0] if found else 0
 
 
-def check_families(text, families, study_names):
+def check_families(text, families, campaign_names):
     check(set(families) == set(EXPECTED_TYPES),
           "families: missing %s, unexpected %s" % (sorted(set(EXPECTED_TYPES) - set(families)),
                                                    sorted(set(families) - set(EXPECTED_TYPES))))
@@ -130,8 +130,8 @@ def check_families(text, families, study_names):
                 check(s.name.endswith("_total"), "counter sample %s does not end in _total" % s.name)
             check(set(s.labels) <= ALLOWED_LABELS, "%s has labels %s" % (s.name, sorted(s.labels)))
             for label, v in s.labels.items():
-                if label == "study":
-                    check(v in study_names, "%s{study=%r}: not a study" % (s.name, v))
+                if label == "campaign":
+                    check(v in campaign_names, "%s{campaign=%r}: not a campaign" % (s.name, v))
                 elif label != "le":
                     # A trial number as a label value would make one series per trial.
                     check(not v.isdigit(), "%s{%s=%r}: a number as a label value" % (s.name, label, v))
@@ -198,31 +198,31 @@ def main():
             check(proc.poll() is None, "ogived exited at start")
             try:
                 scrape(url)
-                if subprocess.run([args.ogive, "--server", run.server, "--timeout", "1", "study", "list"],
+                if subprocess.run([args.ogive, "--server", run.server, "--timeout", "1", "campaign", "list"],
                                   capture_output=True, timeout=CALL_TIMEOUT_S).returncode == 0:
                     break
             except (urllib.error.URLError, ConnectionError):
                 pass
             check(time.time() < deadline, "ogived does not answer")
             time.sleep(0.1)
-        run.calls.clear()  # the readiness probe's ListStudies calls are not what this test counts
+        run.calls.clear()  # the readiness probe's ListCampaigns calls are not what this test counts
 
         with open(os.path.join(tmp, "scored.txtpb"), "w") as f:
             f.write('name: "scored"\n'
                     'parameters { name: "x" real { low: 0 high: 1 } }\n'
                     'parameters { name: "y" real { low: 0 high: 1 } }\n'
-                    'objective { direction: LOWER_IS_BETTER }\npopulation_size: 4\nseed: 3\n')
+                    'objective { direction: DIRECTION_LOWER_IS_BETTER }\npopulation_size: 4\nseed: 3\n')
         with open(os.path.join(tmp, "graded.txtpb"), "w") as f:
             f.write('name: "graded"\n'
                     'parameters { name: "heat" unit: "degC" real { low: 100 high: 200 } }\n'
                     'objective { grade_scale { labels: "cracked" labels: "fair" labels: "good" } }\n'
                     'population_size: 3\nseed: 4\n')
-        run.ogive("study", "create", os.path.join(tmp, "scored.txtpb"), method="CreateStudy")
-        run.ogive("study", "create", os.path.join(tmp, "graded.txtpb"), method="CreateStudy")
+        run.ogive("campaign", "create", os.path.join(tmp, "scored.txtpb"), method="CreateCampaign")
+        run.ogive("campaign", "create", os.path.join(tmp, "graded.txtpb"), method="CreateCampaign")
 
         # ---- Asks and tells ----
         told = {"score": 0, "grade": 0, "infeasible": 0, "void": 0}
-        for i in range(9):  # two updates of the scored study (λ = 4; the void is not informative)
+        for i in range(9):  # two updates of the scored campaign (λ = 4; the void is not informative)
             n = run.ask("scored")
             if i == 4:
                 run.tell("scored", n, "--infeasible")
@@ -237,23 +237,23 @@ def main():
         for label in ("fair", "good", "cracked", "fair"):
             run.tell("graded", run.ask("graded"), "--grade", label)
             told["grade"] += 1
-        run.ogive("ask", "no-such-study", "--json", method="Ask", code="NOT_FOUND")  # --json: no GetStudy first
+        run.ogive("ask", "no-such-campaign", "--json", method="Ask", code="NOT_FOUND")  # --json: no GetCampaign first
         lapsing = run.ask("scored", lease=1)
         # The sweeper (every 0.2 s) lapses it a little after 1 s.
         deadline = time.time() + 10
         while True:
-            trials = json.loads(run.ogive("study", "trials", "scored", "--state", "lapsed", "--json",
+            trials = json.loads(run.ogive("campaign", "trials", "scored", "--state", "lapsed", "--json",
                                           method="ListTrials").stdout)
             if [int(t["number"]) for t in trials] == [lapsing]:
                 break
             check(time.time() < deadline, "trial %d did not lapse" % lapsing)
             time.sleep(0.2)
-        # The lapse shows in the study as soon as the sweep applied it; the counter counts it once
+        # The lapse shows in the campaign as soon as the sweep applied it; the counter counts it once
         # the sweep's write committed, which can come a moment later on a loaded machine.
         while value(scrape(url)[1], "ogive_lapses", "_total") < 1:
             check(time.time() < deadline, "ogive_lapses_total did not count the lapse of trial %d" % lapsing)
             time.sleep(0.1)
-        views = {name: json.loads(run.ogive("study", "show", name, "--json", method="GetStudy").stdout)
+        views = {name: json.loads(run.ogive("campaign", "show", name, "--json", method="GetCampaign").stdout)
                  for name in ("scored", "graded")}
 
         # ---- Scrape ----
@@ -274,23 +274,23 @@ def main():
         check(value(families, "ogive_lapses", "_total") == 1, "ogive_lapses_total != 1")
         check(value(families, "ogive_restarts", "_total") == 0, "ogive_restarts_total != 0")
         generations = sum(int(v["status"].get("generation", 0)) for v in views.values())
-        check(generations >= 3, "expected at least 3 updates, the studies show %d" % generations)
+        check(generations >= 3, "expected at least 3 updates, the campaigns show %d" % generations)
         check(value(families, "ogive_generations", "_total") == generations,
-              "ogive_generations_total = %s, the studies show %d" % (value(families, "ogive_generations", "_total"),
+              "ogive_generations_total = %s, the campaigns show %d" % (value(families, "ogive_generations", "_total"),
                                                                        generations))
         for name, view in views.items():
             status = view["status"]
             for state in ("leased", "reported", "lapsed", "voided"):
-                got = value(families, "ogive_trials", study=name, state=state)
-                check(got == int(status.get(state, 0)), "ogive_trials{study=%s,state=%s} = %s, show says %s"
+                got = value(families, "ogive_trials", campaign=name, state=state)
+                check(got == int(status.get(state, 0)), "ogive_trials{campaign=%s,state=%s} = %s, show says %s"
                       % (name, state, got, status.get(state, 0)))
-            check(value(families, "ogive_open_leases", study=name) == int(status.get("leased", 0)),
-                  "ogive_open_leases{study=%s}" % name)
-            check(value(families, "ogive_study_generation", study=name) == int(status.get("generation", 0)),
-                  "ogive_study_generation{study=%s}" % name)
-        check(value(families, "ogive_trials", study="scored", state="lapsed") == 1, "the lapse is not in ogive_trials")
-        check(value(families, "ogive_trials", study="scored", state="voided") == 1, "the void is not in ogive_trials")
-        check(value(families, "ogive_studies", phase="open") == 2, "ogive_studies{phase=open} != 2")
+            check(value(families, "ogive_open_leases", campaign=name) == int(status.get("leased", 0)),
+                  "ogive_open_leases{campaign=%s}" % name)
+            check(value(families, "ogive_campaign_generation", campaign=name) == int(status.get("generation", 0)),
+                  "ogive_campaign_generation{campaign=%s}" % name)
+        check(value(families, "ogive_trials", campaign="scored", state="lapsed") == 1, "the lapse is not in ogive_trials")
+        check(value(families, "ogive_trials", campaign="scored", state="voided") == 1, "the void is not in ogive_trials")
+        check(value(families, "ogive_campaigns", phase="open") == 2, "ogive_campaigns{phase=open} != 2")
         transactions = value(families, "ogive_store_transactions", "_total")
         writes = value(families, "ogive_store_writes", "_total")
         check(transactions >= 1 and writes >= transactions, "store: %s writes in %s transactions" % (writes, transactions))

@@ -5,8 +5,8 @@
 #
 # Offline: `ogived token create|list|revoke` on a database file (usage errors, a bad role, the token
 # printed once and never listed). Then ogived (tokens required) on a free loopback port: a call
-# without a token is UNAUTHENTICATED, a worker may not create a study (PERMISSION_DENIED), a
-# study-limited token lists only its study, `ogive study trials` shows who reported each trial
+# without a token is UNAUTHENTICATED, a worker may not create a campaign (PERMISSION_DENIED), a
+# campaign-limited token lists only its campaign, `ogive campaign trials` shows who reported each trial
 # (table, --csv, --json), the phase change's event carries the admin's label; while the server runs,
 # a token made through its admin socket (mode 0600) works at once and a revoked one is refused at
 # once, without a restart. The database files hold the SHA-256 digests of the tokens (checked with
@@ -119,7 +119,7 @@ token list --db "$TMP/missing.db" >"$TMP/missing.out" 2>&1 || rc=$?
 
 step "ogived token create prints the token once; list never shows it"
 token create --db "$DB" --role admin --label alice >"$TMP/alice.token" 2>"$TMP/create.log"
-token create --db "$DB" --role worker --label farm-a --study process >"$TMP/farm.token" 2>>"$TMP/create.log"
+token create --db "$DB" --role worker --label farm-a --campaign process >"$TMP/farm.token" 2>>"$TMP/create.log"
 token create --db "$DB" --role reader --label viewer >"$TMP/viewer.token" 2>>"$TMP/create.log"
 for f in alice farm viewer; do
   [[ $(wc -l <"$TMP/$f.token") -eq 1 ]] && grep -Eqx 'ogt_[a-z2-7]{32}' "$TMP/$f.token" ||
@@ -142,44 +142,44 @@ start_server --sweep-interval-seconds 0.2
 [[ "$(health)" == 1 ]] || fail "health is not SERVING"
 grep -q "event=auth mode=tokens valid_tokens=3" "$TMP/ogived.log" || fail "the start log does not count the tokens"
 
-step "no token, a wrong token, a worker creating a study: refused"
+step "no token, a wrong token, a worker creating a campaign: refused"
 cat >"$TMP/process.txtpb" <<'DESIGN'
 name: "process"
 parameters { name: "pressure" unit: "bar" real { low: 1 high: 10 } }
-objective { direction: LOWER_IS_BETTER }
+objective { direction: DIRECTION_LOWER_IS_BETTER }
 population_size: 4
 seed: 7
 lease_seconds: 60
 DESIGN
 sed 's/name: "process"/name: "other"/' "$TMP/process.txtpb" >"$TMP/other.txtpb"
-expect_refused UNAUTHENTICATED "needs a token" "" study list
+expect_refused UNAUTHENTICATED "needs a token" "" campaign list
 echo "ogt_aaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaa" >"$TMP/wrong.token"
-expect_refused UNAUTHENTICATED "knows no such token" "$TMP/wrong.token" study list
-expect_refused PERMISSION_DENIED "CreateStudy needs role admin; token 'farm-a' has role worker" \
-  "$TMP/farm.token" study create "$TMP/process.txtpb"
-as_token "$TMP/alice.token" study create "$TMP/process.txtpb" >/dev/null
-as_token "$TMP/alice.token" study create "$TMP/other.txtpb" >/dev/null
+expect_refused UNAUTHENTICATED "knows no such token" "$TMP/wrong.token" campaign list
+expect_refused PERMISSION_DENIED "CreateCampaign needs role admin; token 'farm-a' has role worker" \
+  "$TMP/farm.token" campaign create "$TMP/process.txtpb"
+as_token "$TMP/alice.token" campaign create "$TMP/process.txtpb" >/dev/null
+as_token "$TMP/alice.token" campaign create "$TMP/other.txtpb" >/dev/null
 
-step "a study-limited worker sees its study only; it asks and tells"
-as_token "$TMP/farm.token" study list >"$TMP/farm-list.out"
+step "a campaign-limited worker sees its campaign only; it asks and tells"
+as_token "$TMP/farm.token" campaign list >"$TMP/farm-list.out"
 grep -q "process" "$TMP/farm-list.out" && ! grep -q "other" "$TMP/farm-list.out" ||
   fail "the limited token lists: $(cat "$TMP/farm-list.out")"
-expect_refused PERMISSION_DENIED "limited to the studies process" "$TMP/farm.token" study show other
+expect_refused PERMISSION_DENIED "limited to the campaigns process" "$TMP/farm.token" campaign show other
 number=$(as_token "$TMP/farm.token" ask process --worker node-1 --json |
   "$PY" -c 'import json,sys; print(json.load(sys.stdin)[0]["number"])')
 as_token "$TMP/farm.token" tell process "$number" --score 2.5 --worker node-1 >/dev/null
 expect_refused PERMISSION_DENIED "Ask needs role worker or admin" "$TMP/viewer.token" ask process
 
-step "ogive study trials shows who reported each trial (table, --csv, --json)"
-as_token "$TMP/viewer.token" study trials process >"$TMP/trials.txt"
+step "ogive campaign trials shows who reported each trial (table, --csv, --json)"
+as_token "$TMP/viewer.token" campaign trials process >"$TMP/trials.txt"
 grep -q "REPORTED BY" "$TMP/trials.txt" && grep -q "farm-a" "$TMP/trials.txt" || fail "table: $(cat "$TMP/trials.txt")"
-as_token "$TMP/viewer.token" study trials process --csv >"$TMP/trials.csv"
+as_token "$TMP/viewer.token" campaign trials process --csv >"$TMP/trials.csv"
 "$PY" - "$TMP/trials.csv" "$number" <<'PYEOF' || fail "csv: $(cat "$TMP/trials.csv")"
 import csv, sys
 rows = {r["number"]: r for r in csv.DictReader(open(sys.argv[1]))}
 assert rows[sys.argv[2]]["reported_by"] == "farm-a", rows
 PYEOF
-as_token "$TMP/viewer.token" study trials process --json >"$TMP/trials.json"
+as_token "$TMP/viewer.token" campaign trials process --json >"$TMP/trials.json"
 "$PY" - "$TMP/trials.json" "$number" <<'PYEOF' || fail "json: $(cat "$TMP/trials.json")"
 import json, sys
 t = [t for t in json.load(open(sys.argv[1])) if t["number"] == sys.argv[2]]
@@ -187,8 +187,8 @@ assert len(t) == 1 and t[0]["reportedBy"] == "farm-a", t
 PYEOF
 
 step "a phase change records the admin's label in the event log"
-as_token "$TMP/alice.token" study pause process >/dev/null
-as_token "$TMP/alice.token" study resume process >/dev/null
+as_token "$TMP/alice.token" campaign pause process >/dev/null
+as_token "$TMP/alice.token" campaign resume process >/dev/null
 "$PY" - "$DB" <<'PYEOF' || fail "events"
 import sqlite3, sys
 db = sqlite3.connect("file:%s?mode=ro" % sys.argv[1], uri=True)
@@ -203,7 +203,7 @@ step "while ogived runs: a token made through its admin socket works at once"
 [[ "$(stat -c %a "$DB.admin.sock")" == 600 ]] || fail "admin socket mode $(stat -c %a "$DB.admin.sock")"
 token create --db "$DB" --role reader --label late >"$TMP/late.token" 2>"$TMP/late.log"
 grep -q "admin socket\|asking it through" "$TMP/late.log" || fail "create did not go through the server: $(cat "$TMP/late.log")"
-as_token "$TMP/late.token" study list >/dev/null || fail "the new token is refused"
+as_token "$TMP/late.token" campaign list >/dev/null || fail "the new token is refused"
 token list --db "$DB" >"$TMP/list2.out"
 grep -q "^late " "$TMP/list2.out" || fail "list through the socket: $(cat "$TMP/list2.out")"
 
@@ -242,14 +242,14 @@ PYEOF
 step "with --reflection and a low rate limit: reflection answers; the limit is RESOURCE_EXHAUSTED"
 start_server --reflection --max-requests-per-second-per-token 0.2
 [[ "$(reflection)" == ogive.v1.Ogive ]] || fail "reflection with --reflection: $(reflection)"
-as_token "$TMP/viewer.token" study list >/dev/null || fail "first call within the limit refused"
-expect_refused RESOURCE_EXHAUSTED "max-requests-per-second-per-token" "$TMP/viewer.token" study list
-as_token "$TMP/alice.token" study list >/dev/null || fail "another token was held to viewer's limit"
+as_token "$TMP/viewer.token" campaign list >/dev/null || fail "first call within the limit refused"
+expect_refused RESOURCE_EXHAUSTED "max-requests-per-second-per-token" "$TMP/viewer.token" campaign list
+as_token "$TMP/alice.token" campaign list >/dev/null || fail "another token was held to viewer's limit"
 stop_server
 
 step "--no-auth on loopback: calls pass without a token"
 start_server --no-auth
-as_token "" study list >"$TMP/open.out" || fail "--no-auth refused a call: $(cat "$TMP/open.out")"
+as_token "" campaign list >"$TMP/open.out" || fail "--no-auth refused a call: $(cat "$TMP/open.out")"
 grep -q "process" "$TMP/open.out" || fail "--no-auth list: $(cat "$TMP/open.out")"
 stop_server
 

@@ -5,11 +5,11 @@
 #
 # Checks that ogived refuses an unknown option and a file that is not a database (status 2). Makes an
 # admin token (`ogived token create`; every CLI call below sends it with --token-file), starts
-# ogived on a temporary database and a free loopback port, creates a study with the CLI, asks
+# ogived on a temporary database and a free loopback port, creates a campaign with the CLI, asks
 # and tells a few trials, and checks that the server's own sweeper lapses an expired lease. Then two
 # workers run ask/tell loops (one tells at once, one "evaluates" for a while between ask and tell)
 # and ogived gets SIGTERM right after the slow worker's ask. Checks: ogived exits 0; after a restart
-# every acknowledged tell is in the database with its score (`ogive study trials --json`); a second
+# every acknowledged tell is in the database with its score (`ogive campaign trials --json`); a second
 # restart shows the same generation, trial count, status and trial list; the trial that was leased
 # when the server stopped can still be told; SIGINT stops it with status 0 too; the file passes
 # PRAGMA integrity_check. Every step is bounded in time.
@@ -27,7 +27,7 @@ start_server() {
   "$OGIVED" --db "$DB" --listen "$SERVER" --sweep-interval-seconds 0.2 >>"$TMP/ogived.log" 2>&1 &
   OGIVED_PID=$!
   for _ in $(seq 100); do
-    if timeout 5 "$OGIVE" --server "$SERVER" --timeout 1 --token-file "$TOKEN_FILE" study list >/dev/null 2>&1; then
+    if timeout 5 "$OGIVE" --server "$SERVER" --timeout 1 --token-file "$TOKEN_FILE" campaign list >/dev/null 2>&1; then
       return 0
     fi
     kill -0 "$OGIVED_PID" 2>/dev/null || fail "ogived exited at start"
@@ -99,15 +99,15 @@ name: "process"
 parameters { name: "pressure" unit: "bar" real { low: 1 high: 10 } }
 parameters { name: "ratio" real { low: 0.001 high: 1 log: true } }
 parameters { name: "stages" integer { low: 1 high: 6 } }
-objective { direction: LOWER_IS_BETTER }
+objective { direction: DIRECTION_LOWER_IS_BETTER }
 population_size: 4
 seed: 99
 lease_seconds: 30
 EOF
-ogive study create "$TMP/design.txtpb" >"$TMP/create.out" 2>&1 ||
-  fail "study create: $(cat "$TMP/create.out")"
-grep -q "created study process" "$TMP/create.out" ||
-  fail "study create printed: $(cat "$TMP/create.out")"
+ogive campaign create "$TMP/design.txtpb" >"$TMP/create.out" 2>&1 ||
+  fail "campaign create: $(cat "$TMP/create.out")"
+grep -q "created campaign process" "$TMP/create.out" ||
+  fail "campaign create printed: $(cat "$TMP/create.out")"
 
 step "ask and tell 6 trials"
 for _ in $(seq 6); do
@@ -119,7 +119,7 @@ done
 step "the server's sweeper lapses an expired lease with no request in between"
 lapsing=$(ogive ask process --worker lapse --lease 1 --json | first_number)
 sleep 1.6
-ogive study trials process --state lapsed --json >"$TMP/lapsed.json"
+ogive campaign trials process --state lapsed --json >"$TMP/lapsed.json"
 "$PY" - "$TMP/lapsed.json" "$lapsing" <<'EOF' || fail "trial $lapsing did not lapse"
 import json, sys
 trials = json.load(open(sys.argv[1]))
@@ -164,8 +164,8 @@ echo "   $(lines "$TMP/all.acked") acknowledged tells; trial $held leased when t
 # ---- Restart: every acknowledged tell is there ----
 step "restart: every acknowledged tell is stored"
 start_server
-ogive study trials process --json >"$TMP/trials1.json"
-ogive study show process --json >"$TMP/show1.json"
+ogive campaign trials process --json >"$TMP/trials1.json"
+ogive campaign show process --json >"$TMP/show1.json"
 "$PY" - "$TMP/trials1.json" "$TMP/all.acked" "$held" "$lapsing" <<'EOF' || fail "stored trials"
 import json, sys
 trials = {int(t["number"]): t for t in json.load(open(sys.argv[1]))}
@@ -185,8 +185,8 @@ EOF
 step "restart again: generation, trial count, status and trials unchanged"
 stop_server
 start_server
-ogive study trials process --json >"$TMP/trials2.json"
-ogive study show process --json >"$TMP/show2.json"
+ogive campaign trials process --json >"$TMP/trials2.json"
+ogive campaign show process --json >"$TMP/show2.json"
 "$PY" - "$TMP/show1.json" "$TMP/show2.json" "$TMP/trials1.json" "$TMP/trials2.json" <<'EOF' ||
 import json, sys
 show1, show2, trials1, trials2 = (json.load(open(p)) for p in sys.argv[1:5])
@@ -198,7 +198,7 @@ assert int(s1["generation"]) >= 2, s1
 assert s1["generation"] == s2["generation"], (s1["generation"], s2["generation"])
 count = lambda s: sum(int(s[k]) for k in ("leased", "reported", "lapsed", "voided"))
 assert count(s1) == count(s2) == len(trials1) == len(trials2), (count(s1), count(s2), len(trials1))
-assert show1 == show2, "study show differs"
+assert show1 == show2, "campaign show differs"
 assert trials1 == trials2, "trial lists differ"  # compared as data: the CLI's JSON orders map keys
                                                 # differently from one run to the next
 print("   generation %s, %d trials" % (s2["generation"], len(trials2)))
@@ -209,7 +209,7 @@ step "the trial leased before the stop can be told after the restart"
 ogive tell process "$held" --score "$held.25" --worker slow >"$TMP/held.out" 2>&1 ||
   fail "tell $held: $(cat "$TMP/held.out")"
 grep -qx "trial $held: stored" "$TMP/held.out" || fail "tell $held printed: $(cat "$TMP/held.out")"
-ogive study trials process --state reported --json >"$TMP/reported.json"
+ogive campaign trials process --state reported --json >"$TMP/reported.json"
 "$PY" - "$TMP/reported.json" "$held" <<'EOF' || fail "trial $held not reported"
 import json, sys
 t = [t for t in json.load(open(sys.argv[1])) if t["number"] == sys.argv[2]]

@@ -5,7 +5,7 @@
 #
 # While one ogived serves a database file on a loopback port:
 #  - a second ogived on the same file (another port) must refuse to start: two servers each keep
-#    their own copy of a study in memory, hand out the same trial numbers and overwrite each other's
+#    their own copy of a campaign in memory, hand out the same trial numbers and overwrite each other's
 #    acknowledged reports in the shared file;
 #  - a second ogived on the same port (another file) must refuse to start: otherwise the kernel
 #    splits incoming connections between two servers with different databases.
@@ -14,7 +14,7 @@ set -euo pipefail
 
 source "$(dirname "$0")/../../tests/support/test_lib.sh" ogived-single-instance-test "$@"
 
-answers() { timeout 5 "$OGIVE" --server "$1" --timeout 1 study list >/dev/null 2>&1; }
+answers() { timeout 5 "$OGIVE" --server "$1" --timeout 1 campaign list >/dev/null 2>&1; }
 
 # Starts ogived on database $1 and address $2 with its log in $3; sets STARTED_PID. Tokens are not
 # what this test is about: --no-auth (loopback only).

@@ -41,7 +41,7 @@
 #include "gtest/gtest.h"
 #include "ogive/v1/service.grpc.pb.h"
 #include "ogive/v1/service.pb.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 #include "server/service/grpc_service.h"
 #include "server/service/limits.h"
 #include "server/service/registry.h"
@@ -69,7 +69,7 @@ MATCHER_P2(StatusIs, code, message_matcher, "") {
 
 // `view` without its recent activity (StatusSummary.workers, reports_last_hour, as_of_unix_ms),
 // which is dated by the server's clock and partly kept in memory only: for comparing views.
-v1::StudyView WithoutActivity(v1::StudyView view) {
+v1::CampaignView WithoutActivity(v1::CampaignView view) {
   testing::ClearActivity(view.mutable_status());
   return view;
 }
@@ -215,27 +215,27 @@ v1::Parameter Flag(const std::string& name) {
   return p;
 }
 
-v1::StudyDesign ScoredDesign(const std::string& name, std::vector<v1::Parameter> parameters) {
-  v1::StudyDesign d;
+v1::CampaignDesign ScoredDesign(const std::string& name, std::vector<v1::Parameter> parameters) {
+  v1::CampaignDesign d;
   d.set_name(name);
   for (v1::Parameter& p : parameters) *d.add_parameters() = std::move(p);
-  d.mutable_objective()->set_direction(v1::LOWER_IS_BETTER);
+  d.mutable_objective()->set_direction(v1::DIRECTION_LOWER_IS_BETTER);
   d.set_seed(17);
   d.set_lease_seconds(600);
   return d;
 }
 
 // Every kind of parameter: a real, a log-scaled real, an integer, a categorical and a flag.
-v1::StudyDesign MixedDesign(const std::string& name) {
-  v1::StudyDesign d = ScoredDesign(
+v1::CampaignDesign MixedDesign(const std::string& name) {
+  v1::CampaignDesign d = ScoredDesign(
       name, {Real("x", -5, 5), Real("rate", 1e-4, 1, /*log=*/true), Integer("layers", 1, 8),
              Categorical("solver", {"cg", "gmres", "bicgstab"}), Flag("warm")});
   d.set_population_size(6);
   return d;
 }
 
-v1::StudyDesign GradedDesign(const std::string& name) {
-  v1::StudyDesign d = ScoredDesign(name, {Real("temp", 100, 200), Flag("vacuum")});
+v1::CampaignDesign GradedDesign(const std::string& name) {
+  v1::CampaignDesign d = ScoredDesign(name, {Real("temp", 100, 200), Flag("vacuum")});
   d.mutable_objective()->mutable_grade_scale()->add_labels("cracked");
   d.mutable_objective()->mutable_grade_scale()->add_labels("poor");
   d.mutable_objective()->mutable_grade_scale()->add_labels("fair");
@@ -245,8 +245,8 @@ v1::StudyDesign GradedDesign(const std::string& name) {
 }
 
 // A shifted sphere over three reals; its minimum 0 lies away from the default start (the middle).
-v1::StudyDesign SphereDesign(const std::string& name) {
-  v1::StudyDesign d = ScoredDesign(name, {Real("a", -5, 5), Real("b", -5, 5), Real("c", -5, 5)});
+v1::CampaignDesign SphereDesign(const std::string& name) {
+  v1::CampaignDesign d = ScoredDesign(name, {Real("a", -5, 5), Real("b", -5, 5), Real("c", -5, 5)});
   d.set_seed(20260101);
   return d;
 }
@@ -268,7 +268,7 @@ double MixedScore(const v1::Candidate& c) {
 }
 
 // Every parameter of `design` has a value of its kind inside its bounds, and nothing else is there.
-void ExpectInsideDesign(const v1::Candidate& candidate, const v1::StudyDesign& design) {
+void ExpectInsideDesign(const v1::Candidate& candidate, const v1::CampaignDesign& design) {
   EXPECT_EQ(candidate.values_size(), design.parameters_size());
   for (const v1::Parameter& p : design.parameters()) {
     SCOPED_TRACE(p.name());
@@ -415,60 +415,60 @@ class ServiceTest : public ::testing::Test {
     RemoveDb(db_path_);
   }
 
-  v1::StudyView Create(const v1::StudyDesign& design) {
-    absl::StatusOr<v1::StudyView> view = client_->CreateStudy(design);
+  v1::CampaignView Create(const v1::CampaignDesign& design) {
+    absl::StatusOr<v1::CampaignView> view = client_->CreateCampaign(design);
     EXPECT_TRUE(view.ok()) << view.status();
-    return view.ok() ? *view : v1::StudyView();
+    return view.ok() ? *view : v1::CampaignView();
   }
 
-  v1::StudyView Get(const std::string& study) {
-    absl::StatusOr<v1::StudyView> view = client_->GetStudy(study);
+  v1::CampaignView Get(const std::string& campaign) {
+    absl::StatusOr<v1::CampaignView> view = client_->GetCampaign(campaign);
     EXPECT_TRUE(view.ok()) << view.status();
-    return view.ok() ? *view : v1::StudyView();
+    return view.ok() ? *view : v1::CampaignView();
   }
 
-  std::vector<v1::Trial> AllTrials(const std::string& study,
+  std::vector<v1::Trial> AllTrials(const std::string& campaign,
                                    v1::TrialState state = v1::TRIAL_STATE_UNSPECIFIED) {
-    absl::StatusOr<std::vector<v1::Trial>> trials = client_->ListAllTrials(study, state);
+    absl::StatusOr<std::vector<v1::Trial>> trials = client_->ListAllTrials(campaign, state);
     EXPECT_TRUE(trials.ok()) << trials.status();
     return trials.ok() ? *trials : std::vector<v1::Trial>();
   }
 
-  v1::AskResponse AskOk(const std::string& study, int count, double lease_seconds = 0) {
-    absl::StatusOr<v1::AskResponse> asked = client_->Ask(study, count, "worker-1", lease_seconds);
+  v1::AskResponse AskOk(const std::string& campaign, int count, double lease_seconds = 0) {
+    absl::StatusOr<v1::AskResponse> asked = client_->Ask(campaign, count, "worker-1", lease_seconds);
     EXPECT_TRUE(asked.ok()) << asked.status();
     return asked.ok() ? *asked : v1::AskResponse();
   }
 
-  v1::TellResponse TellOk(const std::string& study, const std::vector<v1::Report>& reports) {
-    absl::StatusOr<v1::TellResponse> told = client_->Tell(study, reports, "worker-1");
+  v1::TellResponse TellOk(const std::string& campaign, const std::vector<v1::Report>& reports) {
+    absl::StatusOr<v1::TellResponse> told = client_->Tell(campaign, reports, "worker-1");
     EXPECT_TRUE(told.ok()) << told.status();
     if (!told.ok()) return v1::TellResponse();
     EXPECT_EQ(told->results_size(), static_cast<int>(reports.size()));
     return *told;
   }
 
-  // What the server shows of a study: its view and every trial, as text (maps sorted).
+  // What the server shows of a campaign: its view and every trial, as text (maps sorted).
   // The view's recent activity (StatusSummary.workers and friends) is left out: it is dated by the
   // clock and asks are not stored.
-  std::string StoredState(const std::string& study) {
-    std::string state = WithoutActivity(Get(study)).DebugString();
-    for (const v1::Trial& t : AllTrials(study)) state += t.DebugString();
+  std::string StoredState(const std::string& campaign) {
+    std::string state = WithoutActivity(Get(campaign)).DebugString();
+    for (const v1::Trial& t : AllTrials(campaign)) state += t.DebugString();
     return state;
   }
 
-  // Restarts the server on the same file and checks that each study shows what it showed before:
+  // Restarts the server on the same file and checks that each campaign shows what it showed before:
   // what the server had in memory was on disk.
-  void ExpectSameAfterRestart(const std::vector<std::string>& studies) {
+  void ExpectSameAfterRestart(const std::vector<std::string>& campaigns) {
     std::vector<std::string> before;
-    for (const std::string& study : studies) before.push_back(StoredState(study));
+    for (const std::string& campaign : campaigns) before.push_back(StoredState(campaign));
     client_.reset();
     server_->Stop();
     const absl::Status restarted = server_->Start();
     ASSERT_TRUE(restarted.ok()) << restarted;
     client_ = server_->NewClient();
-    for (size_t i = 0; i < studies.size(); ++i) {
-      EXPECT_EQ(StoredState(studies[i]), before[i]) << "study " << studies[i];
+    for (size_t i = 0; i < campaigns.size(); ++i) {
+      EXPECT_EQ(StoredState(campaigns[i]), before[i]) << "campaign " << campaigns[i];
     }
   }
 
@@ -491,11 +491,11 @@ std::string OddNote() {
 }
 
 TEST_F(ServiceTest, AskTellCoversEveryParameterAndOutcomeKind) {
-  const v1::StudyDesign design = MixedDesign("mixed");
-  const v1::StudyView created = Create(design);
+  const v1::CampaignDesign design = MixedDesign("mixed");
+  const v1::CampaignView created = Create(design);
   EXPECT_EQ(created.name(), "mixed");
   EXPECT_EQ(created.design().parameters_size(), 5);
-  EXPECT_EQ(created.status().phase(), v1::STUDY_PHASE_OPEN);
+  EXPECT_EQ(created.status().phase(), v1::CAMPAIGN_PHASE_OPEN);
   EXPECT_EQ(created.status().generation(), 0);
   ASSERT_EQ(created.status().population_size(), 6);
   const int lambda = created.status().population_size();
@@ -526,7 +526,7 @@ TEST_F(ServiceTest, AskTellCoversEveryParameterAndOutcomeKind) {
     EXPECT_FALSE(r.late());
   }
   EXPECT_EQ(told.generation(), 0);
-  EXPECT_EQ(told.phase(), v1::STUDY_PHASE_OPEN);
+  EXPECT_EQ(told.phase(), v1::CAMPAIGN_PHASE_OPEN);
 
   v1::StatusSummary status = Get("mixed").status();
   EXPECT_EQ(status.leased(), 1);
@@ -614,8 +614,8 @@ TEST_F(ServiceTest, AskTellCoversEveryParameterAndOutcomeKind) {
   ExpectSameAfterRestart({"mixed"});
 }
 
-TEST_F(ServiceTest, GradedStudyStoresGradesByLabel) {
-  const v1::StudyDesign design = GradedDesign("kiln");
+TEST_F(ServiceTest, GradedCampaignStoresGradesByLabel) {
+  const v1::CampaignDesign design = GradedDesign("kiln");
   ASSERT_EQ(Create(design).status().population_size(), 4);
   const v1::AskResponse asked = AskOk("kiln", 4);
   ASSERT_EQ(asked.trials_size(), 4);
@@ -650,7 +650,7 @@ TEST_F(ServiceTest, GradedStudyStoresGradesByLabel) {
 // ---- ListTrials ----
 
 TEST_F(ServiceTest, ListTrialsPagesThroughEveryTrialAndFiltersByState) {
-  v1::StudyDesign design = ScoredDesign("pages", {Real("x", 0, 1)});
+  v1::CampaignDesign design = ScoredDesign("pages", {Real("x", 0, 1)});
   design.set_population_size(50);  // no update in the way
   Create(design);
   ASSERT_EQ(AskOk("pages", 25).trials_size(), 25);
@@ -660,7 +660,7 @@ TEST_F(ServiceTest, ListTrialsPagesThroughEveryTrialAndFiltersByState) {
 
   // Every trial, 7 per page: 7 + 7 + 7 + 4.
   v1::ListTrialsRequest request;
-  request.set_study("pages");
+  request.set_campaign("pages");
   request.set_page_size(7);
   std::vector<int64_t> seen;
   std::vector<int> page_sizes;
@@ -679,7 +679,7 @@ TEST_F(ServiceTest, ListTrialsPagesThroughEveryTrialAndFiltersByState) {
 
   // Only reported trials, 3 per page: 3 + 3 + 3 + 3 + 1.
   request.Clear();
-  request.set_study("pages");
+  request.set_campaign("pages");
   request.set_state(v1::TRIAL_STATE_REPORTED);
   request.set_page_size(3);
   seen.clear();
@@ -702,7 +702,7 @@ TEST_F(ServiceTest, ListTrialsPagesThroughEveryTrialAndFiltersByState) {
 
   // A page that ends exactly at the last trial has no next page.
   request.Clear();
-  request.set_study("pages");
+  request.set_campaign("pages");
   request.set_page_size(25);
   absl::StatusOr<v1::ListTrialsResponse> exact = client_->ListTrials(request);
   ASSERT_TRUE(exact.ok()) << exact.status();
@@ -784,7 +784,7 @@ TEST_F(ServiceTest, ListGenerationsShowsEveryUpdateInUserUnitsPageByPage) {
 
   // Pages of 3: 3 + 3 + 2, the same views in the same order.
   v1::ListGenerationsRequest request;
-  request.set_study("history");
+  request.set_campaign("history");
   request.set_page_size(3);
   std::vector<int> page_sizes;
   std::vector<std::string> paged;
@@ -800,7 +800,7 @@ TEST_F(ServiceTest, ListGenerationsShowsEveryUpdateInUserUnitsPageByPage) {
   ASSERT_EQ(paged.size(), 8u);
   for (size_t i = 0; i < paged.size(); ++i) EXPECT_EQ(paged[i], DeterministicBytes((*all)[i])) << i;
 
-  // A page ending at the last generation has no next page; refused tokens and sizes; unknown study.
+  // A page ending at the last generation has no next page; refused tokens and sizes; unknown campaign.
   request.clear_page_token();
   request.set_page_size(8);
   absl::StatusOr<v1::ListGenerationsResponse> exact = client_->ListGenerations(request);
@@ -818,7 +818,7 @@ TEST_F(ServiceTest, ListGenerationsShowsEveryUpdateInUserUnitsPageByPage) {
   EXPECT_THAT(client_->ListGenerations(request).status(),
               StatusIs(absl::StatusCode::kInvalidArgument, AllOf(HasSubstr("page_size"), HasSubstr("1..1000"))));
   request.set_page_size(0);
-  request.set_study("nowhere");
+  request.set_campaign("nowhere");
   EXPECT_THAT(client_->ListGenerations(request).status(),
               StatusIs(absl::StatusCode::kNotFound, HasSubstr("nowhere")));
 
@@ -836,7 +836,7 @@ TEST_F(ServiceTest, ListGenerationsShowsEveryUpdateInUserUnitsPageByPage) {
 }
 
 TEST_F(ServiceTest, ListGenerationsShowsTheStalenessOfConsumedOutcomes) {
-  v1::StudyDesign design = ScoredDesign("stale", {Real("a", 0, 1), Real("b", 0, 1)});
+  v1::CampaignDesign design = ScoredDesign("stale", {Real("a", 0, 1), Real("b", 0, 1)});
   design.set_population_size(2);
   design.set_staleness_limit(5);
   Create(design);
@@ -867,16 +867,16 @@ TEST_F(ServiceTest, ListGenerationsShowsTheStalenessOfConsumedOutcomes) {
 TEST_F(ServiceTest, WatchSendsTheCurrentViewThenOneMessagePerChangeUntilCancelled) {
   Create(ScoredDesign("watched", {Real("x", 0, 1)}));
   AskOk("watched", 2);
-  const v1::StudyView current = Get("watched");
+  const v1::CampaignView current = Get("watched");
 
   grpc::ClientContext context;
   SetDeadline(context);  // a stream that ignored the cancel would end here, with another code
   v1::WatchRequest request;
-  request.set_study("watched");
-  std::unique_ptr<grpc::ClientReader<v1::StudyView>> reader =
+  request.set_campaign("watched");
+  std::unique_ptr<grpc::ClientReader<v1::CampaignView>> reader =
       client_->stub().Watch(&context, request);
 
-  v1::StudyView view;
+  v1::CampaignView view;
   ASSERT_TRUE(reader->Read(&view));
   // The current view, design included.
   EXPECT_EQ(WithoutActivity(view).DebugString(), WithoutActivity(current).DebugString());
@@ -891,7 +891,7 @@ TEST_F(ServiceTest, WatchSendsTheCurrentViewThenOneMessagePerChangeUntilCancelle
   std::atomic<int> extra{0};
   absl::Notification finished;
   std::thread reading([&] {
-    v1::StudyView more;
+    v1::CampaignView more;
     while (reader->Read(&more)) ++extra;
     finished.Notify();
   });
@@ -905,18 +905,18 @@ TEST_F(ServiceTest, WatchSendsTheCurrentViewThenOneMessagePerChangeUntilCancelle
   EXPECT_EQ(reader->Finish().error_code(), grpc::StatusCode::CANCELLED);
 }
 
-TEST_F(ServiceTest, WatchEndsWhenTheStudyIsDone) {
+TEST_F(ServiceTest, WatchEndsWhenTheCampaignIsDone) {
   Create(ScoredDesign("finishing", {Real("x", 0, 1)}));
   absl::Mutex mu;
-  std::vector<v1::StudyView> views;
+  std::vector<v1::CampaignView> views;
   absl::Status watch_status = absl::UnknownError("watch did not return");
   absl::Notification first_view, returned;
   std::thread watching([&] {
-    absl::Status s = client_->Watch("finishing", [&](const v1::StudyView& v) {
+    absl::Status s = client_->Watch("finishing", [&](const v1::CampaignView& v) {
       absl::MutexLock lock(&mu);
       views.push_back(v);
       if (!first_view.HasBeenNotified()) first_view.Notify();
-      return views.size() < 10;  // bounds the stream should the study never end
+      return views.size() < 10;  // bounds the stream should the campaign never end
     });
     absl::MutexLock lock(&mu);
     watch_status = s;
@@ -931,28 +931,28 @@ TEST_F(ServiceTest, WatchEndsWhenTheStudyIsDone) {
   EXPECT_TRUE(watch_status.ok()) << watch_status;
   ASSERT_GE(views.size(), 2u);
   EXPECT_LT(views.size(), 10u);
-  EXPECT_EQ(views.front().status().phase(), v1::STUDY_PHASE_OPEN);
-  EXPECT_EQ(views.back().status().phase(), v1::STUDY_PHASE_DONE);
+  EXPECT_EQ(views.front().status().phase(), v1::CAMPAIGN_PHASE_OPEN);
+  EXPECT_EQ(views.back().status().phase(), v1::CAMPAIGN_PHASE_DONE);
   EXPECT_EQ(views.back().status().reason(), v1::DONE_REASON_STOPPED);
 }
 
-// "One message after every change": the change that ends a study is one change, so its view comes
-// once, and a study that is done already has nothing to send after its current view.
+// "One message after every change": the change that ends a campaign is one change, so its view comes
+// once, and a campaign that is done already has nothing to send after its current view.
 TEST_F(ServiceTest, WatchSendsTheDoneViewOnce) {
   Create(ScoredDesign("ending", {Real("x", 0, 1)}));
   grpc::ClientContext context;
   SetDeadline(context);
   v1::WatchRequest request;
-  request.set_study("ending");
-  std::unique_ptr<grpc::ClientReader<v1::StudyView>> reader =
+  request.set_campaign("ending");
+  std::unique_ptr<grpc::ClientReader<v1::CampaignView>> reader =
       client_->stub().Watch(&context, request);
-  v1::StudyView view;
+  v1::CampaignView view;
   ASSERT_TRUE(reader->Read(&view));
   ASSERT_TRUE(client_->SetPhase("ending", v1::PHASE_COMMAND_FINISH).ok());
-  std::vector<v1::StudyPhase> phases;
+  std::vector<v1::CampaignPhase> phases;
   while (reader->Read(&view)) phases.push_back(view.status().phase());
   EXPECT_TRUE(reader->Finish().ok());
-  EXPECT_THAT(phases, ElementsAre(v1::STUDY_PHASE_DONE));
+  EXPECT_THAT(phases, ElementsAre(v1::CAMPAIGN_PHASE_DONE));
 
   grpc::ClientContext done_context;
   SetDeadline(done_context);
@@ -960,21 +960,21 @@ TEST_F(ServiceTest, WatchSendsTheDoneViewOnce) {
   phases.clear();
   while (reader->Read(&view)) phases.push_back(view.status().phase());
   EXPECT_TRUE(reader->Finish().ok());
-  EXPECT_THAT(phases, ElementsAre(v1::STUDY_PHASE_DONE));
+  EXPECT_THAT(phases, ElementsAre(v1::CAMPAIGN_PHASE_DONE));
 }
 
-TEST_F(ServiceTest, WatchOfAnUnknownStudyIsNotFound) {
-  EXPECT_THAT(client_->Watch("nowhere", [](const v1::StudyView&) { return true; }),
+TEST_F(ServiceTest, WatchOfAnUnknownCampaignIsNotFound) {
+  EXPECT_THAT(client_->Watch("nowhere", [](const v1::CampaignView&) { return true; }),
               StatusIs(absl::StatusCode::kNotFound, HasSubstr("nowhere")));
 }
 
 // ---- Restart ----
 
 // Asks `count` trials on both servers and checks that they are the same trials, bit for bit.
-std::vector<v1::Trial> AskBoth(client::Client& a, client::Client& b, const std::string& study,
+std::vector<v1::Trial> AskBoth(client::Client& a, client::Client& b, const std::string& campaign,
                                int count) {
-  absl::StatusOr<v1::AskResponse> from_a = a.Ask(study, count, "w", 600);
-  absl::StatusOr<v1::AskResponse> from_b = b.Ask(study, count, "w", 600);
+  absl::StatusOr<v1::AskResponse> from_a = a.Ask(campaign, count, "w", 600);
+  absl::StatusOr<v1::AskResponse> from_b = b.Ask(campaign, count, "w", 600);
   EXPECT_TRUE(from_a.ok()) << from_a.status();
   EXPECT_TRUE(from_b.ok()) << from_b.status();
   if (!from_a.ok() || !from_b.ok()) return {};
@@ -995,10 +995,10 @@ std::vector<v1::Trial> AskBoth(client::Client& a, client::Client& b, const std::
   return trials;
 }
 
-void TellBothReports(client::Client& a, client::Client& b, const std::string& study,
+void TellBothReports(client::Client& a, client::Client& b, const std::string& campaign,
                      const std::vector<v1::Report>& reports) {
-  absl::StatusOr<v1::TellResponse> to_a = a.Tell(study, reports, "w");
-  absl::StatusOr<v1::TellResponse> to_b = b.Tell(study, reports, "w");
+  absl::StatusOr<v1::TellResponse> to_a = a.Tell(campaign, reports, "w");
+  absl::StatusOr<v1::TellResponse> to_b = b.Tell(campaign, reports, "w");
   ASSERT_TRUE(to_a.ok()) << to_a.status();
   ASSERT_TRUE(to_b.ok()) << to_b.status();
   EXPECT_EQ(to_a->generation(), to_b->generation());
@@ -1006,32 +1006,32 @@ void TellBothReports(client::Client& a, client::Client& b, const std::string& st
   for (const v1::ReportResult& r : to_b->results()) EXPECT_EQ(r.code(), 0) << r.message();
 }
 
-void TellBoth(client::Client& a, client::Client& b, const std::string& study,
+void TellBoth(client::Client& a, client::Client& b, const std::string& campaign,
               const std::vector<v1::Trial>& trials) {
   std::vector<v1::Report> reports;
   for (const v1::Trial& t : trials)
     reports.push_back(ScoreReport(t.number(), Sphere(t.candidate())));
-  TellBothReports(a, b, study, reports);
+  TellBothReports(a, b, campaign, reports);
 }
 
-absl::StatusOr<v1::StudyView> CreateWithRequestId(client::Client& c, const v1::StudyDesign& design,
+absl::StatusOr<v1::CampaignView> CreateWithRequestId(client::Client& c, const v1::CampaignDesign& design,
                                                   const std::string& request_id) {
-  v1::CreateStudyRequest request;
+  v1::CreateCampaignRequest request;
   *request.mutable_design() = design;
   request.set_request_id(request_id);
   grpc::ClientContext context;
   SetDeadline(context);
-  v1::StudyView response;
-  const grpc::Status s = c.stub().CreateStudy(&context, request, &response);
+  v1::CampaignView response;
+  const grpc::Status s = c.stub().CreateCampaign(&context, request, &response);
   if (!s.ok())
     return absl::Status(static_cast<absl::StatusCode>(s.error_code()), s.error_message());
   return response;
 }
 
-absl::StatusOr<v1::AskResponse> AskWithRequestId(client::Client& c, const std::string& study,
+absl::StatusOr<v1::AskResponse> AskWithRequestId(client::Client& c, const std::string& campaign,
                                                  int count, const std::string& request_id) {
   v1::AskRequest request;
-  request.set_study(study);
+  request.set_campaign(campaign);
   request.set_count(count);
   request.set_worker("w");
   request.set_lease_seconds(600);
@@ -1065,9 +1065,9 @@ TEST(ServiceRestartTest, RestartedServerContinuesBitIdentically) {
     ASSERT_TRUE(b.Start().ok());
     std::unique_ptr<client::Client> ca = a.NewClient();
     std::unique_ptr<client::Client> cb = b.NewClient();
-    const v1::StudyDesign design = SphereDesign("sphere");
-    absl::StatusOr<v1::StudyView> created_a = CreateWithRequestId(*ca, design, "create-sphere");
-    absl::StatusOr<v1::StudyView> created_b = CreateWithRequestId(*cb, design, "create-sphere");
+    const v1::CampaignDesign design = SphereDesign("sphere");
+    absl::StatusOr<v1::CampaignView> created_a = CreateWithRequestId(*ca, design, "create-sphere");
+    absl::StatusOr<v1::CampaignView> created_b = CreateWithRequestId(*cb, design, "create-sphere");
     ASSERT_TRUE(created_a.ok()) << created_a.status();
     ASSERT_TRUE(created_b.ok()) << created_b.status();
     const int lambda = created_a->status().population_size();
@@ -1097,7 +1097,7 @@ TEST(ServiceRestartTest, RestartedServerContinuesBitIdentically) {
                 DeterministicBytes(before_b->trials(i).candidate()));
     }
 
-    absl::StatusOr<v1::StudyView> view_before = cb->GetStudy("sphere");
+    absl::StatusOr<v1::CampaignView> view_before = cb->GetCampaign("sphere");
     absl::StatusOr<std::vector<v1::Trial>> trials_before = cb->ListAllTrials("sphere");
     ASSERT_TRUE(view_before.ok()) << view_before.status();
     ASSERT_TRUE(trials_before.ok()) << trials_before.status();
@@ -1114,9 +1114,9 @@ TEST(ServiceRestartTest, RestartedServerContinuesBitIdentically) {
     cb = b.NewClient();
 
     // b shows exactly what it showed before, and what a shows.
-    absl::StatusOr<v1::StudyView> view_after = cb->GetStudy("sphere");
+    absl::StatusOr<v1::CampaignView> view_after = cb->GetCampaign("sphere");
     absl::StatusOr<std::vector<v1::Trial>> trials_after = cb->ListAllTrials("sphere");
-    absl::StatusOr<v1::StudyView> view_a = ca->GetStudy("sphere");
+    absl::StatusOr<v1::CampaignView> view_a = ca->GetCampaign("sphere");
     ASSERT_TRUE(view_after.ok()) << view_after.status();
     ASSERT_TRUE(trials_after.ok()) << trials_after.status();
     ASSERT_TRUE(view_a.ok()) << view_a.status();
@@ -1132,11 +1132,11 @@ TEST(ServiceRestartTest, RestartedServerContinuesBitIdentically) {
     EXPECT_EQ(TimelessStatus(view_after->status()), TimelessStatus(view_a->status()));
 
     // Retries after the restart: the ask returns the trials it returned before, the create the
-    // study it created.
+    // campaign it created.
     absl::StatusOr<v1::AskResponse> retried = AskWithRequestId(*cb, "sphere", 2, "ask-before");
     ASSERT_TRUE(retried.ok()) << retried.status();
     EXPECT_EQ(Numbers(*retried), Numbers(*before_b));
-    absl::StatusOr<v1::StudyView> recreated = CreateWithRequestId(*cb, design, "create-sphere");
+    absl::StatusOr<v1::CampaignView> recreated = CreateWithRequestId(*cb, design, "create-sphere");
     ASSERT_TRUE(recreated.ok()) << recreated.status();
     EXPECT_EQ(recreated->status().generation(), 4);
     EXPECT_THAT(CreateWithRequestId(*cb, design, "create-other").status(),
@@ -1149,7 +1149,7 @@ TEST(ServiceRestartTest, RestartedServerContinuesBitIdentically) {
     rest.push_back(partial[3]);
     for (const v1::Trial& t : before_a->trials()) rest.push_back(t);
     TellBoth(*ca, *cb, "sphere", rest);
-    view_after = cb->GetStudy("sphere");
+    view_after = cb->GetCampaign("sphere");
     ASSERT_TRUE(view_after.ok()) << view_after.status();
     EXPECT_EQ(view_after->status().generation(), 5);
 
@@ -1164,8 +1164,8 @@ TEST(ServiceRestartTest, RestartedServerContinuesBitIdentically) {
       if (::testing::Test::HasFailure()) break;
     }
     EXPECT_LT(best, 1e-6) << "after " << generation << " generations";
-    view_a = ca->GetStudy("sphere");
-    view_after = cb->GetStudy("sphere");
+    view_a = ca->GetCampaign("sphere");
+    view_after = cb->GetCampaign("sphere");
     ASSERT_TRUE(view_a.ok()) << view_a.status();
     ASSERT_TRUE(view_after.ok()) << view_after.status();
     EXPECT_EQ(TimelessStatus(view_after->status()), TimelessStatus(view_a->status()));
@@ -1198,7 +1198,7 @@ TEST_F(ServiceTest, LapsedTrialsTakeLateReports) {
   EXPECT_THAT(Numbers(AllTrials("requested", v1::TRIAL_STATE_LAPSED)), ElementsAre(1, 2));
 
   // With no request in between, the registry's sweep does it.
-  absl::StatusOr<std::shared_ptr<service::StudyHost>> host = server_->registry().Find("swept");
+  absl::StatusOr<std::shared_ptr<service::CampaignHost>> host = server_->registry().Find("swept");
   ASSERT_TRUE(host.ok()) << host.status();
   absl::StatusOr<int> lapsed = (*host)->Sweep(absl::Now());
   ASSERT_TRUE(lapsed.ok()) << lapsed.status();
@@ -1254,21 +1254,21 @@ TEST_F(ServiceTest, LapsedTrialsTakeLateReports) {
 
 // ---- Refused input ----
 
-TEST_F(ServiceTest, UnknownStudyIsNotFound) {
+TEST_F(ServiceTest, UnknownCampaignIsNotFound) {
   Create(ScoredDesign("known", {Real("x", 0, 1)}));
   const std::string before = StoredState("known");
   const auto not_found = StatusIs(absl::StatusCode::kNotFound, HasSubstr("'unknown'"));
-  EXPECT_THAT(client_->GetStudy("unknown").status(), not_found);
+  EXPECT_THAT(client_->GetCampaign("unknown").status(), not_found);
   EXPECT_THAT(client_->Ask("unknown", 1, "w").status(), not_found);
   EXPECT_THAT(client_->Tell("unknown", {ScoreReport(1, 1.0)}, "w").status(), not_found);
   EXPECT_THAT(client_->Renew("unknown", {1}, "w").status(), not_found);
   EXPECT_THAT(client_->ListAllTrials("unknown").status(), not_found);
   EXPECT_THAT(client_->SetPhase("unknown", v1::PHASE_COMMAND_PAUSE).status(), not_found);
   EXPECT_EQ(StoredState("known"), before);
-  absl::StatusOr<v1::ListStudiesResponse> list = client_->ListStudies();
+  absl::StatusOr<v1::ListCampaignsResponse> list = client_->ListCampaigns();
   ASSERT_TRUE(list.ok()) << list.status();
-  ASSERT_EQ(list->studies_size(), 1);
-  EXPECT_EQ(list->studies(0).name(), "known");
+  ASSERT_EQ(list->campaigns_size(), 1);
+  EXPECT_EQ(list->campaigns(0).name(), "known");
 }
 
 TEST_F(ServiceTest, UnknownTrialIsAPerReportNotFound) {
@@ -1292,7 +1292,7 @@ TEST_F(ServiceTest, UnknownTrialIsAPerReportNotFound) {
 
 struct BadDesignCase {
   const char* what;
-  std::function<void(v1::StudyDesign&)> mutate;
+  std::function<void(v1::CampaignDesign&)> mutate;
   std::vector<std::string> message_parts;
 };
 
@@ -1302,116 +1302,116 @@ TEST_F(ServiceTest, MalformedDesignsAreRefusedNamingTheField) {
   };
   const std::vector<BadDesignCase> cases = {
       {"real low == high",
-       [](v1::StudyDesign& d) { d.mutable_parameters(0)->mutable_real()->set_low(5); },
+       [](v1::CampaignDesign& d) { d.mutable_parameters(0)->mutable_real()->set_low(5); },
        {"design.parameters[0].real.low", "less than real.high (5), got 5", "'x'"}},
       {"real low > high",
-       [](v1::StudyDesign& d) { d.mutable_parameters(0)->mutable_real()->set_low(6); },
+       [](v1::CampaignDesign& d) { d.mutable_parameters(0)->mutable_real()->set_low(6); },
        {"design.parameters[0].real.low", "less than real.high (5), got 6"}},
       {"integer low == high",
-       [](v1::StudyDesign& d) { *d.add_parameters() = Integer("n", 3, 3); },
+       [](v1::CampaignDesign& d) { *d.add_parameters() = Integer("n", 3, 3); },
        {"design.parameters[1].integer.low", "less than integer.high (3)", "'n'"}},
       {"log scale with low 0",
-       [](v1::StudyDesign& d) { *d.add_parameters() = Real("rate", 0, 1, true); },
+       [](v1::CampaignDesign& d) { *d.add_parameters() = Real("rate", 0, 1, true); },
        {"design.parameters[1].real.low", "> 0 on a log scale", "'rate'"}},
       {"log scale with low < 0",
-       [](v1::StudyDesign& d) { *d.add_parameters() = Real("rate", -1, 1, true); },
+       [](v1::CampaignDesign& d) { *d.add_parameters() = Real("rate", -1, 1, true); },
        {"design.parameters[1].real.low", "> 0 on a log scale", "got -1"}},
       {"duplicate parameter names",
-       [](v1::StudyDesign& d) { *d.add_parameters() = Flag("x"); },
+       [](v1::CampaignDesign& d) { *d.add_parameters() = Flag("x"); },
        {"design.parameters[1].name", "'x' appears twice"}},
       {"empty categorical",
-       [](v1::StudyDesign& d) { *d.add_parameters() = Categorical("solver", {}); },
+       [](v1::CampaignDesign& d) { *d.add_parameters() = Categorical("solver", {}); },
        {"design.parameters[1].categorical.options", "2..1000 distinct options, got 0"}},
       {"grade scale with one label",
-       [](v1::StudyDesign& d) { d.mutable_objective()->mutable_grade_scale()->add_labels("ok"); },
+       [](v1::CampaignDesign& d) { d.mutable_objective()->mutable_grade_scale()->add_labels("ok"); },
        {"design.objective.grade_scale.labels", "2..1000 distinct labels", "got 1"}},
       {"unknown direction",
-       [&](v1::StudyDesign& d) { set_enum(*d.mutable_objective(), "direction", 7); },
-       {"design.objective.direction", "LOWER_IS_BETTER or HIGHER_IS_BETTER", "7"}},
+       [&](v1::CampaignDesign& d) { set_enum(*d.mutable_objective(), "direction", 7); },
+       {"design.objective.direction", "DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER", "7"}},
       {"unknown gaussian model",
-       [&](v1::StudyDesign& d) { set_enum(d, "gaussian_model", 9); },
+       [&](v1::CampaignDesign& d) { set_enum(d, "gaussian_model", 9); },
        {"design.gaussian_model", "GAUSSIAN_MODEL_FULL", "got 9"}},
-      {"no parameters", [](v1::StudyDesign& d) { d.clear_parameters(); }, {"design.parameters", "got 0"}},
-      {"no objective", [](v1::StudyDesign& d) { d.clear_objective(); }, {"design.objective", "required"}},
+      {"no parameters", [](v1::CampaignDesign& d) { d.clear_parameters(); }, {"design.parameters", "got 0"}},
+      {"no objective", [](v1::CampaignDesign& d) { d.clear_objective(); }, {"design.objective", "required"}},
       {"name with a space",
-       [](v1::StudyDesign& d) { d.set_name("my study"); },
+       [](v1::CampaignDesign& d) { d.set_name("my campaign"); },
        {"design.name", "letters, digits"}},
       {"name too long",
-       [](v1::StudyDesign& d) { d.set_name(std::string(129, 'n')); },
+       [](v1::CampaignDesign& d) { d.set_name(std::string(129, 'n')); },
        {"design.name", "128"}},
       {"parameter name with a dot",
-       [](v1::StudyDesign& d) { d.mutable_parameters(0)->set_name("x.y"); },
+       [](v1::CampaignDesign& d) { d.mutable_parameters(0)->set_name("x.y"); },
        {"design.parameters[0].name", "'x.y'"}},
       {"parameter without a kind",
-       [](v1::StudyDesign& d) { d.mutable_parameters(0)->clear_kind(); },
+       [](v1::CampaignDesign& d) { d.mutable_parameters(0)->clear_kind(); },
        {"design.parameters[0]", "real, integer, categorical, flag", "'x'"}},
       {"duplicate option",
-       [](v1::StudyDesign& d) {
+       [](v1::CampaignDesign& d) {
          *d.add_parameters() = Categorical("gas", {"ar", "n2", "ar"});
        },
        {"design.parameters[1].categorical.options[2]", "'ar' appears twice (also options[0])"}},
       {"duplicate grade label",
-       [](v1::StudyDesign& d) {
+       [](v1::CampaignDesign& d) {
          d.mutable_objective()->mutable_grade_scale()->add_labels("ok");
          d.mutable_objective()->mutable_grade_scale()->add_labels("ok");
        },
        {"design.objective.grade_scale.labels[1]", "'ok' appears twice"}},
       {"population size 1",
-       [](v1::StudyDesign& d) { d.set_population_size(1); },
+       [](v1::CampaignDesign& d) { d.set_population_size(1); },
        {"design.population_size", "0 (the default) or in 2..", "got 1"}},
       {"initial spread above 1",
-       [](v1::StudyDesign& d) { d.set_initial_spread(2); },
+       [](v1::CampaignDesign& d) { d.set_initial_spread(2); },
        {"design.initial_spread", "(0, 1]"}},
       {"negative staleness limit",
-       [](v1::StudyDesign& d) { d.set_staleness_limit(-1); },
+       [](v1::CampaignDesign& d) { d.set_staleness_limit(-1); },
        {"design.staleness_limit", ">= 0"}},
       {"negative trial budget",
-       [](v1::StudyDesign& d) { d.set_trial_budget(-3); },
+       [](v1::CampaignDesign& d) { d.set_trial_budget(-3); },
        {"design.trial_budget", ">= 0"}},
       {"negative lease",
-       [](v1::StudyDesign& d) { d.set_lease_seconds(-1); },
+       [](v1::CampaignDesign& d) { d.set_lease_seconds(-1); },
        {"design.lease_seconds", "(0, 2592000]", "got -1"}},
       {"NaN target",
-       [](v1::StudyDesign& d) { d.set_target(std::numeric_limits<double>::quiet_NaN()); },
+       [](v1::CampaignDesign& d) { d.set_target(std::numeric_limits<double>::quiet_NaN()); },
        {"design.target", "finite"}},
-      {"score target on a graded study",
-       [](v1::StudyDesign& d) {
+      {"score target on a graded campaign",
+       [](v1::CampaignDesign& d) {
          d.mutable_objective()->mutable_grade_scale()->add_labels("poor");
          d.mutable_objective()->mutable_grade_scale()->add_labels("good");
          d.set_target(1.0);
        },
        {"design.target", "target_grade"}},
       {"target grade off the scale",
-       [](v1::StudyDesign& d) {
+       [](v1::CampaignDesign& d) {
          d.mutable_objective()->mutable_grade_scale()->add_labels("poor");
          d.mutable_objective()->mutable_grade_scale()->add_labels("good");
          d.set_target_grade("great");
        },
        {"design.target_grade", "'great' is not on the scale"}},
       {"start for an unknown parameter",
-       [](v1::StudyDesign& d) { (*d.mutable_start()->mutable_values())["nope"].set_real(1); },
+       [](v1::CampaignDesign& d) { (*d.mutable_start()->mutable_values())["nope"].set_real(1); },
        {"design.start.values['nope']", "not a parameter"}},
       {"start outside the bounds",
-       [](v1::StudyDesign& d) { (*d.mutable_start()->mutable_values())["x"].set_real(7); },
+       [](v1::CampaignDesign& d) { (*d.mutable_start()->mutable_values())["x"].set_real(7); },
        {"design.start.values['x'].real", "in [0, 5], got 7"}},
       {"start of the wrong kind",
-       [](v1::StudyDesign& d) { (*d.mutable_start()->mutable_values())["x"].set_flag(true); },
+       [](v1::CampaignDesign& d) { (*d.mutable_start()->mutable_values())["x"].set_flag(true); },
        {"design.start.values['x']", "takes a real value"}},
   };
   for (const BadDesignCase& c : cases) {
     SCOPED_TRACE(c.what);
-    v1::StudyDesign design = ScoredDesign("bad", {Real("x", 0, 5)});
+    v1::CampaignDesign design = ScoredDesign("bad", {Real("x", 0, 5)});
     c.mutate(design);
     std::vector<::testing::Matcher<std::string>> parts;
     for (const std::string& p : c.message_parts) parts.push_back(HasSubstr(p));
-    EXPECT_THAT(client_->CreateStudy(design).status(),
+    EXPECT_THAT(client_->CreateCampaign(design).status(),
                 StatusIs(absl::StatusCode::kInvalidArgument, ::testing::AllOfArray(parts)));
   }
-  absl::StatusOr<v1::ListStudiesResponse> list = client_->ListStudies();
+  absl::StatusOr<v1::ListCampaignsResponse> list = client_->ListCampaigns();
   ASSERT_TRUE(list.ok()) << list.status();
-  EXPECT_EQ(list->studies_size(), 0);
+  EXPECT_EQ(list->campaigns_size(), 0);
   // The base design itself is fine.
-  EXPECT_TRUE(client_->CreateStudy(ScoredDesign("bad", {Real("x", 0, 5)})).ok());
+  EXPECT_TRUE(client_->CreateCampaign(ScoredDesign("bad", {Real("x", 0, 5)})).ok());
 }
 
 TEST_F(ServiceTest, MalformedReportsFailTheWholeTellNamingTheReport) {
@@ -1483,7 +1483,7 @@ TEST_F(ServiceTest, AskCountOutsideOneToTheLimitIsRefused) {
 
   // With page_size 0 a page holds 100 trials.
   v1::ListTrialsRequest request;
-  request.set_study("counted");
+  request.set_campaign("counted");
   absl::StatusOr<v1::ListTrialsResponse> page = client_->ListTrials(request);
   ASSERT_TRUE(page.ok()) << page.status();
   EXPECT_EQ(page->trials_size(), 100);
@@ -1527,12 +1527,12 @@ TEST_F(ServiceTest, DifferentOutcomeForAReportedTrialIsAlreadyExists) {
   ExpectSameAfterRestart({"once"});
 }
 
-TEST_F(ServiceTest, AskOnAPausedOrDoneStudyIsFailedPrecondition) {
+TEST_F(ServiceTest, AskOnAPausedOrDoneCampaignIsFailedPrecondition) {
   Create(ScoredDesign("phases", {Real("x", 0, 1)}));
   AskOk("phases", 1);
-  absl::StatusOr<v1::StudyView> paused = client_->SetPhase("phases", v1::PHASE_COMMAND_PAUSE);
+  absl::StatusOr<v1::CampaignView> paused = client_->SetPhase("phases", v1::PHASE_COMMAND_PAUSE);
   ASSERT_TRUE(paused.ok()) << paused.status();
-  EXPECT_EQ(paused->status().phase(), v1::STUDY_PHASE_PAUSED);
+  EXPECT_EQ(paused->status().phase(), v1::CAMPAIGN_PHASE_PAUSED);
   std::string before = StoredState("phases");
   EXPECT_THAT(client_->Ask("phases", 1, "w").status(),
               StatusIs(absl::StatusCode::kFailedPrecondition, HasSubstr("paused")));
@@ -1543,9 +1543,9 @@ TEST_F(ServiceTest, AskOnAPausedOrDoneStudyIsFailedPrecondition) {
   ASSERT_TRUE(client_->SetPhase("phases", v1::PHASE_COMMAND_RESUME).ok());
   EXPECT_EQ(AskOk("phases", 1).trials_size(), 1);
 
-  absl::StatusOr<v1::StudyView> done = client_->SetPhase("phases", v1::PHASE_COMMAND_FINISH);
+  absl::StatusOr<v1::CampaignView> done = client_->SetPhase("phases", v1::PHASE_COMMAND_FINISH);
   ASSERT_TRUE(done.ok()) << done.status();
-  EXPECT_EQ(done->status().phase(), v1::STUDY_PHASE_DONE);
+  EXPECT_EQ(done->status().phase(), v1::CAMPAIGN_PHASE_DONE);
   EXPECT_EQ(done->status().reason(), v1::DONE_REASON_STOPPED);
   before = StoredState("phases");
   EXPECT_THAT(client_->Ask("phases", 1, "w").status(),
@@ -1574,43 +1574,43 @@ TEST_F(ServiceTest, RequestLargerThanTheReceiveLimitIsResourceExhausted) {
   ExpectSameAfterRestart({"big"});
 }
 
-TEST_F(ServiceTest, TakenStudyNameIsAlreadyExists) {
+TEST_F(ServiceTest, TakenCampaignNameIsAlreadyExists) {
   Create(ScoredDesign("taken", {Real("x", 0, 1)}));
   AskOk("taken", 1);
   const std::string before = StoredState("taken");
-  v1::StudyDesign other = ScoredDesign("taken", {Real("y", 0, 2)});
-  EXPECT_THAT(client_->CreateStudy(other).status(),
+  v1::CampaignDesign other = ScoredDesign("taken", {Real("y", 0, 2)});
+  EXPECT_THAT(client_->CreateCampaign(other).status(),
               StatusIs(absl::StatusCode::kAlreadyExists, HasSubstr("'taken'")));
   EXPECT_EQ(StoredState("taken"), before);
 }
 
-TEST_F(ServiceTest, CreateStudyRetriedWithItsRequestIdReturnsTheSameStudy) {
-  v1::CreateStudyRequest request;
+TEST_F(ServiceTest, CreateCampaignRetriedWithItsRequestIdReturnsTheSameCampaign) {
+  v1::CreateCampaignRequest request;
   *request.mutable_design() = ScoredDesign("retried", {Real("x", 0, 1)});
   request.set_request_id("create-retried-1");
-  v1::StudyView first, second, third;
+  v1::CampaignView first, second, third;
   {
     grpc::ClientContext context;
     SetDeadline(context);
-    const grpc::Status s = client_->stub().CreateStudy(&context, request, &first);
+    const grpc::Status s = client_->stub().CreateCampaign(&context, request, &first);
     ASSERT_TRUE(s.ok()) << s.error_message();
   }
   {
     grpc::ClientContext context;
     SetDeadline(context);
-    const grpc::Status s = client_->stub().CreateStudy(&context, request, &second);
+    const grpc::Status s = client_->stub().CreateCampaign(&context, request, &second);
     ASSERT_TRUE(s.ok()) << s.error_message();
   }
   EXPECT_EQ(DeterministicBytes(WithoutActivity(second)), DeterministicBytes(WithoutActivity(first)));
-  absl::StatusOr<v1::ListStudiesResponse> list = client_->ListStudies();
+  absl::StatusOr<v1::ListCampaignsResponse> list = client_->ListCampaigns();
   ASSERT_TRUE(list.ok()) << list.status();
-  EXPECT_EQ(list->studies_size(), 1);
+  EXPECT_EQ(list->campaigns_size(), 1);
 
   // Another request id for the same name is another request: refused.
   request.set_request_id("create-retried-2");
   grpc::ClientContext context;
   SetDeadline(context);
-  const grpc::Status s = client_->stub().CreateStudy(&context, request, &third);
+  const grpc::Status s = client_->stub().CreateCampaign(&context, request, &third);
   EXPECT_EQ(s.error_code(), grpc::StatusCode::ALREADY_EXISTS);
   EXPECT_THAT(s.error_message(), HasSubstr("'retried'"));
 }
@@ -1662,8 +1662,8 @@ TEST_F(ServiceTest, RenewExtendsTheLeaseOfItsHolderOnly) {
   ExpectSameAfterRestart({"renewed"});
 }
 
-TEST_F(ServiceTest, TrialBudgetLimitsAsksAndEndsTheStudy) {
-  v1::StudyDesign design = ScoredDesign("budget", {Real("x", 0, 1)});
+TEST_F(ServiceTest, TrialBudgetLimitsAsksAndEndsTheCampaign) {
+  v1::CampaignDesign design = ScoredDesign("budget", {Real("x", 0, 1)});
   design.set_trial_budget(5);
   design.set_population_size(4);
   Create(design);
@@ -1677,9 +1677,9 @@ TEST_F(ServiceTest, TrialBudgetLimitsAsksAndEndsTheStudy) {
   const v1::TellResponse told =
       TellOk("budget", {ScoreReport(1, 1.0), ScoreReport(2, 2.0), ScoreReport(3, 3.0),
                         ScoreReport(4, 4.0), ScoreReport(6, 0.5)});
-  EXPECT_EQ(told.phase(), v1::STUDY_PHASE_DONE);
+  EXPECT_EQ(told.phase(), v1::CAMPAIGN_PHASE_DONE);
   const v1::StatusSummary status = Get("budget").status();
-  EXPECT_EQ(status.phase(), v1::STUDY_PHASE_DONE);
+  EXPECT_EQ(status.phase(), v1::CAMPAIGN_PHASE_DONE);
   EXPECT_EQ(status.reason(), v1::DONE_REASON_BUDGET);
   EXPECT_EQ(status.reported(), 5);
   EXPECT_EQ(status.best().number(), 6);
@@ -1688,14 +1688,14 @@ TEST_F(ServiceTest, TrialBudgetLimitsAsksAndEndsTheStudy) {
   ExpectSameAfterRestart({"budget"});
 }
 
-TEST_F(ServiceTest, TargetScoreEndsTheStudy) {
-  v1::StudyDesign design = ScoredDesign("target", {Real("x", 0, 1)});
-  design.mutable_objective()->set_direction(v1::HIGHER_IS_BETTER);
+TEST_F(ServiceTest, TargetScoreEndsTheCampaign) {
+  v1::CampaignDesign design = ScoredDesign("target", {Real("x", 0, 1)});
+  design.mutable_objective()->set_direction(v1::DIRECTION_HIGHER_IS_BETTER);
   design.set_target(0.9);
   Create(design);
   AskOk("target", 2);
-  EXPECT_EQ(TellOk("target", {ScoreReport(1, 0.5)}).phase(), v1::STUDY_PHASE_OPEN);
-  EXPECT_EQ(TellOk("target", {ScoreReport(2, 0.95)}).phase(), v1::STUDY_PHASE_DONE);
+  EXPECT_EQ(TellOk("target", {ScoreReport(1, 0.5)}).phase(), v1::CAMPAIGN_PHASE_OPEN);
+  EXPECT_EQ(TellOk("target", {ScoreReport(2, 0.95)}).phase(), v1::CAMPAIGN_PHASE_DONE);
   const v1::StatusSummary status = Get("target").status();
   EXPECT_EQ(status.reason(), v1::DONE_REASON_TARGET);
   EXPECT_EQ(status.best().number(), 2);
@@ -1703,7 +1703,7 @@ TEST_F(ServiceTest, TargetScoreEndsTheStudy) {
 }
 
 TEST_F(ServiceTest, OutcomesOlderThanTheStalenessLimitAreKeptButNotUsed) {
-  v1::StudyDesign design = ScoredDesign("stale", {Real("x", 0, 1), Real("y", 0, 1)});
+  v1::CampaignDesign design = ScoredDesign("stale", {Real("x", 0, 1), Real("y", 0, 1)});
   design.set_population_size(2);
   design.set_staleness_limit(1);
   Create(design);
@@ -1732,7 +1732,7 @@ TEST_F(ServiceTest, OutcomesOlderThanTheStalenessLimitAreKeptButNotUsed) {
 }
 
 TEST_F(ServiceTest, ConcurrentWorkersLoseNoReport) {
-  v1::StudyDesign busy = SphereDesign("busy");
+  v1::CampaignDesign busy = SphereDesign("busy");
   busy.set_expected_workers(6);
   Create(busy);
   Create(SphereDesign("quiet"));
@@ -1742,33 +1742,33 @@ TEST_F(ServiceTest, ConcurrentWorkersLoseNoReport) {
   std::vector<std::thread> workers;
   for (int w = 0; w < kWorkers; ++w) {
     workers.emplace_back([&, w] {
-      const std::string study = w < 6 ? "busy" : "quiet";
+      const std::string campaign = w < 6 ? "busy" : "quiet";
       const std::string name = absl::StrCat("worker-", w);
       for (int round = 0; round < kRounds; ++round) {
-        absl::StatusOr<v1::AskResponse> asked = client_->Ask(study, 1, name);
+        absl::StatusOr<v1::AskResponse> asked = client_->Ask(campaign, 1, name);
         if (!asked.ok() || asked->trials_size() != 1) {
           ++failures;
           return;
         }
         const v1::Trial& t = asked->trials(0);
         absl::StatusOr<v1::TellResponse> told =
-            client_->Tell(study, {ScoreReport(t.number(), Sphere(t.candidate()))}, name);
+            client_->Tell(campaign, {ScoreReport(t.number(), Sphere(t.candidate()))}, name);
         if (!told.ok() || told->results(0).code() != 0) ++failures;
       }
     });
   }
   for (std::thread& t : workers) t.join();
   EXPECT_EQ(failures.load(), 0);
-  for (const auto& [study, count] : {std::pair<std::string, int>{"busy", 6 * kRounds},
+  for (const auto& [campaign, count] : {std::pair<std::string, int>{"busy", 6 * kRounds},
                                      std::pair<std::string, int>{"quiet", 2 * kRounds}}) {
-    SCOPED_TRACE(study);
-    const std::vector<v1::Trial> trials = AllTrials(study);
+    SCOPED_TRACE(campaign);
+    const std::vector<v1::Trial> trials = AllTrials(campaign);
     ASSERT_EQ(trials.size(), static_cast<size_t>(count));
     for (int i = 0; i < count; ++i) {
       EXPECT_EQ(trials[i].number(), i + 1);
       EXPECT_EQ(trials[i].state(), v1::TRIAL_STATE_REPORTED);
     }
-    const v1::StatusSummary status = Get(study).status();
+    const v1::StatusSummary status = Get(campaign).status();
     EXPECT_EQ(status.reported(), count);
     EXPECT_EQ(status.consumed() + status.pending() + status.too_stale(), count);
     EXPECT_LT(status.pending(), status.population_size());
@@ -1778,44 +1778,44 @@ TEST_F(ServiceTest, ConcurrentWorkersLoseNoReport) {
   ExpectSameAfterRestart({"busy", "quiet"});
 }
 
-TEST_F(ServiceTest, ListStudiesShowsEveryStudyInNameOrderWithoutDesigns) {
+TEST_F(ServiceTest, ListCampaignsShowsEveryCampaignInNameOrderWithoutDesigns) {
   Create(ScoredDesign("zeta", {Real("x", 0, 1)}));
   Create(ScoredDesign("alpha", {Real("x", 0, 1)}));
   Create(GradedDesign("mid"));
   AskOk("mid", 2);
-  absl::StatusOr<v1::ListStudiesResponse> list = client_->ListStudies();
+  absl::StatusOr<v1::ListCampaignsResponse> list = client_->ListCampaigns();
   ASSERT_TRUE(list.ok()) << list.status();
   std::vector<std::string> names;
-  for (const v1::StudyView& v : list->studies()) {
+  for (const v1::CampaignView& v : list->campaigns()) {
     names.push_back(v.name());
     EXPECT_FALSE(v.has_design());
   }
   EXPECT_THAT(names, ElementsAre("alpha", "mid", "zeta"));
-  EXPECT_EQ(list->studies(1).status().leased(), 2);
+  EXPECT_EQ(list->campaigns(1).status().leased(), 2);
 }
 
-TEST(ServiceLimitsTest, StudiesBeyondTheServersLimitAreResourceExhausted) {
-  const std::string path = TempDbPath("max_studies");
+TEST(ServiceLimitsTest, CampaignsBeyondTheServersLimitAreResourceExhausted) {
+  const std::string path = TempDbPath("max_campaigns");
   RemoveDb(path);
   {
     service::ServiceLimits limits;
-    limits.max_studies = 2;
+    limits.max_campaigns = 2;
     limits.max_ask_count = 5;
     LoopbackServer server(path, limits);
     ASSERT_TRUE(server.Start().ok());
     std::unique_ptr<client::Client> c = server.NewClient();
-    ASSERT_TRUE(c->CreateStudy(ScoredDesign("one", {Real("x", 0, 1)})).ok());
-    ASSERT_TRUE(c->CreateStudy(ScoredDesign("two", {Real("x", 0, 1)})).ok());
-    EXPECT_THAT(c->CreateStudy(ScoredDesign("three", {Real("x", 0, 1)})).status(),
-                StatusIs(absl::StatusCode::kResourceExhausted, HasSubstr("2 studies")));
+    ASSERT_TRUE(c->CreateCampaign(ScoredDesign("one", {Real("x", 0, 1)})).ok());
+    ASSERT_TRUE(c->CreateCampaign(ScoredDesign("two", {Real("x", 0, 1)})).ok());
+    EXPECT_THAT(c->CreateCampaign(ScoredDesign("three", {Real("x", 0, 1)})).status(),
+                StatusIs(absl::StatusCode::kResourceExhausted, HasSubstr("2 campaigns")));
     EXPECT_THAT(c->Ask("one", 6, "w").status(),
                 StatusIs(absl::StatusCode::kResourceExhausted, HasSubstr("count: at most 5 trials")));
     absl::StatusOr<v1::AskResponse> asked = c->Ask("one", 5, "w");
     ASSERT_TRUE(asked.ok()) << asked.status();
     EXPECT_EQ(asked->trials_size(), 5);
-    absl::StatusOr<v1::ListStudiesResponse> list = c->ListStudies();
+    absl::StatusOr<v1::ListCampaignsResponse> list = c->ListCampaigns();
     ASSERT_TRUE(list.ok()) << list.status();
-    EXPECT_EQ(list->studies_size(), 2);
+    EXPECT_EQ(list->campaigns_size(), 2);
   }
   RemoveDb(path);
 }

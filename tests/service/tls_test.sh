@@ -12,7 +12,7 @@
 #    --tls-client-ca without TLS; and without TLS on a non-loopback --listen unless
 #    --allow-insecure-remote (the refusal comes before anything binds). Without TLS it logs that it
 #    is insecure and loopback only;
-#  - with --tls-cert/--tls-key: the CLI creates a study, asks, tells and reads it back over TLS
+#  - with --tls-cert/--tls-key: the CLI creates a campaign, asks, tells and reads it back over TLS
 #    (--tls-ca, or $OGIVE_TLS_CA), by IP and by name, and `ogive work` runs trials over TLS; a
 #    plaintext client, a client trusting only the system's roots or another CA, and a client that
 #    expects another server name (--tls-server-name) are refused;
@@ -59,7 +59,7 @@ step "ogived --help names the TLS flags and every limit with its default"
 timeout 10 "$OGIVED" --help >"$TMP/help.out" 2>&1 || fail "ogived --help failed"
 for flag in --tls-cert --tls-key --tls-client-ca --allow-insecure-remote --max-message-bytes \
   --max-ask-count --max-reports-per-tell --max-parameters --max-options --max-name-bytes \
-  --max-request-id-bytes --max-note-bytes --max-description-bytes --max-studies --max-page-size \
+  --max-request-id-bytes --max-note-bytes --max-description-bytes --max-campaigns --max-page-size \
   --max-lease-seconds; do
   grep -q -- "^  $flag " "$TMP/help.out" || fail "ogived --help does not list $flag"
 done
@@ -146,7 +146,7 @@ cat >"$TMP/design.txtpb" <<'EOF'
 name: "sealed"
 parameters { name: "temp" unit: "degC" real { low: 20 high: 80 } }
 parameters { name: "passes" integer { low: 1 high: 5 } }
-objective { direction: LOWER_IS_BETTER }
+objective { direction: DIRECTION_LOWER_IS_BETTER }
 population_size: 4
 seed: 5
 EOF
@@ -154,12 +154,12 @@ first_number() { "$PY" -c 'import json,sys; print(json.load(sys.stdin)[0]["numbe
 
 step "TLS: create, ask, tell and read back through the CLI with --tls-ca"
 T=(--server "$ADDR_tls" --tls-ca "$PKI/ca.pem")
-ok create "${T[@]}" study create "$TMP/design.txtpb"
-grep -q "created study sealed" "$TMP/create.out" || fail "create printed: $(cat "$TMP/create.out")"
+ok create "${T[@]}" campaign create "$TMP/design.txtpb"
+grep -q "created campaign sealed" "$TMP/create.out" || fail "create printed: $(cat "$TMP/create.out")"
 ok ask "${T[@]}" ask sealed --worker tls-test --json
 trial=$(first_number "$TMP/ask.out")
 ok tell "${T[@]}" tell sealed "$trial" --score 2.5 --worker tls-test
-ok trials "${T[@]}" study trials sealed --json
+ok trials "${T[@]}" campaign trials sealed --json
 "$PY" - "$TMP/trials.out" "$trial" <<'EOF' || fail "the told score is not stored: $(cat "$TMP/trials.out")"
 import json, sys
 trials = {t["number"]: t for t in json.load(open(sys.argv[1]))}
@@ -167,16 +167,16 @@ assert trials[sys.argv[2]]["outcome"]["score"] == 2.5, trials
 EOF
 
 step "TLS: by host name, with \$OGIVE_TLS_CA, and with --tls-server-name"
-ok byname --server "localhost:${ADDR_tls##*:}" --tls-ca "$PKI/ca.pem" study show sealed
-OGIVE_TLS_CA="$PKI/ca.pem" ok env --server "$ADDR_tls" study list
-grep -q "sealed" "$TMP/env.out" || fail "study list over TLS: $(cat "$TMP/env.out")"
-ok override "${T[@]}" --tls-server-name localhost study list
+ok byname --server "localhost:${ADDR_tls##*:}" --tls-ca "$PKI/ca.pem" campaign show sealed
+OGIVE_TLS_CA="$PKI/ca.pem" ok env --server "$ADDR_tls" campaign list
+grep -q "sealed" "$TMP/env.out" || fail "campaign list over TLS: $(cat "$TMP/env.out")"
+ok override "${T[@]}" --tls-server-name localhost campaign list
 
 step "TLS: ogive work runs trials over TLS"
 printf '%s\n' '#!/bin/sh' 'echo "$OGIVE_TEMP"' >"$TMP/score.sh"
 chmod +x "$TMP/score.sh"
 ok work "${T[@]}" work sealed --max-trials 3 --worker tls-worker -- "$TMP/score.sh"
-ok after "${T[@]}" study trials sealed --json
+ok after "${T[@]}" campaign trials sealed --json
 "$PY" - "$TMP/after.out" <<'EOF' || fail "ogive work did not store 3 scores: $(cat "$TMP/after.out")"
 import json, sys
 trials = json.load(open(sys.argv[1]))
@@ -187,34 +187,34 @@ for t in worked:
 EOF
 
 step "TLS: refused for a plaintext client, untrusted CAs and another server name"
-no plaintext --server "$ADDR_tls" study list
-no sysroots --server "$ADDR_tls" --tls study list
-no otherca --server "$ADDR_tls" --tls-ca "$PKI/other-ca.pem" study list
-no wrongname "${T[@]}" --tls-server-name db.example.org study list
+no plaintext --server "$ADDR_tls" campaign list
+no sysroots --server "$ADDR_tls" --tls campaign list
+no otherca --server "$ADDR_tls" --tls-ca "$PKI/other-ca.pem" campaign list
+no wrongname "${T[@]}" --tls-server-name db.example.org campaign list
 # And a TLS client of a plaintext server fails too, rather than falling back to plain text.
-no tls-to-plain --server "$ADDR_plain" --tls-ca "$PKI/ca.pem" study list
+no tls-to-plain --server "$ADDR_plain" --tls-ca "$PKI/ca.pem" campaign list
 
 step "TLS client options that cannot be used are usage errors naming the option"
 rc=0
-timeout 10 "$OGIVE" "${T[@]}" --tls-cert "$PKI/client.pem" study list >/dev/null 2>"$TMP/usage.err" || rc=$?
+timeout 10 "$OGIVE" "${T[@]}" --tls-cert "$PKI/client.pem" campaign list >/dev/null 2>"$TMP/usage.err" || rc=$?
 [[ "$rc" -eq 2 ]] && grep -q -- "--tls-cert: needs --tls-key" "$TMP/usage.err" ||
   fail "cert without key: status $rc: $(cat "$TMP/usage.err")"
 rc=0
-timeout 10 "$OGIVE" --server "$ADDR_tls" --tls-ca "$PKI/missing.pem" study list >/dev/null 2>"$TMP/usage.err" || rc=$?
+timeout 10 "$OGIVE" --server "$ADDR_tls" --tls-ca "$PKI/missing.pem" campaign list >/dev/null 2>"$TMP/usage.err" || rc=$?
 [[ "$rc" -eq 2 ]] && grep -qF -- "--tls-ca '$PKI/missing.pem': cannot read" "$TMP/usage.err" ||
   fail "missing CA file: status $rc: $(cat "$TMP/usage.err")"
 
 step "mTLS: a client needs a certificate signed by --tls-client-ca"
 M=(--server "$ADDR_mtls" --tls-ca "$PKI/ca.pem")
-no nocert "${M[@]}" study list
-no strangercert "${M[@]}" --tls-cert "$PKI/stranger.pem" --tls-key "$PKI/stranger.key" study list
+no nocert "${M[@]}" campaign list
+no strangercert "${M[@]}" --tls-cert "$PKI/stranger.pem" --tls-key "$PKI/stranger.key" campaign list
 C=("${M[@]}" --tls-cert "$PKI/client.pem" --tls-key "$PKI/client.key")
-ok mcreate "${C[@]}" study create "$TMP/design.txtpb"
+ok mcreate "${C[@]}" campaign create "$TMP/design.txtpb"
 ok mask "${C[@]}" ask sealed --json
 trial=$(first_number "$TMP/mask.out")
 OGIVE_TLS_CERT="$PKI/client.pem" OGIVE_TLS_KEY="$PKI/client.key" \
   ok mtell "${M[@]}" tell sealed "$trial" --void --note "from the environment's certificate"
-ok mshow "${C[@]}" study trials sealed --json
+ok mshow "${C[@]}" campaign trials sealed --json
 grep -q "TRIAL_STATE_VOIDED" "$TMP/mshow.out" || fail "mTLS tell not stored: $(cat "$TMP/mshow.out")"
 
 step "mTLS: Python grpcio with grpc.ssl_channel_credentials"
@@ -225,20 +225,20 @@ import grpc
 address, pki = sys.argv[1], sys.argv[2]
 read = lambda name: open("%s/%s" % (pki, name), "rb").read()
 
-def list_studies(credentials):
-    # ListStudiesRequest has no fields: its encoding is empty. The reply is only searched for a name.
+def list_campaigns(credentials):
+    # ListCampaignsRequest has no fields: its encoding is empty. The reply is only searched for a name.
     with grpc.secure_channel(address, credentials) as channel:
-        call = channel.unary_unary("/ogive.v1.Ogive/ListStudies",
+        call = channel.unary_unary("/ogive.v1.Ogive/ListCampaigns",
                                    request_serializer=lambda _: b"",
                                    response_deserializer=lambda data: data)
         return call(None, timeout=5)
 
-reply = list_studies(grpc.ssl_channel_credentials(
+reply = list_campaigns(grpc.ssl_channel_credentials(
     root_certificates=read("ca.pem"), private_key=read("client.key"),
     certificate_chain=read("client.pem")))
 assert b"sealed" in reply, reply
 try:
-    list_studies(grpc.ssl_channel_credentials(root_certificates=read("ca.pem")))
+    list_campaigns(grpc.ssl_channel_credentials(root_certificates=read("ca.pem")))
 except grpc.RpcError as e:
     assert e.code() == grpc.StatusCode.UNAVAILABLE, e
 else:

@@ -1,8 +1,8 @@
-// Every request field of proto/ogive/v1/service.proto and study.proto that a client sets, refused when
+// Every request field of proto/ogive/v1/service.proto and campaign.proto that a client sets, refused when
 // malformed: each bad request goes through the handlers (server/service/handlers.h, the functions the
 // gRPC service calls) of a Registry over a SqliteStore on a temporary file, and must fail with the
 // right code (INVALID_ARGUMENT, or RESOURCE_EXHAUSTED beyond a count limit), a message naming the
-// field's path and what is allowed, and leave what is stored byte for byte unchanged (every study as
+// field's path and what is allowed, and leave what is stored byte for byte unchanged (every campaign as
 // LoadAll() reads it back from the file, and its event log). The server runs with small limits so
 // that requests beyond them are cheap to build; the cases next to each limit show that the limit
 // itself is accepted. Also checks the limit flags of ogived (LimitFlags, SetLimitFromFlag).
@@ -80,8 +80,8 @@ v1::Parameter Real(const std::string& name, double low, double high) {
 }
 
 // The design every bad design below starts from: valid as it is (the test creates it first).
-v1::StudyDesign BaseDesign(const std::string& name) {
-  v1::StudyDesign d;
+v1::CampaignDesign BaseDesign(const std::string& name) {
+  v1::CampaignDesign d;
   d.set_name(name);
   *d.add_parameters() = Real("x", 0, 5);
   v1::Parameter* n = d.add_parameters();
@@ -95,14 +95,14 @@ v1::StudyDesign BaseDesign(const std::string& name) {
   v1::Parameter* f = d.add_parameters();
   f->set_name("f");
   f->mutable_flag();
-  d.mutable_objective()->set_direction(v1::LOWER_IS_BETTER);
+  d.mutable_objective()->set_direction(v1::DIRECTION_LOWER_IS_BETTER);
   d.set_population_size(4);
   d.set_seed(3);
   return d;
 }
 
-v1::StudyDesign GradedDesign(const std::string& name) {
-  v1::StudyDesign d;
+v1::CampaignDesign GradedDesign(const std::string& name) {
+  v1::CampaignDesign d;
   d.set_name(name);
   *d.add_parameters() = Real("x", 0, 1);
   for (const char* label : {"poor", "fair", "good"}) d.mutable_objective()->mutable_grade_scale()->add_labels(label);
@@ -133,19 +133,19 @@ class ValidationTest : public ::testing::Test {
     registry_ = std::make_unique<service::Registry>(store_.get(), TestLimits());
     ASSERT_TRUE(registry_->LoadAll().ok());
 
-    // Two studies with some history: trials leased, one scored, one graded.
-    for (const v1::StudyDesign& d : {BaseDesign("base"), GradedDesign("graded")}) {
-      v1::CreateStudyRequest create;
+    // Two campaigns with some history: trials leased, one scored, one graded.
+    for (const v1::CampaignDesign& d : {BaseDesign("base"), GradedDesign("graded")}) {
+      v1::CreateCampaignRequest create;
       *create.mutable_design() = d;
-      ASSERT_TRUE(service::CreateStudy(*registry_, create).ok()) << d.name();
+      ASSERT_TRUE(service::CreateCampaign(*registry_, create).ok()) << d.name();
       v1::AskRequest ask;
-      ask.set_study(d.name());
+      ask.set_campaign(d.name());
       ask.set_count(3);
       ask.set_worker("w1");
       ASSERT_TRUE(service::Ask(*registry_, ask, absl::Now()).ok());
     }
     v1::TellRequest tell;
-    tell.set_study("base");
+    tell.set_campaign("base");
     v1::Report* r = tell.add_reports();
     r->set_trial(1);
     r->mutable_outcome()->set_score(1.5);
@@ -162,13 +162,13 @@ class ValidationTest : public ::testing::Test {
     for (const char* suffix : {"", "-wal", "-shm", "-journal", ".lock"}) std::remove(absl::StrCat(path_, suffix).c_str());
   }
 
-  // Everything stored: each study as the file holds it, and its event log.
+  // Everything stored: each campaign as the file holds it, and its event log.
   std::string Stored() {
-    absl::StatusOr<std::vector<storage::StoredStudy>> all = store_->LoadAll();
+    absl::StatusOr<std::vector<storage::StoredCampaign>> all = store_->LoadAll();
     EXPECT_TRUE(all.ok()) << all.status();
     std::string out;
     if (!all.ok()) return out;
-    for (const storage::StoredStudy& s : *all) {
+    for (const storage::StoredCampaign& s : *all) {
       absl::StrAppend(&out, s.id, "/", s.name, "/", DeterministicBytes(s.design), "/", DeterministicBytes(s.snapshot),
                       "/", s.create_request_id, "/", s.ask_requests.size(), "\n");
       absl::StatusOr<std::vector<storage::Event>> events = store_->ListEvents(s.id, 1000);
@@ -194,14 +194,14 @@ class ValidationTest : public ::testing::Test {
     EXPECT_EQ(Stored(), before);
   }
 
-  static std::function<absl::Status(service::Registry&)> Create(std::function<void(v1::StudyDesign&)> mutate,
+  static std::function<absl::Status(service::Registry&)> Create(std::function<void(v1::CampaignDesign&)> mutate,
                                                                 std::string request_id = "") {
     return [mutate = std::move(mutate), request_id](service::Registry& r) {
-      v1::CreateStudyRequest request;
+      v1::CreateCampaignRequest request;
       *request.mutable_design() = BaseDesign("fresh");
       mutate(*request.mutable_design());
       request.set_request_id(request_id);
-      return StatusOf(service::CreateStudy(r, request));
+      return StatusOf(service::CreateCampaign(r, request));
     };
   }
 
@@ -216,7 +216,7 @@ constexpr absl::StatusCode kExhausted = absl::StatusCode::kResourceExhausted;
 TEST_F(ValidationTest, TheBaseRequestsAreAcceptedAtTheLimits) {
   // The limits themselves are allowed: a design with max_parameters parameters and max_options
   // options, names of max_name_bytes, a request id of max_request_id_bytes.
-  v1::CreateStudyRequest create;
+  v1::CreateCampaignRequest create;
   *create.mutable_design() = BaseDesign(std::string(24, 's'));
   create.set_request_id(std::string(40, 'r'));
   create.mutable_design()->mutable_parameters(2)->mutable_categorical()->add_options(std::string(24, 'o'));
@@ -226,11 +226,11 @@ TEST_F(ValidationTest, TheBaseRequestsAreAcceptedAtTheLimits) {
   create.mutable_design()->mutable_parameters(0)->set_unit(std::string(24, 'u'));
   create.mutable_design()->mutable_parameters(0)->set_description(std::string(79, 'd') + "\n");
   create.mutable_design()->set_lease_seconds(3600);
-  absl::StatusOr<v1::StudyView> created = service::CreateStudy(*registry_, create);
+  absl::StatusOr<v1::CampaignView> created = service::CreateCampaign(*registry_, create);
   ASSERT_TRUE(created.ok()) << created.status();
 
   v1::AskRequest ask;
-  ask.set_study(create.design().name());
+  ask.set_campaign(create.design().name());
   ask.set_count(5);
   ask.set_worker(std::string(24, 'w'));
   ask.set_lease_seconds(3600);
@@ -240,7 +240,7 @@ TEST_F(ValidationTest, TheBaseRequestsAreAcceptedAtTheLimits) {
   ASSERT_EQ(asked->trials_size(), 5);
 
   v1::TellRequest tell;
-  tell.set_study(ask.study());
+  tell.set_campaign(ask.campaign());
   tell.set_worker(ask.worker());
   for (int i = 0; i < 3; ++i) {
     v1::Report* r = tell.add_reports();
@@ -253,7 +253,7 @@ TEST_F(ValidationTest, TheBaseRequestsAreAcceptedAtTheLimits) {
   for (const v1::ReportResult& r : told->results()) EXPECT_EQ(r.code(), 0) << r.message();
 
   v1::ListTrialsRequest list;
-  list.set_study(ask.study());
+  list.set_campaign(ask.campaign());
   list.set_page_size(200);
   list.set_state(v1::TRIAL_STATE_REPORTED);
   absl::StatusOr<v1::ListTrialsResponse> page = service::ListTrials(*registry_, list);
@@ -261,7 +261,7 @@ TEST_F(ValidationTest, TheBaseRequestsAreAcceptedAtTheLimits) {
   EXPECT_EQ(page->trials_size(), 3);
 
   v1::ListGenerationsRequest generations;
-  generations.set_study(ask.study());
+  generations.set_campaign(ask.campaign());
   generations.set_page_size(200);
   absl::StatusOr<v1::ListGenerationsResponse> history = service::ListGenerations(*registry_, generations);
   ASSERT_TRUE(history.ok()) << history.status();
@@ -270,142 +270,142 @@ TEST_F(ValidationTest, TheBaseRequestsAreAcceptedAtTheLimits) {
 
 TEST_F(ValidationTest, DesignFieldsAreRefusedNamingTheirPath) {
   ExpectRefused({
-      {"real low NaN", Create([](v1::StudyDesign& d) { d.mutable_parameters(0)->mutable_real()->set_low(kNaN); }),
+      {"real low NaN", Create([](v1::CampaignDesign& d) { d.mutable_parameters(0)->mutable_real()->set_low(kNaN); }),
        kInvalid, {"design.parameters[0].real.low", "finite", "'x'"}},
       {"real high infinite",
-       Create([](v1::StudyDesign& d) { d.mutable_parameters(0)->mutable_real()->set_high(kInf); }), kInvalid,
+       Create([](v1::CampaignDesign& d) { d.mutable_parameters(0)->mutable_real()->set_high(kInf); }), kInvalid,
        {"design.parameters[0].real.high", "finite"}},
       {"real range wider than a double",
-       Create([](v1::StudyDesign& d) { *d.add_parameters() = Real("wide", -1.5e308, 1.5e308); }), kInvalid,
+       Create([](v1::CampaignDesign& d) { *d.add_parameters() = Real("wide", -1.5e308, 1.5e308); }), kInvalid,
        {"design.parameters[4].real", "high - low must be a finite number"}},
       {"integer range of more than 2^31 values",
-       Create([](v1::StudyDesign& d) {
+       Create([](v1::CampaignDesign& d) {
          d.mutable_parameters(1)->mutable_integer()->set_low(std::numeric_limits<int64_t>::min());
          d.mutable_parameters(1)->mutable_integer()->set_high(std::numeric_limits<int64_t>::max());
        }),
        kInvalid, {"design.parameters[1].integer", "at most 2147483648 values"}},
-      {"empty parameter name", Create([](v1::StudyDesign& d) { d.mutable_parameters(3)->set_name(""); }), kInvalid,
+      {"empty parameter name", Create([](v1::CampaignDesign& d) { d.mutable_parameters(3)->set_name(""); }), kInvalid,
        {"design.parameters[3].name", "must not be empty", "letters, digits"}},
       {"parameter name too long",
-       Create([](v1::StudyDesign& d) { d.mutable_parameters(3)->set_name(std::string(25, 'p')); }), kInvalid,
+       Create([](v1::CampaignDesign& d) { d.mutable_parameters(3)->set_name(std::string(25, 'p')); }), kInvalid,
        {"design.parameters[3].name", "at most 24 bytes, got 25"}},
       {"parameter names equal but for case",
-       Create([](v1::StudyDesign& d) { *d.add_parameters() = Real("X", 0, 1); }), kInvalid,
+       Create([](v1::CampaignDesign& d) { *d.add_parameters() = Real("X", 0, 1); }), kInvalid,
        {"design.parameters[4].name", "'X' and parameters[0].name 'x'", "OGIVE_X"}},
       {"parameter names equal but for '-' and '_'",
-       Create([](v1::StudyDesign& d) {
+       Create([](v1::CampaignDesign& d) {
          *d.add_parameters() = Real("flow-rate", 0, 1);
          *d.add_parameters() = Real("flow_rate", 0, 1);
        }),
        kInvalid, {"design.parameters[5].name", "OGIVE_FLOW_RATE"}},
       {"parameter name that shadows OGIVE_TRIAL",
-       Create([](v1::StudyDesign& d) { d.mutable_parameters(3)->set_name("Trial"); }), kInvalid,
+       Create([](v1::CampaignDesign& d) { d.mutable_parameters(3)->set_name("Trial"); }), kInvalid,
        {"design.parameters[3].name", "shadow OGIVE_TRIAL"}},
-      {"unit too long", Create([](v1::StudyDesign& d) { d.mutable_parameters(0)->set_unit(std::string(25, 'u')); }),
+      {"unit too long", Create([](v1::CampaignDesign& d) { d.mutable_parameters(0)->set_unit(std::string(25, 'u')); }),
        kInvalid, {"design.parameters[0].unit", "at most 24 bytes"}},
-      {"unit with a newline", Create([](v1::StudyDesign& d) { d.mutable_parameters(0)->set_unit("deg\nC"); }),
+      {"unit with a newline", Create([](v1::CampaignDesign& d) { d.mutable_parameters(0)->set_unit("deg\nC"); }),
        kInvalid, {"design.parameters[0].unit", "control character"}},
       {"description too long",
-       Create([](v1::StudyDesign& d) { d.mutable_parameters(0)->set_description(std::string(81, 'd')); }), kInvalid,
+       Create([](v1::CampaignDesign& d) { d.mutable_parameters(0)->set_description(std::string(81, 'd')); }), kInvalid,
        {"design.parameters[0].description", "at most 80 bytes, got 81"}},
       {"description with an escape sequence",
-       Create([](v1::StudyDesign& d) { d.mutable_parameters(0)->set_description("red \x1b[31m"); }), kInvalid,
+       Create([](v1::CampaignDesign& d) { d.mutable_parameters(0)->set_description("red \x1b[31m"); }), kInvalid,
        {"design.parameters[0].description", "control character", "tab and newline"}},
       {"more parameters than the limit",
-       Create([](v1::StudyDesign& d) {
+       Create([](v1::CampaignDesign& d) {
          for (const char* name : {"a", "b", "c"}) *d.add_parameters() = Real(name, 0, 1);
        }),
        kExhausted, {"design.parameters", "at most 6 parameters", "got 7"}},
       {"categorical with one option",
-       Create([](v1::StudyDesign& d) { d.mutable_parameters(2)->mutable_categorical()->mutable_options()->RemoveLast(); }),
+       Create([](v1::CampaignDesign& d) { d.mutable_parameters(2)->mutable_categorical()->mutable_options()->RemoveLast(); }),
        kInvalid, {"design.parameters[2].categorical.options", "2..4", "got 1"}},
       {"more options than the limit",
-       Create([](v1::StudyDesign& d) {
+       Create([](v1::CampaignDesign& d) {
          for (const char* o : {"he", "co2", "o2"}) d.mutable_parameters(2)->mutable_categorical()->add_options(o);
        }),
        kExhausted, {"design.parameters[2].categorical.options", "at most 4", "got 5"}},
       {"empty option",
-       Create([](v1::StudyDesign& d) { d.mutable_parameters(2)->mutable_categorical()->set_options(1, ""); }),
+       Create([](v1::CampaignDesign& d) { d.mutable_parameters(2)->mutable_categorical()->set_options(1, ""); }),
        kInvalid, {"design.parameters[2].categorical.options[1]", "must not be empty"}},
       {"option too long",
-       Create([](v1::StudyDesign& d) {
+       Create([](v1::CampaignDesign& d) {
          d.mutable_parameters(2)->mutable_categorical()->set_options(1, std::string(25, 'o'));
        }),
        kInvalid, {"design.parameters[2].categorical.options[1]", "at most 24 bytes"}},
       {"option with a tab",
-       Create([](v1::StudyDesign& d) { d.mutable_parameters(2)->mutable_categorical()->set_options(0, "a\tr"); }),
+       Create([](v1::CampaignDesign& d) { d.mutable_parameters(2)->mutable_categorical()->set_options(0, "a\tr"); }),
        kInvalid, {"design.parameters[2].categorical.options[0]", "control character"}},
       {"option with a trailing blank",
-       Create([](v1::StudyDesign& d) { d.mutable_parameters(2)->mutable_categorical()->set_options(0, "ar "); }),
+       Create([](v1::CampaignDesign& d) { d.mutable_parameters(2)->mutable_categorical()->set_options(0, "ar "); }),
        kInvalid, {"design.parameters[2].categorical.options[0]", "'ar '", "blank"}},
       {"direction left unspecified",
-       Create([](v1::StudyDesign& d) { d.mutable_objective()->set_direction(v1::DIRECTION_UNSPECIFIED); }), kInvalid,
-       {"design.objective.direction", "LOWER_IS_BETTER or HIGHER_IS_BETTER", "got 0"}},
+       Create([](v1::CampaignDesign& d) { d.mutable_objective()->set_direction(v1::DIRECTION_UNSPECIFIED); }), kInvalid,
+       {"design.objective.direction", "DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER", "got 0"}},
       {"more grade labels than the limit",
-       Create([](v1::StudyDesign& d) {
+       Create([](v1::CampaignDesign& d) {
          for (const char* l : {"a", "b", "c", "d", "e"}) d.mutable_objective()->mutable_grade_scale()->add_labels(l);
        }),
        kExhausted, {"design.objective.grade_scale.labels", "at most 4", "got 5"}},
       {"empty grade label",
-       Create([](v1::StudyDesign& d) {
+       Create([](v1::CampaignDesign& d) {
          d.mutable_objective()->mutable_grade_scale()->add_labels("bad");
          d.mutable_objective()->mutable_grade_scale()->add_labels("");
        }),
        kInvalid, {"design.objective.grade_scale.labels[1]", "must not be empty"}},
       {"grade label too long",
-       Create([](v1::StudyDesign& d) {
+       Create([](v1::CampaignDesign& d) {
          d.mutable_objective()->mutable_grade_scale()->add_labels(std::string(25, 'g'));
          d.mutable_objective()->mutable_grade_scale()->add_labels("ok");
        }),
        kInvalid, {"design.objective.grade_scale.labels[0]", "at most 24 bytes"}},
       {"population size beyond 100000",
-       Create([](v1::StudyDesign& d) { d.set_population_size(100001); }), kInvalid,
+       Create([](v1::CampaignDesign& d) { d.set_population_size(100001); }), kInvalid,
        {"design.population_size", "2..100000", "got 100001"}},
-      {"negative expected workers", Create([](v1::StudyDesign& d) { d.set_expected_workers(-2); }), kInvalid,
+      {"negative expected workers", Create([](v1::CampaignDesign& d) { d.set_expected_workers(-2); }), kInvalid,
        {"design.expected_workers", "got -2"}},
-      {"expected workers beyond 100000", Create([](v1::StudyDesign& d) { d.set_expected_workers(100001); }),
+      {"expected workers beyond 100000", Create([](v1::CampaignDesign& d) { d.set_expected_workers(100001); }),
        kInvalid, {"design.expected_workers", "1..100000"}},
-      {"lease NaN", Create([](v1::StudyDesign& d) { d.set_lease_seconds(kNaN); }), kInvalid,
+      {"lease NaN", Create([](v1::CampaignDesign& d) { d.set_lease_seconds(kNaN); }), kInvalid,
        {"design.lease_seconds", "(0, 3600]"}},
-      {"lease infinite", Create([](v1::StudyDesign& d) { d.set_lease_seconds(kInf); }), kInvalid,
+      {"lease infinite", Create([](v1::CampaignDesign& d) { d.set_lease_seconds(kInf); }), kInvalid,
        {"design.lease_seconds", "(0, 3600]"}},
-      {"lease beyond the limit", Create([](v1::StudyDesign& d) { d.set_lease_seconds(3601); }), kInvalid,
+      {"lease beyond the limit", Create([](v1::CampaignDesign& d) { d.set_lease_seconds(3601); }), kInvalid,
        {"design.lease_seconds", "(0, 3600]", "got 3601"}},
-      {"initial spread NaN", Create([](v1::StudyDesign& d) { d.set_initial_spread(kNaN); }), kInvalid,
+      {"initial spread NaN", Create([](v1::CampaignDesign& d) { d.set_initial_spread(kNaN); }), kInvalid,
        {"design.initial_spread", "(0, 1]"}},
-      {"negative initial spread", Create([](v1::StudyDesign& d) { d.set_initial_spread(-0.1); }), kInvalid,
+      {"negative initial spread", Create([](v1::CampaignDesign& d) { d.set_initial_spread(-0.1); }), kInvalid,
        {"design.initial_spread", "(0, 1]"}},
-      {"infinite target", Create([](v1::StudyDesign& d) { d.set_target(-kInf); }), kInvalid,
+      {"infinite target", Create([](v1::CampaignDesign& d) { d.set_target(-kInf); }), kInvalid,
        {"design.target", "finite"}},
-      {"target grade on a scored study", Create([](v1::StudyDesign& d) { d.set_target_grade("good"); }), kInvalid,
-       {"design.target_grade", "scored study takes target"}},
+      {"target grade on a scored campaign", Create([](v1::CampaignDesign& d) { d.set_target_grade("good"); }), kInvalid,
+       {"design.target_grade", "scored campaign takes target"}},
       {"both targets",
-       Create([](v1::StudyDesign& d) {
+       Create([](v1::CampaignDesign& d) {
          d.set_target(1);
          d.set_target_grade("good");
        }),
        kInvalid, {"design.target", "at most one of target and target_grade"}},
       {"start integer outside its range",
-       Create([](v1::StudyDesign& d) { (*d.mutable_start()->mutable_values())["n"].set_integer(10); }), kInvalid,
+       Create([](v1::CampaignDesign& d) { (*d.mutable_start()->mutable_values())["n"].set_integer(10); }), kInvalid,
        {"design.start.values['n'].integer", "in [1, 9], got 10"}},
       {"start real NaN",
-       Create([](v1::StudyDesign& d) { (*d.mutable_start()->mutable_values())["x"].set_real(kNaN); }), kInvalid,
+       Create([](v1::CampaignDesign& d) { (*d.mutable_start()->mutable_values())["x"].set_real(kNaN); }), kInvalid,
        {"design.start.values['x'].real", "in [0, 5]"}},
       {"start option not on the list",
-       Create([](v1::StudyDesign& d) { (*d.mutable_start()->mutable_values())["gas"].set_categorical("xe"); }),
+       Create([](v1::CampaignDesign& d) { (*d.mutable_start()->mutable_values())["gas"].set_categorical("xe"); }),
        kInvalid, {"design.start.values['gas'].categorical", "'xe' is not an option; allowed: ar, n2"}},
       {"start value without a kind",
-       Create([](v1::StudyDesign& d) { (*d.mutable_start()->mutable_values())["f"]; }), kInvalid,
+       Create([](v1::CampaignDesign& d) { (*d.mutable_start()->mutable_values())["f"]; }), kInvalid,
        {"design.start.values['f']", "takes a flag value"}},
-      {"empty study name", Create([](v1::StudyDesign& d) { d.set_name(""); }), kInvalid,
+      {"empty campaign name", Create([](v1::CampaignDesign& d) { d.set_name(""); }), kInvalid,
        {"design.name", "must not be empty"}},
-      {"study name with a slash", Create([](v1::StudyDesign& d) { d.set_name("../etc"); }), kInvalid,
+      {"campaign name with a slash", Create([](v1::CampaignDesign& d) { d.set_name("../etc"); }), kInvalid,
        {"design.name", "letters, digits, '_', '-' and '.'"}},
-      {"request id too long", Create([](v1::StudyDesign&) {}, std::string(41, 'r')), kInvalid,
+      {"request id too long", Create([](v1::CampaignDesign&) {}, std::string(41, 'r')), kInvalid,
        {"request_id", "at most 40 bytes, got 41"}},
-      {"request id with a blank", Create([](v1::StudyDesign&) {}, "my id"), kInvalid,
+      {"request id with a blank", Create([](v1::CampaignDesign&) {}, "my id"), kInvalid,
        {"request_id", "printable ASCII without blanks"}},
-      {"taken name of another study", Create([](v1::StudyDesign& d) { d.set_name("base"); }),
+      {"taken name of another campaign", Create([](v1::CampaignDesign& d) { d.set_name("base"); }),
        absl::StatusCode::kAlreadyExists, {"design.name", "'base' already exists"}},
   });
 }
@@ -414,7 +414,7 @@ TEST_F(ValidationTest, AskRenewAndTellFieldsAreRefusedNamingTheirPath) {
   auto ask = [](std::function<void(v1::AskRequest&)> mutate) {
     return [mutate](service::Registry& r) {
       v1::AskRequest request;
-      request.set_study("base");
+      request.set_campaign("base");
       request.set_count(1);
       request.set_worker("w2");
       mutate(request);
@@ -424,22 +424,22 @@ TEST_F(ValidationTest, AskRenewAndTellFieldsAreRefusedNamingTheirPath) {
   auto renew = [](std::function<void(v1::RenewRequest&)> mutate) {
     return [mutate](service::Registry& r) {
       v1::RenewRequest request;
-      request.set_study("base");
+      request.set_campaign("base");
       request.add_trials(2);
       request.set_worker("w1");
       mutate(request);
       return StatusOf(service::Renew(r, request, absl::Now()));
     };
   };
-  // A tell of trial 2 of `study` (a score for "base", a grade for "graded"), then `mutate`.
-  auto tell = [](const std::string& study, std::function<void(v1::TellRequest&)> mutate) {
-    return [study, mutate](service::Registry& r) {
+  // A tell of trial 2 of `campaign` (a score for "base", a grade for "graded"), then `mutate`.
+  auto tell = [](const std::string& campaign, std::function<void(v1::TellRequest&)> mutate) {
+    return [campaign, mutate](service::Registry& r) {
       v1::TellRequest request;
-      request.set_study(study);
+      request.set_campaign(campaign);
       request.set_worker("w1");
       v1::Report* report = request.add_reports();
       report->set_trial(2);
-      if (study == "graded") {
+      if (campaign == "graded") {
         report->mutable_outcome()->set_grade("good");
       } else {
         report->mutable_outcome()->set_score(2.5);
@@ -449,11 +449,11 @@ TEST_F(ValidationTest, AskRenewAndTellFieldsAreRefusedNamingTheirPath) {
     };
   };
   ExpectRefused({
-      {"ask: empty study", ask([](v1::AskRequest& a) { a.set_study(""); }), kInvalid, {"study", "must not be empty"}},
-      {"ask: study name with a blank", ask([](v1::AskRequest& a) { a.set_study("my study"); }), kInvalid,
-       {"study: 'my study'", "letters, digits"}},
-      {"ask: study name too long", ask([](v1::AskRequest& a) { a.set_study(std::string(25, 's')); }), kInvalid,
-       {"study", "at most 24 bytes"}},
+      {"ask: empty campaign", ask([](v1::AskRequest& a) { a.set_campaign(""); }), kInvalid, {"campaign", "must not be empty"}},
+      {"ask: campaign name with a blank", ask([](v1::AskRequest& a) { a.set_campaign("my campaign"); }), kInvalid,
+       {"campaign: 'my campaign'", "letters, digits"}},
+      {"ask: campaign name too long", ask([](v1::AskRequest& a) { a.set_campaign(std::string(25, 's')); }), kInvalid,
+       {"campaign", "at most 24 bytes"}},
       {"ask: count beyond the limit", ask([](v1::AskRequest& a) { a.set_count(6); }), kExhausted,
        {"count", "at most 5 trials", "got 6"}},
       {"ask: worker too long", ask([](v1::AskRequest& a) { a.set_worker(std::string(25, 'w')); }), kInvalid,
@@ -468,8 +468,8 @@ TEST_F(ValidationTest, AskRenewAndTellFieldsAreRefusedNamingTheirPath) {
        {"lease_seconds", "(0, 3600]"}},
       {"ask: request id with a control character", ask([](v1::AskRequest& a) { a.set_request_id("id\x01"); }),
        kInvalid, {"request_id", "printable ASCII"}},
-      {"ask: unknown study", ask([](v1::AskRequest& a) { a.set_study("nope"); }), absl::StatusCode::kNotFound,
-       {"study", "'nope'"}},
+      {"ask: unknown campaign", ask([](v1::AskRequest& a) { a.set_campaign("nope"); }), absl::StatusCode::kNotFound,
+       {"campaign", "'nope'"}},
 
       {"renew: no trials", renew([](v1::RenewRequest& r) { r.clear_trials(); }), kInvalid,
        {"trials", "needs 1..5 trial numbers", "got 0"}},
@@ -484,7 +484,7 @@ TEST_F(ValidationTest, AskRenewAndTellFieldsAreRefusedNamingTheirPath) {
        {"lease_seconds", "got -5"}},
       {"renew: worker with a DEL", renew([](v1::RenewRequest& r) { r.set_worker("w\x7f"); }), kInvalid,
        {"worker", "control character"}},
-      {"renew: bad study", renew([](v1::RenewRequest& r) { r.set_study("a/b"); }), kInvalid, {"study", "'a/b'"}},
+      {"renew: bad campaign", renew([](v1::RenewRequest& r) { r.set_campaign("a/b"); }), kInvalid, {"campaign", "'a/b'"}},
 
       {"tell: more reports than the limit",
        tell("base", [](v1::TellRequest& t) {
@@ -515,7 +515,7 @@ TEST_F(ValidationTest, AskRenewAndTellFieldsAreRefusedNamingTheirPath) {
        {"reports[0].outcome", "score, grade, infeasible, void"}},
       {"tell: worker with a carriage return", tell("base", [](v1::TellRequest& t) { t.set_worker("w\r"); }),
        kInvalid, {"worker", "control character"}},
-      {"tell: empty study", tell("base", [](v1::TellRequest& t) { t.set_study(""); }), kInvalid, {"study"}},
+      {"tell: empty campaign", tell("base", [](v1::TellRequest& t) { t.set_campaign(""); }), kInvalid, {"campaign"}},
   });
 }
 
@@ -523,7 +523,7 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
   auto list = [](std::function<void(v1::ListTrialsRequest&)> mutate) {
     return [mutate](service::Registry& r) {
       v1::ListTrialsRequest request;
-      request.set_study("base");
+      request.set_campaign("base");
       mutate(request);
       return StatusOf(service::ListTrials(r, request));
     };
@@ -531,7 +531,7 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
   auto generations = [](std::function<void(v1::ListGenerationsRequest&)> mutate) {
     return [mutate](service::Registry& r) {
       v1::ListGenerationsRequest request;
-      request.set_study("base");
+      request.set_campaign("base");
       mutate(request);
       return StatusOf(service::ListGenerations(r, request));
     };
@@ -539,7 +539,7 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
   auto phase = [](std::function<void(v1::SetPhaseRequest&)> mutate) {
     return [mutate](service::Registry& r) {
       v1::SetPhaseRequest request;
-      request.set_study("base");
+      request.set_campaign("base");
       request.set_command(v1::PHASE_COMMAND_PAUSE);
       mutate(request);
       return StatusOf(service::SetPhase(r, request, absl::Now()));
@@ -558,7 +558,7 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
        {"page_token"}},
       {"list: huge page token", list([](v1::ListTrialsRequest& l) { l.set_page_token("t" + std::string(100, '9')); }),
        kInvalid, {"page_token"}},
-      {"list: bad study", list([](v1::ListTrialsRequest& l) { l.set_study("a b"); }), kInvalid, {"study"}},
+      {"list: bad campaign", list([](v1::ListTrialsRequest& l) { l.set_campaign("a b"); }), kInvalid, {"campaign"}},
       {"generations: negative page size",
        generations([](v1::ListGenerationsRequest& g) { g.set_page_size(-1); }), kInvalid,
        {"page_size", "0 (100) or in 1..200", "got -1"}},
@@ -573,12 +573,12 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
       {"generations: huge page token",
        generations([](v1::ListGenerationsRequest& g) { g.set_page_token("g" + std::string(100, '9')); }), kInvalid,
        {"page_token", "not a token this server issued"}},
-      {"generations: bad study",
-       generations([](v1::ListGenerationsRequest& g) { g.set_study("base/2"); }), kInvalid,
-       {"study", "letters, digits"}},
-      {"generations: empty study", generations([](v1::ListGenerationsRequest& g) { g.set_study(""); }), kInvalid,
-       {"study", "must not be empty"}},
-      {"generations: unknown study", generations([](v1::ListGenerationsRequest& g) { g.set_study("nope"); }),
+      {"generations: bad campaign",
+       generations([](v1::ListGenerationsRequest& g) { g.set_campaign("base/2"); }), kInvalid,
+       {"campaign", "letters, digits"}},
+      {"generations: empty campaign", generations([](v1::ListGenerationsRequest& g) { g.set_campaign(""); }), kInvalid,
+       {"campaign", "must not be empty"}},
+      {"generations: unknown campaign", generations([](v1::ListGenerationsRequest& g) { g.set_campaign("nope"); }),
        absl::StatusCode::kNotFound, {"nope"}},
       {"phase: unspecified command",
        phase([](v1::SetPhaseRequest& p) { p.set_command(v1::PHASE_COMMAND_UNSPECIFIED); }), kInvalid,
@@ -588,15 +588,15 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
        {"command", "got 7"}},
       {"phase: request id too long", phase([](v1::SetPhaseRequest& p) { p.set_request_id(std::string(41, 'i')); }),
        kInvalid, {"request_id", "at most 40 bytes"}},
-      {"phase: bad study", phase([](v1::SetPhaseRequest& p) { p.set_study(""); }), kInvalid, {"study"}},
-      {"get: bad study",
+      {"phase: bad campaign", phase([](v1::SetPhaseRequest& p) { p.set_campaign(""); }), kInvalid, {"campaign"}},
+      {"get: bad campaign",
        [](service::Registry& r) {
-         v1::GetStudyRequest request;
-         request.set_study("base\n");
-         return StatusOf(service::GetStudy(r, request));
+         v1::GetCampaignRequest request;
+         request.set_campaign("base\n");
+         return StatusOf(service::GetCampaign(r, request));
        },
-       kInvalid, {"study", "letters, digits"}},
-      {"watch: bad study",
+       kInvalid, {"campaign", "letters, digits"}},
+      {"watch: bad campaign",
        [](service::Registry& r) {
          // Refused before anything is written to the stream, so no writer is needed.
          service::AuthOptions open;
@@ -606,11 +606,11 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
          service::OgiveService service(&r, authorizer.get(), [] { return absl::Now(); });
          grpc::ServerContext context;
          v1::WatchRequest request;
-         request.set_study(std::string(25, 'w'));
+         request.set_campaign(std::string(25, 'w'));
          const grpc::Status s = service.Watch(&context, &request, nullptr);
          return absl::Status(static_cast<absl::StatusCode>(s.error_code()), s.error_message());
        },
-       kInvalid, {"study", "at most 24 bytes"}},
+       kInvalid, {"campaign", "at most 24 bytes"}},
   });
 }
 

@@ -76,12 +76,12 @@ absl::StatusOr<std::string> DbInspector::IntegrityCheck() {
   return absl::StrJoin(rows, "; ");
 }
 
-absl::StatusOr<StoredStudyState> DbInspector::ReadStudy(const std::string& name) {
+absl::StatusOr<StoredCampaignState> DbInspector::ReadCampaign(const std::string& name) {
   if (sqlite3_exec(db_, "BEGIN", nullptr, nullptr, nullptr) != SQLITE_OK) return Error(db_, "BEGIN");
-  StoredStudyState state;
+  StoredCampaignState state;
   int64_t id = 0;
   absl::Status status = Query(
-      db_, "SELECT s.id, e.engine FROM studies s JOIN study_engines e ON e.study_id = s.id WHERE s.name = ?1",
+      db_, "SELECT s.id, e.engine FROM campaigns s JOIN campaign_engines e ON e.campaign_id = s.id WHERE s.name = ?1",
       [&](sqlite3_stmt* stmt) { sqlite3_bind_text(stmt, 1, name.c_str(), -1, SQLITE_TRANSIENT); },
       [&](sqlite3_stmt* stmt) {
         id = sqlite3_column_int64(stmt, 0);
@@ -90,10 +90,10 @@ absl::StatusOr<StoredStudyState> DbInspector::ReadStudy(const std::string& name)
         }
         return absl::OkStatus();
       });
-  if (status.ok() && id == 0) status = absl::NotFoundError(absl::StrCat("no study '", name, "'"));
+  if (status.ok() && id == 0) status = absl::NotFoundError(absl::StrCat("no campaign '", name, "'"));
   auto bind_id = [&](sqlite3_stmt* stmt) { sqlite3_bind_int64(stmt, 1, id); };
   if (status.ok()) {
-    status = Query(db_, "SELECT number, score, record FROM trials WHERE study_id = ?1", bind_id,
+    status = Query(db_, "SELECT number, score, record FROM trials WHERE campaign_id = ?1", bind_id,
                    [&](sqlite3_stmt* stmt) {
                      const int64_t number = sqlite3_column_int64(stmt, 0);
                      if (sqlite3_column_type(stmt, 1) != SQLITE_NULL) {
@@ -108,7 +108,7 @@ absl::StatusOr<StoredStudyState> DbInspector::ReadStudy(const std::string& name)
   }
   if (status.ok()) {
     status = Query(db_,
-                   "SELECT generation, summary FROM generations WHERE study_id = ?1 "
+                   "SELECT generation, summary FROM generations WHERE campaign_id = ?1 "
                    "ORDER BY generation",
                    bind_id, [&](sqlite3_stmt* stmt) {
                      v1::GenerationSummary& g = state.generations.emplace_back();
@@ -119,7 +119,7 @@ absl::StatusOr<StoredStudyState> DbInspector::ReadStudy(const std::string& name)
                    });
   }
   if (status.ok()) {
-    status = Query(db_, "SELECT trial, COUNT(*) FROM events WHERE study_id = ?1 AND kind = 'tell' "
+    status = Query(db_, "SELECT trial, COUNT(*) FROM events WHERE campaign_id = ?1 AND kind = 'tell' "
                         "GROUP BY trial",
                    bind_id, [&](sqlite3_stmt* stmt) {
                      state.tell_events[sqlite3_column_int64(stmt, 0)] =

@@ -1,5 +1,5 @@
 // DbInspector: reads an ogive database file directly with SQLite, around the server, for tests that
-// check what is on disk after a crash or a fault: PRAGMA integrity_check, and one study's engine
+// check what is on disk after a crash or a fault: PRAGMA integrity_check, and one campaign's engine
 // state, trial records, generation summaries and "tell" events as stored.
 //
 // Opens the file read-only (SQLITE_OPEN_READONLY, no checkpoint on close), so it may run while
@@ -13,14 +13,14 @@
 #include <vector>
 
 #include "absl/status/statusor.h"
-#include "ogive/v1/study.pb.h"
+#include "ogive/v1/campaign.pb.h"
 
 struct sqlite3;
 
 namespace ogive::testing {
 
-// One study as the file holds it.
-struct StoredStudyState {
+// One campaign as the file holds it.
+struct StoredCampaignState {
   v1::EngineState engine;                        // without its distribution
   std::map<int64_t, v1::TrialRecord> trials;     // by number
   std::map<int64_t, double> score_column;        // trials.score where not NULL, by number
@@ -39,9 +39,9 @@ class DbInspector {
 
   // The rows of PRAGMA integrity_check joined by "; " ("ok" for a sound file).
   absl::StatusOr<std::string> IntegrityCheck();
-  // The study named `name`, read in one transaction. NOT_FOUND if there is none; DATA_LOSS if a
+  // The campaign named `name`, read in one transaction. NOT_FOUND if there is none; DATA_LOSS if a
   // stored message does not parse.
-  absl::StatusOr<StoredStudyState> ReadStudy(const std::string& name);
+  absl::StatusOr<StoredCampaignState> ReadCampaign(const std::string& name);
 
  private:
   explicit DbInspector(sqlite3* db) : db_(db) {}

@@ -112,7 +112,7 @@ absl::Status OgivedProcess::WaitUntilServing(absl::Duration timeout) {
           WIFEXITED(wstatus) ? absl::StrCat(" (exit code ", WEXITSTATUS(wstatus), ")") : "",
           "; its log ends:\n", LogTail()));
     }
-    absl::StatusOr<v1::ListStudiesResponse> listed = probe->ListStudies();
+    absl::StatusOr<v1::ListCampaignsResponse> listed = probe->ListCampaigns();
     if (listed.ok() || listed.status().code() != absl::StatusCode::kUnavailable) {
       return absl::OkStatus();  // it answers (whatever the answer)
     }

@@ -30,7 +30,7 @@ Problem MakeProblem(const std::string& name, int n, uint64_t seed);
 
 // The plain sequential core on a problem: sample λ, evaluate, rank, update, until f − f_opt ≤ target.
 // Returns the evaluations used, or -1 when the budget ran out or the distribution degenerated (a
-// restart is the study engine's business, not the core's).
+// restart is the campaign engine's business, not the core's).
 long EvaluationsToTarget(const Problem& problem, uint64_t seed, long budget, double target);
 
 }  // namespace ogive::testing

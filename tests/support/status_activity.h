@@ -1,5 +1,5 @@
 // ClearActivity: clears the fields of a StatusSummary that depend on the clock and on who called recently
-// (as_of_unix_ms, reports_last_hour, workers), for tests that compare views of one study
+// (as_of_unix_ms, reports_last_hour, workers), for tests that compare views of one campaign
 // taken at different moments or by different processes. Header-only, so the fuzz targets (built
 // without the test libraries) can use it too.
 #ifndef OGIVE_TESTS_SUPPORT_STATUS_ACTIVITY_H_

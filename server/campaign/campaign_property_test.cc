@@ -1,4 +1,4 @@
-// Property test of the study engine's bookkeeping: random event sequences (several workers, random
+// Property test of the campaign engine's bookkeeping: random event sequences (several workers, random
 // lease lengths and time advances, reports in any order, late reports, voids, infeasibles,
 // duplicates, different outcomes, reports to unknown trials, renewals, sweeps, pauses), with every
 // invariant checked after every event. The per-report contract (duplicate, ALREADY_EXISTS,
@@ -14,17 +14,17 @@
 #include "gtest/gtest.h"
 #include "server/search/ranking.h"
 #include "server/search/space.h"
-#include "server/study/study.h"
-#include "server/study/study_options.h"
-#include "server/study/study_test_util.h"
-#include "server/study/trial.h"
+#include "server/campaign/campaign.h"
+#include "server/campaign/campaign_options.h"
+#include "server/campaign/campaign_test_util.h"
+#include "server/campaign/trial.h"
 
-namespace ogive::study {
+namespace ogive::campaign {
 namespace {
 
 using test_util::EventDriver;
 using test_util::kMinimize;
-using test_util::MakeStudy;
+using test_util::MakeCampaign;
 using test_util::MixedSpace;
 
 // 20 seeds × 2000 events, plus 2 × 4 seeds with tied outcomes: about 5 s in the ci build on an idle
@@ -39,24 +39,24 @@ struct History {
   int64_t late_seen = 0;
 };
 
-// Checks every bookkeeping invariant of `study` after one event, against the generation records the
+// Checks every bookkeeping invariant of `campaign` after one event, against the generation records the
 // driver collected so far and what `history` remembers of earlier events.
-void CheckInvariants(const Study& study, const EventDriver& driver, History& history, int event) {
+void CheckInvariants(const Campaign& campaign, const EventDriver& driver, History& history, int event) {
   SCOPED_TRACE(::testing::Message() << "after event " << event);
-  const EngineState& e = study.engine();
-  const TrialCounts& c = study.counts();
-  const search::Space& space = study.space();
-  const int limit = study.options().staleness_limit;
+  const EngineState& e = campaign.engine();
+  const TrialCounts& c = campaign.counts();
+  const search::Space& space = campaign.space();
+  const int limit = campaign.options().staleness_limit;
 
-  ASSERT_EQ(c.total(), study.trial_count());
-  ASSERT_EQ(e.next_trial, study.trial_count() + 1);
+  ASSERT_EQ(c.total(), campaign.trial_count());
+  ASSERT_EQ(e.next_trial, campaign.trial_count() + 1);
 
   // Recount by state, lateness and use.
   TrialCounts recount;
   int64_t with_outcome = 0, informative = 0;
   std::set<int64_t> sequences;
-  for (int64_t k = 1; k <= study.trial_count(); ++k) {
-    const Trial& t = *study.trial(k);
+  for (int64_t k = 1; k <= campaign.trial_count(); ++k) {
+    const Trial& t = *campaign.trial(k);
     ASSERT_EQ(t.number, k);
     switch (t.state) {
       case TrialState::kLeased:
@@ -159,17 +159,17 @@ void CheckInvariants(const Study& study, const EventDriver& driver, History& his
 
   // The best trial is informative and nothing is strictly better.
   if (e.informative > 0) {
-    const Trial* best = study.best();
+    const Trial* best = campaign.best();
     ASSERT_NE(best, nullptr);
     ASSERT_TRUE(best->outcome.has_value() && best->outcome->informative());
-    for (const Trial& t : study.trials()) {
+    for (const Trial& t : campaign.trials()) {
       if (t.outcome && t.outcome->informative()) {
-        EXPECT_GE(search::CompareOutcomes(*t.outcome, *best->outcome, study.order()), 0)
+        EXPECT_GE(search::CompareOutcomes(*t.outcome, *best->outcome, campaign.order()), 0)
             << "trial " << t.number << " beats the best, trial " << best->number;
       }
     }
   } else {
-    EXPECT_EQ(study.best(), nullptr);
+    EXPECT_EQ(campaign.best(), nullptr);
   }
 
   // Generation records: one per update, numbered 1, 2, ..., no trial in two cohorts.
@@ -185,7 +185,7 @@ void CheckInvariants(const Study& study, const EventDriver& driver, History& his
     int64_t previous_sequence = 0;
     for (int64_t number : r.cohort) {
       EXPECT_TRUE(in_cohorts.insert(number).second) << "trial " << number << " in two cohorts";
-      const Trial* t = study.trial(number);
+      const Trial* t = campaign.trial(number);
       ASSERT_NE(t, nullptr);
       EXPECT_EQ(t->consumed_by, r.generation) << "trial " << number;
       EXPECT_EQ(t->epoch, r.epoch) << "trial " << number;
@@ -210,13 +210,13 @@ struct PropertyCase {
 
 void RunPropertyCase(const PropertyCase& pc) {
   SCOPED_TRACE(::testing::Message() << "seed " << pc.seed);
-  StudyOptions options;
+  CampaignOptions options;
   options.seed = static_cast<uint64_t>(pc.seed);
   options.staleness_limit = pc.staleness_limit;
   options.trial_budget = pc.budget;
   options.default_lease = absl::Seconds(120);
   options.restarts = pc.restarts;
-  Study study = MakeStudy(MixedSpace(), kMinimize, {}, options);
+  Campaign campaign = MakeCampaign(MixedSpace(), kMinimize, {}, options);
   EventDriver driver(1000 + static_cast<uint64_t>(pc.seed), {.workers = 2 + pc.seed % 4,
                                                              .use_plan_api = true,
                                                              .phase_changes = pc.seed % 2 == 1,
@@ -224,29 +224,29 @@ void RunPropertyCase(const PropertyCase& pc) {
                                                              .flat_objective = pc.flat});
   History history;
   for (int event = 0; event < kEvents; ++event) {
-    driver.Next(study);
-    CheckInvariants(study, driver, history, event);
+    driver.Next(campaign);
+    CheckInvariants(campaign, driver, history, event);
     if (::testing::Test::HasFailure()) return;
   }
   // The run exercised what it was meant to.
-  const TrialCounts& c = study.counts();
+  const TrialCounts& c = campaign.counts();
   EXPECT_GT(c.consumed, 0);
   EXPECT_GT(c.too_stale, 0);
   EXPECT_GT(c.late, 0);
   EXPECT_GT(c.voided, 0);
   EXPECT_GT(c.lapsed + c.late, 0);
   if (pc.restarts) {
-    EXPECT_GE(study.engine().epoch, 1);
+    EXPECT_GE(campaign.engine().epoch, 1);
   }
   if (pc.flat && !pc.restarts) {
-    EXPECT_EQ(study.engine().reason, DoneReason::kConverged);
+    EXPECT_EQ(campaign.engine().reason, DoneReason::kConverged);
   }
   if (pc.budget > 0) {
-    EXPECT_EQ(study.engine().reason, DoneReason::kBudget);
+    EXPECT_EQ(campaign.engine().reason, DoneReason::kBudget);
   }
 }
 
-TEST(StudyPropertyTest, BookkeepingInvariantsHoldAfterEveryEvent) {
+TEST(CampaignPropertyTest, BookkeepingInvariantsHoldAfterEveryEvent) {
   for (int seed = 1; seed <= kSeeds; ++seed) {
     PropertyCase pc;
     pc.seed = seed;
@@ -257,9 +257,9 @@ TEST(StudyPropertyTest, BookkeepingInvariantsHoldAfterEveryEvent) {
   }
 }
 
-// With every score equal, cohorts tie and the study converges (EqualValues) again and again; with
+// With every score equal, cohorts tie and the campaign converges (EqualValues) again and again; with
 // restarts on, each restart starts a new epoch and strands the outcomes of the old one.
-TEST(StudyPropertyTest, BookkeepingInvariantsHoldAcrossRestarts) {
+TEST(CampaignPropertyTest, BookkeepingInvariantsHoldAcrossRestarts) {
   for (int seed = 1; seed <= 4; ++seed) {
     PropertyCase pc;
     pc.seed = seed;
@@ -271,8 +271,8 @@ TEST(StudyPropertyTest, BookkeepingInvariantsHoldAcrossRestarts) {
   }
 }
 
-// Without restarts the same study ends converged, and reports keep arriving after that.
-TEST(StudyPropertyTest, BookkeepingInvariantsHoldAfterConvergence) {
+// Without restarts the same campaign ends converged, and reports keep arriving after that.
+TEST(CampaignPropertyTest, BookkeepingInvariantsHoldAfterConvergence) {
   for (int seed = 1; seed <= 4; ++seed) {
     PropertyCase pc;
     pc.seed = seed;
@@ -284,4 +284,4 @@ TEST(StudyPropertyTest, BookkeepingInvariantsHoldAfterConvergence) {
 }
 
 }  // namespace
-}  // namespace ogive::study
+}  // namespace ogive::campaign

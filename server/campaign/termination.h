@@ -1,4 +1,4 @@
-// Termination: the tests that decide a study's search distribution has converged, after the
+// Termination: the tests that decide a campaign's search distribution has converged, after the
 // termination criteria of N. Hansen, "The CMA Evolution Strategy: A Tutorial", arXiv:1604.00772,
 // Appendix B (from memory), extended to the discrete blocks:
 //   ConditionCov   condition number of C above 1e14
@@ -12,21 +12,21 @@
 // The Gaussian tests count only when the discrete blocks have collapsed too (or are absent), so a
 // settled continuous block does not stop a search that is still choosing options; EqualValues stops
 // on its own.
-#ifndef OGIVE_SERVER_STUDY_TERMINATION_H_
-#define OGIVE_SERVER_STUDY_TERMINATION_H_
+#ifndef OGIVE_SERVER_CAMPAIGN_TERMINATION_H_
+#define OGIVE_SERVER_CAMPAIGN_TERMINATION_H_
 
 #include <optional>
 #include <string>
 
 #include "server/search/search_distribution.h"
 
-namespace ogive::study {
+namespace ogive::campaign {
 
 // Why the distribution counts as converged, or nullopt. `flat_generations` is the number of
 // consecutive updates whose cohort had all outcomes tied; sigma0 the initial step size.
 std::optional<std::string> ConvergenceReason(const search::SearchDistribution& distribution,
                                              int64_t flat_generations, double sigma0);
 
-}  // namespace ogive::study
+}  // namespace ogive::campaign
 
-#endif  // OGIVE_SERVER_STUDY_TERMINATION_H_
+#endif  // OGIVE_SERVER_CAMPAIGN_TERMINATION_H_

@@ -1,9 +1,9 @@
-#include "tests/fuzz/study_invariants.h"
+#include "tests/fuzz/campaign_invariants.h"
 
 #include <cmath>
 #include <set>
 
-#include "server/study/study_options.h"
+#include "server/campaign/campaign_options.h"
 #include "tests/fuzz/candidate_check.h"
 #include "tests/fuzz/require.h"
 
@@ -64,14 +64,14 @@ search::Outcome OutcomeOf(const v1::TrialRecord& r) {
 
 }  // namespace
 
-void RequireStudyInvariants(const StudyModel& model, const storage::StoredStudy& stored,
-                            const std::vector<v1::GenerationSummary>& generations, const v1::StudyView& view,
+void RequireCampaignInvariants(const CampaignModel& model, const storage::StoredCampaign& stored,
+                            const std::vector<v1::GenerationSummary>& generations, const v1::CampaignView& view,
                             absl::Time now) {
   const v1::EngineState& engine = stored.snapshot.engine();
   const v1::StatusSummary& status = view.status();
   const auto& trials = stored.snapshot.trials();
   const int staleness_limit =
-      model.design->staleness_limit() > 0 ? model.design->staleness_limit() : study::kDefaultStalenessLimit;
+      model.design->staleness_limit() > 0 ? model.design->staleness_limit() : campaign::kDefaultStalenessLimit;
 
   OGIVE_FUZZ_REQUIRE(engine.next_trial() == trials.size() + 1, "next trial ", engine.next_trial(), " with ",
                      trials.size(), " trials stored");
@@ -201,15 +201,15 @@ void RequireStudyInvariants(const StudyModel& model, const storage::StoredStudy&
   OGIVE_FUZZ_REQUIRE(static_cast<int64_t>(in_cohorts.size()) == consumed, in_cohorts.size(), " in cohorts, ",
                      consumed, " consumed");
 
-  // Phase rules: an open or paused study has fewer pending outcomes than a cohort, has not used up its
+  // Phase rules: an open or paused campaign has fewer pending outcomes than a cohort, has not used up its
   // budget and has not reached its target.
   const int64_t budget = model.design->trial_budget();
   OGIVE_FUZZ_REQUIRE(status.population_size() >= 2, status.ShortDebugString());
-  if (engine.phase() != v1::STUDY_PHASE_DONE) {
+  if (engine.phase() != v1::CAMPAIGN_PHASE_DONE) {
     OGIVE_FUZZ_REQUIRE(pending < status.population_size(), pending, " pending outcomes wait for a cohort of ",
                        status.population_size());
     OGIVE_FUZZ_REQUIRE(budget == 0 || engine.informative() < budget, "budget ", budget, " used up but ",
-                       v1::StudyPhase_Name(engine.phase()));
+                       v1::CampaignPhase_Name(engine.phase()));
     const bool has_target = model.design->has_target() || model.design->has_target_grade();
     if (has_target && reported > 0) {
       const v1::TrialRecord& best = trials[engine.best_trial() - 1];
@@ -224,19 +224,19 @@ void RequireStudyInvariants(const StudyModel& model, const storage::StoredStudy&
                                             labels.begin());
         reached = best.outcome_kind() == v1::OUTCOME_KIND_GRADE && best.grade_index() >= target;
       }
-      OGIVE_FUZZ_REQUIRE(!reached, "trial ", best.number(), " reached the target but the study is ",
-                         v1::StudyPhase_Name(engine.phase()));
+      OGIVE_FUZZ_REQUIRE(!reached, "trial ", best.number(), " reached the target but the campaign is ",
+                         v1::CampaignPhase_Name(engine.phase()));
     }
   } else {
     OGIVE_FUZZ_REQUIRE(engine.reason() != v1::DONE_REASON_UNSPECIFIED, engine.ShortDebugString());
     if (engine.reason() == v1::DONE_REASON_BUDGET) OGIVE_FUZZ_REQUIRE(engine.informative() >= budget, budget);
   }
-  if (engine.phase() != v1::STUDY_PHASE_DONE) {
+  if (engine.phase() != v1::CAMPAIGN_PHASE_DONE) {
     OGIVE_FUZZ_REQUIRE(engine.reason() == v1::DONE_REASON_UNSPECIFIED, engine.ShortDebugString());
   }
 }
 
-void RequireTrialViewMatches(const StudyModel& model, const v1::Trial& view, const v1::TrialRecord& record) {
+void RequireTrialViewMatches(const CampaignModel& model, const v1::Trial& view, const v1::TrialRecord& record) {
   const auto t = [&] { return absl::StrCat(view.ShortDebugString(), " vs stored ", record.ShortDebugString()); };
   OGIVE_FUZZ_REQUIRE(view.number() == record.number() && view.state() == record.state() &&
                          view.use() == record.use() && view.consumed_by() == record.consumed_by() &&

@@ -1,18 +1,18 @@
-// Study: the asynchronous study engine. It holds a study's search distribution, its random-stream
+// Campaign: the asynchronous campaign engine. It holds a campaign's search distribution, its random-stream
 // position, its counters and its trials, and turns the stream of asks, reports, renewals and lapses
 // into sound distribution updates (see ../../docs/math.md, "Asynchrony").
 //
-// Pure and deterministic: no I/O, no clock (every operation takes `now`), randomness from the study's
+// Pure and deterministic: no I/O, no clock (every operation takes `now`), randomness from the campaign's
 // own seeded stream. The same design, seed and sequence of calls give the same candidates and states.
 //
 // Every operation comes in two steps so that memory and storage never disagree: Plan*() computes the
 // Change a request makes without publishing it (const), the caller commits that change to storage,
-// and Apply() then makes it the study's state. A failed commit leaves the study as it was. The
+// and Apply() then makes it the campaign's state. A failed commit leaves the campaign as it was. The
 // one-step forms (Ask, Tell, ...) plan and apply at once, for tests and in-process use.
 //
-// Not thread-safe: the caller serializes operations on one study.
-#ifndef OGIVE_SERVER_STUDY_STUDY_H_
-#define OGIVE_SERVER_STUDY_STUDY_H_
+// Not thread-safe: the caller serializes operations on one campaign.
+#ifndef OGIVE_SERVER_CAMPAIGN_CAMPAIGN_H_
+#define OGIVE_SERVER_CAMPAIGN_CAMPAIGN_H_
 
 #include <cstdint>
 #include <deque>
@@ -28,10 +28,10 @@
 #include "absl/types/span.h"
 #include "server/search/random_stream.h"
 #include "server/search/search_distribution.h"
-#include "server/study/study_options.h"
-#include "server/study/trial.h"
+#include "server/campaign/campaign_options.h"
+#include "server/campaign/trial.h"
 
-namespace ogive::study {
+namespace ogive::campaign {
 
 enum class Phase { kOpen, kPaused, kDone };
 enum class DoneReason { kNone, kBudget, kTarget, kConverged, kStopped };
@@ -40,7 +40,7 @@ const char* DoneReasonName(DoneReason reason);  // "", "budget", "target", "conv
 
 enum class PhaseCommand { kPause, kResume, kFinish };
 
-// Everything about a study besides its trials and its fixed design.
+// Everything about a campaign besides its trials and its fixed design.
 struct EngineState {
   Phase phase = Phase::kOpen;
   DoneReason reason = DoneReason::kNone;
@@ -98,29 +98,29 @@ struct TrialCounts {
   int64_t total() const { return leased + reported + lapsed + voided; }
 };
 
-// A study's full state: what Restore() needs to continue bit-identically.
-struct StudySnapshot {
+// A campaign's full state: what Restore() needs to continue bit-identically.
+struct CampaignSnapshot {
   EngineState engine;  // distribution is set
   std::vector<Trial> trials;
 };
 
-class Study {
+class Campaign {
  public:
   // The largest count one Ask may request.
   static constexpr int kMaxAskCount = 10000;
 
-  // A new study. INVALID_ARGUMENT naming the field for invalid options.
-  static absl::StatusOr<Study> Create(search::Space space, search::OutcomeOrder order,
-                                      search::DistributionOptions distribution_options, StudyOptions options);
-  // Continues from a snapshot taken by Snapshot() of a study created with the same arguments.
+  // A new campaign. INVALID_ARGUMENT naming the field for invalid options.
+  static absl::StatusOr<Campaign> Create(search::Space space, search::OutcomeOrder order,
+                                      search::DistributionOptions distribution_options, CampaignOptions options);
+  // Continues from a snapshot taken by Snapshot() of a campaign created with the same arguments.
   // INVALID_ARGUMENT (or DATA_LOSS for inconsistent trials) if the snapshot does not fit.
-  static absl::StatusOr<Study> Restore(search::Space space, search::OutcomeOrder order,
-                                       search::DistributionOptions distribution_options, StudyOptions options,
-                                       StudySnapshot snapshot);
+  static absl::StatusOr<Campaign> Restore(search::Space space, search::OutcomeOrder order,
+                                       search::DistributionOptions distribution_options, CampaignOptions options,
+                                       CampaignSnapshot snapshot);
 
-  // Samples `count` candidates leased to `worker` until now + lease (default: the study's lease).
+  // Samples `count` candidates leased to `worker` until now + lease (default: the campaign's lease).
   // Leases that ran out by `now` lapse first. Never waits for results. INVALID_ARGUMENT for count < 1
-  // or > kMaxAskCount or a non-positive lease; FAILED_PRECONDITION when the study is paused or done,
+  // or > kMaxAskCount or a non-positive lease; FAILED_PRECONDITION when the campaign is paused or done,
   // or its trial budget is taken up by outstanding trials. May return fewer than `count` trials when
   // the budget has room for fewer.
   absl::StatusOr<AskPlan> PlanAsk(int count, const std::string& worker, std::optional<absl::Duration> lease,
@@ -137,7 +137,7 @@ class Study {
   // Lapses every lease that ran out by `now`.
   Change PlanSweep(absl::Time now) const;
   // pause (open -> paused), resume (paused -> open), finish (-> done, reason stopped). Repeating the
-  // current phase is accepted and changes nothing; resuming a done study is FAILED_PRECONDITION.
+  // current phase is accepted and changes nothing; resuming a done campaign is FAILED_PRECONDITION.
   absl::StatusOr<Change> PlanSetPhase(PhaseCommand command, absl::Time now) const;
 
   // Publishes a change planned on the current state. REQUIRES: no other change was applied since.
@@ -154,7 +154,7 @@ class Study {
 
   const search::Space& space() const { return space_; }
   const search::OutcomeOrder& order() const { return order_; }
-  const StudyOptions& options() const { return options_; }
+  const CampaignOptions& options() const { return options_; }
   const search::DistributionOptions& distribution_options() const { return distribution_options_; }
   const EngineState& engine() const { return engine_; }
   const search::SearchDistribution& distribution() const { return *engine_.distribution; }
@@ -165,12 +165,12 @@ class Study {
   const std::deque<Trial>& trials() const { return trials_; }
   const Trial* best() const { return trial(engine_.best_trial); }
 
-  StudySnapshot Snapshot() const;
+  CampaignSnapshot Snapshot() const;
 
  private:
   class Planner;
-  Study(search::Space space, search::OutcomeOrder order, search::DistributionOptions distribution_options,
-        StudyOptions options);
+  Campaign(search::Space space, search::OutcomeOrder order, search::DistributionOptions distribution_options,
+        CampaignOptions options);
   void Count(const Trial& t, int sign);
   void Index(const Trial& t);
   void Unindex(const Trial& t);
@@ -178,17 +178,17 @@ class Study {
   search::Space space_;
   search::OutcomeOrder order_;
   search::DistributionOptions distribution_options_;
-  StudyOptions options_;
+  CampaignOptions options_;
   EngineState engine_;
-  // trials_[k] has number k + 1. A deque, not a vector: a study only ever appends, and a vector's
-  // growth would copy every trial while the host holds the study's lock (a stall of every request of
-  // the study, tens of milliseconds at some ten thousand trials).
+  // trials_[k] has number k + 1. A deque, not a vector: a campaign only ever appends, and a vector's
+  // growth would copy every trial while the host holds the campaign's lock (a stall of every request of
+  // the campaign, tens of milliseconds at some ten thousand trials).
   std::deque<Trial> trials_;
   TrialCounts counts_;
   std::set<std::pair<int64_t, int64_t>> pending_;  // (report_sequence, number) of pending outcomes
   std::set<std::pair<absl::Time, int64_t>> leases_;  // (lease_deadline, number) of leased trials, soonest first
 };
 
-}  // namespace ogive::study
+}  // namespace ogive::campaign
 
-#endif  // OGIVE_SERVER_STUDY_STUDY_H_
+#endif  // OGIVE_SERVER_CAMPAIGN_CAMPAIGN_H_

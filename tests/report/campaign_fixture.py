@@ -1,7 +1,7 @@
-"""A real ogived on a temporary database and a free loopback port, and a short study run through the
+"""A real ogived on a temporary database and a free loopback port, and a short campaign run through the
 `ogive` command line, for the report and export tests.
 
-The study has every parameter kind and user text that markup, CSV and JSON would take for their own
+The campaign has every parameter kind and user text that markup, CSV and JSON would take for their own
 (a unit with tags, a description with a script element, an option with '&', worker names and notes
 with quotes, commas, '<' and a line break). Its history has every trial state that can remain: a
 trial leased for one second that lapses, one reported after its lease lapsed (late), voids (the
@@ -23,7 +23,7 @@ sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."
 from ogive_testlib import TestFailure, check, free_port  # noqa: E402
 
 CALL_TIMEOUT_S = 60
-STUDY = "kiln-mix"
+CAMPAIGN = "kiln-mix"
 GRADED = "glaze-grade"
 
 MIXED_DESIGN = r'''
@@ -38,7 +38,7 @@ parameters { name: "rate" unit: "1/s" description: "Ramp rate" real { low: 1e-4 
 parameters { name: "layers" unit: "coats" integer { low: 1 high: 8 } }
 parameters { name: "solver" categorical { options: "cg" options: "gmres & co" options: "<bicg>" } }
 parameters { name: "warm" description: "Warm start, a flag" flag {} }
-objective { direction: LOWER_IS_BETTER }
+objective { direction: DIRECTION_LOWER_IS_BETTER }
 expected_workers: 4
 seed: 424242
 lease_seconds: 60
@@ -96,7 +96,7 @@ class Ogived:
             if self.process.poll() is not None:
                 raise TestFailure("ogived exited at start with status %d; see %s" % (
                     self.process.returncode, self.log.name))
-            if self.run("study", "list", check_status=False).returncode == 0:
+            if self.run("campaign", "list", check_status=False).returncode == 0:
                 return self
             time.sleep(0.1)
         raise TestFailure("ogived did not answer within 20 s")
@@ -120,9 +120,9 @@ class Ogived:
                                                     result.stderr.decode(errors="replace").strip()))
         return result
 
-    def trials(self, study):
-        """ListTrials through `ogive --json study trials`: protobuf JSON of every trial."""
-        return json.loads(self.run("--json", "study", "trials", study).stdout)
+    def trials(self, campaign):
+        """ListTrials through `ogive --json campaign trials`: protobuf JSON of every trial."""
+        return json.loads(self.run("--json", "campaign", "trials", campaign).stdout)
 
 
 def write(path, text, mode=0o644):
@@ -132,29 +132,29 @@ def write(path, text, mode=0o644):
     return path
 
 
-def run_mixed_study(server, workdir):
-    """Creates and runs the mixed study to its budget; returns the odd note of the late report."""
-    server.run("study", "create", write(os.path.join(workdir, "mixed.txtpb"), MIXED_DESIGN))
+def run_mixed_campaign(server, workdir):
+    """Creates and runs the mixed campaign to its budget; returns the odd note of the late report."""
+    server.run("campaign", "create", write(os.path.join(workdir, "mixed.txtpb"), MIXED_DESIGN))
     # Two trials leased for a second by a bench worker: both lapse; one is reported late.
-    server.run("ask", STUDY, "-n", "2", "--lease", "1", "--worker", 'bench <&> "1"')
+    server.run("ask", CAMPAIGN, "-n", "2", "--lease", "1", "--worker", 'bench <&> "1"')
     deadline = time.monotonic() + 15
-    while len([t for t in server.trials(STUDY) if t["state"] == "TRIAL_STATE_LAPSED"]) < 2:
+    while len([t for t in server.trials(CAMPAIGN) if t["state"] == "TRIAL_STATE_LAPSED"]) < 2:
         check(time.monotonic() < deadline, "the 1 s leases did not lapse within 15 s")
         time.sleep(0.2)
     note = 'measured by hand, "twice"; 3 < 4 & 5 > 4,\nsee <script>alert(1)</script>'
-    told = server.run("tell", STUDY, "1", "--score", "-1", "--note", note, "--worker", 'bench <&> "1"')
+    told = server.run("tell", CAMPAIGN, "1", "--score", "-1", "--note", note, "--worker", 'bench <&> "1"')
     check(b"stored (late)" in told.stdout, "the report after the lapse was not late: %r" % told.stdout)
     objective = write(os.path.join(workdir, "objective.sh"), MIXED_OBJECTIVE, 0o755)
-    worker = server.run("work", STUDY, "--parallel", "4", "--worker", "node, \"a\"", "--", objective,
+    worker = server.run("work", CAMPAIGN, "--parallel", "4", "--worker", "node, \"a\"", "--", objective,
                         timeout=240)
     check(worker.returncode == 0, "ogive work failed")
-    view = json.loads(server.run("--json", "study", "show", STUDY).stdout)
-    check(view["status"]["phase"] == "STUDY_PHASE_DONE", "the study did not finish: %s" % view["status"])
+    view = json.loads(server.run("--json", "campaign", "show", CAMPAIGN).stdout)
+    check(view["status"]["phase"] == "CAMPAIGN_PHASE_DONE", "the campaign did not finish: %s" % view["status"])
     return note
 
 
-def run_graded_study(server, workdir):
-    server.run("study", "create", write(os.path.join(workdir, "graded.txtpb"), GRADED_DESIGN))
+def run_graded_campaign(server, workdir):
+    server.run("campaign", "create", write(os.path.join(workdir, "graded.txtpb"), GRADED_DESIGN))
     objective = write(os.path.join(workdir, "grade.sh"), GRADED_OBJECTIVE, 0o755)
     server.run("work", GRADED, "--parallel", "2", "--worker", "glazer", "--", objective, timeout=240)
 

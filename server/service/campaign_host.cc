@@ -1,4 +1,4 @@
-#include "server/service/study_host.h"
+#include "server/service/campaign_host.h"
 
 #include <algorithm>
 #include <cmath>
@@ -8,7 +8,7 @@
 #include "server/codec/design_codec.h"
 #include "server/codec/marginal_codec.h"
 #include "server/codec/state_codec.h"
-#include "server/codec/study_codec.h"
+#include "server/codec/campaign_codec.h"
 #include "server/service/service_metrics.h"
 
 namespace ogive::service {
@@ -19,7 +19,7 @@ int64_t UnixMillis(absl::Time t) { return absl::ToUnixMillis(t); }
 
 }  // namespace
 
-StudyHost::StudyHost(int64_t id, v1::StudyDesign design, study::Study study, storage::Store* store,
+CampaignHost::CampaignHost(int64_t id, v1::CampaignDesign design, campaign::Campaign campaign, storage::Store* store,
                      CommitWaiter* waiter, std::string create_request_id,
                      AskRequestIndex ask_requests, ServiceMetrics* metrics,
                      std::function<absl::Time()> clock)
@@ -29,15 +29,15 @@ StudyHost::StudyHost(int64_t id, v1::StudyDesign design, study::Study study, sto
       store_(store),
       waiter_(waiter),
       metrics_(metrics),
-      space_(study.space()),
-      study_(std::move(study)),
+      space_(campaign.space()),
+      campaign_(std::move(campaign)),
       ask_requests_(std::move(ask_requests)),
       clock_(std::move(clock)) {
   // Rebuild the recent activity from the stored reports (asks and renewals are not stored).
   const absl::Time since = clock_() - absl::Hours(1);
   std::vector<std::pair<absl::Time, std::string>> reports;
-  for (int64_t n = 1; n <= study_.trial_count(); ++n) {
-    const study::Trial& t = *study_.trial(n);
+  for (int64_t n = 1; n <= campaign_.trial_count(); ++n) {
+    const campaign::Trial& t = *campaign_.trial(n);
     if (!t.outcome.has_value() || t.reported_at <= since) continue;
     reports.emplace_back(t.reported_at, t.worker);
   }
@@ -49,7 +49,7 @@ StudyHost::StudyHost(int64_t id, v1::StudyDesign design, study::Study study, sto
   }
 }
 
-void StudyHost::NoteActivity(const std::string& worker, absl::Time now, int reports) {
+void CampaignHost::NoteActivity(const std::string& worker, absl::Time now, int reports) {
   absl::Time& seen = last_seen_[worker];
   seen = std::max(seen, now);
   for (int i = 0; i < reports; ++i) recent_reports_.emplace_back(now, worker);
@@ -63,46 +63,46 @@ void StudyHost::NoteActivity(const std::string& worker, absl::Time now, int repo
   }
 }
 
-StudyHost::Queued StudyHost::ApplyAndQueue(study::Change change, std::vector<storage::Event> events,
+CampaignHost::Queued CampaignHost::ApplyAndQueue(campaign::Change change, std::vector<storage::Event> events,
                                            std::optional<std::pair<std::string, std::vector<int64_t>>> ask_request,
                                            absl::Time now, const std::string& token_label) {
-  storage::StudyWrite write;
-  write.study_id = id_;
+  storage::CampaignWrite write;
+  write.campaign_id = id_;
   write.chain = chain_;
-  for (const study::Trial& t : change.trials) write.trials.push_back(codec::TrialToProto(t));
+  for (const campaign::Trial& t : change.trials) write.trials.push_back(codec::TrialToProto(t));
   write.engine = codec::EngineStateToProto(change.engine, /*include_distribution=*/false);
   if (change.distribution_changed) {
     write.distribution = codec::DistributionStateToProto(change.engine.distribution->state());
   }
-  for (const study::GenerationRecord& g : change.generations) {
+  for (const campaign::GenerationRecord& g : change.generations) {
     write.generations.push_back(codec::GenerationToProto(g, now));
     events.push_back({"update", 0, "", absl::StrCat("generation ", g.generation, " from ", g.cohort.size(),
                                                     " outcomes, mean staleness ", g.mean_staleness),
                       absl::ToUnixNanos(now)});
   }
-  if (change.engine.phase != study_.engine().phase || change.engine.epoch != study_.engine().epoch) {
+  if (change.engine.phase != campaign_.engine().phase || change.engine.epoch != campaign_.engine().epoch) {
     events.push_back({"phase", 0, "",
-                      absl::StrCat(study::PhaseName(change.engine.phase), " ",
-                                   study::DoneReasonName(change.engine.reason), " ", change.engine.phase_message),
+                      absl::StrCat(campaign::PhaseName(change.engine.phase), " ",
+                                   campaign::DoneReasonName(change.engine.reason), " ", change.engine.phase_message),
                       absl::ToUnixNanos(now)});
   }
   write.ask_request = ask_request;
   for (storage::Event& event : events) event.token_label = token_label;
   write.events = std::move(events);
-  ChangeTally tally = TallyChange(study_, change);
-  study_.Apply(std::move(change));
+  ChangeTally tally = TallyChange(campaign_, change);
+  campaign_.Apply(std::move(change));
   if (ask_request.has_value()) ask_requests_.insert(*std::move(ask_request));
   ++version_;
   return Queued{store_->CommitAsync(std::move(write)), chain_, tally};
 }
 
-absl::Status StudyHost::Await(Queued queued) {
+absl::Status CampaignHost::Await(Queued queued) {
   const absl::Status committed = queued.pending->Wait();
   return AfterCommit(queued.chain, queued.tally, committed);
 }
 
 template <typename Response>
-void StudyHost::ReplyAfterCommit(Queued queued, Response response, Reply<Response> reply) {
+void CampaignHost::ReplyAfterCommit(Queued queued, Response response, Reply<Response> reply) {
   waiter_->Add(std::move(queued.pending),
                [this, chain = queued.chain, tally = queued.tally, response = std::move(response),
                 reply = std::move(reply)](absl::Status committed) mutable {
@@ -115,7 +115,7 @@ void StudyHost::ReplyAfterCommit(Queued queued, Response response, Reply<Respons
                });
 }
 
-absl::Status StudyHost::AfterCommit(int64_t chain, const ChangeTally& tally, absl::Status committed) {
+absl::Status CampaignHost::AfterCommit(int64_t chain, const ChangeTally& tally, absl::Status committed) {
   if (committed.ok()) {
     if (metrics_ != nullptr && !tally.empty()) metrics_->ObserveCommitted(tally);
     return committed;
@@ -125,28 +125,28 @@ absl::Status StudyHost::AfterCommit(int64_t chain, const ChangeTally& tally, abs
   // Memory ran ahead of disk: go back to what the store holds.
   ++chain_;
   ++version_;
-  absl::StatusOr<storage::StoredStudy> stored = store_->LoadStudy(id_);
-  absl::StatusOr<study::StudySnapshot> snapshot =
-      stored.ok() ? codec::SnapshotFromProto(stored->snapshot, study_.space()) : stored.status();
-  absl::StatusOr<study::Study> restored =
-      snapshot.ok() ? study::Study::Restore(study_.space(), study_.order(), study_.distribution_options(),
-                                            study_.options(), *std::move(snapshot))
+  absl::StatusOr<storage::StoredCampaign> stored = store_->LoadCampaign(id_);
+  absl::StatusOr<campaign::CampaignSnapshot> snapshot =
+      stored.ok() ? codec::SnapshotFromProto(stored->snapshot, campaign_.space()) : stored.status();
+  absl::StatusOr<campaign::Campaign> restored =
+      snapshot.ok() ? campaign::Campaign::Restore(campaign_.space(), campaign_.order(), campaign_.distribution_options(),
+                                            campaign_.options(), *std::move(snapshot))
                     : snapshot.status();
   if (!restored.ok()) {
-    broken_ = absl::UnavailableError(absl::StrCat("study '", name(), "' could not be reloaded after a failed write: ",
+    broken_ = absl::UnavailableError(absl::StrCat("campaign '", name(), "' could not be reloaded after a failed write: ",
                                                   restored.status().message()));
     return committed;
   }
-  study_ = *std::move(restored);
+  campaign_ = *std::move(restored);
   ask_requests_.clear();
   ask_requests_.insert(stored->ask_requests.begin(), stored->ask_requests.end());
   broken_ = absl::OkStatus();
   return committed;
 }
 
-absl::Status StudyHost::Usable() const { return broken_; }
+absl::Status CampaignHost::Usable() const { return broken_; }
 
-void StudyHost::Ask(int count, const std::string& worker, std::optional<absl::Duration> lease,
+void CampaignHost::Ask(int count, const std::string& worker, std::optional<absl::Duration> lease,
                     const std::string& request_id, absl::Time now, const std::string& token_label,
                     Reply<v1::AskResponse> reply) {
   Queued queued;
@@ -157,14 +157,14 @@ void StudyHost::Ask(int count, const std::string& worker, std::optional<absl::Du
     std::vector<int64_t> numbers;
     if (auto it = ask_requests_.find(request_id); !request_id.empty() && it != ask_requests_.end()) {
       // A retry: the same trials again, answered only once the original's write (queued earlier in
-      // this study's chain) has committed — an empty write behind it waits for exactly that.
+      // this campaign's chain) has committed — an empty write behind it waits for exactly that.
       numbers = it->second;
-      storage::StudyWrite barrier;
-      barrier.study_id = id_;
+      storage::CampaignWrite barrier;
+      barrier.campaign_id = id_;
       barrier.chain = chain_;
       queued = Queued{store_->CommitAsync(std::move(barrier)), chain_, ChangeTally{}};
     } else {
-      absl::StatusOr<study::AskPlan> plan = study_.PlanAsk(count, worker, lease, now);
+      absl::StatusOr<campaign::AskPlan> plan = campaign_.PlanAsk(count, worker, lease, now);
       if (!plan.ok()) return reply(plan.status());
       numbers = plan->trials;
       std::vector<storage::Event> events;
@@ -173,24 +173,24 @@ void StudyHost::Ask(int count, const std::string& worker, std::optional<absl::Du
       if (!request_id.empty()) ask_request = std::make_pair(request_id, numbers);
       queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::move(ask_request), now, token_label);
     }
-    for (int64_t n : numbers) *response.add_trials() = TrialView(*study_.trial(n));
+    for (int64_t n : numbers) *response.add_trials() = TrialView(*campaign_.trial(n));
     NoteActivity(worker, now, 0);
   }
   ReplyAfterCommit(std::move(queued), std::move(response), std::move(reply));
 }
 
-void StudyHost::Tell(const std::vector<study::Report>& reports, const std::string& worker, absl::Time now,
+void CampaignHost::Tell(const std::vector<campaign::Report>& reports, const std::string& worker, absl::Time now,
                      const std::string& token_label, Reply<v1::TellResponse> reply) {
   Queued queued;
   v1::TellResponse response;
   {
     absl::MutexLock lock(&mu_);
     if (absl::Status s = Usable(); !s.ok()) return reply(s);
-    absl::StatusOr<study::TellPlan> plan = study_.PlanTell(reports, now);
+    absl::StatusOr<campaign::TellPlan> plan = campaign_.PlanTell(reports, now);
     if (!plan.ok()) return reply(plan.status());
     std::vector<storage::Event> events;
     int stored = 0;
-    for (const study::ReportResult& r : plan->results) {
+    for (const campaign::ReportResult& r : plan->results) {
       v1::ReportResult* out = response.add_results();
       out->set_trial(r.trial);
       out->set_code(static_cast<int>(r.status.code()));
@@ -204,37 +204,37 @@ void StudyHost::Tell(const std::vector<study::Report>& reports, const std::strin
     }
     NoteActivity(worker, now, stored);
     queued = ApplyAndQueue(std::move(plan->change), std::move(events), std::nullopt, now, token_label);
-    response.set_generation(study_.engine().generation);
-    response.set_phase(codec::PhaseToProto(study_.engine().phase));
+    response.set_generation(campaign_.engine().generation);
+    response.set_phase(codec::PhaseToProto(campaign_.engine().phase));
   }
   ReplyAfterCommit(std::move(queued), std::move(response), std::move(reply));
 }
 
-absl::StatusOr<v1::RenewResponse> StudyHost::Renew(const std::vector<int64_t>& trials, const std::string& worker,
+absl::StatusOr<v1::RenewResponse> CampaignHost::Renew(const std::vector<int64_t>& trials, const std::string& worker,
                                                    std::optional<absl::Duration> lease, absl::Time now) {
   Queued queued;
   v1::RenewResponse response;
   {
     absl::MutexLock lock(&mu_);
     if (absl::Status s = Usable(); !s.ok()) return s;
-    absl::StatusOr<study::Change> change = study_.PlanRenew(trials, worker, lease, now);
+    absl::StatusOr<campaign::Change> change = campaign_.PlanRenew(trials, worker, lease, now);
     if (!change.ok()) return change.status();
     queued = ApplyAndQueue(*std::move(change), {}, std::nullopt, now, "");
-    for (int64_t n : trials) *response.add_trials() = TrialView(*study_.trial(n));
+    for (int64_t n : trials) *response.add_trials() = TrialView(*campaign_.trial(n));
     NoteActivity(worker, now, 0);
   }
   if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
   return response;
 }
 
-absl::StatusOr<v1::StudyView> StudyHost::SetPhase(study::PhaseCommand command, absl::Time now,
+absl::StatusOr<v1::CampaignView> CampaignHost::SetPhase(campaign::PhaseCommand command, absl::Time now,
                                                   const std::string& token_label) {
   Queued queued;
-  v1::StudyView view;
+  v1::CampaignView view;
   {
     absl::MutexLock lock(&mu_);
     if (absl::Status s = Usable(); !s.ok()) return s;
-    absl::StatusOr<study::Change> change = study_.PlanSetPhase(command, now);
+    absl::StatusOr<campaign::Change> change = campaign_.PlanSetPhase(command, now);
     if (!change.ok()) return change.status();
     queued = ApplyAndQueue(*std::move(change), {}, std::nullopt, now, token_label);
     view = ViewLocked(false);
@@ -243,17 +243,17 @@ absl::StatusOr<v1::StudyView> StudyHost::SetPhase(study::PhaseCommand command, a
   return view;
 }
 
-absl::StatusOr<int> StudyHost::Sweep(absl::Time now) {
+absl::StatusOr<int> CampaignHost::Sweep(absl::Time now) {
   Queued queued;
   int lapsed = 0;
   {
     absl::MutexLock lock(&mu_);
     if (absl::Status s = Usable(); !s.ok()) return s;
-    study::Change change = study_.PlanSweep(now);
+    campaign::Change change = campaign_.PlanSweep(now);
     if (change.trials.empty()) return 0;
     lapsed = static_cast<int>(change.trials.size());
     std::vector<storage::Event> events;
-    for (const study::Trial& t : change.trials) {
+    for (const campaign::Trial& t : change.trials) {
       events.push_back({"lapse", t.number, t.worker, "", absl::ToUnixNanos(now)});
     }
     queued = ApplyAndQueue(std::move(change), std::move(events), std::nullopt, now, "");
@@ -262,10 +262,10 @@ absl::StatusOr<int> StudyHost::Sweep(absl::Time now) {
   return lapsed;
 }
 
-v1::Trial StudyHost::TrialView(const study::Trial& t) const {
+v1::Trial CampaignHost::TrialView(const campaign::Trial& t) const {
   v1::Trial v;
   v.set_number(t.number);
-  *v.mutable_candidate() = codec::CandidateToProto(study_.space().Decode(t.x), study_.space());
+  *v.mutable_candidate() = codec::CandidateToProto(campaign_.space().Decode(t.x), campaign_.space());
   v.set_generation(t.generation);
   v.set_state(codec::TrialStateToProto(t.state));
   v.set_worker(t.worker);
@@ -282,25 +282,25 @@ v1::Trial StudyHost::TrialView(const study::Trial& t) const {
   return v;
 }
 
-v1::StudyView StudyHost::View(bool brief, int64_t* version) const {
+v1::CampaignView CampaignHost::View(bool brief, int64_t* version) const {
   absl::ReaderMutexLock lock(&mu_);
   if (version != nullptr) *version = version_;
   return ViewLocked(brief);
 }
 
-v1::StudyView StudyHost::ViewLocked(bool brief) const {
-  v1::StudyView view;
+v1::CampaignView CampaignHost::ViewLocked(bool brief) const {
+  v1::CampaignView view;
   view.set_name(design_.name());
   if (!brief) *view.mutable_design() = design_;
   v1::StatusSummary* s = view.mutable_status();
-  const study::EngineState& e = study_.engine();
+  const campaign::EngineState& e = campaign_.engine();
   s->set_phase(codec::PhaseToProto(e.phase));
   s->set_reason(codec::DoneReasonToProto(e.reason));
   s->set_phase_message(e.phase_message);
   s->set_generation(e.generation);
   s->set_restarts(e.epoch);
-  s->set_population_size(study_.distribution().population_size());
-  const study::TrialCounts& c = study_.counts();
+  s->set_population_size(campaign_.distribution().population_size());
+  const campaign::TrialCounts& c = campaign_.counts();
   s->set_leased(c.leased);
   s->set_reported(c.reported);
   s->set_lapsed(c.lapsed);
@@ -332,25 +332,25 @@ v1::StudyView StudyHost::ViewLocked(bool brief) const {
     auto it = reports_by_worker.find(*worker);
     w->set_reports_last_hour(it == reports_by_worker.end() ? 0 : it->second);
   }
-  if (const study::Trial* best = study_.best()) *s->mutable_best() = TrialView(*best);
-  const search::DistributionSummary summary = study_.distribution().Summary();
+  if (const campaign::Trial* best = campaign_.best()) *s->mutable_best() = TrialView(*best);
+  const search::DistributionSummary summary = campaign_.distribution().Summary();
   if (summary.gaussian) {
     s->set_step_size(summary.gaussian->sigma);
     s->set_axis_ratio(summary.gaussian->axis_ratio);
   }
-  for (v1::Marginal& m : codec::MarginalsToProto(summary, study_.space(), design_)) {
+  for (v1::Marginal& m : codec::MarginalsToProto(summary, campaign_.space(), design_)) {
     *s->add_marginals() = std::move(m);
   }
   return view;
 }
 
-std::vector<v1::Trial> StudyHost::Trials(std::optional<study::TrialState> state, int64_t after, int limit,
+std::vector<v1::Trial> CampaignHost::Trials(std::optional<campaign::TrialState> state, int64_t after, int limit,
                                          int64_t* next_after) const {
   absl::ReaderMutexLock lock(&mu_);
   std::vector<v1::Trial> out;
   *next_after = 0;
-  for (int64_t n = std::max<int64_t>(after + 1, 1); n <= study_.trial_count(); ++n) {
-    const study::Trial& t = *study_.trial(n);
+  for (int64_t n = std::max<int64_t>(after + 1, 1); n <= campaign_.trial_count(); ++n) {
+    const campaign::Trial& t = *campaign_.trial(n);
     if (state.has_value() && t.state != *state) continue;
     if (static_cast<int>(out.size()) == limit) {
       *next_after = out.back().number();
@@ -361,7 +361,7 @@ std::vector<v1::Trial> StudyHost::Trials(std::optional<study::TrialState> state,
   return out;
 }
 
-absl::StatusOr<std::vector<v1::GenerationView>> StudyHost::Generations(int64_t after, int limit,
+absl::StatusOr<std::vector<v1::GenerationView>> CampaignHost::Generations(int64_t after, int limit,
                                                                       int64_t* next_after) const {
   *next_after = 0;
   // The store's committed history: no lock needed (space_ and design_ never change).
@@ -375,23 +375,23 @@ absl::StatusOr<std::vector<v1::GenerationView>> StudyHost::Generations(int64_t a
     }
     absl::StatusOr<v1::GenerationView> view = codec::GenerationViewFromSummary(g, space_, design_);
     if (!view.ok()) {
-      return absl::DataLossError(absl::StrCat("study '", name(), "': ", view.status().message()));
+      return absl::DataLossError(absl::StrCat("campaign '", name(), "': ", view.status().message()));
     }
     out.push_back(*std::move(view));
   }
   return out;
 }
 
-int64_t StudyHost::WaitForChange(int64_t version, absl::Time deadline) const {
+int64_t CampaignHost::WaitForChange(int64_t version, absl::Time deadline) const {
   absl::MutexLock lock(&mu_);
   auto changed = [this, version]() ABSL_SHARED_LOCKS_REQUIRED(mu_) { return version_ != version; };
   mu_.AwaitWithDeadline(absl::Condition(&changed), deadline);
   return version_;
 }
 
-StudyGauges StudyHost::Gauges() const {
+CampaignGauges CampaignHost::Gauges() const {
   absl::ReaderMutexLock lock(&mu_);
-  return {study_.counts(), study_.engine().phase, study_.engine().generation};
+  return {campaign_.counts(), campaign_.engine().phase, campaign_.engine().generation};
 }
 
 }  // namespace ogive::service

@@ -1,7 +1,7 @@
-// StudyOptions: the engine settings of one study (everything in a design besides the search space and
+// CampaignOptions: the engine settings of one campaign (everything in a design besides the search space and
 // the distribution's own options), with defaults and a validator whose messages name the field.
-#ifndef OGIVE_SERVER_STUDY_STUDY_OPTIONS_H_
-#define OGIVE_SERVER_STUDY_STUDY_OPTIONS_H_
+#ifndef OGIVE_SERVER_CAMPAIGN_CAMPAIGN_OPTIONS_H_
+#define OGIVE_SERVER_CAMPAIGN_CAMPAIGN_OPTIONS_H_
 
 #include <cstdint>
 #include <optional>
@@ -10,7 +10,7 @@
 #include "absl/time/time.h"
 #include "server/search/ranking.h"
 
-namespace ogive::study {
+namespace ogive::campaign {
 
 // Outcomes sampled more generations before the update that would consume them are kept but never used.
 // Ten generations: with as many workers as four populations, a typical outcome is about four generations
@@ -18,7 +18,7 @@ namespace ogive::study {
 inline constexpr int kDefaultStalenessLimit = 10;
 inline constexpr absl::Duration kDefaultLease = absl::Hours(1);
 
-struct StudyOptions {
+struct CampaignOptions {
   uint64_t seed = 0;
   int staleness_limit = kDefaultStalenessLimit;  // generations; >= 0
   int64_t trial_budget = 0;                      // informative outcomes before done; 0 = unlimited
@@ -35,6 +35,6 @@ struct StudyOptions {
   absl::Status Validate() const;
 };
 
-}  // namespace ogive::study
+}  // namespace ogive::campaign
 
-#endif  // OGIVE_SERVER_STUDY_STUDY_OPTIONS_H_
+#endif  // OGIVE_SERVER_CAMPAIGN_CAMPAIGN_OPTIONS_H_

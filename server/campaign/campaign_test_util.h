@@ -1,8 +1,8 @@
-// Helpers shared by the study engine's tests: spaces, a fixed clock origin, bit-exact comparisons
+// Helpers shared by the campaign engine's tests: spaces, a fixed clock origin, bit-exact comparisons
 // of engine states and trials, and a sequential ask/tell driver over a function of the user's
 // values.
-#ifndef OGIVE_SERVER_STUDY_STUDY_TEST_UTIL_H_
-#define OGIVE_SERVER_STUDY_STUDY_TEST_UTIL_H_
+#ifndef OGIVE_SERVER_CAMPAIGN_CAMPAIGN_TEST_UTIL_H_
+#define OGIVE_SERVER_CAMPAIGN_CAMPAIGN_TEST_UTIL_H_
 
 #include <algorithm>
 #include <cstdint>
@@ -25,11 +25,11 @@
 #include "server/search/ranking.h"
 #include "server/search/search_distribution.h"
 #include "server/search/space.h"
-#include "server/study/study.h"
-#include "server/study/study_options.h"
-#include "server/study/trial.h"
+#include "server/campaign/campaign.h"
+#include "server/campaign/campaign_options.h"
+#include "server/campaign/trial.h"
 
-namespace ogive::study::test_util {
+namespace ogive::campaign::test_util {
 
 inline constexpr search::OutcomeOrder kMinimize{false, search::Direction::kLowerIsBetter, 0};
 
@@ -60,15 +60,15 @@ inline search::Space MixedSpace() {
   return *std::move(space);
 }
 
-// Creates a study or fails the test (and returns a study on a one-parameter space so the caller can
+// Creates a campaign or fails the test (and returns a campaign on a one-parameter space so the caller can
 // go on without crashing; the failure is already recorded).
-inline Study MakeStudy(const search::Space& space, const search::OutcomeOrder& order,
+inline Campaign MakeCampaign(const search::Space& space, const search::OutcomeOrder& order,
                        const search::DistributionOptions& distribution_options,
-                       const StudyOptions& options) {
-  absl::StatusOr<Study> study = Study::Create(space, order, distribution_options, options);
-  EXPECT_TRUE(study.ok()) << study.status();
-  if (study.ok()) return *std::move(study);
-  return *Study::Create(RealSpace(1, 0, 1), kMinimize, {}, {});
+                       const CampaignOptions& options) {
+  absl::StatusOr<Campaign> campaign = Campaign::Create(space, order, distribution_options, options);
+  EXPECT_TRUE(campaign.ok()) << campaign.status();
+  if (campaign.ok()) return *std::move(campaign);
+  return *Campaign::Create(RealSpace(1, 0, 1), kMinimize, {}, {});
 }
 
 // The real coordinates of a candidate in the user's units (every parameter must be real).
@@ -167,7 +167,7 @@ inline void ExpectSameTrial(const Trial& a, const Trial& b) {
   EXPECT_EQ(a.consumed_by, b.consumed_by);
 }
 
-inline void ExpectSameStudy(const Study& a, const Study& b) {
+inline void ExpectSameCampaign(const Campaign& a, const Campaign& b) {
   ExpectSameEngine(a.engine(), b.engine());
   ASSERT_EQ(a.trial_count(), b.trial_count());
   for (int64_t k = 1; k <= a.trial_count(); ++k) ExpectSameTrial(*a.trial(k), *b.trial(k));
@@ -177,21 +177,21 @@ inline void ExpectSameStudy(const Study& a, const Study& b) {
 struct RunResult {
   int64_t evaluations = 0;  // outcomes reported
   int64_t reached_at = -1;  // evaluations when `reached` first held, -1 if never
-  bool done = false;        // the study ended by itself
+  bool done = false;        // the campaign ended by itself
 };
 
-// Drives a study sequentially: ask λ (the current population size), evaluate every candidate with
-// `f`, tell them all at once, one second later; until the study is done, `reached` holds for an
+// Drives a campaign sequentially: ask λ (the current population size), evaluate every candidate with
+// `f`, tell them all at once, one second later; until the campaign is done, `reached` holds for an
 // outcome (when `stop_when_reached`), or `max_evaluations` outcomes were reported.
-inline RunResult RunSequential(Study& study, const std::function<search::Outcome(const Trial&)>& f,
+inline RunResult RunSequential(Campaign& campaign, const std::function<search::Outcome(const Trial&)>& f,
                                int64_t max_evaluations,
                                const std::function<bool(const search::Outcome&)>& reached,
                                bool stop_when_reached) {
   RunResult r;
   absl::Time now = Origin();
-  while (r.evaluations < max_evaluations && study.engine().phase == Phase::kOpen) {
-    const int lambda = study.distribution().population_size();
-    absl::StatusOr<std::vector<Trial>> asked = study.Ask(lambda, "w", std::nullopt, now);
+  while (r.evaluations < max_evaluations && campaign.engine().phase == Phase::kOpen) {
+    const int lambda = campaign.distribution().population_size();
+    absl::StatusOr<std::vector<Trial>> asked = campaign.Ask(lambda, "w", std::nullopt, now);
     if (!asked.ok()) {
       ADD_FAILURE() << asked.status();
       break;
@@ -206,31 +206,31 @@ inline RunResult RunSequential(Study& study, const std::function<search::Outcome
       reports.push_back(std::move(report));
     }
     now += absl::Seconds(1);
-    absl::StatusOr<std::vector<ReportResult>> told = study.Tell(reports, now);
+    absl::StatusOr<std::vector<ReportResult>> told = campaign.Tell(reports, now);
     if (!told.ok()) {
       ADD_FAILURE() << told.status();
       break;
     }
     if (stop_when_reached && r.reached_at >= 0) break;
   }
-  r.done = study.engine().phase == Phase::kDone;
+  r.done = campaign.engine().phase == Phase::kDone;
   return r;
 }
 
-// Plays random event sequences on a study (asks by several workers with random lease lengths,
+// Plays random event sequences on a campaign (asks by several workers with random lease lengths,
 // reports of random trials in any order, late reports, voids, infeasibles, duplicates, different
 // outcomes, reports to unknown trials, renewals, sweeps, optional pauses) with random time
 // advances, from its own seeded generator. It keeps its own model of what it was told and checks
 // each reply against the engine's contract with EXPECTs. Two drivers with the same seed play the
-// same events on two studies that behave the same.
+// same events on two campaigns that behave the same.
 class EventDriver {
  public:
   struct Options {
     int workers = 4;
     bool use_plan_api = true;     // Plan*() then Apply(), collecting every GenerationRecord
     bool phase_changes = false;   // occasionally pause and resume
-    int64_t trial_budget = 0;     // the study's budget, to predict trimmed asks (0 = none)
-    bool flat_objective = false;  // every outcome the same score: cohorts tie, the study converges
+    int64_t trial_budget = 0;     // the campaign's budget, to predict trimmed asks (0 = none)
+    bool flat_objective = false;  // every outcome the same score: cohorts tie, the campaign converges
   };
 
   // What one event did, for comparing two runs.
@@ -254,14 +254,14 @@ class EventDriver {
     return search::Outcome::Score((t.x.array() - 0.3).square().sum());
   }
 
-  Step Next(Study& study) {
+  Step Next(Campaign& campaign) {
     now_ += absl::Seconds(Uniform(0, 20));
     const double u = Unit();
-    if (u < 0.30) return DoAsk(study);
-    if (u < 0.72) return DoTell(study);
-    if (u < 0.82) return DoRenew(study);
-    if (u < 0.90) return DoSweep(study);
-    if (options_.phase_changes && u < 0.93) return DoPhase(study);
+    if (u < 0.30) return DoAsk(campaign);
+    if (u < 0.72) return DoTell(campaign);
+    if (u < 0.82) return DoRenew(campaign);
+    if (u < 0.90) return DoSweep(campaign);
+    if (options_.phase_changes && u < 0.93) return DoPhase(campaign);
     Step step;
     step.kind = 'w';
     now_ += absl::Seconds(Uniform(0, 120));
@@ -298,7 +298,7 @@ class EventDriver {
     return n;
   }
 
-  Step DoAsk(Study& study) {
+  Step DoAsk(Campaign& campaign) {
     Step step;
     step.kind = 'a';
     int count = Uniform(1, 4);
@@ -306,22 +306,22 @@ class EventDriver {
     const std::string worker = Worker();
     std::optional<absl::Duration> lease;
     if (Unit() < 0.9) lease = absl::Seconds(Uniform(10, 300));
-    const bool paused = study.engine().phase == Phase::kPaused;
-    const bool done = study.engine().phase == Phase::kDone;
+    const bool paused = campaign.engine().phase == Phase::kPaused;
+    const bool done = campaign.engine().phase == Phase::kDone;
     int64_t expected = count;
     if (options_.trial_budget > 0) {
       expected = std::min<int64_t>(count, options_.trial_budget - informative_ - Outstanding());
     }
     std::vector<int64_t> numbers;
     if (options_.use_plan_api) {
-      absl::StatusOr<AskPlan> plan = study.PlanAsk(count, worker, lease, now_);
+      absl::StatusOr<AskPlan> plan = campaign.PlanAsk(count, worker, lease, now_);
       step.code = plan.status().code();
       if (plan.ok()) {
         numbers = plan->trials;
-        CollectAndApply(study, std::move(plan->change));
+        CollectAndApply(campaign, std::move(plan->change));
       }
     } else {
-      absl::StatusOr<std::vector<Trial>> asked = study.Ask(count, worker, lease, now_);
+      absl::StatusOr<std::vector<Trial>> asked = campaign.Ask(count, worker, lease, now_);
       step.code = asked.status().code();
       if (asked.ok()) {
         for (const Trial& t : *asked) numbers.push_back(t.number);
@@ -334,7 +334,7 @@ class EventDriver {
       EXPECT_EQ(static_cast<int64_t>(numbers.size()), expected);
       last_sweep_ = now_;
     }
-    const absl::Duration length = lease.value_or(study.options().default_lease);
+    const absl::Duration length = lease.value_or(campaign.options().default_lease);
     for (int64_t number : numbers) {
       EXPECT_EQ(number, ++asked_);
       untold_[number] = Held{worker, now_ + length};
@@ -343,7 +343,7 @@ class EventDriver {
     return step;
   }
 
-  Step DoTell(Study& study) {
+  Step DoTell(Campaign& campaign) {
     Step step;
     step.kind = 't';
     const int count = Uniform(1, 4);
@@ -353,7 +353,7 @@ class EventDriver {
       const double u = Unit();
       if (u < 0.70 && !untold_.empty()) {
         r.trial = Untold();
-        r.outcome = Fresh(*study.trial(r.trial));
+        r.outcome = Fresh(*campaign.trial(r.trial));
       } else if (u < 0.82 && !told_.empty()) {
         r.trial = Told();  // a duplicate
         r.outcome = told_[r.trial];
@@ -392,14 +392,14 @@ class EventDriver {
     }
 
     if (options_.use_plan_api) {
-      absl::StatusOr<TellPlan> plan = study.PlanTell(reports, now_);
+      absl::StatusOr<TellPlan> plan = campaign.PlanTell(reports, now_);
       step.code = plan.status().code();
       if (plan.ok()) {
         step.results = plan->results;
-        CollectAndApply(study, std::move(plan->change));
+        CollectAndApply(campaign, std::move(plan->change));
       }
     } else {
-      absl::StatusOr<std::vector<ReportResult>> results = study.Tell(reports, now_);
+      absl::StatusOr<std::vector<ReportResult>> results = campaign.Tell(reports, now_);
       step.code = results.status().code();
       if (results.ok()) step.results = *results;
     }
@@ -428,7 +428,7 @@ class EventDriver {
     return step;
   }
 
-  Step DoRenew(Study& study) {
+  Step DoRenew(Campaign& campaign) {
     Step step;
     step.kind = 'r';
     std::vector<int64_t> numbers;
@@ -460,11 +460,11 @@ class EventDriver {
       break;
     }
     if (options_.use_plan_api) {
-      absl::StatusOr<Change> change = study.PlanRenew(numbers, worker, lease, now_);
+      absl::StatusOr<Change> change = campaign.PlanRenew(numbers, worker, lease, now_);
       step.code = change.status().code();
-      if (change.ok()) CollectAndApply(study, *std::move(change));
+      if (change.ok()) CollectAndApply(campaign, *std::move(change));
     } else {
-      step.code = study.Renew(numbers, worker, lease, now_).code();
+      step.code = campaign.Renew(numbers, worker, lease, now_).code();
     }
     EXPECT_EQ(step.code, want) << "renew by " << worker;
     if (step.code == absl::StatusCode::kOk) {
@@ -475,29 +475,29 @@ class EventDriver {
     return step;
   }
 
-  Step DoSweep(Study& study) {
+  Step DoSweep(Campaign& campaign) {
     Step step;
     step.kind = 's';
     if (options_.use_plan_api) {
-      CollectAndApply(study, study.PlanSweep(now_));
+      CollectAndApply(campaign, campaign.PlanSweep(now_));
     } else {
-      study.Sweep(now_);
+      campaign.Sweep(now_);
     }
     last_sweep_ = now_;
     return step;
   }
 
-  Step DoPhase(Study& study) {
+  Step DoPhase(Campaign& campaign) {
     Step step;
     step.kind = 'p';
     const PhaseCommand command = Unit() < 0.5 ? PhaseCommand::kPause : PhaseCommand::kResume;
-    const bool done = study.engine().phase == Phase::kDone;
+    const bool done = campaign.engine().phase == Phase::kDone;
     if (options_.use_plan_api) {
-      absl::StatusOr<Change> change = study.PlanSetPhase(command, now_);
+      absl::StatusOr<Change> change = campaign.PlanSetPhase(command, now_);
       step.code = change.status().code();
-      if (change.ok()) CollectAndApply(study, *std::move(change));
+      if (change.ok()) CollectAndApply(campaign, *std::move(change));
     } else {
-      step.code = study.SetPhase(command, now_).code();
+      step.code = campaign.SetPhase(command, now_).code();
     }
     EXPECT_EQ(step.code, done ? absl::StatusCode::kFailedPrecondition : absl::StatusCode::kOk);
     return step;
@@ -522,9 +522,9 @@ class EventDriver {
     }
   }
 
-  void CollectAndApply(Study& study, Change change) {
+  void CollectAndApply(Campaign& campaign, Change change) {
     for (const GenerationRecord& g : change.generations) generations_.push_back(g);
-    study.Apply(std::move(change));
+    campaign.Apply(std::move(change));
   }
 
   std::mt19937_64 rng_;
@@ -538,6 +538,6 @@ class EventDriver {
   std::vector<GenerationRecord> generations_;
 };
 
-}  // namespace ogive::study::test_util
+}  // namespace ogive::campaign::test_util
 
-#endif  // OGIVE_SERVER_STUDY_STUDY_TEST_UTIL_H_
+#endif  // OGIVE_SERVER_CAMPAIGN_CAMPAIGN_TEST_UTIL_H_

@@ -1,4 +1,4 @@
-#include "server/study/study.h"
+#include "server/campaign/campaign.h"
 
 #include <algorithm>
 #include <iterator>
@@ -8,9 +8,9 @@
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "server/base/check.h"
-#include "server/study/termination.h"
+#include "server/campaign/termination.h"
 
-namespace ogive::study {
+namespace ogive::campaign {
 namespace {
 
 bool SameOutcome(const search::Outcome& a, const search::Outcome& b) {
@@ -100,31 +100,31 @@ const char* DoneReasonName(DoneReason reason) {
 }
 
 // Computes one request's Change on top of the published state. Changed trials live in an overlay and
-// the engine state is a copy; the study's index sets are read, never copied: a trial is leased while
+// the engine state is a copy; the campaign's index sets are read, never copied: a trial is leased while
 // its state is kLeased and pending while its use is kPending (in the overlay when it changed), and the
-// planner counts how many entered or left each set. Nothing here touches the Study, and the cost of a
+// planner counts how many entered or left each set. Nothing here touches the Campaign, and the cost of a
 // plan grows with what it changes, not with how many trials are out or pending.
-class Study::Planner {
+class Campaign::Planner {
  public:
-  Planner(const Study& study, absl::Time now) : study_(study), now_(now), engine_(study.engine_) {}
+  Planner(const Campaign& campaign, absl::Time now) : campaign_(campaign), now_(now), engine_(campaign.engine_) {}
 
   const Trial* Get(int64_t number) const {
     if (auto it = overlay_.find(number); it != overlay_.end()) return &it->second;
-    return study_.trial(number);
+    return campaign_.trial(number);
   }
   Trial& Mutable(int64_t number) {
     auto it = overlay_.find(number);
-    if (it == overlay_.end()) it = overlay_.emplace(number, *study_.trial(number)).first;
+    if (it == overlay_.end()) it = overlay_.emplace(number, *campaign_.trial(number)).first;
     return it->second;
   }
   EngineState& engine() { return engine_; }
-  int64_t outstanding() const { return static_cast<int64_t>(study_.leases_.size()) + leased_delta_; }
+  int64_t outstanding() const { return static_cast<int64_t>(campaign_.leases_.size()) + leased_delta_; }
 
-  // Lapses every lease that ran out by now: the study's leases in deadline order, up to now (a lease
+  // Lapses every lease that ran out by now: the campaign's leases in deadline order, up to now (a lease
   // this plan changed is judged by its trial as the plan sees it).
   void Sweep() {
     std::vector<int64_t> expired;
-    for (const auto& [deadline, number] : study_.leases_) {
+    for (const auto& [deadline, number] : campaign_.leases_) {
       if (deadline > now_) break;
       const Trial* t = Get(number);
       if (t->state == TrialState::kLeased && t->lease_deadline <= now_) expired.push_back(number);
@@ -164,11 +164,11 @@ class Study::Planner {
     result.trial = report.trial;
     const Trial* existing = Get(report.trial);
     if (existing == nullptr) {
-      result.status = absl::NotFoundError(absl::StrCat("trial ", report.trial, ": no such trial in this study (trials are 1..",
+      result.status = absl::NotFoundError(absl::StrCat("trial ", report.trial, ": no such trial in this campaign (trials are 1..",
                                                        engine_.next_trial - 1, ")"));
       return result;
     }
-    if (absl::Status s = search::CheckOutcome(report.outcome, study_.order_); !s.ok()) {
+    if (absl::Status s = search::CheckOutcome(report.outcome, campaign_.order_); !s.ok()) {
       result.status = absl::InvalidArgumentError(absl::StrCat("trial ", report.trial, ": ", s.message()));
       return result;
     }
@@ -206,7 +206,7 @@ class Study::Planner {
       added_pending_.push_back(t.number);  // its report_sequence is above every earlier one
     }
     const Trial* best = Get(engine_.best_trial);
-    if (best == nullptr || search::CompareOutcomes(*t.outcome, *best->outcome, study_.order_) < 0) {
+    if (best == nullptr || search::CompareOutcomes(*t.outcome, *best->outcome, campaign_.order_) < 0) {
       engine_.best_trial = t.number;
     }
     return result;
@@ -214,7 +214,7 @@ class Study::Planner {
 
   // Forms and consumes cohorts while λ pending outcomes are waiting; then applies the stopping rules.
   void UpdateWhileReady() {
-    CheckTarget();  // a target reached by these reports ends the study before any update
+    CheckTarget();  // a target reached by these reports ends the campaign before any update
     while (engine_.phase != Phase::kDone) {
       DropStale();
       const int lambda = engine_.distribution->population_size();
@@ -226,7 +226,7 @@ class Study::Planner {
       });
       Consume(cohort);
     }
-    DropStale();  // also when the last update ended the study
+    DropStale();  // also when the last update ended the campaign
     CheckTargetAndBudget();
   }
 
@@ -257,14 +257,14 @@ class Study::Planner {
 
  private:
   bool TooStale(const Trial& t) const {
-    return t.epoch != engine_.epoch || engine_.generation - t.generation > study_.options_.staleness_limit;
+    return t.epoch != engine_.epoch || engine_.generation - t.generation > campaign_.options_.staleness_limit;
   }
 
-  // Pending outcomes, oldest report first: the study's (less those this plan took out), then this
+  // Pending outcomes, oldest report first: the campaign's (less those this plan took out), then this
   // plan's. `visit(number)` returns whether to go on.
   template <typename Visit>
   void ForEachPending(Visit visit) const {
-    for (const auto& [sequence, number] : study_.pending_) {
+    for (const auto& [sequence, number] : campaign_.pending_) {
       if (Get(number)->use == Use::kPending && !visit(number)) return;
     }
     for (int64_t number : added_pending_) {
@@ -272,7 +272,7 @@ class Study::Planner {
     }
   }
   int PendingCount() const {
-    return static_cast<int>(study_.pending_.size() + added_pending_.size()) - pending_removed_;
+    return static_cast<int>(campaign_.pending_.size() + added_pending_.size()) - pending_removed_;
   }
   // Takes a pending outcome out of the pending set, with its new use.
   void Unpend(int64_t number, Use use) {
@@ -304,7 +304,7 @@ class Study::Planner {
       staleness_sum += staleness;
       record.max_staleness = std::max(record.max_staleness, staleness);
     }
-    absl::StatusOr<std::vector<search::TieSpan>> spans = search::RankCohort(outcomes, study_.order_);
+    absl::StatusOr<std::vector<search::TieSpan>> spans = search::RankCohort(outcomes, campaign_.order_);
     OGIVE_CHECK(spans.ok());  // every pending outcome passed CheckOutcome when it was stored
     // EqualValues counts tied cohorts of scores (a plateau of the objective) and of the top grade
     // (nothing better exists). A cohort tied below the top grade, or all infeasible, only says that
@@ -313,7 +313,7 @@ class Study::Planner {
     const search::Outcome& level = outcomes.front();
     const bool uninformative_level =
         level.kind == search::Outcome::Kind::kInfeasible ||
-        (level.kind == search::Outcome::Kind::kGrade && level.grade < study_.order_.grade_count - 1);
+        (level.kind == search::Outcome::Kind::kGrade && level.grade < campaign_.order_.grade_count - 1);
     const bool all_tied = std::all_of(spans->begin(), spans->end(), [&](const search::TieSpan& s) {
       return s.better == 0 && s.better_or_equal == static_cast<int>(spans->size());
     });
@@ -360,28 +360,28 @@ class Study::Planner {
   // at most the configured cap.
   void AdaptPopulation(search::SearchDistribution& next) {
     int lambda = engine_.base_population;
-    if (study_.options_.adapt_population) lambda = std::max(lambda, engine_.peak_outstanding);
-    lambda = std::clamp(lambda, 2, std::max(2, study_.options_.max_population_size));
+    if (campaign_.options_.adapt_population) lambda = std::max(lambda, engine_.peak_outstanding);
+    lambda = std::clamp(lambda, 2, std::max(2, campaign_.options_.max_population_size));
     if (lambda != next.population_size()) next.SetPopulationSize(lambda);
     engine_.peak_outstanding = static_cast<int>(outstanding());
   }
 
   void RestartOrStop(const std::string& why) {
-    const int64_t budget = study_.options_.trial_budget;
+    const int64_t budget = campaign_.options_.trial_budget;
     const bool budget_left = budget == 0 || engine_.informative < budget;
-    if (!study_.options_.restarts || !budget_left) {
+    if (!campaign_.options_.restarts || !budget_left) {
       SetPhase(Phase::kDone, DoneReason::kConverged, why);
       return;
     }
     // IPOP (Auger and Hansen, CEC 2005): double λ and start afresh from a uniform random point.
     search::RandomStream random = search::RandomStream::FromState(engine_.random);
-    search::DistributionOptions options = study_.distribution_options_;
-    engine_.base_population = std::min(2 * engine_.base_population, study_.options_.max_population_size);
+    search::DistributionOptions options = campaign_.distribution_options_;
+    engine_.base_population = std::min(2 * engine_.base_population, campaign_.options_.max_population_size);
     options.population_size = engine_.base_population;
     options.expected_workers = 1;
-    options.start.assign(study_.space_.size(), std::nullopt);
-    for (int i : study_.space_.gaussian_indices()) options.start[i] = random.Uniform();
-    absl::StatusOr<search::SearchDistribution> fresh = search::SearchDistribution::Create(study_.space_, options);
+    options.start.assign(campaign_.space_.size(), std::nullopt);
+    for (int i : campaign_.space_.gaussian_indices()) options.start[i] = random.Uniform();
+    absl::StatusOr<search::SearchDistribution> fresh = search::SearchDistribution::Create(campaign_.space_, options);
     OGIVE_CHECK(fresh.ok());  // the same options created the first distribution
     engine_.random = random.state();
     engine_.distribution = std::make_shared<const search::SearchDistribution>(*std::move(fresh));
@@ -396,43 +396,43 @@ class Study::Planner {
   void CheckTarget() {
     if (engine_.phase == Phase::kDone) return;
     const Trial* best = Get(engine_.best_trial);
-    if (study_.options_.target.has_value() && best != nullptr &&
-        search::CompareOutcomes(*best->outcome, *study_.options_.target, study_.order_) <= 0) {
+    if (campaign_.options_.target.has_value() && best != nullptr &&
+        search::CompareOutcomes(*best->outcome, *campaign_.options_.target, campaign_.order_) <= 0) {
       SetPhase(Phase::kDone, DoneReason::kTarget, absl::StrCat("trial ", best->number, " reached the target"));
     }
   }
 
-  // The cohort that completes the budget is still consumed; the study ends after it.
+  // The cohort that completes the budget is still consumed; the campaign ends after it.
   void CheckTargetAndBudget() {
     CheckTarget();
     if (engine_.phase == Phase::kDone) return;
-    const int64_t budget = study_.options_.trial_budget;
+    const int64_t budget = campaign_.options_.trial_budget;
     if (budget > 0 && engine_.informative >= budget) {
       SetPhase(Phase::kDone, DoneReason::kBudget,
                absl::StrCat(engine_.informative, " informative outcomes reached the trial budget of ", budget));
     }
   }
 
-  const Study& study_;
+  const Campaign& campaign_;
   const absl::Time now_;
   EngineState engine_;
   std::map<int64_t, Trial> overlay_;
-  int64_t leased_delta_ = 0;            // leased trials now, less the study's
+  int64_t leased_delta_ = 0;            // leased trials now, less the campaign's
   std::vector<int64_t> added_pending_;  // outcomes this plan made pending, in report order
   int pending_removed_ = 0;             // pending outcomes this plan consumed or dropped
   std::vector<GenerationRecord> generations_;
   bool distribution_changed_ = false;
 };
 
-Study::Study(search::Space space, search::OutcomeOrder order, search::DistributionOptions distribution_options,
-             StudyOptions options)
+Campaign::Campaign(search::Space space, search::OutcomeOrder order, search::DistributionOptions distribution_options,
+             CampaignOptions options)
     : space_(std::move(space)),
       order_(order),
       distribution_options_(std::move(distribution_options)),
       options_(std::move(options)) {}
 
-absl::StatusOr<Study> Study::Create(search::Space space, search::OutcomeOrder order,
-                                    search::DistributionOptions distribution_options, StudyOptions options) {
+absl::StatusOr<Campaign> Campaign::Create(search::Space space, search::OutcomeOrder order,
+                                    search::DistributionOptions distribution_options, CampaignOptions options) {
   if (absl::Status s = options.Validate(); !s.ok()) return s;
   if (options.target.has_value()) {
     if (absl::Status s = search::CheckOutcome(*options.target, order); !s.ok()) {
@@ -441,39 +441,39 @@ absl::StatusOr<Study> Study::Create(search::Space space, search::OutcomeOrder or
   }
   absl::StatusOr<search::SearchDistribution> d = search::SearchDistribution::Create(space, distribution_options);
   if (!d.ok()) return d.status();
-  Study study(std::move(space), order, std::move(distribution_options), std::move(options));
-  EngineState& e = study.engine_;
-  e.random = search::RandomStream(study.options_.seed).state();
+  Campaign campaign(std::move(space), order, std::move(distribution_options), std::move(options));
+  EngineState& e = campaign.engine_;
+  e.random = search::RandomStream(campaign.options_.seed).state();
   e.base_population = d->population_size();
   e.sigma0 = d->gaussian() ? d->gaussian()->state().sigma : 0.0;
   e.distribution = std::make_shared<const search::SearchDistribution>(*std::move(d));
-  return study;
+  return campaign;
 }
 
-absl::StatusOr<Study> Study::Restore(search::Space space, search::OutcomeOrder order,
-                                     search::DistributionOptions distribution_options, StudyOptions options,
-                                     StudySnapshot snapshot) {
+absl::StatusOr<Campaign> Campaign::Restore(search::Space space, search::OutcomeOrder order,
+                                     search::DistributionOptions distribution_options, CampaignOptions options,
+                                     CampaignSnapshot snapshot) {
   if (absl::Status s = options.Validate(); !s.ok()) return s;
   if (snapshot.engine.distribution == nullptr) return absl::InvalidArgumentError("snapshot: no distribution");
   if (snapshot.engine.next_trial != static_cast<int64_t>(snapshot.trials.size()) + 1) {
     return absl::DataLossError(absl::StrCat("snapshot: next trial is ", snapshot.engine.next_trial, " but ",
                                             snapshot.trials.size(), " trials are stored"));
   }
-  Study study(std::move(space), order, std::move(distribution_options), std::move(options));
-  study.engine_ = std::move(snapshot.engine);
-  study.trials_.assign(std::make_move_iterator(snapshot.trials.begin()), std::make_move_iterator(snapshot.trials.end()));
-  for (size_t k = 0; k < study.trials_.size(); ++k) {
-    const Trial& t = study.trials_[k];
-    if (t.number != static_cast<int64_t>(k) + 1 || t.x.size() != study.space_.size()) {
+  Campaign campaign(std::move(space), order, std::move(distribution_options), std::move(options));
+  campaign.engine_ = std::move(snapshot.engine);
+  campaign.trials_.assign(std::make_move_iterator(snapshot.trials.begin()), std::make_move_iterator(snapshot.trials.end()));
+  for (size_t k = 0; k < campaign.trials_.size(); ++k) {
+    const Trial& t = campaign.trials_[k];
+    if (t.number != static_cast<int64_t>(k) + 1 || t.x.size() != campaign.space_.size()) {
       return absl::DataLossError(absl::StrCat("snapshot: trial record ", k + 1, " is inconsistent"));
     }
-    study.Count(t, +1);
-    study.Index(t);
+    campaign.Count(t, +1);
+    campaign.Index(t);
   }
-  return study;
+  return campaign;
 }
 
-absl::StatusOr<AskPlan> Study::PlanAsk(int count, const std::string& worker, std::optional<absl::Duration> lease,
+absl::StatusOr<AskPlan> Campaign::PlanAsk(int count, const std::string& worker, std::optional<absl::Duration> lease,
                                        absl::Time now) const {
   if (count < 1 || count > kMaxAskCount) {
     return absl::InvalidArgumentError(absl::StrCat("count: must be in 1..", kMaxAskCount, ", got ", count));
@@ -484,10 +484,10 @@ absl::StatusOr<AskPlan> Study::PlanAsk(int count, const std::string& worker, std
         absl::StrCat("lease_seconds: must be positive, got ", absl::ToDoubleSeconds(lease_length)));
   }
   if (engine_.phase == Phase::kPaused) {
-    return absl::FailedPreconditionError("study is paused; resume it to get candidates");
+    return absl::FailedPreconditionError("campaign is paused; resume it to get candidates");
   }
   if (engine_.phase == Phase::kDone) {
-    return absl::FailedPreconditionError(absl::StrCat("study is done (", DoneReasonName(engine_.reason), "): ",
+    return absl::FailedPreconditionError(absl::StrCat("campaign is done (", DoneReasonName(engine_.reason), "): ",
                                                       engine_.phase_message));
   }
   Planner planner(*this, now);
@@ -507,7 +507,7 @@ absl::StatusOr<AskPlan> Study::PlanAsk(int count, const std::string& worker, std
   return plan;
 }
 
-absl::StatusOr<TellPlan> Study::PlanTell(absl::Span<const Report> reports, absl::Time now) const {
+absl::StatusOr<TellPlan> Campaign::PlanTell(absl::Span<const Report> reports, absl::Time now) const {
   if (reports.empty()) return absl::InvalidArgumentError("reports: at least one report is needed");
   Planner planner(*this, now);
   planner.Sweep();
@@ -518,7 +518,7 @@ absl::StatusOr<TellPlan> Study::PlanTell(absl::Span<const Report> reports, absl:
   return plan;
 }
 
-absl::StatusOr<Change> Study::PlanRenew(absl::Span<const int64_t> trials, const std::string& worker,
+absl::StatusOr<Change> Campaign::PlanRenew(absl::Span<const int64_t> trials, const std::string& worker,
                                         std::optional<absl::Duration> lease, absl::Time now) const {
   const absl::Duration lease_length = lease.value_or(options_.default_lease);
   if (lease_length <= absl::ZeroDuration()) {
@@ -530,7 +530,7 @@ absl::StatusOr<Change> Study::PlanRenew(absl::Span<const int64_t> trials, const 
   planner.Sweep();
   for (int64_t number : trials) {
     const Trial* t = planner.Get(number);
-    if (t == nullptr) return absl::NotFoundError(absl::StrCat("trial ", number, ": no such trial in this study"));
+    if (t == nullptr) return absl::NotFoundError(absl::StrCat("trial ", number, ": no such trial in this campaign"));
     if (t->outcome.has_value()) {
       return absl::FailedPreconditionError(absl::StrCat("trial ", number, ": already reported; nothing to renew"));
     }
@@ -543,26 +543,26 @@ absl::StatusOr<Change> Study::PlanRenew(absl::Span<const int64_t> trials, const 
   return planner.Finish();
 }
 
-Change Study::PlanSweep(absl::Time now) const {
+Change Campaign::PlanSweep(absl::Time now) const {
   Planner planner(*this, now);
   planner.Sweep();
   return planner.Finish();
 }
 
-absl::StatusOr<Change> Study::PlanSetPhase(PhaseCommand command, absl::Time now) const {
+absl::StatusOr<Change> Campaign::PlanSetPhase(PhaseCommand command, absl::Time now) const {
   Planner planner(*this, now);
   switch (command) {
     case PhaseCommand::kPause:
       if (engine_.phase == Phase::kDone) {
-        return absl::FailedPreconditionError("study is done; a done study cannot be paused");
+        return absl::FailedPreconditionError("campaign is done; a done campaign cannot be paused");
       }
       if (engine_.phase == Phase::kPaused) return planner.Finish();
       planner.SetPhase(Phase::kPaused, DoneReason::kNone, "paused by request");
       break;
     case PhaseCommand::kResume:
       if (engine_.phase == Phase::kDone) {
-        return absl::FailedPreconditionError(absl::StrCat("study is done (", DoneReasonName(engine_.reason),
-                                                          "); a done study cannot be resumed"));
+        return absl::FailedPreconditionError(absl::StrCat("campaign is done (", DoneReasonName(engine_.reason),
+                                                          "); a done campaign cannot be resumed"));
       }
       if (engine_.phase == Phase::kOpen) return planner.Finish();
       planner.SetPhase(Phase::kOpen, DoneReason::kNone, "resumed by request");
@@ -575,7 +575,7 @@ absl::StatusOr<Change> Study::PlanSetPhase(PhaseCommand command, absl::Time now)
   return planner.Finish();
 }
 
-void Study::Apply(Change change) {
+void Campaign::Apply(Change change) {
   for (Trial& t : change.trials) {
     OGIVE_CHECK(t.number >= 1 && t.number <= static_cast<int64_t>(trials_.size()) + 1);
     if (t.number == static_cast<int64_t>(trials_.size()) + 1) {
@@ -594,7 +594,7 @@ void Study::Apply(Change change) {
   engine_ = std::move(change.engine);
 }
 
-absl::StatusOr<std::vector<Trial>> Study::Ask(int count, const std::string& worker,
+absl::StatusOr<std::vector<Trial>> Campaign::Ask(int count, const std::string& worker,
                                               std::optional<absl::Duration> lease, absl::Time now) {
   absl::StatusOr<AskPlan> plan = PlanAsk(count, worker, lease, now);
   if (!plan.ok()) return plan.status();
@@ -604,14 +604,14 @@ absl::StatusOr<std::vector<Trial>> Study::Ask(int count, const std::string& work
   return asked;
 }
 
-absl::StatusOr<std::vector<ReportResult>> Study::Tell(absl::Span<const Report> reports, absl::Time now) {
+absl::StatusOr<std::vector<ReportResult>> Campaign::Tell(absl::Span<const Report> reports, absl::Time now) {
   absl::StatusOr<TellPlan> plan = PlanTell(reports, now);
   if (!plan.ok()) return plan.status();
   Apply(std::move(plan->change));
   return std::move(plan->results);
 }
 
-absl::Status Study::Renew(absl::Span<const int64_t> trials, const std::string& worker,
+absl::Status Campaign::Renew(absl::Span<const int64_t> trials, const std::string& worker,
                           std::optional<absl::Duration> lease, absl::Time now) {
   absl::StatusOr<Change> change = PlanRenew(trials, worker, lease, now);
   if (!change.ok()) return change.status();
@@ -619,29 +619,29 @@ absl::Status Study::Renew(absl::Span<const int64_t> trials, const std::string& w
   return absl::OkStatus();
 }
 
-int Study::Sweep(absl::Time now) {
+int Campaign::Sweep(absl::Time now) {
   const int64_t before = counts_.lapsed;
   Apply(PlanSweep(now));
   return static_cast<int>(counts_.lapsed - before);
 }
 
-absl::Status Study::SetPhase(PhaseCommand command, absl::Time now) {
+absl::Status Campaign::SetPhase(PhaseCommand command, absl::Time now) {
   absl::StatusOr<Change> change = PlanSetPhase(command, now);
   if (!change.ok()) return change.status();
   Apply(*std::move(change));
   return absl::OkStatus();
 }
 
-const Trial* Study::trial(int64_t number) const {
+const Trial* Campaign::trial(int64_t number) const {
   if (number < 1 || number > static_cast<int64_t>(trials_.size())) return nullptr;
   return &trials_[number - 1];
 }
 
-StudySnapshot Study::Snapshot() const {
-  return StudySnapshot{engine_, std::vector<Trial>(trials_.begin(), trials_.end())};
+CampaignSnapshot Campaign::Snapshot() const {
+  return CampaignSnapshot{engine_, std::vector<Trial>(trials_.begin(), trials_.end())};
 }
 
-void Study::Count(const Trial& t, int sign) {
+void Campaign::Count(const Trial& t, int sign) {
   switch (t.state) {
     case TrialState::kLeased:
       counts_.leased += sign;
@@ -672,14 +672,14 @@ void Study::Count(const Trial& t, int sign) {
   }
 }
 
-void Study::Index(const Trial& t) {
+void Campaign::Index(const Trial& t) {
   if (t.state == TrialState::kLeased) leases_.insert({t.lease_deadline, t.number});
   if (t.use == Use::kPending) pending_.insert({t.report_sequence, t.number});
 }
 
-void Study::Unindex(const Trial& t) {
+void Campaign::Unindex(const Trial& t) {
   if (t.state == TrialState::kLeased) leases_.erase({t.lease_deadline, t.number});
   if (t.use == Use::kPending) pending_.erase({t.report_sequence, t.number});
 }
 
-}  // namespace ogive::study
+}  // namespace ogive::campaign

@@ -1,4 +1,4 @@
-// Tests of the study engine as a search: studies whose workers all fail, a graded objective with
+// Tests of the campaign engine as a search: campaigns whose workers all fail, a graded objective with
 // heavy ties, convergence with many concurrent workers (stale cohorts), the clipping of stale
 // members, stopping on convergence, target and budget, and the adaptation of the population to the
 // observed concurrency.
@@ -21,17 +21,17 @@
 #include "server/search/gaussian_family.h"
 #include "server/search/ranking.h"
 #include "server/search/search_distribution.h"
-#include "server/study/study.h"
-#include "server/study/study_options.h"
-#include "server/study/study_test_util.h"
-#include "server/study/trial.h"
+#include "server/campaign/campaign.h"
+#include "server/campaign/campaign_options.h"
+#include "server/campaign/campaign_test_util.h"
+#include "server/campaign/trial.h"
 #include "tests/support/bbob.h"
 
-namespace ogive::study {
+namespace ogive::campaign {
 namespace {
 
 using test_util::kMinimize;
-using test_util::MakeStudy;
+using test_util::MakeCampaign;
 using test_util::Origin;
 using test_util::RealSpace;
 using test_util::RunSequential;
@@ -49,48 +49,48 @@ Report MakeReport(int64_t trial, search::Outcome outcome) {
 // ---------------------------------------------------------------------------------------------
 // Every worker fails.
 
-TEST(StudyFailingWorkersTest, AllVoidOutcomesKeepTheStudyOpenAndAsking) {
-  Study study = MakeStudy(RealSpace(4, -5, 5), kMinimize, {}, {});
+TEST(CampaignFailingWorkersTest, AllVoidOutcomesKeepTheCampaignOpenAndAsking) {
+  Campaign campaign = MakeCampaign(RealSpace(4, -5, 5), kMinimize, {}, {});
   absl::Time now = Origin();
   int64_t asked = 0;
   for (int round = 0; round < 1000; ++round) {
     const int count = 1 + round % 7;
-    absl::StatusOr<std::vector<Trial>> trials = study.Ask(count, "w", std::nullopt, now);
+    absl::StatusOr<std::vector<Trial>> trials = campaign.Ask(count, "w", std::nullopt, now);
     ASSERT_TRUE(trials.ok()) << "round " << round << ": " << trials.status();
     ASSERT_EQ(static_cast<int>(trials->size()), count);
     std::vector<Report> reports;
     for (const Trial& t : *trials) reports.push_back(MakeReport(t.number, search::Outcome::Void()));
     asked += count;
     now += absl::Seconds(3);
-    absl::StatusOr<std::vector<ReportResult>> results = study.Tell(reports, now);
+    absl::StatusOr<std::vector<ReportResult>> results = campaign.Tell(reports, now);
     ASSERT_TRUE(results.ok()) << results.status();
     for (const ReportResult& r : *results) ASSERT_TRUE(r.status.ok()) << r.status;
   }
-  EXPECT_EQ(study.counts().voided, asked);
-  EXPECT_EQ(study.engine().generation, 0);
-  EXPECT_EQ(study.engine().informative, 0);
-  EXPECT_EQ(study.engine().phase, Phase::kOpen);
-  EXPECT_EQ(study.best(), nullptr);
+  EXPECT_EQ(campaign.counts().voided, asked);
+  EXPECT_EQ(campaign.engine().generation, 0);
+  EXPECT_EQ(campaign.engine().informative, 0);
+  EXPECT_EQ(campaign.engine().phase, Phase::kOpen);
+  EXPECT_EQ(campaign.best(), nullptr);
   // The distribution is the one it started with.
-  EXPECT_EQ(study.distribution().state().gaussian->generation, 0);
+  EXPECT_EQ(campaign.distribution().state().gaussian->generation, 0);
 }
 
-TEST(StudyFailingWorkersTest, EveryLeaseLapsingKeepsTheStudyOpenAndAsking) {
-  Study study = MakeStudy(RealSpace(4, -5, 5), kMinimize, {}, {});
+TEST(CampaignFailingWorkersTest, EveryLeaseLapsingKeepsTheCampaignOpenAndAsking) {
+  Campaign campaign = MakeCampaign(RealSpace(4, -5, 5), kMinimize, {}, {});
   absl::Time now = Origin();
   for (int round = 0; round < 3000; ++round) {
-    absl::StatusOr<std::vector<Trial>> trials = study.Ask(2, "w", absl::Seconds(30), now);
+    absl::StatusOr<std::vector<Trial>> trials = campaign.Ask(2, "w", absl::Seconds(30), now);
     ASSERT_TRUE(trials.ok()) << "round " << round << ": " << trials.status();
     now += absl::Seconds(round % 5 == 0 ? 31 : 11);
-    if (round % 10 == 0) study.Sweep(now);
+    if (round % 10 == 0) campaign.Sweep(now);
   }
-  study.Sweep(now + absl::Seconds(31));
-  EXPECT_EQ(study.counts().lapsed, 6000);
-  EXPECT_EQ(study.counts().leased, 0);
-  EXPECT_EQ(study.engine().generation, 0);
-  EXPECT_EQ(study.engine().phase, Phase::kOpen);
+  campaign.Sweep(now + absl::Seconds(31));
+  EXPECT_EQ(campaign.counts().lapsed, 6000);
+  EXPECT_EQ(campaign.counts().leased, 0);
+  EXPECT_EQ(campaign.engine().generation, 0);
+  EXPECT_EQ(campaign.engine().phase, Phase::kOpen);
   // A lease of 30 s with asks every 11 s keeps at most 3 rounds (6 trials) out at once.
-  EXPECT_LE(study.engine().peak_outstanding, 6);
+  EXPECT_LE(campaign.engine().peak_outstanding, 6);
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -113,7 +113,7 @@ TEST(StudyFailingWorkersTest, EveryLeaseLapsingKeepsTheStudyOpenAndAsking) {
 // Reaching the best grade needs a step size that does not collapse while the cohorts tie: see
 // TiedCohortsLeaveTheStepSizeUnbiased below.
 
-TEST(StudyGradesTest, ThreeGradeSphereReachesTheBestGrade) {
+TEST(CampaignGradesTest, ThreeGradeSphereReachesTheBestGrade) {
   constexpr int kN = 5;
   constexpr double kR1 = 1.5;
   constexpr double kR2 = 5.0;
@@ -124,24 +124,24 @@ TEST(StudyGradesTest, ThreeGradeSphereReachesTheBestGrade) {
     search::OutcomeOrder order;
     order.graded = true;
     order.grade_count = 3;
-    StudyOptions options;
+    CampaignOptions options;
     options.seed = seed;
-    Study study = MakeStudy(RealSpace(kN, -5, 5), order, {}, options);
+    Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), order, {}, options);
     auto grade = [&](const Trial& t) {
-      const double d = (UserPoint(study.space(), t.x) - x_star).norm();
+      const double d = (UserPoint(campaign.space(), t.x) - x_star).norm();
       return search::Outcome::Grade(d < kR1 ? 2 : d < kR2 ? 1 : 0);
     };
     const test_util::RunResult r = RunSequential(
-        study, grade, kBudget, [](const search::Outcome& o) { return o.grade == 2; },
+        campaign, grade, kBudget, [](const search::Outcome& o) { return o.grade == 2; },
         /*stop_when_reached=*/true);
     EXPECT_GE(r.reached_at, 1) << "best grade not reached in " << r.evaluations
-                               << " evaluations; the study is " << PhaseName(study.engine().phase)
-                               << " (" << DoneReasonName(study.engine().reason)
-                               << "): " << study.engine().phase_message;
+                               << " evaluations; the campaign is " << PhaseName(campaign.engine().phase)
+                               << " (" << DoneReasonName(campaign.engine().reason)
+                               << "): " << campaign.engine().phase_message;
     if (r.reached_at >= 1) {
       // The engine's best trial is one of the best grade.
-      ASSERT_NE(study.best(), nullptr);
-      EXPECT_EQ(study.best()->outcome->grade, 2);
+      ASSERT_NE(campaign.best(), nullptr);
+      EXPECT_EQ(campaign.best()->outcome->grade, 2);
     }
   }
 }
@@ -158,7 +158,7 @@ TEST(StudyGradesTest, ThreeGradeSphereReachesTheBestGrade) {
 // so ln σ drops by about (c_σ/d_σ)(0.57 − 1) ≈ −0.115 per generation, −2.3 over 20.
 //
 // Checked over 20 seeds, 20 generations each (before the EqualValues rule, 10 + ⌈30·5/8⌉ = 29
-// tied generations, ends the study), with σ0 = 0.02 so that samples seldom need repair at the
+// tied generations, ends the campaign), with σ0 = 0.02 so that samples seldom need repair at the
 // bounds (repaired samples are clipped, which shortens p_σ too).
 // Tolerance: the mean of ln(σ20/σ0) within ±0.5 of 0. Calibration: with distinct random scores
 // (random selection, the control below) the per-seed values spread by about 0.7, so the standard
@@ -168,32 +168,32 @@ double MeanLogStepSizeChange(const std::function<search::Outcome(std::mt19937_64
   constexpr int kGenerations = 20;
   double sum = 0.0;
   for (uint64_t seed = 1; seed <= kSeeds; ++seed) {
-    StudyOptions options;
+    CampaignOptions options;
     options.seed = seed;
     search::DistributionOptions d;
     d.initial_spread = 0.02;
-    Study study = MakeStudy(RealSpace(5, -5, 5), kMinimize, d, options);
-    const double sigma0 = study.distribution().gaussian()->state().sigma;
+    Campaign campaign = MakeCampaign(RealSpace(5, -5, 5), kMinimize, d, options);
+    const double sigma0 = campaign.distribution().gaussian()->state().sigma;
     std::mt19937_64 rng(seed);
     RunSequential(
-        study, [&](const Trial&) { return outcome(rng); },
-        kGenerations * study.distribution().population_size(),
+        campaign, [&](const Trial&) { return outcome(rng); },
+        kGenerations * campaign.distribution().population_size(),
         [](const search::Outcome&) { return false; }, false);
-    EXPECT_EQ(study.engine().generation, kGenerations);
-    EXPECT_EQ(study.engine().phase, Phase::kOpen);
-    sum += std::log(study.distribution().gaussian()->state().sigma / sigma0);
+    EXPECT_EQ(campaign.engine().generation, kGenerations);
+    EXPECT_EQ(campaign.engine().phase, Phase::kOpen);
+    sum += std::log(campaign.distribution().gaussian()->state().sigma / sigma0);
   }
   return sum / kSeeds;
 }
 
-TEST(StudyGradesTest, RandomSelectionLeavesTheStepSizeUnbiased) {
+TEST(CampaignGradesTest, RandomSelectionLeavesTheStepSizeUnbiased) {
   const double drift = MeanLogStepSizeChange([](std::mt19937_64& rng) {
     return search::Outcome::Score(std::uniform_real_distribution<double>(0.0, 1.0)(rng));
   });
   EXPECT_NEAR(drift, 0.0, 0.5);
 }
 
-TEST(StudyGradesTest, TiedCohortsLeaveTheStepSizeUnbiased) {
+TEST(CampaignGradesTest, TiedCohortsLeaveTheStepSizeUnbiased) {
   const double drift =
       MeanLogStepSizeChange([](std::mt19937_64&) { return search::Outcome::Score(1.0); });
   EXPECT_NEAR(drift, 0.0, 0.5) << "mean ln(σ20/σ0) = " << drift
@@ -215,7 +215,7 @@ struct ConcurrentRun {
 // Keeps `workers` trials out at all times: each step reports one outstanding trial (the oldest
 // asked, or one at random) and asks one to refill. Stops when f − f_opt ≤ gap or after
 // `max_evaluations` reports.
-ConcurrentRun RunConcurrent(Study& study, const ogive::testing::BbobFunction& f, int workers,
+ConcurrentRun RunConcurrent(Campaign& campaign, const ogive::testing::BbobFunction& f, int workers,
                             bool random_order, uint64_t order_seed, int64_t max_evaluations,
                             double gap) {
   ConcurrentRun run;
@@ -223,9 +223,9 @@ ConcurrentRun RunConcurrent(Study& study, const ogive::testing::BbobFunction& f,
   absl::Time now = Origin();
   std::deque<Trial> out;
   double staleness_sum = 0.0;
-  while (run.evaluations < max_evaluations && study.engine().phase == Phase::kOpen) {
+  while (run.evaluations < max_evaluations && campaign.engine().phase == Phase::kOpen) {
     while (static_cast<int>(out.size()) < workers) {
-      absl::StatusOr<std::vector<Trial>> asked = study.Ask(1, "w", std::nullopt, now);
+      absl::StatusOr<std::vector<Trial>> asked = campaign.Ask(1, "w", std::nullopt, now);
       if (!asked.ok()) {
         ADD_FAILURE() << asked.status();
         return run;
@@ -236,12 +236,12 @@ ConcurrentRun RunConcurrent(Study& study, const ogive::testing::BbobFunction& f,
     if (random_order) pick = std::uniform_int_distribution<size_t>(0, out.size() - 1)(rng);
     const Trial t = out[pick];
     out.erase(out.begin() + static_cast<std::ptrdiff_t>(pick));
-    const double fx = f(UserPoint(study.space(), t.x));
+    const double fx = f(UserPoint(campaign.space(), t.x));
     ++run.evaluations;
     if (run.reached_at < 0 && fx - f.f_opt() <= gap) run.reached_at = run.evaluations;
     now += absl::Milliseconds(100);
     const Report report = MakeReport(t.number, search::Outcome::Score(fx));
-    absl::StatusOr<TellPlan> plan = study.PlanTell({&report, 1}, now);
+    absl::StatusOr<TellPlan> plan = campaign.PlanTell({&report, 1}, now);
     if (!plan.ok()) {
       ADD_FAILURE() << plan.status();
       return run;
@@ -257,7 +257,7 @@ ConcurrentRun RunConcurrent(Study& study, const ogive::testing::BbobFunction& f,
         }
       }
     }
-    study.Apply(std::move(plan->change));
+    campaign.Apply(std::move(plan->change));
     if (run.reached_at >= 0) break;
   }
   run.mean_staleness = run.generations > 0 ? staleness_sum / run.generations : 0.0;
@@ -271,9 +271,9 @@ struct ConcurrencyCase {
   int64_t budget;
 };
 
-class StudyConcurrencyTest : public ::testing::TestWithParam<ConcurrencyCase> {};
+class CampaignConcurrencyTest : public ::testing::TestWithParam<ConcurrencyCase> {};
 
-// With W = 3λ trials out at once (λ = 10 for n = 10), cohorts mix generations; the study still
+// With W = 3λ trials out at once (λ = 10 for n = 10), cohorts mix generations; the campaign still
 // reaches f − f_opt ≤ 1e-8 on BBOB f1 and f10 (n = 10, [-5, 5]) for each of three seeds, within
 // 20000 evaluations on f1 and 60000 on f10. Reports come back oldest first or in a random order;
 // with population adaptation (the default) λ grows to W and most members are one generation old,
@@ -281,24 +281,24 @@ class StudyConcurrencyTest : public ::testing::TestWithParam<ConcurrencyCase> {}
 // random order). The budgets are several times what a sequential CMA-ES needs (about 1500 and 6000
 // evaluations for n = 10, common practice), since every stale member is clipped and gets no
 // negative weight.
-TEST_P(StudyConcurrencyTest, ConvergesWithThreeLambdaWorkersOutstanding) {
+TEST_P(CampaignConcurrencyTest, ConvergesWithThreeLambdaWorkersOutstanding) {
   const ConcurrencyCase& c = GetParam();
   constexpr int kN = 10;
   for (uint64_t seed = 1; seed <= 3; ++seed) {
     SCOPED_TRACE(::testing::Message() << "seed " << seed);
     const ogive::testing::BbobFunction f =
         ogive::testing::BbobFunction::Create(c.function_id, kN, 100 + seed);
-    StudyOptions options;
+    CampaignOptions options;
     options.seed = seed;
     options.adapt_population = c.adapt_population;
-    Study study = MakeStudy(RealSpace(kN, -5, 5), kMinimize, {}, options);
-    const int lambda = study.distribution().population_size();
+    Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), kMinimize, {}, options);
+    const int lambda = campaign.distribution().population_size();
     ASSERT_EQ(lambda, 10);  // 4 + ⌊3 ln 10⌋ (tutorial, Table 1)
     const ConcurrentRun run =
-        RunConcurrent(study, f, 3 * lambda, c.random_order, seed, c.budget, 1e-8);
+        RunConcurrent(campaign, f, 3 * lambda, c.random_order, seed, c.budget, 1e-8);
     EXPECT_GE(run.reached_at, 1) << "f" << c.function_id << " not solved in " << run.evaluations
-                                 << " evaluations; phase " << PhaseName(study.engine().phase)
-                                 << ": " << study.engine().phase_message;
+                                 << " evaluations; phase " << PhaseName(campaign.engine().phase)
+                                 << ": " << campaign.engine().phase_message;
     // Cohorts did mix generations.
     EXPECT_GE(run.max_staleness, 1);
     EXPECT_GT(run.stale_members, 0);
@@ -308,7 +308,7 @@ TEST_P(StudyConcurrencyTest, ConvergesWithThreeLambdaWorkersOutstanding) {
 // f10 without adaptation is left out: with λ = 10 and members three generations old, C degenerates
 // (condition number 1e14) before the target in every seed, which is why the engine raises λ to the
 // concurrency (docs/math.md).
-INSTANTIATE_TEST_SUITE_P(Functions, StudyConcurrencyTest,
+INSTANTIATE_TEST_SUITE_P(Functions, CampaignConcurrencyTest,
                          ::testing::Values(ConcurrencyCase{1, false, true, 20000},
                                            ConcurrencyCase{1, true, true, 20000},
                                            ConcurrencyCase{1, false, false, 20000},
@@ -325,37 +325,37 @@ INSTANTIATE_TEST_SUITE_P(Functions, StudyConcurrencyTest,
 // c_y = √n + 2n/(n + 2) (Hansen, "Injecting external solutions into CMA-ES", arXiv:1110.4181; rule
 // from memory; c_y = 4.8289 for n = 10 in REFERENCES.md). Unclipped, the same member would move
 // the mean further.
-TEST(StudyClippingTest, StaleFarOffMemberIsClippedBeforeItMovesTheMean) {
+TEST(CampaignClippingTest, StaleFarOffMemberIsClippedBeforeItMovesTheMean) {
   constexpr int kN = 10;
-  StudyOptions options;
+  CampaignOptions options;
   options.seed = 3;
   options.adapt_population = false;  // keep λ = 10 although one extra trial is out
   options.staleness_limit = 30;
-  Study study = MakeStudy(RealSpace(kN, -5, 5), kMinimize, {}, options);
-  const int lambda = study.distribution().population_size();
+  Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), kMinimize, {}, options);
+  const int lambda = campaign.distribution().population_size();
   ASSERT_EQ(lambda, 10);
   // A sphere around (3, ..., 3): the mean travels away from the centre, where the stale trial is.
   auto f = [&](const Trial& t) {
-    return (UserPoint(study.space(), t.x).array() - 3.0).square().sum();
+    return (UserPoint(campaign.space(), t.x).array() - 3.0).square().sum();
   };
   absl::Time now = Origin();
-  absl::StatusOr<std::vector<Trial>> stale = study.Ask(1, "slow", absl::Hours(24), now);
+  absl::StatusOr<std::vector<Trial>> stale = campaign.Ask(1, "slow", absl::Hours(24), now);
   ASSERT_TRUE(stale.ok());
   const Trial old = stale->front();
   ASSERT_EQ(old.generation, 0);
   for (int g = 0; g < 25; ++g) {
-    absl::StatusOr<std::vector<Trial>> asked = study.Ask(lambda, "fast", std::nullopt, now);
+    absl::StatusOr<std::vector<Trial>> asked = campaign.Ask(lambda, "fast", std::nullopt, now);
     ASSERT_TRUE(asked.ok());
     std::vector<Report> reports;
     for (const Trial& t : *asked) {
       reports.push_back(MakeReport(t.number, search::Outcome::Score(f(t))));
     }
     now += absl::Seconds(1);
-    ASSERT_TRUE(study.Tell(reports, now).ok());
+    ASSERT_TRUE(campaign.Tell(reports, now).ok());
   }
-  ASSERT_EQ(study.engine().generation, 25);
+  ASSERT_EQ(campaign.engine().generation, 25);
 
-  const search::GaussianFamily before = *study.distribution().gaussian();
+  const search::GaussianFamily before = *campaign.distribution().gaussian();
   // The precondition: the old trial lies far outside the clipping radius of the current
   // distribution.
   const double c_y = before.ClipRadius();
@@ -365,28 +365,28 @@ TEST(StudyClippingTest, StaleFarOffMemberIsClippedBeforeItMovesTheMean) {
   EXPECT_NEAR(before.MahalanobisNorm(before.StepOf(old.x, /*clip=*/true)), c_y, 1e-9 * c_y);
 
   // One cohort: nine fresh trials and the stale one, which reports the best score of all.
-  absl::StatusOr<std::vector<Trial>> fresh = study.Ask(lambda - 1, "fast", std::nullopt, now);
+  absl::StatusOr<std::vector<Trial>> fresh = campaign.Ask(lambda - 1, "fast", std::nullopt, now);
   ASSERT_TRUE(fresh.ok());
   std::vector<Report> reports;
   for (const Trial& t : *fresh) {
     reports.push_back(MakeReport(t.number, search::Outcome::Score(f(t))));
   }
   reports.push_back(MakeReport(old.number, search::Outcome::Score(-1.0)));
-  absl::StatusOr<TellPlan> plan = study.PlanTell(reports, now + absl::Seconds(1));
+  absl::StatusOr<TellPlan> plan = campaign.PlanTell(reports, now + absl::Seconds(1));
   ASSERT_TRUE(plan.ok()) << plan.status();
   ASSERT_EQ(plan->change.generations.size(), 1u);
   const GenerationRecord record = plan->change.generations[0];
-  study.Apply(std::move(plan->change));
+  campaign.Apply(std::move(plan->change));
   EXPECT_EQ(record.max_staleness, 25);
   ASSERT_EQ(static_cast<int>(record.cohort.size()), lambda);
-  EXPECT_EQ(study.trial(old.number)->use, Use::kConsumed);
-  EXPECT_EQ(study.trial(old.number)->consumed_by, 26);
+  EXPECT_EQ(campaign.trial(old.number)->use, Use::kConsumed);
+  EXPECT_EQ(campaign.trial(old.number)->consumed_by, 26);
 
   // The same update by hand at the family level, with the old member clipped (external) and not.
   std::vector<search::Outcome> outcomes;
   std::vector<search::GaussianSample> clipped, unclipped;
   for (int64_t number : record.cohort) {
-    const Trial& t = *study.trial(number);
+    const Trial& t = *campaign.trial(number);
     outcomes.push_back(*t.outcome);
     const bool is_old = number == old.number;
     clipped.push_back({t.x, is_old || t.repaired});
@@ -401,7 +401,7 @@ TEST(StudyClippingTest, StaleFarOffMemberIsClippedBeforeItMovesTheMean) {
 
   // The engine treated the stale member as external: its update is the clipped one, exactly.
   const Eigen::VectorXd& m0 = before.state().mean;
-  const Eigen::VectorXd& m_engine = study.distribution().gaussian()->state().mean;
+  const Eigen::VectorXd& m_engine = campaign.distribution().gaussian()->state().mean;
   EXPECT_TRUE(m_engine == with_clip.state().mean) << m_engine.transpose() << "\nvs\n"
                                                   << with_clip.state().mean.transpose();
   const double move_clipped =
@@ -426,74 +426,74 @@ TEST(StudyClippingTest, StaleFarOffMemberIsClippedBeforeItMovesTheMean) {
 // ---------------------------------------------------------------------------------------------
 // Stopping: convergence, target, budget.
 
-TEST(StudyStoppingTest, SphereWithoutRestartsEndsConvergedNamingARule) {
+TEST(CampaignStoppingTest, SphereWithoutRestartsEndsConvergedNamingARule) {
   constexpr int kN = 10;
   for (uint64_t seed = 1; seed <= 3; ++seed) {
     SCOPED_TRACE(::testing::Message() << "seed " << seed);
     const ogive::testing::BbobFunction f = ogive::testing::BbobFunction::Create(1, kN, seed);
-    StudyOptions options;
+    CampaignOptions options;
     options.seed = seed;
-    Study study = MakeStudy(RealSpace(kN, -5, 5), kMinimize, {}, options);
+    Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), kMinimize, {}, options);
     const test_util::RunResult r = RunSequential(
-        study,
-        [&](const Trial& t) { return search::Outcome::Score(f(UserPoint(study.space(), t.x))); },
+        campaign,
+        [&](const Trial& t) { return search::Outcome::Score(f(UserPoint(campaign.space(), t.x))); },
         50000, [](const search::Outcome&) { return false; }, false);
-    ASSERT_TRUE(r.done) << "still " << PhaseName(study.engine().phase) << " after " << r.evaluations
+    ASSERT_TRUE(r.done) << "still " << PhaseName(campaign.engine().phase) << " after " << r.evaluations
                         << " evaluations";
-    EXPECT_EQ(study.engine().reason, DoneReason::kConverged);
-    EXPECT_THAT(study.engine().phase_message,
+    EXPECT_EQ(campaign.engine().reason, DoneReason::kConverged);
+    EXPECT_THAT(campaign.engine().phase_message,
                 AnyOf(HasSubstr("(TolX)"), HasSubstr("(NoEffectCoord)"),
                       HasSubstr("(NoEffectAxis)"), HasSubstr("(EqualValues)")))
         << "expected one of the rules of termination.h";
     // It converged where it should: at the optimum.
-    ASSERT_NE(study.best(), nullptr);
-    EXPECT_LE(study.best()->outcome->score - f.f_opt(), 1e-8);
+    ASSERT_NE(campaign.best(), nullptr);
+    EXPECT_LE(campaign.best()->outcome->score - f.f_opt(), 1e-8);
     // Done: no more candidates.
-    EXPECT_EQ(study.Ask(1, "w", std::nullopt, Origin() + absl::Hours(100)).status().code(),
+    EXPECT_EQ(campaign.Ask(1, "w", std::nullopt, Origin() + absl::Hours(100)).status().code(),
               absl::StatusCode::kFailedPrecondition);
   }
 }
 
-TEST(StudyStoppingTest, TargetEndsTheStudyWhenReached) {
+TEST(CampaignStoppingTest, TargetEndsTheCampaignWhenReached) {
   constexpr int kN = 10;
   for (uint64_t seed = 1; seed <= 3; ++seed) {
     SCOPED_TRACE(::testing::Message() << "seed " << seed);
     const ogive::testing::BbobFunction f = ogive::testing::BbobFunction::Create(1, kN, seed);
-    StudyOptions options;
+    CampaignOptions options;
     options.seed = seed;
     options.target = search::Outcome::Score(f.f_opt() + 1e-3);
-    Study study = MakeStudy(RealSpace(kN, -5, 5), kMinimize, {}, options);
+    Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), kMinimize, {}, options);
     const test_util::RunResult r = RunSequential(
-        study,
-        [&](const Trial& t) { return search::Outcome::Score(f(UserPoint(study.space(), t.x))); },
+        campaign,
+        [&](const Trial& t) { return search::Outcome::Score(f(UserPoint(campaign.space(), t.x))); },
         50000, [&](const search::Outcome& o) { return o.score <= f.f_opt() + 1e-3; }, false);
     ASSERT_TRUE(r.done);
-    EXPECT_EQ(study.engine().reason, DoneReason::kTarget);
-    EXPECT_THAT(study.engine().phase_message, HasSubstr("target"));
-    ASSERT_NE(study.best(), nullptr);
-    EXPECT_LE(study.best()->outcome->score, f.f_opt() + 1e-3);
+    EXPECT_EQ(campaign.engine().reason, DoneReason::kTarget);
+    EXPECT_THAT(campaign.engine().phase_message, HasSubstr("target"));
+    ASSERT_NE(campaign.best(), nullptr);
+    EXPECT_LE(campaign.best()->outcome->score, f.f_opt() + 1e-3);
     // It stopped with the Tell that brought the first outcome at the target: that batch of λ was
     // the last one.
-    const int lambda = study.distribution().population_size();
+    const int lambda = campaign.distribution().population_size();
     EXPECT_GT(r.reached_at, r.evaluations - lambda);
-    EXPECT_THAT(study.engine().phase_message,
-                HasSubstr(absl::StrCat("trial ", study.best()->number)));
+    EXPECT_THAT(campaign.engine().phase_message,
+                HasSubstr(absl::StrCat("trial ", campaign.best()->number)));
   }
 }
 
-TEST(StudyStoppingTest, BudgetEndsTheStudyAtExactlyTheBudget) {
+TEST(CampaignStoppingTest, BudgetEndsTheCampaignAtExactlyTheBudget) {
   constexpr int kN = 10;
   constexpr int64_t kBudget = 305;  // not a multiple of λ = 10: the last ask is trimmed to 5
   const ogive::testing::BbobFunction f = ogive::testing::BbobFunction::Create(1, kN, 4);
-  StudyOptions options;
+  CampaignOptions options;
   options.seed = 4;
   options.trial_budget = kBudget;
-  Study study = MakeStudy(RealSpace(kN, -5, 5), kMinimize, {}, options);
+  Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), kMinimize, {}, options);
   absl::Time now = Origin();
   int64_t voids = 0;
   std::vector<size_t> sizes;
-  while (study.engine().phase == Phase::kOpen) {
-    absl::StatusOr<std::vector<Trial>> asked = study.Ask(10, "w", std::nullopt, now);
+  while (campaign.engine().phase == Phase::kOpen) {
+    absl::StatusOr<std::vector<Trial>> asked = campaign.Ask(10, "w", std::nullopt, now);
     ASSERT_TRUE(asked.ok()) << asked.status();
     sizes.push_back(asked->size());
     std::vector<Report> reports;
@@ -503,37 +503,37 @@ TEST(StudyStoppingTest, BudgetEndsTheStudyAtExactlyTheBudget) {
       voids += fails;
       reports.push_back(
           MakeReport(t.number, fails ? search::Outcome::Void()
-                                     : search::Outcome::Score(f(UserPoint(study.space(), t.x)))));
+                                     : search::Outcome::Score(f(UserPoint(campaign.space(), t.x)))));
     }
     now += absl::Seconds(1);
-    ASSERT_TRUE(study.Tell(reports, now).ok());
+    ASSERT_TRUE(campaign.Tell(reports, now).ok());
     ASSERT_LT(sizes.size(), 100u);
   }
-  EXPECT_EQ(study.engine().reason, DoneReason::kBudget);
-  EXPECT_EQ(study.engine().informative, kBudget);
-  EXPECT_EQ(study.counts().reported, kBudget);
-  EXPECT_EQ(study.counts().voided, voids);
-  EXPECT_EQ(study.trial_count(), kBudget + voids);
+  EXPECT_EQ(campaign.engine().reason, DoneReason::kBudget);
+  EXPECT_EQ(campaign.engine().informative, kBudget);
+  EXPECT_EQ(campaign.counts().reported, kBudget);
+  EXPECT_EQ(campaign.counts().voided, voids);
+  EXPECT_EQ(campaign.trial_count(), kBudget + voids);
   EXPECT_LT(sizes.back(), 10u);
-  EXPECT_THAT(study.engine().phase_message, HasSubstr("budget"));
+  EXPECT_THAT(campaign.engine().phase_message, HasSubstr("budget"));
 }
 
-// When the update that ends a study (converged, no restarts) leaves outcomes waiting, those that
+// When the update that ends a campaign (converged, no restarts) leaves outcomes waiting, those that
 // are now older than the staleness limit are too stale like any other (trial.h: kTooStale, "older
 // than the staleness limit"), not pending.
-TEST(StudyStoppingTest, ConvergenceLeavesNoPendingOutcomeBeyondTheStalenessLimit) {
-  StudyOptions options;
+TEST(CampaignStoppingTest, ConvergenceLeavesNoPendingOutcomeBeyondTheStalenessLimit) {
+  CampaignOptions options;
   options.staleness_limit = 1;
   options.adapt_population = false;
-  Study study = MakeStudy(RealSpace(2, -1, 1), kMinimize, {}, options);
-  const int lambda = study.distribution().population_size();
+  Campaign campaign = MakeCampaign(RealSpace(2, -1, 1), kMinimize, {}, options);
+  const int lambda = campaign.distribution().population_size();
   ASSERT_EQ(lambda, 6);
-  // All outcomes equal: the EqualValues rule (termination.h) ends the study after
+  // All outcomes equal: the EqualValues rule (termination.h) ends the campaign after
   // 10 + ⌈30 n / λ⌉ = 10 + ⌈60 / 6⌉ = 20 tied cohorts.
   const int64_t flat_limit = 20;
   absl::Time now = Origin();
   auto round = [&](std::vector<Report> extra) {
-    absl::StatusOr<std::vector<Trial>> asked = study.Ask(lambda, "w", std::nullopt, now);
+    absl::StatusOr<std::vector<Trial>> asked = campaign.Ask(lambda, "w", std::nullopt, now);
     ASSERT_TRUE(asked.ok()) << asked.status();
     std::vector<Report> reports;
     for (const Trial& t : *asked) {
@@ -541,26 +541,26 @@ TEST(StudyStoppingTest, ConvergenceLeavesNoPendingOutcomeBeyondTheStalenessLimit
     }
     for (Report& r : extra) reports.push_back(std::move(r));
     now += absl::Seconds(1);
-    ASSERT_TRUE(study.Tell(reports, now).ok());
+    ASSERT_TRUE(campaign.Tell(reports, now).ok());
   };
   for (int g = 0; g < flat_limit - 2; ++g) round({});
-  ASSERT_EQ(study.engine().generation, flat_limit - 2);
-  absl::StatusOr<std::vector<Trial>> late = study.Ask(1, "w", std::nullopt, now);
+  ASSERT_EQ(campaign.engine().generation, flat_limit - 2);
+  absl::StatusOr<std::vector<Trial>> late = campaign.Ask(1, "w", std::nullopt, now);
   ASSERT_TRUE(late.ok());
   const int64_t straggler = late->front().number;  // sampled at generation 18
   round({});
-  ASSERT_EQ(study.engine().generation, flat_limit - 1);
-  ASSERT_EQ(study.engine().phase, Phase::kOpen);
-  // Its report arrives with the cohort that ends the study, after the cohort's λ reports: it is
+  ASSERT_EQ(campaign.engine().generation, flat_limit - 1);
+  ASSERT_EQ(campaign.engine().phase, Phase::kOpen);
+  // Its report arrives with the cohort that ends the campaign, after the cohort's λ reports: it is
   // within the limit when stored (19 − 18 = 1) and left waiting by the final update (20 − 18 = 2).
   round({MakeReport(straggler, search::Outcome::Score(1.0))});
-  ASSERT_EQ(study.engine().generation, flat_limit);
-  ASSERT_EQ(study.engine().reason, DoneReason::kConverged);
-  const Trial& t = *study.trial(straggler);
+  ASSERT_EQ(campaign.engine().generation, flat_limit);
+  ASSERT_EQ(campaign.engine().reason, DoneReason::kConverged);
+  const Trial& t = *campaign.trial(straggler);
   EXPECT_EQ(t.use, Use::kTooStale)
-      << "sampled at generation " << t.generation << ", now " << study.engine().generation
+      << "sampled at generation " << t.generation << ", now " << campaign.engine().generation
       << ", limit 1, but " << UseName(t.use);
-  EXPECT_EQ(study.counts().pending, 0);
+  EXPECT_EQ(campaign.counts().pending, 0);
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -569,81 +569,81 @@ TEST(StudyStoppingTest, ConvergenceLeavesNoPendingOutcomeBeyondTheStalenessLimit
 // For `reports` reports: refills up to `workers` trials out, then reports the oldest one. With
 // fewer workers than trials out, the surplus drains one report at a time. Returns the generation
 // records of the updates made.
-std::vector<GenerationRecord> KeepOut(Study& study, const ogive::testing::BbobFunction& f,
+std::vector<GenerationRecord> KeepOut(Campaign& campaign, const ogive::testing::BbobFunction& f,
                                       int workers, int reports, absl::Time& now,
                                       std::deque<int64_t>& out) {
   std::vector<GenerationRecord> records;
   for (int k = 0; k < reports; ++k) {
     while (static_cast<int>(out.size()) < workers) {
-      absl::StatusOr<std::vector<Trial>> asked = study.Ask(1, "w", std::nullopt, now);
+      absl::StatusOr<std::vector<Trial>> asked = campaign.Ask(1, "w", std::nullopt, now);
       EXPECT_TRUE(asked.ok()) << asked.status();
       if (!asked.ok()) return records;
       out.push_back(asked->front().number);
     }
-    const Trial& t = *study.trial(out.front());
-    const Report r = MakeReport(t.number, search::Outcome::Score(f(UserPoint(study.space(), t.x))));
+    const Trial& t = *campaign.trial(out.front());
+    const Report r = MakeReport(t.number, search::Outcome::Score(f(UserPoint(campaign.space(), t.x))));
     out.pop_front();
     now += absl::Seconds(1);
-    absl::StatusOr<TellPlan> plan = study.PlanTell({&r, 1}, now);
+    absl::StatusOr<TellPlan> plan = campaign.PlanTell({&r, 1}, now);
     EXPECT_TRUE(plan.ok()) << plan.status();
     if (!plan.ok()) return records;
     for (const GenerationRecord& g : plan->change.generations) records.push_back(g);
-    study.Apply(std::move(plan->change));
+    campaign.Apply(std::move(plan->change));
   }
   return records;
 }
 
-TEST(StudyPopulationTest, PopulationFollowsTheObservedConcurrency) {
+TEST(CampaignPopulationTest, PopulationFollowsTheObservedConcurrency) {
   constexpr int kN = 10;
   const ogive::testing::BbobFunction f = ogive::testing::BbobFunction::Create(1, kN, 8);
-  StudyOptions options;
+  CampaignOptions options;
   options.seed = 8;
-  Study study = MakeStudy(RealSpace(kN, -5, 5), kMinimize, {}, options);
-  ASSERT_TRUE(study.options().adapt_population);  // the default
-  const int lambda0 = study.distribution().population_size();
+  Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), kMinimize, {}, options);
+  ASSERT_TRUE(campaign.options().adapt_population);  // the default
+  const int lambda0 = campaign.distribution().population_size();
   ASSERT_EQ(lambda0, 10);
   absl::Time now = Origin();
   std::deque<int64_t> out;
 
   // Four times λ out at once: from the first generation boundary on, λ is the observed 40.
-  std::vector<GenerationRecord> busy = KeepOut(study, f, 4 * lambda0, 400, now, out);
+  std::vector<GenerationRecord> busy = KeepOut(campaign, f, 4 * lambda0, 400, now, out);
   ASSERT_GE(busy.size(), 5u);
   EXPECT_EQ(busy.front().population_size, lambda0);
   for (size_t g = 1; g < busy.size(); ++g) EXPECT_EQ(busy[g].population_size, 4 * lambda0) << g;
-  EXPECT_EQ(study.distribution().population_size(), 4 * lambda0);
-  EXPECT_EQ(study.distribution().gaussian()->parameters().lambda, 4 * lambda0);
+  EXPECT_EQ(campaign.distribution().population_size(), 4 * lambda0);
+  EXPECT_EQ(campaign.distribution().gaussian()->parameters().lambda, 4 * lambda0);
 
   // Concurrency falls to 5: λ comes back down, but not below the design's 10.
-  std::vector<GenerationRecord> quiet = KeepOut(study, f, 5, 200, now, out);
+  std::vector<GenerationRecord> quiet = KeepOut(campaign, f, 5, 200, now, out);
   ASSERT_GE(quiet.size(), 3u);
-  EXPECT_EQ(study.distribution().population_size(), lambda0);
+  EXPECT_EQ(campaign.distribution().population_size(), lambda0);
   EXPECT_EQ(quiet.back().population_size, lambda0);
 }
 
-TEST(StudyPopulationTest, NoAdaptationWhenTurnedOffAndNeverAboveTheCap) {
+TEST(CampaignPopulationTest, NoAdaptationWhenTurnedOffAndNeverAboveTheCap) {
   constexpr int kN = 10;
   const ogive::testing::BbobFunction f = ogive::testing::BbobFunction::Create(1, kN, 8);
   {
-    StudyOptions options;
+    CampaignOptions options;
     options.adapt_population = false;
-    Study study = MakeStudy(RealSpace(kN, -5, 5), kMinimize, {}, options);
+    Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), kMinimize, {}, options);
     absl::Time now = Origin();
     std::deque<int64_t> out;
-    std::vector<GenerationRecord> records = KeepOut(study, f, 40, 200, now, out);
+    std::vector<GenerationRecord> records = KeepOut(campaign, f, 40, 200, now, out);
     ASSERT_GE(records.size(), 5u);
     for (const GenerationRecord& g : records) EXPECT_EQ(g.population_size, 10);
   }
   {
-    StudyOptions options;
+    CampaignOptions options;
     options.max_population_size = 25;
-    Study study = MakeStudy(RealSpace(kN, -5, 5), kMinimize, {}, options);
+    Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), kMinimize, {}, options);
     absl::Time now = Origin();
     std::deque<int64_t> out;
-    std::vector<GenerationRecord> records = KeepOut(study, f, 40, 200, now, out);
+    std::vector<GenerationRecord> records = KeepOut(campaign, f, 40, 200, now, out);
     ASSERT_GE(records.size(), 5u);
-    EXPECT_EQ(study.distribution().population_size(), 25);
+    EXPECT_EQ(campaign.distribution().population_size(), 25);
   }
 }
 
 }  // namespace
-}  // namespace ogive::study
+}  // namespace ogive::campaign

@@ -1,4 +1,4 @@
-#include "server/codec/study_codec.h"
+#include "server/codec/campaign_codec.h"
 
 #include <cmath>
 #include <memory>
@@ -16,44 +16,44 @@ absl::Time FromNanos(int64_t ns) { return absl::FromUnixNanos(ns); }
 
 }  // namespace
 
-v1::TrialState TrialStateToProto(study::TrialState s) {
+v1::TrialState TrialStateToProto(campaign::TrialState s) {
   switch (s) {
-    case study::TrialState::kLeased:
+    case campaign::TrialState::kLeased:
       return v1::TRIAL_STATE_LEASED;
-    case study::TrialState::kReported:
+    case campaign::TrialState::kReported:
       return v1::TRIAL_STATE_REPORTED;
-    case study::TrialState::kLapsed:
+    case campaign::TrialState::kLapsed:
       return v1::TRIAL_STATE_LAPSED;
-    case study::TrialState::kVoided:
+    case campaign::TrialState::kVoided:
       return v1::TRIAL_STATE_VOIDED;
   }
   return v1::TRIAL_STATE_UNSPECIFIED;
 }
 
-absl::StatusOr<study::TrialState> TrialStateFromProto(v1::TrialState s) {
+absl::StatusOr<campaign::TrialState> TrialStateFromProto(v1::TrialState s) {
   switch (s) {
     case v1::TRIAL_STATE_LEASED:
-      return study::TrialState::kLeased;
+      return campaign::TrialState::kLeased;
     case v1::TRIAL_STATE_REPORTED:
-      return study::TrialState::kReported;
+      return campaign::TrialState::kReported;
     case v1::TRIAL_STATE_LAPSED:
-      return study::TrialState::kLapsed;
+      return campaign::TrialState::kLapsed;
     case v1::TRIAL_STATE_VOIDED:
-      return study::TrialState::kVoided;
+      return campaign::TrialState::kVoided;
     default:
       return absl::DataLossError(absl::StrCat("trial record: unknown state ", static_cast<int>(s)));
   }
 }
 
-v1::OutcomeUse OutcomeUseToProto(study::Use u) {
+v1::OutcomeUse OutcomeUseToProto(campaign::Use u) {
   switch (u) {
-    case study::Use::kNone:
+    case campaign::Use::kNone:
       return v1::OUTCOME_USE_UNSPECIFIED;
-    case study::Use::kPending:
+    case campaign::Use::kPending:
       return v1::OUTCOME_USE_PENDING;
-    case study::Use::kConsumed:
+    case campaign::Use::kConsumed:
       return v1::OUTCOME_USE_CONSUMED;
-    case study::Use::kTooStale:
+    case campaign::Use::kTooStale:
       return v1::OUTCOME_USE_TOO_STALE;
   }
   return v1::OUTCOME_USE_UNSPECIFIED;
@@ -61,29 +61,29 @@ v1::OutcomeUse OutcomeUseToProto(study::Use u) {
 
 namespace {
 
-study::Use UseFromProto(v1::OutcomeUse u) {
+campaign::Use UseFromProto(v1::OutcomeUse u) {
   switch (u) {
     case v1::OUTCOME_USE_PENDING:
-      return study::Use::kPending;
+      return campaign::Use::kPending;
     case v1::OUTCOME_USE_CONSUMED:
-      return study::Use::kConsumed;
+      return campaign::Use::kConsumed;
     case v1::OUTCOME_USE_TOO_STALE:
-      return study::Use::kTooStale;
+      return campaign::Use::kTooStale;
     default:
-      return study::Use::kNone;
+      return campaign::Use::kNone;
   }
 }
 
 }  // namespace
 
-absl::StatusOr<study::StudyOptions> StudyOptionsFromDesign(const v1::StudyDesign& design) {
+absl::StatusOr<campaign::CampaignOptions> CampaignOptionsFromDesign(const v1::CampaignDesign& design) {
   absl::StatusOr<search::OutcomeOrder> order = OrderFromObjective(design.objective());
   if (!order.ok()) return order.status();
-  study::StudyOptions options;
+  campaign::CampaignOptions options;
   options.seed = design.seed();
   if (design.staleness_limit() < 0) {
     return absl::InvalidArgumentError(
-        absl::StrCat("staleness_limit: must be >= 0 (0 = default ", study::kDefaultStalenessLimit, "), got ",
+        absl::StrCat("staleness_limit: must be >= 0 (0 = default ", campaign::kDefaultStalenessLimit, "), got ",
                      design.staleness_limit()));
   }
   if (design.staleness_limit() > 0) options.staleness_limit = design.staleness_limit();
@@ -98,7 +98,7 @@ absl::StatusOr<study::StudyOptions> StudyOptionsFromDesign(const v1::StudyDesign
     return absl::InvalidArgumentError("target, target_grade: set at most one of them");
   }
   if (design.has_target()) {
-    if (order->graded) return absl::InvalidArgumentError("target: a graded study takes target_grade, not target");
+    if (order->graded) return absl::InvalidArgumentError("target: a graded campaign takes target_grade, not target");
     if (!std::isfinite(design.target())) {
       return absl::InvalidArgumentError(absl::StrCat("target: must be finite, got ", design.target()));
     }
@@ -115,7 +115,7 @@ absl::StatusOr<study::StudyOptions> StudyOptionsFromDesign(const v1::StudyDesign
   return options;
 }
 
-v1::TrialRecord TrialToProto(const study::Trial& t) {
+v1::TrialRecord TrialToProto(const campaign::Trial& t) {
   v1::TrialRecord r;
   r.set_number(t.number);
   r.set_generation(t.generation);
@@ -154,15 +154,15 @@ v1::TrialRecord TrialToProto(const study::Trial& t) {
   return r;
 }
 
-absl::StatusOr<study::Trial> TrialFromProto(const v1::TrialRecord& r) {
-  study::Trial t;
+absl::StatusOr<campaign::Trial> TrialFromProto(const v1::TrialRecord& r) {
+  campaign::Trial t;
   t.number = r.number();
   t.generation = r.generation();
   t.epoch = r.epoch();
   t.x.resize(r.internal_size());
   for (int i = 0; i < r.internal_size(); ++i) t.x[i] = r.internal(i);
   t.repaired = r.repaired();
-  absl::StatusOr<study::TrialState> state = TrialStateFromProto(r.state());
+  absl::StatusOr<campaign::TrialState> state = TrialStateFromProto(r.state());
   if (!state.ok()) return state.status();
   t.state = *state;
   t.worker = r.worker();
@@ -196,35 +196,35 @@ absl::StatusOr<study::Trial> TrialFromProto(const v1::TrialRecord& r) {
   return t;
 }
 
-v1::StudyPhase PhaseToProto(study::Phase phase) {
+v1::CampaignPhase PhaseToProto(campaign::Phase phase) {
   switch (phase) {
-    case study::Phase::kOpen:
-      return v1::STUDY_PHASE_OPEN;
-    case study::Phase::kPaused:
-      return v1::STUDY_PHASE_PAUSED;
-    case study::Phase::kDone:
-      return v1::STUDY_PHASE_DONE;
+    case campaign::Phase::kOpen:
+      return v1::CAMPAIGN_PHASE_OPEN;
+    case campaign::Phase::kPaused:
+      return v1::CAMPAIGN_PHASE_PAUSED;
+    case campaign::Phase::kDone:
+      return v1::CAMPAIGN_PHASE_DONE;
   }
-  return v1::STUDY_PHASE_UNSPECIFIED;
+  return v1::CAMPAIGN_PHASE_UNSPECIFIED;
 }
 
-v1::DoneReason DoneReasonToProto(study::DoneReason reason) {
+v1::DoneReason DoneReasonToProto(campaign::DoneReason reason) {
   switch (reason) {
-    case study::DoneReason::kNone:
+    case campaign::DoneReason::kNone:
       return v1::DONE_REASON_UNSPECIFIED;
-    case study::DoneReason::kBudget:
+    case campaign::DoneReason::kBudget:
       return v1::DONE_REASON_BUDGET;
-    case study::DoneReason::kTarget:
+    case campaign::DoneReason::kTarget:
       return v1::DONE_REASON_TARGET;
-    case study::DoneReason::kConverged:
+    case campaign::DoneReason::kConverged:
       return v1::DONE_REASON_CONVERGED;
-    case study::DoneReason::kStopped:
+    case campaign::DoneReason::kStopped:
       return v1::DONE_REASON_STOPPED;
   }
   return v1::DONE_REASON_UNSPECIFIED;
 }
 
-v1::EngineState EngineStateToProto(const study::EngineState& e, bool include_distribution) {
+v1::EngineState EngineStateToProto(const campaign::EngineState& e, bool include_distribution) {
   v1::EngineState p;
   p.set_phase(PhaseToProto(e.phase));
   p.set_reason(DoneReasonToProto(e.reason));
@@ -246,36 +246,36 @@ v1::EngineState EngineStateToProto(const study::EngineState& e, bool include_dis
   return p;
 }
 
-absl::StatusOr<study::EngineState> EngineStateFromProto(const v1::EngineState& p, const search::Space& space) {
-  study::EngineState e;
+absl::StatusOr<campaign::EngineState> EngineStateFromProto(const v1::EngineState& p, const search::Space& space) {
+  campaign::EngineState e;
   switch (p.phase()) {
-    case v1::STUDY_PHASE_OPEN:
-      e.phase = study::Phase::kOpen;
+    case v1::CAMPAIGN_PHASE_OPEN:
+      e.phase = campaign::Phase::kOpen;
       break;
-    case v1::STUDY_PHASE_PAUSED:
-      e.phase = study::Phase::kPaused;
+    case v1::CAMPAIGN_PHASE_PAUSED:
+      e.phase = campaign::Phase::kPaused;
       break;
-    case v1::STUDY_PHASE_DONE:
-      e.phase = study::Phase::kDone;
+    case v1::CAMPAIGN_PHASE_DONE:
+      e.phase = campaign::Phase::kDone;
       break;
     default:
       return absl::DataLossError("engine state: unknown phase");
   }
   switch (p.reason()) {
     case v1::DONE_REASON_BUDGET:
-      e.reason = study::DoneReason::kBudget;
+      e.reason = campaign::DoneReason::kBudget;
       break;
     case v1::DONE_REASON_TARGET:
-      e.reason = study::DoneReason::kTarget;
+      e.reason = campaign::DoneReason::kTarget;
       break;
     case v1::DONE_REASON_CONVERGED:
-      e.reason = study::DoneReason::kConverged;
+      e.reason = campaign::DoneReason::kConverged;
       break;
     case v1::DONE_REASON_STOPPED:
-      e.reason = study::DoneReason::kStopped;
+      e.reason = campaign::DoneReason::kStopped;
       break;
     default:
-      e.reason = study::DoneReason::kNone;
+      e.reason = campaign::DoneReason::kNone;
   }
   e.phase_message = p.phase_message();
   if (p.random_state_size() != 4) return absl::DataLossError("engine state: the random state needs 4 words");
@@ -298,27 +298,27 @@ absl::StatusOr<study::EngineState> EngineStateFromProto(const v1::EngineState& p
   return e;
 }
 
-v1::StudySnapshot SnapshotToProto(const study::StudySnapshot& snapshot) {
-  v1::StudySnapshot p;
+v1::CampaignSnapshot SnapshotToProto(const campaign::CampaignSnapshot& snapshot) {
+  v1::CampaignSnapshot p;
   *p.mutable_engine() = EngineStateToProto(snapshot.engine);
-  for (const study::Trial& t : snapshot.trials) *p.add_trials() = TrialToProto(t);
+  for (const campaign::Trial& t : snapshot.trials) *p.add_trials() = TrialToProto(t);
   return p;
 }
 
-absl::StatusOr<study::StudySnapshot> SnapshotFromProto(const v1::StudySnapshot& p, const search::Space& space) {
-  study::StudySnapshot snapshot;
-  absl::StatusOr<study::EngineState> engine = EngineStateFromProto(p.engine(), space);
+absl::StatusOr<campaign::CampaignSnapshot> SnapshotFromProto(const v1::CampaignSnapshot& p, const search::Space& space) {
+  campaign::CampaignSnapshot snapshot;
+  absl::StatusOr<campaign::EngineState> engine = EngineStateFromProto(p.engine(), space);
   if (!engine.ok()) return engine.status();
   snapshot.engine = *std::move(engine);
   for (const v1::TrialRecord& r : p.trials()) {
-    absl::StatusOr<study::Trial> t = TrialFromProto(r);
+    absl::StatusOr<campaign::Trial> t = TrialFromProto(r);
     if (!t.ok()) return t.status();
     snapshot.trials.push_back(*std::move(t));
   }
   return snapshot;
 }
 
-v1::GenerationSummary GenerationToProto(const study::GenerationRecord& r, absl::Time at) {
+v1::GenerationSummary GenerationToProto(const campaign::GenerationRecord& r, absl::Time at) {
   v1::GenerationSummary p;
   p.set_generation(r.generation);
   p.set_epoch(r.epoch);

@@ -1,8 +1,8 @@
 // Trial: one candidate handed to a worker under a lease, and what came back for it. Trials are
-// numbered 1, 2, 3, ... within a study. The study engine owns its trials; the service and storage see
+// numbered 1, 2, 3, ... within a campaign. The campaign engine owns its trials; the service and storage see
 // copies.
-#ifndef OGIVE_SERVER_STUDY_TRIAL_H_
-#define OGIVE_SERVER_STUDY_TRIAL_H_
+#ifndef OGIVE_SERVER_CAMPAIGN_TRIAL_H_
+#define OGIVE_SERVER_CAMPAIGN_TRIAL_H_
 
 #include <cstdint>
 #include <optional>
@@ -13,7 +13,7 @@
 #include "absl/time/time.h"
 #include "server/search/ranking.h"
 
-namespace ogive::study {
+namespace ogive::campaign {
 
 enum class TrialState { kLeased, kReported, kLapsed, kVoided };
 const char* TrialStateName(TrialState state);  // "leased", "reported", "lapsed", "voided"
@@ -41,7 +41,7 @@ struct Trial {
   std::string note;
   std::string reported_by;      // the label of the token that reported it ("" without tokens)
   absl::Time reported_at;
-  int64_t report_sequence = 0;  // order of arrival of reports within the study (1, 2, ...)
+  int64_t report_sequence = 0;  // order of arrival of reports within the campaign (1, 2, ...)
   bool late = false;            // reported after its lease lapsed
   Use use = Use::kNone;
   int64_t consumed_by = -1;     // generation whose update consumed it, or -1
@@ -64,6 +64,6 @@ struct ReportResult {
   bool late = false;       // the trial had lapsed before this report
 };
 
-}  // namespace ogive::study
+}  // namespace ogive::campaign
 
-#endif  // OGIVE_SERVER_STUDY_TRIAL_H_
+#endif  // OGIVE_SERVER_CAMPAIGN_TRIAL_H_

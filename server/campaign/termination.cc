@@ -1,10 +1,10 @@
-#include "server/study/termination.h"
+#include "server/campaign/termination.h"
 
 #include <cmath>
 
 #include "absl/strings/str_cat.h"
 
-namespace ogive::study {
+namespace ogive::campaign {
 namespace {
 
 constexpr double kMaxCondition = 1e14;
@@ -77,4 +77,4 @@ std::optional<std::string> ConvergenceReason(const search::SearchDistribution& d
   return "every flag and categorical probability has collapsed onto one value";
 }
 
-}  // namespace ogive::study
+}  // namespace ogive::campaign

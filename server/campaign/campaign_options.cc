@@ -1,10 +1,10 @@
-#include "server/study/study_options.h"
+#include "server/campaign/campaign_options.h"
 
 #include "absl/strings/str_cat.h"
 
-namespace ogive::study {
+namespace ogive::campaign {
 
-absl::Status StudyOptions::Validate() const {
+absl::Status CampaignOptions::Validate() const {
   if (staleness_limit < 0) {
     return absl::InvalidArgumentError(absl::StrCat("staleness_limit: must be >= 0, got ", staleness_limit));
   }
@@ -25,4 +25,4 @@ absl::Status StudyOptions::Validate() const {
   return absl::OkStatus();
 }
 
-}  // namespace ogive::study
+}  // namespace ogive::campaign
