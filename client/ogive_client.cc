@@ -3,17 +3,23 @@
 #include <algorithm>
 #include <chrono>
 #include <cstdio>
+#include <optional>
 #include <random>
 
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
+#include "client/error_reason.h"
 
 namespace ogive::client {
 namespace {
 
-absl::Status FromGrpc(const grpc::Status& s) {
-  if (s.ok()) return absl::OkStatus();
-  return absl::Status(static_cast<absl::StatusCode>(s.error_code()), s.error_message());
+// Worth another attempt: UNAVAILABLE (the server restarts, drains, or its store is busy), and a rate
+// limit whose named delay is within `max_backoff` (a longer one is the caller's to wait out).
+bool Retryable(const absl::Status& status, absl::Duration max_backoff) {
+  if (status.code() == absl::StatusCode::kUnavailable) return true;
+  std::optional<ErrorReason> why = ErrorReasonOf(status);
+  return why.has_value() && why->reason == "RATE_LIMITED" &&
+         why->retry_delay.value_or(absl::ZeroDuration()) <= max_backoff;
 }
 
 }  // namespace
@@ -68,10 +74,13 @@ absl::Status Client::Call(grpc::Status (v1::Ogive::Stub::*method)(grpc::ClientCo
     grpc::ClientContext context;
     Prepare(context);
     if (cancellation != nullptr && !cancellation->Enter(&context)) return cancelled;
-    last = FromGrpc(((*stub_).*method)(&context, request, response));
+    last = StatusFromGrpc(((*stub_).*method)(&context, request, response));
     if (cancellation != nullptr) cancellation->Leave();
-    if (last.code() != absl::StatusCode::kUnavailable) return last;
+    if (!Retryable(last, options_.max_backoff)) return last;
     if (attempt < options_.max_attempts) {
+      if (std::optional<ErrorReason> why = ErrorReasonOf(last); why.has_value() && why->retry_delay.has_value()) {
+        backoff = std::max(backoff, std::min(*why->retry_delay, options_.max_backoff));
+      }
       // Wait out the backoff while the channel reconnects. A blocking client whose calls fail at
       // once polls its connection only every 5 s (gRPC's backup poller), so without this a
       // restarted server is found seconds late. In slices, so that a cancellation is seen soon.
@@ -106,9 +115,16 @@ absl::StatusOr<v1::CampaignView> Client::GetCampaign(const std::string& campaign
 }
 
 absl::StatusOr<v1::ListCampaignsResponse> Client::ListCampaigns() {
-  v1::ListCampaignsResponse response;
-  if (absl::Status s = Call(&v1::Ogive::Stub::ListCampaigns, v1::ListCampaignsRequest(), &response); !s.ok()) return s;
-  return response;
+  v1::ListCampaignsResponse all;
+  v1::ListCampaignsRequest request;
+  request.set_page_size(1000);
+  do {
+    v1::ListCampaignsResponse page;
+    if (absl::Status s = Call(&v1::Ogive::Stub::ListCampaigns, request, &page); !s.ok()) return s;
+    for (v1::CampaignView& view : *page.mutable_campaigns()) *all.add_campaigns() = std::move(view);
+    request.set_page_token(page.next_page_token());
+  } while (!request.page_token().empty());
+  return all;
 }
 
 absl::StatusOr<v1::AskResponse> Client::Ask(const std::string& campaign, int count, const std::string& worker,
@@ -214,7 +230,7 @@ absl::Status Client::Watch(const std::string& campaign, const std::function<bool
   }
   const grpc::Status status = reader->Finish();
   if (status.error_code() == grpc::StatusCode::CANCELLED) return absl::OkStatus();
-  return FromGrpc(status);
+  return StatusFromGrpc(status);
 }
 
 LeaseRenewer::LeaseRenewer(Client* client, std::string campaign, std::vector<int64_t> trials, std::string worker,

@@ -1,8 +1,10 @@
 // Client: a typed C++ client of the ogive service for workers, tools and tests.
 //
-// Every call has a deadline (ClientOptions::call_timeout). Calls that fail with UNAVAILABLE — the only
-// code worth retrying — are retried with exponential backoff up to ClientOptions::max_attempts (the
-// channel reconnects during the backoff, so a restarted server is found at once); writes
+// Every call has a deadline (ClientOptions::call_timeout). Calls that fail with UNAVAILABLE, or are
+// refused with reason RATE_LIMITED and a delay of at most max_backoff, are retried with exponential
+// backoff (at least the delay a rate limit names) up to ClientOptions::max_attempts (the channel reconnects during the backoff, so a
+// restarted server is found at once); every other refusal is returned at once, with its reason for
+// ErrorReasonOf (error_reason.h). Writes
 // are safe to retry: Ask carries a request id chosen once per call, Tell and Renew are idempotent by
 // trial number (the same outcome twice is accepted once).
 //
@@ -49,7 +51,7 @@ class Cancellation {
 
 struct ClientOptions {
   absl::Duration call_timeout = absl::Seconds(30);  // deadline of each attempt
-  int max_attempts = 5;                              // attempts for UNAVAILABLE, >= 1
+  int max_attempts = 5;                              // attempts for UNAVAILABLE and RATE_LIMITED, >= 1
   absl::Duration first_backoff = absl::Milliseconds(100);
   absl::Duration max_backoff = absl::Seconds(5);
   std::string token;                                 // sent as "authorization: Bearer <token>" if set
@@ -72,6 +74,7 @@ class Client {
 
   absl::StatusOr<v1::CampaignView> CreateCampaign(const v1::CampaignDesign& design);
   absl::StatusOr<v1::CampaignView> GetCampaign(const std::string& campaign);
+  // Every campaign the token may see, in name order (all pages).
   absl::StatusOr<v1::ListCampaignsResponse> ListCampaigns();
   absl::StatusOr<v1::AskResponse> Ask(const std::string& campaign, int count, const std::string& worker,
                                       double lease_seconds = 0);

@@ -66,7 +66,7 @@ rows = [r for r in csv.DictReader(sys.stdin) if r["outcome"] == "score"]
 rows.sort(key=lambda r: float(r["score"]))
 for r in rows[:5]:
     print("  trial %4s  %7.3f min  relaxation=%.3f tolerance=%.2e mesh_level=%s preconditioner=%s reorder=%s  (by %s)" % (
-        r["number"], float(r["score"]), float(r["relaxation"]), float(r["tolerance"]), r["mesh_level"],
+        r["trial"], float(r["score"]), float(r["relaxation"]), float(r["tolerance"]), r["mesh_level"],
         r["preconditioner"], r["reorder"], r["reported_by"]))
 '
 echo

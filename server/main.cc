@@ -1,7 +1,7 @@
 // ogived: the ogive server. Serves many campaigns over gRPC from one SQLite file.
 //
 //   ogived [--db PATH] [--listen ADDRESS] [--tls-cert PEM --tls-key PEM [--tls-client-ca PEM]]
-//          [--metrics-listen ADDRESS] [--max-... N] [--sweep-interval-seconds S] [--read-only]   (see --help)
+//          [--metrics-listen ADDRESS] [--max-... N] [--sweep-interval DURATION] [--read-only]   (see --help)
 //   ogived backup --db PATH --to FILE   (a consistent copy of a live database; backup_command.h)
 //   ogived token create|list|revoke --db PATH ...   (token_command.h)
 //
@@ -36,6 +36,7 @@
 #include "grpcpp/grpcpp.h"
 #include "grpcpp/health_check_service_interface.h"
 #include "server/admin_socket.h"
+#include "server/base/duration_text.h"
 #include "server/backup_command.h"
 #include "server/metrics/metric_registry.h"
 #include "server/metrics/metrics_http_server.h"
@@ -62,7 +63,8 @@ constexpr char kUsage[] =
     "options:\n"
     "  --db PATH                   database file (default ./ogive.db; created if missing)\n"
     "  --listen ADDRESS            host:port to listen on (default 127.0.0.1:7075)\n"
-    "  --sweep-interval-seconds S  how often expired leases are lapsed (default 1)\n"
+    "  --sweep-interval DURATION   how often expired leases are lapsed (default 1s; durations take\n"
+    "                              90s, 15m, 2h, 2d or a number of seconds)\n"
     "  --tls-cert PEM              serve TLS with this certificate chain (server's certificate first)\n"
     "  --tls-key PEM               the private key of --tls-cert (unencrypted PEM)\n"
     "  --tls-client-ca PEM         require client certificates signed by these CAs (mutual TLS)\n"
@@ -80,6 +82,7 @@ constexpr char kUsage[] =
     "  --read-only                 serve a database file that cannot be written: reads only,\n"
     "                              every write is refused (FAILED_PRECONDITION), no lease sweeps\n"
     "  --help                      this text\n"
+    "  --version                   the version of ogived and of its database schema\n"
     "\n"
     "Without --tls-cert ogived listens on loopback addresses only, unless --allow-insecure-remote.\n"
     "\n"
@@ -113,12 +116,29 @@ struct Flags {
   std::exit(2);
 }
 
+// True for the options that take a value (the switches are handled before this is asked).
+bool TakesValue(const std::string& name) {
+  static constexpr const char* kValueOptions[] = {
+      "--db", "--listen", "--metrics-listen", "--tls-cert", "--tls-key", "--tls-client-ca",
+      "--max-requests-per-second-per-token", "--sweep-interval"};
+  for (const char* option : kValueOptions) {
+    if (name == option) return true;
+  }
+  ogive::service::ServiceLimits scratch;
+  return !absl::IsNotFound(ogive::service::SetLimitFromFlag(scratch, name, ""));
+}
+
 Flags ParseFlags(int argc, char** argv) {
   Flags flags;
   for (int i = 1; i < argc; ++i) {
     const std::string arg = argv[i];
     if (arg == "--help" || arg == "-h") {
       std::fputs(absl::StrCat(kUsage, ogive::service::LimitFlagsHelp(), kSafety).c_str(), stdout);
+      std::exit(0);
+    }
+    if (arg == "--version") {
+      std::printf("ogived %s (database schema version %lld)\n", OGIVE_VERSION,
+                  static_cast<long long>(ogive::storage::SqliteStore::schema_version()));
       std::exit(0);
     }
     if (arg == "--allow-insecure-remote") {
@@ -139,6 +159,10 @@ Flags ParseFlags(int argc, char** argv) {
     }
     const size_t eq = arg.find('=');
     const std::string name = arg.substr(0, eq);
+    if (!TakesValue(name)) {
+      Fail(absl::StrCat(arg.rfind("-", 0) == 0 ? "unknown option '" : "unexpected argument '", name,
+                        "' (see --help)"));
+    }
     std::string value;
     if (eq != std::string::npos) {
       value = arg.substr(eq + 1);
@@ -167,10 +191,10 @@ Flags ParseFlags(int argc, char** argv) {
       if (!absl::SimpleAtod(value, &rate) || !std::isfinite(rate) || rate < 0) {
         Fail(absl::StrCat(name, ": must be 0 (no limit) or a positive number, got '", value, "'"));
       }
-    } else if (name == "--sweep-interval-seconds") {
-      if (!absl::SimpleAtod(value, &flags.sweep_interval_seconds) || !(flags.sweep_interval_seconds > 0)) {
-        Fail(absl::StrCat(name, ": must be a positive number of seconds, got '", value, "'"));
-      }
+    } else if (name == "--sweep-interval") {
+      absl::StatusOr<absl::Duration> interval = ogive::ParseDurationText(name, value);
+      if (!interval.ok()) Fail(std::string(interval.status().message()));
+      flags.sweep_interval_seconds = absl::ToDoubleSeconds(*interval);
     } else {
       Fail(absl::StrCat("unknown option '", name, "' (see --help)"));
     }

@@ -34,7 +34,7 @@ constexpr char kTokenUsage[] =
     "Administers the access tokens of an ogive database file.\n"
     "\n"
     "  create   makes a token and prints it on standard output, once: only its SHA-256 digest is\n"
-    "           stored. ROLE is reader (GetCampaign, ListCampaigns, ListTrials, Watch), worker (+ Ask,\n"
+    "           stored. ROLE is reader (GetCampaign, ListCampaigns, ListTrials, ListGenerations, Watch), worker (+ Ask,\n"
     "           Tell, Renew) or admin (+ CreateCampaign, SetPhase). Each --campaign limits the token to\n"
     "           that campaign (repeat it for more); without --campaign it may use every campaign. LABEL\n"
     "           (1..64 letters, digits, '_', '-', '.', '@') names the token in trial lists, the\n"

@@ -7,6 +7,8 @@
 #include "absl/strings/ascii.h"
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
+#include "absl/time/time.h"
+#include "server/base/duration_text.h"
 
 namespace ogive::cli {
 
@@ -85,12 +87,9 @@ absl::StatusOr<double> ParseFiniteNumber(absl::string_view what, absl::string_vi
 }
 
 absl::StatusOr<double> ParsePositiveSeconds(absl::string_view what, absl::string_view text) {
-  absl::StatusOr<double> value = ParseFiniteNumber(what, text);
-  if (!value.ok() || *value <= 0) {
-    return absl::InvalidArgumentError(
-        absl::StrCat(what, ": must be a positive number of seconds, got '", text, "'"));
-  }
-  return *value;
+  absl::StatusOr<absl::Duration> duration = ParseDurationText(what, text);
+  if (!duration.ok()) return duration.status();
+  return absl::ToDoubleSeconds(*duration);
 }
 
 absl::StatusOr<int64_t> ParseInteger(absl::string_view what, absl::string_view text, int64_t low,

@@ -52,7 +52,8 @@ const OptionSpec* FindOption(absl::string_view arg, absl::Span<const OptionSpec>
 //
 // A finite number written as a whole (strtod syntax, surrounding blanks allowed): "3.25", "-1e-3".
 absl::StatusOr<double> ParseFiniteNumber(absl::string_view what, absl::string_view text);
-// A positive finite number of seconds.
+// A positive duration (ParseDurationText: "90s", "15m", "2h", "2d", or a bare number of seconds), in
+// seconds.
 absl::StatusOr<double> ParsePositiveSeconds(absl::string_view what, absl::string_view text);
 // A whole number in [low, high].
 absl::StatusOr<int64_t> ParseInteger(absl::string_view what, absl::string_view text, int64_t low,

@@ -8,6 +8,7 @@
 #include <cstdlib>
 #include <map>
 #include <memory>
+#include <optional>
 
 #include "absl/strings/ascii.h"
 #include "absl/strings/match.h"
@@ -21,7 +22,9 @@
 #include "client/cli/import_plan.h"
 #include "client/cli/format.h"
 #include "client/cli/report_commands.h"
+#include "client/cli/trial_export.h"
 #include "client/cli/views.h"
+#include "client/error_reason.h"
 #include "client/ogive_client.h"
 #include "google/protobuf/util/json_util.h"
 
@@ -34,7 +37,7 @@ constexpr char kSafetyNote[] =
 
 const OptionSpec kGlobalOptions[] = {
     {"--server", "", "HOST:PORT", "the server (default $OGIVE_SERVER, else 127.0.0.1:7075)"},
-    {"--timeout", "", "SECONDS", "deadline of each call to the server (default 30)"},
+    {"--timeout", "", "DURATION", "deadline of each call to the server (default 30s)"},
     {"--json", "", "", "print data as protobuf JSON instead of tables and text"},
     {"--token-file", "", "PATH", "file holding the access token (default: $OGIVE_TOKEN)"},
     {"--tls", "", "", "use TLS, trusting the system's CA certificates (implied by --tls-*)"},
@@ -58,8 +61,12 @@ int UsageError(const Command& command, absl::string_view message) {
 }
 
 int ServerError(const Invocation& inv, const absl::Status& status) {
-  std::string text = absl::StrCat(Prefix(*inv.command), ": ",
-                                  absl::StatusCodeToString(status.code()), ": ", status.message());
+  // "ogive ask: FAILED_PRECONDITION (CAMPAIGN_PAUSED): campaign is paused; ...": the code and the
+  // server's machine-readable reason for scripts, then the message for people.
+  const std::optional<client::ErrorReason> why = client::ErrorReasonOf(status);
+  std::string text = absl::StrCat(Prefix(*inv.command), ": ", absl::StatusCodeToString(status.code()),
+                                  why.has_value() ? absl::StrCat(" (", why->reason, ")") : "", ": ",
+                                  status.message());
   if (status.code() == absl::StatusCode::kUnavailable ||
       status.code() == absl::StatusCode::kDeadlineExceeded) {
     absl::StrAppend(&text, "\n(server ", inv.globals.server,
@@ -81,6 +88,7 @@ std::string Json(const google::protobuf::Message& message) {
   std::string out;
   google::protobuf::util::JsonPrintOptions options;
   options.always_print_primitive_fields = true;  // scripts find 0, false and "" where they look
+  options.preserve_proto_field_names = true;     // one JSON dialect: snake_case keys, as in exports
   if (!google::protobuf::util::MessageToJsonString(message, &out, options).ok()) return "{}";
   return out;
 }
@@ -241,18 +249,16 @@ int RunCampaignTrials(const Invocation& inv) {
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
   const std::string& campaign = Arg(inv, 0);
-  v1::CampaignDesign design;
-  if (!inv.globals.json) {
-    absl::StatusOr<v1::CampaignView> view = c->GetCampaign(campaign);
-    if (!view.ok()) return ServerError(inv, view.status());
-    design = view->design();
-  }
+  absl::StatusOr<v1::CampaignView> view = c->GetCampaign(campaign);
+  if (!view.ok()) return ServerError(inv, view.status());
+  const v1::CampaignDesign& design = view->design();
   absl::StatusOr<std::vector<v1::Trial>> trials = c->ListAllTrials(campaign, state);
   if (!trials.ok()) return ServerError(inv, trials.status());
+  // The records of `campaign export`, so that what one prints the other reads and `import` takes.
   if (inv.globals.json) {
-    Print(JsonArray(*trials));
+    Print(TrialsExportJson(design, *trials));
   } else if (csv) {
-    Print(TrialsCsv(design, *trials));
+    Print(TrialsExportCsv(design, *trials));
   } else if (trials->empty()) {
     Print(absl::StrCat("no ", state == v1::TRIAL_STATE_UNSPECIFIED ? "" : TrialStateName(state),
                        state == v1::TRIAL_STATE_UNSPECIFIED ? "" : " ", "trials in campaign ", campaign,
@@ -291,16 +297,13 @@ int RunAsk(const Invocation& inv) {
   std::unique_ptr<client::Client> c = ConnectOrFail(inv, &code);
   if (c == nullptr) return code;
   const std::string& campaign = Arg(inv, 0);
-  v1::CampaignDesign design;
-  if (!inv.globals.json) {
-    absl::StatusOr<v1::CampaignView> view = c->GetCampaign(campaign);
-    if (!view.ok()) return ServerError(inv, view.status());
-    design = view->design();
-  }
+  absl::StatusOr<v1::CampaignView> view = c->GetCampaign(campaign);
+  if (!view.ok()) return ServerError(inv, view.status());
+  const v1::CampaignDesign& design = view->design();
   absl::StatusOr<v1::AskResponse> asked = c->Ask(campaign, static_cast<int>(count), worker, lease);
   if (!asked.ok()) return ServerError(inv, asked.status());
-  if (inv.globals.json) {
-    Print(JsonArray(asked->trials()));
+  if (inv.globals.json) {  // the trial records of `campaign export --json`
+    Print(TrialsExportJson(design, {asked->trials().begin(), asked->trials().end()}));
   } else {
     const absl::TimeZone zone = absl::LocalTimeZone();
     for (const v1::Trial& t : asked->trials()) {
@@ -397,8 +400,10 @@ int RunRenew(const Invocation& inv) {
     if (!r.ok()) return ServerError(inv, r.status());
     renewed.insert(renewed.end(), r->trials().begin(), r->trials().end());
   }
-  if (inv.globals.json) {
-    Print(JsonArray(renewed));
+  if (inv.globals.json) {  // the trial records of `campaign export --json`
+    absl::StatusOr<v1::CampaignView> view = c->GetCampaign(campaign);
+    if (!view.ok()) return ServerError(inv, view.status());
+    Print(TrialsExportJson(view->design(), renewed));
   } else {
     const absl::TimeZone zone = absl::LocalTimeZone();
     for (const v1::Trial& t : renewed) {
@@ -426,7 +431,11 @@ int RunImport(const Invocation& inv) {
   const std::string& path = Arg(inv, 1);
   absl::StatusOr<std::string> text = ReadWholeFile(path, "FILE");
   if (!text.ok()) return UsageError(*inv.command, text.status().message());
-  absl::StatusOr<std::vector<CsvRecord>> records = ParseCsv(*text);
+  // What spreadsheet programs write too: a UTF-8 byte-order mark, ';' or tab between fields (and
+  // then a decimal comma in scores).
+  const absl::string_view body = StripByteOrderMark(*text);
+  const char separator = DetectSeparator(body);
+  absl::StatusOr<std::vector<CsvRecord>> records = ParseCsv(body, separator);
   if (!records.ok()) {
     std::fprintf(stderr, "%s: %s:%s\nnothing imported\n", Prefix(*inv.command).c_str(), path.c_str(),
                  std::string(records.status().message()).c_str());
@@ -439,7 +448,7 @@ int RunImport(const Invocation& inv) {
   if (!view.ok()) return ServerError(inv, view.status());
   absl::StatusOr<std::vector<v1::Trial>> trials = c->ListAllTrials(campaign, v1::TRIAL_STATE_UNSPECIFIED);
   if (!trials.ok()) return ServerError(inv, trials.status());
-  const ImportPlan plan = PlanImport(*records, view->design(), *trials);
+  const ImportPlan plan = PlanImport(*records, view->design(), *trials, /*decimal_comma=*/separator != ',');
   for (const BadRow& bad : plan.bad) {
     std::fprintf(stderr, "%s:%d: %s\n", path.c_str(), bad.line, bad.reason.c_str());
   }
@@ -483,11 +492,12 @@ int RunImport(const Invocation& inv) {
   for (const std::string& line : refused) std::fprintf(stderr, "%s\n", line.c_str());
   if (inv.globals.json) {
     Print(absl::StrCat("{\"stored\": ", stored, ", \"late\": ", late, ", \"already_stored\": ",
-                       plan.already_stored.size(), ", \"bad_rows\": ", plan.bad.size(), ", \"refused\": ",
-                       refused.size(), "}\n"));
+                       plan.already_stored.size(), ", \"without_outcome\": ", plan.without_outcome,
+                       ", \"bad_rows\": ", plan.bad.size(), ", \"refused\": ", refused.size(), "}\n"));
   } else {
     Print(absl::StrCat("imported ", stored, " outcome", stored == 1 ? "" : "s", late > 0 ? absl::StrCat(" (", late, " late)") : "",
                        "; ", plan.already_stored.size(), " already stored",
+                       plan.without_outcome > 0 ? absl::StrCat("; ", plan.without_outcome, " without an outcome") : "",
                        skip_bad ? absl::StrCat("; ", plan.bad.size(), " bad row", plan.bad.size() == 1 ? "" : "s", " skipped") : "",
                        "\n"));
   }
@@ -554,7 +564,8 @@ constexpr char kCampaignTrialsHelp[] =
     R"(Lists the campaign's trials in number order: state, generation, worker, outcome, who
 reported it (the label of the token used; '-' without tokens), whether it came late,
 what the search made of it (pending, consumed, too_stale), and the candidate.
---csv prints CSV with a header row (RFC 4180 quoting); --json a JSON array of trials.
+--csv and --json print the records of 'ogive campaign export' (one layout: 'ogive import'
+reads them back, and importing them into the same campaign changes nothing).
 )";
 
 constexpr char kAskHelp[] =
@@ -671,13 +682,13 @@ std::vector<Command> MakeCommands() {
   for (Command& c : ReportCommands()) commands.push_back(std::move(c));
   commands.push_back(
       {.words = {"ask"},
-       .synopsis = "NAME [-n N] [--worker ID] [--lease SECONDS]",
+       .synopsis = "NAME [-n N] [--worker ID] [--lease DURATION]",
        .summary = "lease candidates to evaluate",
        .details = kAskHelp,
        .options = {{"-n", "", "N", "how many trials (default 1)"},
                    {"--worker", "", "ID",
                     "who evaluates them, shown in trial lists (default HOST:PID)"},
-                   {"--lease", "", "SECONDS", "lease length (default: the campaign's)"},
+                   {"--lease", "", "DURATION", "lease length (default: the campaign's)"},
                    {"--card", "", "", "print a card per trial for the bench (large trial number, units, "
                                       "descriptions, how to report)"}},
        .min_positional = 1,
@@ -708,23 +719,23 @@ std::vector<Command> MakeCommands() {
                       .run = RunImport});
   commands.push_back(
       {.words = {"renew"},
-       .synopsis = "NAME TRIAL... [--lease SECONDS] [--worker ID]",
+       .synopsis = "NAME TRIAL... [--lease DURATION] [--worker ID]",
        .summary = "extend leases",
        .details = kRenewHelp,
-       .options = {{"--lease", "", "SECONDS", "new lease length from now (default: the campaign's)"},
+       .options = {{"--lease", "", "DURATION", "new lease length from now (default: the campaign's)"},
                    {"--worker", "", "ID", "the worker that holds the leases"}},
        .min_positional = 2,
        .max_positional = SIZE_MAX,
        .run = RunRenew});
   commands.push_back(
       {.words = {"work"},
-       .synopsis = "NAME [--max-trials N] [--parallel K] [--lease SECONDS] [--worker ID]\n"
+       .synopsis = "NAME [--max-trials N] [--parallel K] [--lease DURATION] [--worker ID]\n"
                    "                  -- PROGRAM [ARGS...]",
        .summary = "the worker loop: ask, run PROGRAM, tell, repeat",
        .details = kWorkHelp,
        .options = {{"--max-trials", "", "N", "stop after starting N trials (default: no limit)"},
                    {"--parallel", "", "K", "run K trials at once (default 1)"},
-                   {"--lease", "", "SECONDS",
+                   {"--lease", "", "DURATION",
                     "lease length, renewed every third of it (default: the campaign's)"},
                    {"--worker", "", "ID", "worker name shown in trial lists (default HOST:PID)"}},
        .min_positional = 1,
@@ -783,7 +794,7 @@ std::string HelpText(const Command* command, const std::vector<std::string>& gro
       out += "\noptions:\n";
       AppendOptions(&out, command->options);
     }
-    absl::StrAppend(&out, "\nglobal options: --server HOST:PORT, --timeout SECONDS, ",
+    absl::StrAppend(&out, "\nglobal options: --server HOST:PORT, --timeout DURATION, ",
                     command->prints_data ? "--json, " : "",
                     "--token-file PATH, --tls-ca PEM, ...\n(see 'ogive --help')\n");
     if (command->words[0] == "ask" || command->words[0] == "work") {

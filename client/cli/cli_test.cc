@@ -12,11 +12,16 @@
 #include <vector>
 
 #include "absl/strings/match.h"
+#include "absl/strings/str_join.h"
+#include "absl/strings/str_replace.h"
 #include "client/cli/args.h"
 #include "client/cli/candidate_env.h"
+#include "client/cli/csv_reader.h"
 #include "client/cli/design_file.h"
 #include "client/cli/format.h"
+#include "client/cli/import_plan.h"
 #include "client/cli/outcome_line.h"
+#include "client/cli/trial_export.h"
 #include "client/cli/views.h"
 #include "client/cli/work.h"
 #include "client/client_tls.h"
@@ -259,21 +264,98 @@ TEST(TableTest, AlignsColumns) {
             "x          12345678\n");
 }
 
-TEST(ViewsTest, TrialsCsvHasAHeaderAndOneRowPerTrial) {
+// `campaign trials --csv` and `campaign export --csv` print one layout, and `import` reads it back: a
+// file exported from a campaign and imported into it is found stored already, row for row (whatever
+// the separator a spreadsheet program saved it with, and with its byte-order mark).
+TEST(ExportImportTest, AnExportImportedIntoItsOwnCampaignChangesNothing) {
+  std::vector<v1::Trial> trials;
+  const char* const notes[] = {"the program exited with status 3, \"oops\"", "", "line one\nline two; ok"};
+  for (int n = 1; n <= 6; ++n) {
+    v1::Trial& t = trials.emplace_back();
+    t.set_number(n);
+    t.set_generation(n / 3);
+    t.set_worker("node1:42");
+    t.set_reported_by("farm-a");
+    *t.mutable_candidate() = MixedCandidate();
+    switch (n % 4) {
+      case 0:
+        t.set_state(v1::TRIAL_STATE_VOIDED);
+        t.mutable_outcome()->mutable_void_();
+        break;
+      case 1:
+        t.set_state(v1::TRIAL_STATE_REPORTED);
+        t.mutable_outcome()->set_score(0.1 * n + 1e-17 * n);  // exact digits survive the trip
+        break;
+      case 2:
+        t.set_state(v1::TRIAL_STATE_REPORTED);
+        t.mutable_outcome()->mutable_infeasible();
+        break;
+      default:
+        t.set_state(v1::TRIAL_STATE_LAPSED);  // no outcome: skipped
+    }
+    if (t.has_outcome()) t.mutable_outcome()->set_note(notes[n % 3]);
+  }
+  const v1::CampaignDesign design = Design(kMixedDesign);
+  const std::string csv = TrialsExportCsv(design, trials);
+  std::string semicolons = csv;  // the same records with ';' between fields, as some spreadsheets save them
+  {
+    absl::StatusOr<std::vector<CsvRecord>> records = ParseCsv(csv);
+    ASSERT_TRUE(records.ok()) << records.status();
+    semicolons = "\xEF\xBB\xBF";
+    for (const CsvRecord& r : *records) {
+      std::vector<std::string> quoted;
+      for (const std::string& f : r.fields) quoted.push_back(absl::StrCat("\"", absl::StrReplaceAll(f, {{"\"", "\"\""}}), "\""));
+      absl::StrAppend(&semicolons, absl::StrJoin(quoted, ";"), "\r\n");
+    }
+  }
+  for (const std::string& text : {csv, semicolons}) {
+    const absl::string_view body = StripByteOrderMark(text);
+    const char separator = DetectSeparator(body);
+    absl::StatusOr<std::vector<CsvRecord>> records = ParseCsv(body, separator);
+    ASSERT_TRUE(records.ok()) << records.status();
+    const ImportPlan plan = PlanImport(*records, design, trials, separator != ',');
+    EXPECT_TRUE(plan.bad.empty()) << plan.bad[0].reason;
+    EXPECT_TRUE(plan.to_report.empty());
+    EXPECT_EQ(plan.already_stored.size(), 5u);  // trials 1, 2, 4, 5, 6 have outcomes
+    EXPECT_EQ(plan.without_outcome, 1);         // trial 3 lapsed
+  }
+  // Into a campaign where those trials have no outcome yet, the same file reports each outcome once.
+  std::vector<v1::Trial> fresh = trials;
+  for (v1::Trial& t : fresh) {
+    t.clear_outcome();
+    t.set_state(v1::TRIAL_STATE_LEASED);
+  }
+  absl::StatusOr<std::vector<CsvRecord>> records = ParseCsv(csv);
+  ASSERT_TRUE(records.ok());
+  const ImportPlan plan = PlanImport(*records, design, fresh);
+  ASSERT_EQ(plan.to_report.size(), 5u);
+  for (const ImportRow& row : plan.to_report) {
+    const v1::Trial& original = trials[static_cast<size_t>(row.trial - 1)];
+    EXPECT_EQ(row.outcome.SerializeAsString(), original.outcome().SerializeAsString()) << row.trial;
+  }
+}
+
+TEST(CsvReaderTest, ByteOrderMarkAndSeparatorsOfSpreadsheetPrograms) {
+  EXPECT_EQ(StripByteOrderMark("\xEF\xBB\xBFtrial,outcome"), "trial,outcome");
+  EXPECT_EQ(StripByteOrderMark("trial"), "trial");
+  EXPECT_EQ(DetectSeparator("trial;outcome;note\n1;3,5;a,b\n"), ';');
+  EXPECT_EQ(DetectSeparator("trial\toutcome\n"), '\t');
+  EXPECT_EQ(DetectSeparator("trial,outcome\n"), ',');
+  EXPECT_EQ(DetectSeparator("\"a;b;c\",outcome\n"), ',');  // separators inside quotes do not count
+  EXPECT_EQ(DetectSeparator("trial\n"), ',');
+  absl::StatusOr<std::vector<CsvRecord>> records = ParseCsv("trial;outcome\r\n7;\"3,25\"\r\n", ';');
+  ASSERT_TRUE(records.ok());
+  ASSERT_EQ(records->size(), 2u);
+  EXPECT_THAT((*records)[1].fields, testing::ElementsAre("7", "3,25"));
+  // A decimal comma is a score where fields are separated by ';', and nowhere else.
   v1::Trial t;
   t.set_number(7);
-  t.set_state(v1::TRIAL_STATE_VOIDED);
-  t.set_generation(2);
-  t.set_worker("node1:42");
-  t.mutable_outcome()->mutable_void_();
-  t.mutable_outcome()->set_note("the program exited with status 3, \"oops\"");
-  t.set_reported_by("farm-a");
-  *t.mutable_candidate() = MixedCandidate();
-  EXPECT_EQ(TrialsCsv(Design(kMixedDesign), {t}),
-            "number,state,generation,worker,outcome,score,grade,note,reported_by,late,use,consumed_by,"
-            "peak-temp,passes,vacuum,gas\n"
-            "7,voided,2,node1:42,void,,,\"the program exited with status 3, \"\"oops\"\"\",farm-a,false,,,"
-            "812.5,3,true,argon\n");
+  t.set_state(v1::TRIAL_STATE_LEASED);
+  const ImportPlan with_comma = PlanImport(*records, Design(kMixedDesign), {t}, /*decimal_comma=*/true);
+  ASSERT_EQ(with_comma.to_report.size(), 1u);
+  EXPECT_EQ(with_comma.to_report[0].outcome.score(), 3.25);
+  const ImportPlan without = PlanImport(*records, Design(kMixedDesign), {t}, /*decimal_comma=*/false);
+  EXPECT_EQ(without.bad.size(), 1u);
 }
 
 TEST(ViewsTest, TrialsTableShowsOutcomesAndParameters) {
@@ -427,8 +509,13 @@ TEST(ArgsTest, ValueParsers) {
   EXPECT_FALSE(ParseFiniteNumber("--score", "3 apples").ok());
   EXPECT_FALSE(ParseFiniteNumber("--score", "").ok());
   EXPECT_EQ(*ParsePositiveSeconds("--lease", "90"), 90);
+  EXPECT_EQ(*ParsePositiveSeconds("--lease", "90s"), 90);
+  EXPECT_EQ(*ParsePositiveSeconds("--lease", "15m"), 900);
+  EXPECT_EQ(*ParsePositiveSeconds("--lease", "2h"), 7200);
+  EXPECT_EQ(*ParsePositiveSeconds("--lease", "2d"), 172800);
   EXPECT_THAT(std::string(ParsePositiveSeconds("--lease", "0").status().message()),
-              HasSubstr("--lease: must be a positive number of seconds, got '0'"));
+              HasSubstr("--lease: must be a positive duration such as 90s, 15m, 2h, 2d or 1h30m "
+                        "(a bare number is seconds), got '0'"));
   EXPECT_EQ(*ParseInteger("-n", "7", 1, 10), 7);
   EXPECT_THAT(std::string(ParseInteger("-n", "0", 1, 10).status().message()),
               HasSubstr("-n: must be a whole number in 1..10, got '0'"));
@@ -453,7 +540,7 @@ TEST(CommandLineTest, ServerFromTheEnvironmentUnlessGiven) {
   EXPECT_THAT(UsageMessage({"campaign", "list", "--server", "nohost"}),
               HasSubstr("--server: must be HOST:PORT"));
   EXPECT_THAT(UsageMessage({"campaign", "list", "--timeout", "-1"}),
-              HasSubstr("--timeout: must be a positive number of seconds"));
+              HasSubstr("--timeout: must be a positive duration such as 90s"));
 }
 
 TEST(CommandLineTest, TlsOptionsFromTheCommandLineElseTheEnvironment) {
@@ -591,7 +678,7 @@ TEST(WorkArgsTest, ErrorsNameTheOption) {
   EXPECT_THAT(message({"work", "S", "--max-trials", "many", "--", "x"}),
               HasSubstr("--max-trials: must be a whole number"));
   EXPECT_THAT(message({"work", "S", "--lease", "-5", "--", "x"}),
-              HasSubstr("--lease: must be a positive number of seconds"));
+              HasSubstr("--lease: must be a positive duration such as 90s"));
 }
 
 TEST(TellArgsTest, ExactlyOneOutcome) {

@@ -4,7 +4,29 @@
 
 namespace ogive::cli {
 
-absl::StatusOr<std::vector<CsvRecord>> ParseCsv(absl::string_view text) {
+absl::string_view StripByteOrderMark(absl::string_view text) {
+  constexpr absl::string_view kBom = "\xEF\xBB\xBF";
+  if (text.substr(0, kBom.size()) == kBom) text.remove_prefix(kBom.size());
+  return text;
+}
+
+char DetectSeparator(absl::string_view text) {
+  int commas = 0, semicolons = 0, tabs = 0;
+  bool in_quotes = false;
+  for (char c : text) {
+    if (c == '"') in_quotes = !in_quotes;  // a doubled quote toggles twice: no harm
+    if (in_quotes) continue;
+    if (c == '\n') break;
+    commas += c == ',';
+    semicolons += c == ';';
+    tabs += c == '\t';
+  }
+  if (semicolons > commas && semicolons >= tabs) return ';';
+  if (tabs > commas && tabs > semicolons) return '\t';
+  return ',';
+}
+
+absl::StatusOr<std::vector<CsvRecord>> ParseCsv(absl::string_view text, char separator) {
   std::vector<CsvRecord> records;
   CsvRecord record;
   std::string field;
@@ -52,10 +74,6 @@ absl::StatusOr<std::vector<CsvRecord>> ParseCsv(absl::string_view text) {
         field_was_quoted = true;
         record_has_content = true;
         break;
-      case ',':
-        end_field();
-        record_has_content = true;
-        break;
       case '\r':
         if (i + 1 < text.size() && text[i + 1] == '\n') break;  // CRLF: the LF ends the record
         field += c;
@@ -66,6 +84,11 @@ absl::StatusOr<std::vector<CsvRecord>> ParseCsv(absl::string_view text) {
         record.line = line;
         break;
       default:
+        if (c == separator) {
+          end_field();
+          record_has_content = true;
+          break;
+        }
         if (field_was_quoted) {
           return absl::InvalidArgumentError(
               absl::StrCat("line ", line, ": text after the closing quote of a field"));

@@ -1,5 +1,6 @@
 #include "client/cli/import_plan.h"
 
+#include <algorithm>
 #include <cerrno>
 #include <cmath>
 #include <cstdlib>
@@ -19,7 +20,10 @@ namespace {
 struct Columns {
   int trial = 0;
   int outcome = 1;
-  int note = 2;  // -1 when the file has none
+  int note = 2;    // -1 when the file has none
+  int score = -1;  // the export layout: outcome holds the kind, score and grade the value
+  int grade = -1;
+  bool export_layout() const { return score >= 0 && grade >= 0; }
 };
 
 bool SameOutcome(const v1::Outcome& a, const v1::Outcome& b) {
@@ -34,7 +38,17 @@ bool SameOutcome(const v1::Outcome& a, const v1::Outcome& b) {
   }
 }
 
-absl::StatusOr<v1::Outcome> ParseOutcomeField(absl::string_view text, const v1::Objective& objective) {
+// `text` with a decimal comma read as a point ("3,25" -> "3.25"), when it has one comma and no point.
+std::string WithDecimalPoint(absl::string_view text) {
+  std::string out(text);
+  if (std::count(out.begin(), out.end(), ',') == 1 && out.find('.') == std::string::npos) {
+    out[out.find(',')] = '.';
+  }
+  return out;
+}
+
+absl::StatusOr<v1::Outcome> ParseOutcomeField(absl::string_view text, const v1::Objective& objective,
+                                              bool decimal_comma) {
   const absl::string_view t = absl::StripAsciiWhitespace(text);
   v1::Outcome outcome;
   if (t.empty()) return absl::InvalidArgumentError("the outcome is empty");
@@ -52,7 +66,7 @@ absl::StatusOr<v1::Outcome> ParseOutcomeField(absl::string_view text, const v1::
     outcome.set_grade(*grade);
     return outcome;
   }
-  const std::string copy(t);
+  const std::string copy = decimal_comma ? WithDecimalPoint(t) : std::string(t);
   char* end = nullptr;
   errno = 0;
   const double value = std::strtod(copy.c_str(), &end);
@@ -84,8 +98,41 @@ std::string OutcomeSummary(const v1::Outcome& outcome) {
   }
 }
 
+namespace {
+
+// The outcome of an export row: `kind` is score, grade, infeasible or void; the value comes from the
+// score or grade field. nullopt for an empty kind (a trial without an outcome).
+absl::StatusOr<std::optional<v1::Outcome>> ExportOutcome(absl::string_view kind, absl::string_view score,
+                                                         absl::string_view grade, const v1::Objective& objective,
+                                                         bool decimal_comma) {
+  const absl::string_view k = absl::StripAsciiWhitespace(kind);
+  if (k.empty()) return std::optional<v1::Outcome>();
+  absl::string_view value;
+  if (absl::EqualsIgnoreCase(k, "score")) {
+    if (objective.has_grade_scale()) {
+      return absl::InvalidArgumentError("outcome: a score on a campaign whose outcomes are grades");
+    }
+    value = score;
+  } else if (absl::EqualsIgnoreCase(k, "grade")) {
+    if (!objective.has_grade_scale()) {
+      return absl::InvalidArgumentError("outcome: a grade on a campaign whose outcomes are scores");
+    }
+    value = grade;
+  } else if (absl::EqualsIgnoreCase(k, "infeasible") || absl::EqualsIgnoreCase(k, "void")) {
+    value = k;
+  } else {
+    return absl::InvalidArgumentError(
+        absl::StrCat("outcome: '", k, "' is not an outcome kind (score, grade, infeasible, void, or empty)"));
+  }
+  absl::StatusOr<v1::Outcome> outcome = ParseOutcomeField(value, objective, decimal_comma);
+  if (!outcome.ok()) return outcome.status();
+  return std::optional<v1::Outcome>(*std::move(outcome));
+}
+
+}  // namespace
+
 ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::CampaignDesign& design,
-                      const std::vector<v1::Trial>& trials) {
+                      const std::vector<v1::Trial>& trials, bool decimal_comma) {
   ImportPlan plan;
   absl::flat_hash_map<int64_t, const v1::Trial*> by_number;
   for (const v1::Trial& t : trials) by_number[t.number()] = &t;
@@ -97,12 +144,14 @@ ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::CampaignD
     const CsvRecord& head = records[0];
     if (!head.fields.empty() && !absl::SimpleAtoi(absl::StripAsciiWhitespace(head.fields[0]), &ignored)) {
       // A header row: find the columns by name.
-      columns = Columns{-1, -1, -1};
+      columns = Columns{-1, -1, -1, -1, -1};
       for (size_t i = 0; i < head.fields.size(); ++i) {
         const std::string name = absl::AsciiStrToLower(absl::StripAsciiWhitespace(head.fields[i]));
         if (name == "trial") columns.trial = static_cast<int>(i);
         if (name == "outcome") columns.outcome = static_cast<int>(i);
         if (name == "note") columns.note = static_cast<int>(i);
+        if (name == "score") columns.score = static_cast<int>(i);
+        if (name == "grade") columns.grade = static_cast<int>(i);
       }
       first = 1;
       if (columns.trial < 0 || columns.outcome < 0) {
@@ -139,7 +188,22 @@ ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::CampaignD
       bad(absl::StrCat("trial ", number, ": no such trial in this campaign"));
       continue;
     }
-    absl::StatusOr<v1::Outcome> outcome = ParseOutcomeField(*outcome_text, design.objective());
+    absl::StatusOr<v1::Outcome> outcome;
+    if (columns.export_layout()) {
+      absl::StatusOr<std::optional<v1::Outcome>> exported =
+          ExportOutcome(*outcome_text, field(columns.score).value_or(""), field(columns.grade).value_or(""),
+                        design.objective(), decimal_comma);
+      if (!exported.ok()) {
+        outcome = exported.status();
+      } else if (!exported->has_value()) {
+        ++plan.without_outcome;
+        continue;
+      } else {
+        outcome = **exported;
+      }
+    } else {
+      outcome = ParseOutcomeField(*outcome_text, design.objective(), decimal_comma);
+    }
     if (!outcome.ok()) {
       bad(absl::StrCat("trial ", number, ": ", outcome.status().message()));
       continue;

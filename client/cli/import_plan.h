@@ -29,14 +29,22 @@ struct ImportPlan {
   std::vector<ImportRow> to_report;       // new outcomes, in file order
   std::vector<ImportRow> already_stored;  // the same outcome is stored already (nothing to do)
   std::vector<BadRow> bad;                // in file order
+  int without_outcome = 0;                // export rows of trials that have no outcome (skipped)
 };
 
-// Checks `records` (an optional header row naming the columns trial, outcome and note in any order
-// and case; without one the columns are trial, outcome[, note]) against the campaign's design and its
-// trials. An outcome is a number (a score, on a scored campaign), a label of the grade scale (any
-// case; a typo gets the closest label suggested), `infeasible` or `void`.
+// Checks `records` against the campaign's design and its trials. Two layouts are read:
+// - the short one: an optional header row naming the columns trial, outcome and note in any order and
+//   case (without one the columns are trial, outcome[, note]); an outcome is a number (a score, on a
+//   scored campaign), a label of the grade scale (any case; a typo gets the closest label suggested),
+//   `infeasible` or `void`;
+// - the records of `ogive campaign export --csv` and `ogive campaign trials --csv` (a header with
+//   trial, outcome, score and grade columns, among others): outcome is the kind (score, grade,
+//   infeasible, void, or empty for a trial without one, which is skipped), the value is in the score
+//   or grade column. An export imported into its own campaign is therefore found stored already.
+// With `decimal_comma` (the file separates fields with ';' or tabs, as spreadsheet programs do where
+// a comma is the decimal mark), a score may be written "3,25".
 ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::CampaignDesign& design,
-                      const std::vector<v1::Trial>& trials);
+                      const std::vector<v1::Trial>& trials, bool decimal_comma = false);
 
 // The outcome as a short text for messages: "score 3.25", "grade good", "infeasible", "void".
 std::string OutcomeSummary(const v1::Outcome& outcome);

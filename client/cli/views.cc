@@ -142,7 +142,7 @@ std::string CampaignSummary(const v1::CampaignView& view) {
   const v1::CampaignDesign& design = view.design();
   const v1::StatusSummary& s = view.status();
   std::string out;
-  absl::StrAppend(&out, "campaign         ", view.name(), "\n");
+  absl::StrAppend(&out, "campaign      ", view.name(), "\n");
   absl::StrAppend(&out, "objective     ", ObjectiveText(design.objective()), "\n");
   absl::StrAppend(&out, "phase         ", PhaseWithReason(s), s.phase_message().empty() ? "" : ": ",
                   s.phase_message(), "\n");
@@ -235,36 +235,6 @@ std::string TrialsTable(const v1::CampaignDesign& design, const std::vector<v1::
     table.AddRow(std::move(row));
   }
   return table.Render();
-}
-
-std::string TrialsCsv(const v1::CampaignDesign& design, const std::vector<v1::Trial>& trials) {
-  std::vector<std::string> header = {"number", "state", "generation", "worker",      "outcome",
-                                     "score",  "grade", "note",       "reported_by", "late",
-                                     "use",    "consumed_by"};
-  for (const v1::Parameter& p : design.parameters()) header.push_back(p.name());
-  std::string out = CsvRow(header);
-  for (const v1::Trial& t : trials) {
-    const v1::Outcome& o = t.outcome();
-    std::vector<std::string> row = {
-        absl::StrCat(t.number()),
-        std::string(TrialStateName(t.state())),
-        absl::StrCat(t.generation()),
-        t.worker(),
-        std::string(OutcomeKindName(o)),
-        o.has_score() ? FormatExact(o.score()) : "",
-        o.has_grade() ? o.grade() : "",
-        o.note(),
-        t.reported_by(),
-        t.late() ? "true" : "false",
-        std::string(OutcomeUseName(t.use())),
-        t.use() == v1::OUTCOME_USE_CONSUMED ? absl::StrCat(t.consumed_by()) : ""};
-    for (const v1::Parameter& p : design.parameters()) {
-      auto it = t.candidate().values().find(p.name());
-      row.push_back(it == t.candidate().values().end() ? "" : ValueData(it->second));
-    }
-    out += CsvRow(row);
-  }
-  return out;
 }
 
 std::string LeasedTrialText(const v1::CampaignDesign& design, const v1::Trial& trial,

@@ -42,11 +42,6 @@ std::string WatchScreen(const v1::CampaignView& view, absl::TimeZone zone);
 // Trials as an aligned table: number, state, generation, worker, outcome, late, use and one column
 // per parameter of `design`.
 std::string TrialsTable(const v1::CampaignDesign& design, const std::vector<v1::Trial>& trials);
-
-// Trials as CSV with a header row: number, state, generation, worker, outcome (its kind), score,
-// grade, note, late, use, consumed_by, then one column per parameter (named after it).
-std::string TrialsCsv(const v1::CampaignDesign& design, const std::vector<v1::Trial>& trials);
-
 // A trial just leased, for `ogive ask`: its number and deadline, then "name = value unit" lines.
 std::string LeasedTrialText(const v1::CampaignDesign& design, const v1::Trial& trial,
                             absl::TimeZone zone);

@@ -15,6 +15,7 @@
 #include <cstdlib>
 #include <cstring>
 #include <memory>
+#include <optional>
 #include <set>
 
 #include "absl/strings/match.h"
@@ -26,6 +27,7 @@
 #include "client/cli/candidate_env.h"
 #include "client/cli/format.h"
 #include "client/cli/outcome_line.h"
+#include "client/error_reason.h"
 
 extern char** environ;
 
@@ -436,28 +438,26 @@ void WorkLoop::HandleAskRefusal(const absl::Status& status) {
     retry_at_ = absl::Now() + options_.retry_interval;
     return;
   }
-  if (status.code() != absl::StatusCode::kFailedPrecondition) {
+  // The reason decides, never the wording: done ends the loop; paused, a trial budget taken up by
+  // outstanding trials, or a rate limit mean asking again later; anything else is fatal.
+  const std::optional<client::ErrorReason> why = client::ErrorReasonOf(status);
+  const std::string reason = why.has_value() ? why->reason : "";
+  if (reason != "CAMPAIGN_DONE" && reason != "CAMPAIGN_PAUSED" && reason != "BUDGET_COMMITTED" &&
+      reason != "RATE_LIMITED") {
     Log(absl::StrCat("ogive work: asking for trials failed: ", ErrorText(status)));
     stop_ = Stop::kFatal;
     exit_code_ = 1;
     return;
   }
-  // The phase decides, not the wording: done ends the loop; paused (or a trial budget taken up by
-  // outstanding trials) means asking again later.
-  v1::CampaignPhase phase = v1::CAMPAIGN_PHASE_UNSPECIFIED;
-  std::string done_text;
-  if (absl::StatusOr<v1::CampaignView> view = client_.GetCampaign(options_.campaign); view.ok()) {
-    phase = view->status().phase();
-    done_text = PhaseWithReason(view->status());
-    if (!view->status().phase_message().empty()) {
-      absl::StrAppend(&done_text, ": ", view->status().phase_message());
-    }
-  } else if (absl::StrContains(status.message(), "done")) {
-    phase = v1::CAMPAIGN_PHASE_DONE;
-    done_text = std::string(status.message());
-  }
-  if (phase == v1::CAMPAIGN_PHASE_DONE) {
+  if (reason == "CAMPAIGN_DONE") {
     stop_ = Stop::kDone;
+    // For the log: the phase as the campaign's view shows it, else the reason's metadata.
+    std::string done_text = absl::StrCat("done (", why->metadata.count("done_reason") > 0
+                                                       ? why->metadata.at("done_reason") : "", ")");
+    if (absl::StatusOr<v1::CampaignView> view = client_.GetCampaign(options_.campaign); view.ok()) {
+      done_text = PhaseWithReason(view->status());
+      if (!view->status().phase_message().empty()) absl::StrAppend(&done_text, ": ", view->status().phase_message());
+    }
     stop_message_ = absl::StrCat("campaign ", options_.campaign, " is ", done_text, "; stopping");
     if (!running_.empty()) {
       Log(absl::StrCat("ogive work: campaign ", options_.campaign, " is done; waiting for ",
@@ -467,13 +467,15 @@ void WorkLoop::HandleAskRefusal(const absl::Status& status) {
     return;
   }
   const std::string message =
-      phase == v1::CAMPAIGN_PHASE_PAUSED
+      reason == "CAMPAIGN_PAUSED"
           ? absl::StrCat("campaign ", options_.campaign, " is paused; asking again every ",
                          absl::FormatDuration(options_.retry_interval), " until it is resumed")
           : absl::StrCat("waiting: ", status.message());
   if (message != waiting_message_) Log(absl::StrCat("ogive work: ", message));
   waiting_message_ = message;
-  retry_at_ = absl::Now() + options_.retry_interval;
+  absl::Duration wait = options_.retry_interval;
+  if (why->retry_delay.has_value()) wait = std::max(wait, *why->retry_delay);
+  retry_at_ = absl::Now() + wait;
 }
 
 double WorkLoop::RenewIntervalSeconds(const v1::Trial& trial) const {

@@ -8,6 +8,7 @@
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "server/base/check.h"
+#include "server/base/reason.h"
 #include "server/campaign/termination.h"
 
 namespace ogive::campaign {
@@ -164,8 +165,10 @@ class Campaign::Planner {
     result.trial = report.trial;
     const Trial* existing = Get(report.trial);
     if (existing == nullptr) {
-      result.status = absl::NotFoundError(absl::StrCat("trial ", report.trial, ": no such trial in this campaign (trials are 1..",
-                                                       engine_.next_trial - 1, ")"));
+      result.status = WithReason(
+          absl::NotFoundError(absl::StrCat("trial ", report.trial, ": no such trial in this campaign (trials are 1..",
+                                           engine_.next_trial - 1, ")")),
+          {std::string(reason::kTrialNotFound), {{"trial", absl::StrCat(report.trial)}}, std::nullopt});
       return result;
     }
     if (absl::Status s = search::CheckOutcome(report.outcome, campaign_.order_); !s.ok()) {
@@ -178,9 +181,11 @@ class Campaign::Planner {
         result.late = existing->late;
         return result;
       }
-      result.status = absl::AlreadyExistsError(absl::StrCat("trial ", report.trial, ": already reported as ",
-                                                            Describe(*existing->outcome), "; a different outcome (",
-                                                            Describe(report.outcome), ") is refused"));
+      result.status = WithReason(
+          absl::AlreadyExistsError(absl::StrCat("trial ", report.trial, ": already reported as ",
+                                                Describe(*existing->outcome), "; a different outcome (",
+                                                Describe(report.outcome), ") is refused")),
+          {std::string(reason::kOutcomeConflict), {{"trial", absl::StrCat(report.trial)}}, std::nullopt});
       return result;
     }
     Trial& t = Mutable(report.trial);
@@ -484,20 +489,23 @@ absl::StatusOr<AskPlan> Campaign::PlanAsk(int count, const std::string& worker, 
         absl::StrCat("lease_seconds: must be positive, got ", absl::ToDoubleSeconds(lease_length)));
   }
   if (engine_.phase == Phase::kPaused) {
-    return absl::FailedPreconditionError("campaign is paused; resume it to get candidates");
+    return WithReason(absl::FailedPreconditionError("campaign is paused; resume it to get candidates"),
+                      {std::string(reason::kCampaignPaused), {}, std::nullopt});
   }
-  if (engine_.phase == Phase::kDone) {
-    return absl::FailedPreconditionError(absl::StrCat("campaign is done (", DoneReasonName(engine_.reason), "): ",
-                                                      engine_.phase_message));
-  }
+  if (engine_.phase == Phase::kDone) return DoneRefusal("");
   Planner planner(*this, now);
   planner.Sweep();
   if (options_.trial_budget > 0) {
     const int64_t room = options_.trial_budget - engine_.informative - planner.outstanding();
     if (room <= 0) {
-      return absl::FailedPreconditionError(absl::StrCat(
-          "the trial budget of ", options_.trial_budget, " is taken up by ", engine_.informative, " outcomes and ",
-          planner.outstanding(), " outstanding trials; ask again when they report or lapse"));
+      return WithReason(
+          absl::FailedPreconditionError(absl::StrCat(
+              "the trial budget of ", options_.trial_budget, " is taken up by ", engine_.informative,
+              " outcomes and ", planner.outstanding(), " outstanding trials; ask again when they report or lapse")),
+          {std::string(reason::kBudgetCommitted),
+           {{"trial_budget", absl::StrCat(options_.trial_budget)},
+            {"outstanding", absl::StrCat(planner.outstanding())}},
+           std::nullopt});
     }
     count = static_cast<int>(std::min<int64_t>(count, room));
   }
@@ -530,17 +538,30 @@ absl::StatusOr<Change> Campaign::PlanRenew(absl::Span<const int64_t> trials, con
   planner.Sweep();
   for (int64_t number : trials) {
     const Trial* t = planner.Get(number);
-    if (t == nullptr) return absl::NotFoundError(absl::StrCat("trial ", number, ": no such trial in this campaign"));
+    if (t == nullptr) {
+      return WithReason(absl::NotFoundError(absl::StrCat("trial ", number, ": no such trial in this campaign")),
+                        {std::string(reason::kTrialNotFound), {{"trial", absl::StrCat(number)}}, std::nullopt});
+    }
     if (t->outcome.has_value()) {
       return absl::FailedPreconditionError(absl::StrCat("trial ", number, ": already reported; nothing to renew"));
     }
     if (!t->worker.empty() && t->worker != worker) {
-      return absl::FailedPreconditionError(
-          absl::StrCat("trial ", number, ": leased to worker '", t->worker, "', not '", worker, "'"));
+      return WithReason(absl::FailedPreconditionError(absl::StrCat("trial ", number, ": leased to worker '",
+                                                                   t->worker, "', not '", worker, "'")),
+                        {std::string(reason::kLeaseHeldByOther), {{"trial", absl::StrCat(number)}}, std::nullopt});
     }
   }
   for (int64_t number : trials) planner.Lease(number, worker, now + lease_length);
   return planner.Finish();
+}
+
+absl::Status Campaign::DoneRefusal(absl::string_view then) const {
+  return WithReason(
+      absl::FailedPreconditionError(absl::StrCat("campaign is done (", DoneReasonName(engine_.reason), ")",
+                                                 engine_.phase_message.empty() ? "" : ": ", engine_.phase_message,
+                                                 then)),
+      {std::string(reason::kCampaignDone), {{"done_reason", std::string(DoneReasonName(engine_.reason))}},
+       std::nullopt});
 }
 
 Change Campaign::PlanSweep(absl::Time now) const {
@@ -554,15 +575,14 @@ absl::StatusOr<Change> Campaign::PlanSetPhase(PhaseCommand command, absl::Time n
   switch (command) {
     case PhaseCommand::kPause:
       if (engine_.phase == Phase::kDone) {
-        return absl::FailedPreconditionError("campaign is done; a done campaign cannot be paused");
+        return DoneRefusal("; a done campaign cannot be paused");
       }
       if (engine_.phase == Phase::kPaused) return planner.Finish();
       planner.SetPhase(Phase::kPaused, DoneReason::kNone, "paused by request");
       break;
     case PhaseCommand::kResume:
       if (engine_.phase == Phase::kDone) {
-        return absl::FailedPreconditionError(absl::StrCat("campaign is done (", DoneReasonName(engine_.reason),
-                                                          "); a done campaign cannot be resumed"));
+        return DoneRefusal("; a done campaign cannot be resumed");
       }
       if (engine_.phase == Phase::kOpen) return planner.Finish();
       planner.SetPhase(Phase::kOpen, DoneReason::kNone, "resumed by request");

@@ -23,7 +23,9 @@
 #include <utility>
 #include <vector>
 
+#include "absl/status/status.h"
 #include "absl/status/statusor.h"
+#include "absl/strings/string_view.h"
 #include "absl/time/time.h"
 #include "absl/types/span.h"
 #include "server/search/random_stream.h"
@@ -171,6 +173,8 @@ class Campaign {
   class Planner;
   Campaign(search::Space space, search::OutcomeOrder order, search::DistributionOptions distribution_options,
         CampaignOptions options);
+  // FAILED_PRECONDITION with reason CAMPAIGN_DONE: "campaign is done (<reason>): <message><then>".
+  absl::Status DoneRefusal(absl::string_view then) const;
   void Count(const Trial& t, int sign);
   void Index(const Trial& t);
   void Unindex(const Trial& t);

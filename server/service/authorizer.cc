@@ -7,6 +7,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
+#include "server/base/reason.h"
 #include "server/service/bearer_header.h"
 #include "server/service/log.h"
 #include "server/service/token_secret.h"
@@ -145,9 +146,13 @@ absl::StatusOr<Caller> Authorizer::Check(absl::Span<const absl::string_view> aut
     return absl::UnauthenticatedError(absl::StrCat("authorization: the token '", stored->label, "' was revoked"));
   }
   if (!limiter_.Allow(stored->label, now)) {
-    return absl::ResourceExhaustedError(absl::StrCat(
-        "token '", stored->label, "' sent more than ", limiter_.rate_per_second(),
-        " requests per second (ogived --max-requests-per-second-per-token); slow down and retry"));
+    // One request's worth of refill is the shortest wait after which a retry can pass.
+    return WithReason(absl::ResourceExhaustedError(absl::StrCat(
+                          "token '", stored->label, "' sent more than ", limiter_.rate_per_second(),
+                          " requests per second (ogived --max-requests-per-second-per-token); slow down and retry")),
+                      {std::string(reason::kRateLimited),
+                       {{"token", stored->label}},
+                       absl::Seconds(1.0 / limiter_.rate_per_second())});
   }
   std::optional<Role> role = ParseRole(stored->role);
   if (!role.has_value()) {

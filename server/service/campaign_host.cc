@@ -2,9 +2,11 @@
 
 #include <algorithm>
 #include <cmath>
+#include <optional>
 #include <utility>
 
 #include "absl/strings/str_cat.h"
+#include "server/base/reason.h"
 #include "server/codec/design_codec.h"
 #include "server/codec/marginal_codec.h"
 #include "server/codec/state_codec.h"
@@ -195,6 +197,7 @@ void CampaignHost::Tell(const std::vector<campaign::Report>& reports, const std:
       out->set_trial(r.trial);
       out->set_code(static_cast<int>(r.status.code()));
       out->set_message(std::string(r.status.message()));
+      if (std::optional<Reason> why = ReasonOf(r.status); why.has_value()) out->set_reason(why->reason);
       out->set_duplicate(r.duplicate);
       out->set_late(r.late);
       if (r.status.ok() && !r.duplicate) {

@@ -1,12 +1,16 @@
 #include "server/service/grpc_service.h"
 
 #include <memory>
+#include <optional>
 #include <string>
 #include <utility>
 #include <vector>
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/string_view.h"
+#include "google/rpc/error_details.pb.h"
+#include "google/rpc/status.pb.h"
+#include "server/base/reason.h"
 #include "server/service/handlers.h"
 #include "server/service/log.h"
 #include "server/service/validation.h"
@@ -55,7 +59,8 @@ class OgiveService::CallScope {
 
   bool admitted() const { return admitted_; }
   static grpc::Status Refusal() {
-    return grpc::Status(grpc::StatusCode::UNAVAILABLE, "ogived is stopping; retry the call");
+    return ToGrpc(WithReason(absl::UnavailableError("ogived is stopping; retry the call"),
+                             {std::string(reason::kDraining), {}, std::nullopt}));
   }
 
  private:
@@ -72,7 +77,28 @@ bool OgiveService::Drain(absl::Duration timeout) {
 
 grpc::Status ToGrpc(const absl::Status& status) {
   if (status.ok()) return grpc::Status::OK;
-  return grpc::Status(static_cast<grpc::StatusCode>(status.code()), std::string(status.message()));
+  std::string message(status.message());
+  std::optional<Reason> why = ReasonOf(status);
+  if (!why.has_value()) return grpc::Status(static_cast<grpc::StatusCode>(status.code()), std::move(message));
+  // The standard rich error model: a google.rpc.Status in the grpc-status-details-bin trailer, whose
+  // code and message repeat the call's, with an ErrorInfo and, for a reason that says when to come
+  // back, a RetryInfo.
+  google::rpc::Status details;
+  details.set_code(static_cast<int>(status.code()));
+  details.set_message(message);
+  google::rpc::ErrorInfo info;
+  info.set_reason(why->reason);
+  info.set_domain(std::string(kReasonDomain));
+  for (const auto& [key, value] : why->metadata) (*info.mutable_metadata())[key] = value;
+  details.add_details()->PackFrom(info);
+  if (why->retry_delay.has_value()) {
+    google::rpc::RetryInfo retry;
+    const int64_t nanos = absl::ToInt64Nanoseconds(*why->retry_delay);
+    retry.mutable_retry_delay()->set_seconds(nanos / 1000000000);
+    retry.mutable_retry_delay()->set_nanos(static_cast<int32_t>(nanos % 1000000000));
+    details.add_details()->PackFrom(retry);
+  }
+  return grpc::Status(static_cast<grpc::StatusCode>(status.code()), std::move(message), details.SerializeAsString());
 }
 
 absl::StatusOr<Caller> OgiveService::Authorize(const grpc::ServerContextBase& context, Method method,

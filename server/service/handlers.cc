@@ -12,6 +12,7 @@
 #include "absl/synchronization/notification.h"
 #include "server/codec/design_codec.h"
 #include "server/codec/campaign_codec.h"
+#include "server/service/page_token.h"
 #include "server/service/validation.h"
 
 namespace ogive::service {
@@ -36,6 +37,17 @@ absl::StatusOr<Response> AwaitReply(absl::FunctionRef<void(Reply<Response>)> sta
   return result;
 }
 
+// The number a numbered listing's token resumes after (0 for the first page).
+absl::StatusOr<int64_t> PagePosition(const PageScope& scope, absl::string_view token) {
+  absl::StatusOr<std::string> position = ReadPageToken(scope, token);
+  if (!position.ok()) return position.status();
+  int64_t after = 0;
+  if (!position->empty() && (!absl::SimpleAtoi(*position, &after) || after < 0)) {
+    return absl::InvalidArgumentError("page_token: not a token this server issued; pass next_page_token as is");
+  }
+  return after;
+}
+
 }  // namespace
 
 absl::StatusOr<v1::CampaignView> CreateCampaign(Registry& registry, const v1::CreateCampaignRequest& request) {
@@ -52,11 +64,23 @@ absl::StatusOr<v1::CampaignView> GetCampaign(Registry& registry, const v1::GetCa
   return (*host)->View(false);
 }
 
-absl::StatusOr<v1::ListCampaignsResponse> ListCampaigns(Registry& registry, const v1::ListCampaignsRequest&,
-                                                    const std::vector<std::string>& scope) {
+absl::StatusOr<v1::ListCampaignsResponse> ListCampaigns(Registry& registry, const v1::ListCampaignsRequest& request,
+                                                        const std::vector<std::string>& scope) {
+  if (absl::Status s = ValidateListCampaigns(request, registry.limits()); !s.ok()) return s;
+  const PageScope page_scope{'c', "", ""};
+  absl::StatusOr<std::string> after = ReadPageToken(page_scope, request.page_token());
+  if (!after.ok()) return after.status();
+  const int page_size = request.page_size() == 0 ? 100 : request.page_size();
   v1::ListCampaignsResponse response;
-  for (const auto& host : registry.All()) {
+  std::vector<std::shared_ptr<CampaignHost>> hosts = registry.All();
+  std::sort(hosts.begin(), hosts.end(), [](const auto& a, const auto& b) { return a->name() < b->name(); });
+  for (const auto& host : hosts) {
+    if (!after->empty() && host->name() <= *after) continue;
     if (!scope.empty() && std::find(scope.begin(), scope.end(), host->name()) == scope.end()) continue;
+    if (response.campaigns_size() == page_size) {
+      response.set_next_page_token(MakePageToken(page_scope, response.campaigns(page_size - 1).name()));
+      break;
+    }
     *response.add_campaigns() = host->View(true);
   }
   return response;
@@ -116,11 +140,9 @@ absl::StatusOr<v1::RenewResponse> Renew(Registry& registry, const v1::RenewReque
 
 absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::ListTrialsRequest& request) {
   if (absl::Status s = ValidateListTrials(request, registry.limits()); !s.ok()) return s;
-  int64_t after = 0;
-  if (!request.page_token().empty() &&
-      (request.page_token()[0] != 't' || !absl::SimpleAtoi(request.page_token().substr(1), &after) || after < 0)) {
-    return absl::InvalidArgumentError("page_token: not a token this server issued; pass next_page_token as is");
-  }
+  const PageScope page_scope{'t', request.campaign(), absl::StrCat(static_cast<int>(request.state()))};
+  absl::StatusOr<int64_t> after = PagePosition(page_scope, request.page_token());
+  if (!after.ok()) return after.status();
   std::optional<campaign::TrialState> state;
   if (request.state() != v1::TRIAL_STATE_UNSPECIFIED) {
     absl::StatusOr<campaign::TrialState> s = codec::TrialStateFromProto(request.state());
@@ -131,30 +153,28 @@ absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::
   if (!host.ok()) return host.status();
   int64_t next_after = 0;
   v1::ListTrialsResponse response;
-  for (v1::Trial& t : (*host)->Trials(state, after, request.page_size() == 0 ? 100 : request.page_size(), &next_after)) {
+  for (v1::Trial& t : (*host)->Trials(state, *after, request.page_size() == 0 ? 100 : request.page_size(), &next_after)) {
     *response.add_trials() = std::move(t);
   }
-  if (next_after > 0) response.set_next_page_token(absl::StrCat("t", next_after));
+  if (next_after > 0) response.set_next_page_token(MakePageToken(page_scope, absl::StrCat(next_after)));
   return response;
 }
 
 absl::StatusOr<v1::ListGenerationsResponse> ListGenerations(Registry& registry,
                                                             const v1::ListGenerationsRequest& request) {
   if (absl::Status s = ValidateListGenerations(request, registry.limits()); !s.ok()) return s;
-  int64_t after = 0;
-  if (!request.page_token().empty() &&
-      (request.page_token()[0] != 'g' || !absl::SimpleAtoi(request.page_token().substr(1), &after) || after < 0)) {
-    return absl::InvalidArgumentError("page_token: not a token this server issued; pass next_page_token as is");
-  }
+  const PageScope page_scope{'g', request.campaign(), ""};
+  absl::StatusOr<int64_t> after = PagePosition(page_scope, request.page_token());
+  if (!after.ok()) return after.status();
   absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return host.status();
   int64_t next_after = 0;
   absl::StatusOr<std::vector<v1::GenerationView>> views =
-      (*host)->Generations(after, request.page_size() == 0 ? 100 : request.page_size(), &next_after);
+      (*host)->Generations(*after, request.page_size() == 0 ? 100 : request.page_size(), &next_after);
   if (!views.ok()) return views.status();
   v1::ListGenerationsResponse response;
   for (v1::GenerationView& g : *views) *response.add_generations() = std::move(g);
-  if (next_after > 0) response.set_next_page_token(absl::StrCat("g", next_after));
+  if (next_after > 0) response.set_next_page_token(MakePageToken(page_scope, absl::StrCat(next_after)));
   return response;
 }
 

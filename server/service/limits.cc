@@ -1,7 +1,12 @@
 #include "server/service/limits.h"
 
+#include <cstdint>
+#include <limits>
+
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
+#include "absl/time/time.h"
+#include "server/base/duration_text.h"
 
 namespace ogive::service {
 
@@ -21,8 +26,8 @@ absl::Span<const LimitFlag> LimitFlags() {
       {"--max-description-bytes", "max_description_bytes", "a parameter's description",
        &L::max_description_bytes, 1},
       {"--max-campaigns", "max_campaigns", "campaigns per server", &L::max_campaigns, 1},
-      {"--max-page-size", "max_page_size", "trials or generations per list page", &L::max_page_size, 100},
-      {"--max-lease-seconds", "max_lease_seconds", "longest lease", &L::max_lease_seconds, 1},
+      {"--max-page-size", "max_page_size", "campaigns, trials or generations per list page", &L::max_page_size, 100},
+      {"--max-lease", "max_lease_seconds", "longest lease", &L::max_lease_seconds, 1, /*seconds=*/true},
   };
   return kFlags;
 }
@@ -40,6 +45,18 @@ absl::Status SetLimitFromFlag(ServiceLimits& limits, absl::string_view flag, abs
   for (const LimitFlag& f : LimitFlags()) {
     if (f.flag != flag) continue;
     int parsed = 0;
+    if (f.seconds) {
+      absl::StatusOr<absl::Duration> duration = ParseDurationText(flag, value);
+      if (!duration.ok()) return duration.status();
+      const int64_t whole = absl::ToInt64Seconds(*duration);
+      if (whole < f.min || whole > std::numeric_limits<int>::max()) {
+        return absl::InvalidArgumentError(absl::StrCat(flag, ": must be at least ", f.min, "s and at most ",
+                                                       std::numeric_limits<int>::max(), "s (", f.help, "), got '",
+                                                       value, "'"));
+      }
+      limits.*f.member = static_cast<int>(whole);
+      return absl::OkStatus();
+    }
     if (!absl::SimpleAtoi(value, &parsed) || parsed < f.min) {
       return absl::InvalidArgumentError(
           absl::StrCat(flag, ": must be a whole number >= ", f.min, " (", f.help, "), got '", value, "'"));
@@ -54,9 +71,9 @@ std::string LimitFlagsHelp() {
   const ServiceLimits defaults;
   std::string out;
   for (const LimitFlag& f : LimitFlags()) {
-    std::string left = absl::StrCat("  ", f.flag, " N");
+    std::string left = absl::StrCat("  ", f.flag, f.seconds ? " DURATION" : " N");
     if (left.size() < 30) left.resize(30, ' ');
-    absl::StrAppend(&out, left, f.help, " (default ", defaults.*f.member, ")\n");
+    absl::StrAppend(&out, left, f.help, " (default ", defaults.*f.member, f.seconds ? "s" : "", ")\n");
   }
   return out;
 }

@@ -42,13 +42,15 @@ struct LimitFlag {
   absl::string_view help;   // "trials per Ask"
   int ServiceLimits::*member;
   int min;                  // smallest value that leaves the server usable
+  bool seconds = false;     // a duration in whole seconds: the flag takes 90s, 15m, 2h, 2d or a number
 };
 
 // Every limit, in --help order.
 absl::Span<const LimitFlag> LimitFlags();
 
 // Sets the limit whose flag is `flag` from `value`. NOT_FOUND when no limit has that flag;
-// INVALID_ARGUMENT naming the flag when `value` is not a whole number >= the limit's minimum.
+// INVALID_ARGUMENT naming the flag when `value` is not a whole number >= the limit's minimum (or, for
+// a duration, not a duration of at least that many seconds).
 absl::Status SetLimitFromFlag(ServiceLimits& limits, absl::string_view flag, absl::string_view value);
 
 // The --help lines of every limit flag, each with its default:

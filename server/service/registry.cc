@@ -3,6 +3,7 @@
 #include <utility>
 
 #include "absl/strings/str_cat.h"
+#include "server/base/reason.h"
 #include "server/codec/design_codec.h"
 #include "server/codec/campaign_codec.h"
 #include "server/service/validation.h"
@@ -74,8 +75,9 @@ absl::StatusOr<std::shared_ptr<CampaignHost>> Registry::Create(const v1::Campaig
       return absl::AlreadyExistsError(absl::StrCat("design.name: a campaign named '", design.name(), "' already exists"));
     }
     if (static_cast<int>(campaigns_.size()) >= limits_.max_campaigns) {
-      return absl::ResourceExhaustedError(
-          absl::StrCat("this server holds its limit of ", limits_.max_campaigns, " campaigns"));
+      return WithReason(absl::ResourceExhaustedError(absl::StrCat("this server holds its limit of ",
+                                                                  limits_.max_campaigns, " campaigns")),
+                        {std::string(reason::kLimitExceeded), {{"limit", "max_campaigns"}}, std::nullopt});
     }
   }
   absl::StatusOr<int64_t> id = store_->CreateCampaign(design.name(), design,
@@ -91,7 +93,10 @@ absl::StatusOr<std::shared_ptr<CampaignHost>> Registry::Create(const v1::Campaig
 absl::StatusOr<std::shared_ptr<CampaignHost>> Registry::Find(const std::string& name) const {
   absl::ReaderMutexLock lock(&mu_);
   auto it = campaigns_.find(name);
-  if (it == campaigns_.end()) return absl::NotFoundError(absl::StrCat("campaign: no campaign named '", name, "'"));
+  if (it == campaigns_.end()) {
+    return WithReason(absl::NotFoundError(absl::StrCat("campaign: no campaign named '", name, "'")),
+                      {std::string(reason::kCampaignNotFound), {{"campaign", name}}, std::nullopt});
+  }
   return it->second;
 }
 

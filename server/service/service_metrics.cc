@@ -18,8 +18,8 @@ const std::vector<double> kLatencyBounds = {0.0001, 0.00025, 0.0005, 0.001, 0.00
                                             0.05,   0.1,     0.25,   0.5,   1,      2.5,   5,     10};
 
 // The methods of ogive.v1.Ogive, so that each shows a zero series before its first call.
-constexpr const char* kMethods[] = {"CreateCampaign", "GetCampaign", "ListCampaigns", "Ask",  "Tell",
-                                    "Renew",       "ListTrials", "SetPhase",  "Watch"};
+constexpr const char* kMethods[] = {"CreateCampaign", "GetCampaign", "ListCampaigns", "Ask",   "Tell",
+                                    "Renew",          "ListTrials",  "ListGenerations", "SetPhase", "Watch"};
 
 constexpr std::array<const char*, 4> kOutcomeKinds = {"score", "grade", "infeasible", "void"};
 static_assert(static_cast<int>(search::Outcome::Kind::kScore) == 0 &&

@@ -8,6 +8,8 @@
 #include "absl/strings/escaping.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
+#include "server/base/reason.h"
+#include "server/service/page_token.h"
 
 namespace ogive::service {
 namespace {
@@ -16,8 +18,6 @@ using absl::StrCat;
 
 // Integer parameters may have at most this many values (the search core's limit, server/search/space.cc).
 constexpr uint64_t kMaxIntegerLevels = uint64_t{1} << 31;
-// Longest page token this server issues ("t" and a trial number), with room to spare.
-constexpr size_t kMaxPageTokenBytes = 32;
 constexpr int kMaxPopulation = 100000;
 
 // Environment variables `ogive work` sets or reads itself, without the OGIVE_ prefix
@@ -26,7 +26,8 @@ constexpr const char* kReservedEnvNames[] = {"CAMPAIGN",  "TRIAL",  "CANDIDATE_F
                                              "TLS",    "TLS_CA", "TLS_CERT",       "TLS_KEY", "TLS_SERVER_NAME"};
 
 absl::Status Invalid(absl::string_view path, absl::string_view rule) {
-  return absl::InvalidArgumentError(StrCat(path, ": ", rule));
+  return WithReason(absl::InvalidArgumentError(StrCat(path, ": ", rule)),
+                    {std::string(reason::kInvalidField), {{"field", std::string(path)}}, std::nullopt});
 }
 
 // A value as messages show it: quoted, at most 64 bytes, control characters escaped.
@@ -39,8 +40,9 @@ std::string Shown(absl::string_view value) {
 absl::Status CheckCount(absl::string_view path, int64_t count, int64_t min, int64_t max, absl::string_view what) {
   if (count < min) return Invalid(path, StrCat("needs ", min, "..", max, " ", what, ", got ", count));
   if (count > max) {
-    return absl::ResourceExhaustedError(
-        StrCat(path, ": at most ", max, " ", what, " (this server's limit), got ", count));
+    return WithReason(
+        absl::ResourceExhaustedError(StrCat(path, ": at most ", max, " ", what, " (this server's limit), got ", count)),
+        {std::string(reason::kLimitExceeded), {{"field", std::string(path)}}, std::nullopt});
   }
   return absl::OkStatus();
 }
@@ -439,6 +441,17 @@ absl::Status ValidateListTrials(const v1::ListTrialsRequest& request, const Serv
                                      "TRIAL_STATE_LAPSED or TRIAL_STATE_VOIDED, got ",
                                      static_cast<int>(request.state())));
   }
+  if (request.page_size() < 0 || request.page_size() > limits.max_page_size) {
+    return Invalid("page_size",
+                   StrCat("must be 0 (100) or in 1..", limits.max_page_size, ", got ", request.page_size()));
+  }
+  if (request.page_token().size() > kMaxPageTokenBytes) {
+    return Invalid("page_token", "not a token this server issued; pass next_page_token as is");
+  }
+  return absl::OkStatus();
+}
+
+absl::Status ValidateListCampaigns(const v1::ListCampaignsRequest& request, const ServiceLimits& limits) {
   if (request.page_size() < 0 || request.page_size() > limits.max_page_size) {
     return Invalid("page_size",
                    StrCat("must be 0 (100) or in 1..", limits.max_page_size, ", got ", request.page_size()));

@@ -41,6 +41,7 @@ absl::Status ValidateAsk(const v1::AskRequest& request, const ServiceLimits& lim
 // NOT_FOUND, left to the campaign.
 absl::Status ValidateTell(const v1::TellRequest& request, const ServiceLimits& limits);
 absl::Status ValidateRenew(const v1::RenewRequest& request, const ServiceLimits& limits);
+absl::Status ValidateListCampaigns(const v1::ListCampaignsRequest& request, const ServiceLimits& limits);
 absl::Status ValidateListTrials(const v1::ListTrialsRequest& request, const ServiceLimits& limits);
 absl::Status ValidateListGenerations(const v1::ListGenerationsRequest& request, const ServiceLimits& limits);
 absl::Status ValidateSetPhase(const v1::SetPhaseRequest& request, const ServiceLimits& limits);

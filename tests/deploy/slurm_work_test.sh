@@ -92,7 +92,7 @@ trials_of() {
 import json, sys
 for t in json.load(sys.stdin):
     if t.get("worker") == sys.argv[1]:
-        print(t["state"], t.get("outcome", {}).get("note", "").replace(" ", "_") or "-")
+        print(t["state"], t.get("note", "").replace(" ", "_") or "-")
 ' "$1"
 }
 HOST=$(hostname -s 2>/dev/null || hostname)
@@ -103,7 +103,7 @@ env SLURM_ARRAY_JOB_ID=77 SLURM_ARRAY_TASK_ID=3 SLURM_JOB_ID=78 SLURM_CPUS_PER_T
   OGIVE="$OGIVE" OGIVE_TOKEN_FILE="$TMP/token" OGIVE_MAX_TRIALS=4 \
   timeout 60 bash "$SCRIPT" array -- "$TMP/quick-program" >"$TMP/task3.log" 2>&1 || rc=$?
 [[ $rc -eq 0 ]] || fail "task 3 exited $rc"
-reported=$(trials_of "slurm-77_3@$HOST" | grep -c "^TRIAL_STATE_REPORTED" || true)
+reported=$(trials_of "slurm-77_3@$HOST" | grep -c "^reported" || true)
 [[ "$reported" -eq 4 ]] || fail "task 3 reported $reported trials as slurm-77_3@$HOST: $(trials_of "slurm-77_3@$HOST")"
 
 step "task 4 gets SIGTERM (the time limit) while 2 programs run: exit 0, both trials void, programs gone"
@@ -128,7 +128,7 @@ grep -q "stopped by SIGTERM" "$TMP/task4.log" || fail "task 4 did not say why it
 states=$(trials_of "slurm-77_4@$HOST")
 [[ $(grep -c . <<<"$states") -eq 2 ]] || fail "task 4 trials: $states"
 while read -r state note; do
-  [[ "$state" == TRIAL_STATE_VOIDED ]] || fail "a running trial of task 4 is $state, not voided"
+  [[ "$state" == voided ]] || fail "a running trial of task 4 is $state, not voided"
   [[ "$note" == *SIGTERM* ]] || fail "a void report of task 4 has the note '$note'"
 done <<<"$states"
 while read -r _ trial _ pid _; do

@@ -355,7 +355,7 @@ int Run(const Flags& flags) {
   options.binary = flags.ogived;
   options.db = dir + "/ogive.db";
   options.log_path = dir + "/ogived.log";
-  options.extra_flags = {"--sweep-interval-seconds", "0.2"};
+  options.extra_flags = {"--sweep-interval", "0.2"};
   OgivedProcess server(options);
 
   // The watchdog: nothing outlives the time limit.

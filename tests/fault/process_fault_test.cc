@@ -169,7 +169,7 @@ class ProcessFaultTest : public ::testing::Test {
     options.binary = g_ogived;
     options.db = db;
     options.log_path = dir_ + "/ogived.log";
-    options.extra_flags = {"--sweep-interval-seconds", "0.2"};
+    options.extra_flags = {"--sweep-interval", "0.2"};
     options.extra_flags.insert(options.extra_flags.end(), extra.begin(), extra.end());
     options.uid = uid;
     options.gid = uid;

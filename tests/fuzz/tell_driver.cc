@@ -8,6 +8,7 @@
 #include "google/protobuf/util/message_differencer.h"
 #include "server/codec/design_codec.h"
 #include "server/service/handlers.h"
+#include "server/service/page_token.h"
 #include "tests/fuzz/candidate_check.h"
 #include "tests/fuzz/require.h"
 #include "tests/support/status_activity.h"
@@ -516,11 +517,31 @@ void TellDriver::ListTrials() {
   r.set_page_size(in_.Pick({0, 1, 2, 5, -1, 1001}));
   r.set_state(in_.Pick({v1::TRIAL_STATE_UNSPECIFIED, v1::TRIAL_STATE_LEASED, v1::TRIAL_STATE_REPORTED,
                         v1::TRIAL_STATE_LAPSED, v1::TRIAL_STATE_VOIDED, static_cast<v1::TrialState>(9)}));
-  const std::string tokens[] = {"", "", "t0", "t2", "t-1", "x7", "t99999999999999999999"};
-  r.set_page_token(in_.Pick(tokens));
-  int64_t after = 0;
-  const bool token_ok = r.page_token().empty() || (r.page_token()[0] == 't' &&
-                                                   absl::SimpleAtoi(r.page_token().substr(1), &after) && after >= 0);
+  // Tokens of this listing, and tokens of another campaign, another state filter or another
+  // listing, forged ones and a negative position: only the first kind is accepted.
+  const std::string filter = absl::StrCat(static_cast<int>(r.state()));
+  const service::PageScope scope{'t', kCampaign, filter};
+  struct TokenChoice {
+    std::string token;
+    int64_t after;
+    bool ok;
+  };
+  const TokenChoice tokens[] = {
+      {"", 0, true},
+      {"", 0, true},
+      {service::MakePageToken(scope, "0"), 0, true},
+      {service::MakePageToken(scope, "2"), 2, true},
+      {service::MakePageToken(scope, "-1"), 0, false},
+      {service::MakePageToken({'t', "other-campaign", filter}, "2"), 0, false},
+      {service::MakePageToken({'t', kCampaign, absl::StrCat(filter, "0")}, "2"), 0, false},
+      {service::MakePageToken({'g', kCampaign, ""}, "2"), 0, false},
+      {"t2", 0, false},
+      {"x7", 0, false},
+      {"t99999999999999999999", 0, false}};
+  const TokenChoice& token = in_.Pick(tokens);
+  r.set_page_token(token.token);
+  const int64_t after = token.after;
+  const bool token_ok = token.ok;
   const bool valid = r.page_size() >= 0 && r.page_size() <= registry_->limits().max_page_size && token_ok &&
                      v1::TrialState_IsValid(r.state());
   const auto what = [&r] { return absl::StrCat("list trials ", r.ShortDebugString()); };

@@ -90,7 +90,7 @@ class Ogived:
         self.log = open(os.path.join(self.workdir, "ogived.log"), "w")
         self.process = subprocess.Popen(
             [self.ogived, "--db", os.path.join(self.workdir, "test.db"), "--listen", self.target, "--no-auth",
-             "--sweep-interval-seconds", "0.2"], stdout=self.log, stderr=self.log)
+             "--sweep-interval", "0.2"], stdout=self.log, stderr=self.log)
         deadline = time.monotonic() + 20
         while time.monotonic() < deadline:
             if self.process.poll() is not None:
@@ -121,8 +121,42 @@ class Ogived:
         return result
 
     def trials(self, campaign):
-        """ListTrials through `ogive --json campaign trials`: protobuf JSON of every trial."""
-        return json.loads(self.run("--json", "campaign", "trials", campaign).stdout)
+        """Every trial through ListTrials itself, from a Python gRPC client (Debian's grpcio, stubs made
+        from our protos by Debian's protoc), as protobuf's JSON mapping (lowerCamelCase names, enums by
+        name, int64 as strings): a source independent of the `ogive` command whose output is checked."""
+        import grpc
+        from google.protobuf import json_format
+        service_pb2, service_pb2_grpc = grpc_stubs(self.workdir)
+        stub = service_pb2_grpc.OgiveStub(grpc.insecure_channel(self.target))
+        out, token = [], ""
+        while True:
+            page = stub.ListTrials(service_pb2.ListTrialsRequest(campaign=campaign, page_size=1000, page_token=token),
+                                   timeout=CALL_TIMEOUT_S)
+            out += [json_format.MessageToDict(t, including_default_value_fields=True) for t in page.trials]
+            token = page.next_page_token
+            if not token:
+                return out
+
+
+_STUBS = {}
+
+
+def grpc_stubs(workdir):
+    """service_pb2 and service_pb2_grpc, generated once per process from proto/ into `workdir`."""
+    if "service" not in _STUBS:
+        proto_dir = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..", "proto")
+        out = os.path.join(workdir, "gen")
+        os.makedirs(out, exist_ok=True)
+        protos = [os.path.join(proto_dir, "ogive", "v1", n) for n in ("campaign.proto", "service.proto")]
+        result = subprocess.run(["/usr/bin/protoc", "-I", proto_dir, "--python_out", out, "--grpc_python_out", out,
+                                 "--plugin=protoc-gen-grpc_python=/usr/bin/grpc_python_plugin"] + protos,
+                                capture_output=True, text=True, timeout=60)
+        check(result.returncode == 0, "protoc failed (packages protobuf-compiler, protobuf-compiler-grpc): %s" %
+              result.stderr.strip())
+        sys.path.insert(0, out)
+        from ogive.v1 import service_pb2, service_pb2_grpc  # noqa: generated at run time
+        _STUBS["service"] = (service_pb2, service_pb2_grpc)
+    return _STUBS["service"]
 
 
 def write(path, text, mode=0o644):

@@ -1,6 +1,6 @@
 #!/usr/bin/python3
 """`ogive campaign export` of a real campaign, read back with Python's csv and json modules and compared,
-trial by trial and field by field, with ListTrials (`ogive --json campaign trials`, protobuf JSON).
+trial by trial and field by field, with ListTrials (called from a Python gRPC client, protobuf JSON).
 
     /usr/bin/python3 export_test.py --ogived PATH --ogive PATH
 

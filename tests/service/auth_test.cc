@@ -18,6 +18,7 @@
 #include <cstdio>
 #include <map>
 #include <memory>
+#include <optional>
 #include <string>
 #include <thread>
 #include <vector>
@@ -25,6 +26,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
 #include "absl/time/time.h"
+#include "client/error_reason.h"
 #include "client/ogive_client.h"
 #include "gmock/gmock.h"
 #include "grpc/health/v1/health.grpc.pb.h"
@@ -505,6 +507,19 @@ TEST_F(AuthTest, EachTokenIsHeldToItsRequestRate) {
   EXPECT_THAT(MakeCall(*server_, Call::kListCampaigns, busy, f, ""),
               GrpcStatusIs(grpc::StatusCode::RESOURCE_EXHAUSTED,
                            AllOf(HasSubstr("token 'busy'"), HasSubstr("--max-requests-per-second-per-token"))));
+  // The refusal says why and when to come back: ErrorInfo RATE_LIMITED naming the token, and a
+  // RetryInfo of one request's refill (1 s at 1 request per second).
+  {
+    const absl::Status limited =
+        client::StatusFromGrpc(MakeCall(*server_, Call::kListCampaigns, busy, f, ""));
+    std::optional<client::ErrorReason> why = client::ErrorReasonOf(limited);
+    ASSERT_TRUE(why.has_value()) << limited;
+    EXPECT_EQ(why->reason, "RATE_LIMITED");
+    EXPECT_EQ(why->domain, "ogive.v1");
+    EXPECT_EQ(why->metadata["token"], "busy");
+    ASSERT_TRUE(why->retry_delay.has_value());
+    EXPECT_EQ(*why->retry_delay, absl::Seconds(1));
+  }
   EXPECT_TRUE(MakeCall(*server_, Call::kListCampaigns, calm, f, "").ok());
   server_->Advance(absl::Seconds(1));
   EXPECT_TRUE(MakeCall(*server_, Call::kListCampaigns, busy, f, "").ok());

@@ -16,7 +16,7 @@ set -euo pipefail
 source "$(dirname "$0")/../../tests/support/test_lib.sh" ogive-backup-test "$@"
 FAIL_LOG_LINES=20
 ogive() { timeout 30 "$OGIVE" --server "$SERVER" --timeout 5 "$@"; }
-first_number() { "$PY" -c 'import json,sys; print(json.load(sys.stdin)[0]["number"])'; }
+first_number() { "$PY" -c 'import json,sys; print(json.load(sys.stdin)[0]["trial"])'; }
 
 start_server() {  # DB
   SERVER="127.0.0.1:$(free_port)"
@@ -126,11 +126,11 @@ load = lambda name: json.load(open("%s/%s" % (d, name)))
 show, restored = load("show.json"), load("show.restored.json")
 trials, restored_trials = load("trials.json"), load("trials.restored.json")
 for view in (show, restored):  # recent activity is dated by the clock and asks are not stored
-    for key in ("asOfUnixMs", "workers", "reportsLastHour"):
+    for key in ("as_of_unix_ms", "workers", "reports_last_hour"):
         view["status"].pop(key, None)
 assert show == restored, "campaign show differs"
 assert trials == restored_trials, "trials differ"
-assert len(trials) == 10 and trials[-1]["number"] == held and trials[-1]["state"] == "TRIAL_STATE_LEASED", trials[-1]
+assert len(trials) == 10 and str(trials[-1]["trial"]) == held and trials[-1]["state"] == "leased", trials[-1]
 print("   %d trials, generation %s" % (len(trials), show["status"]["generation"]))
 EOF2
 ogive tell kept "$held" --score 0.125 >"$TMP/held.out" 2>&1 || fail "tell after restore: $(cat "$TMP/held.out")"

@@ -122,7 +122,7 @@ def run(args, tmp):
     log = open(os.path.join(tmp, "ogived.log"), "w")
     server = subprocess.Popen(
         [args.ogived, "--db", db, "--listen", target,
-         "--sweep-interval-seconds", "0.2"],
+         "--sweep-interval", "0.2"],
         stdout=log, stderr=subprocess.STDOUT)
     try:
         channel = grpc.insecure_channel(target)

@@ -89,9 +89,11 @@ class Run:
         words = ["ask", campaign, "--json", "--worker", "metrics-test"]
         if lease is not None:
             words += ["--lease", str(lease)]
+        # The CLI reads the campaign's design first, to print the trials as export records.
+        self.calls[("GetCampaign", "OK")] = self.calls.get(("GetCampaign", "OK"), 0) + 1
         trials = json.loads(self.ogive(*words, method="Ask").stdout)
         check(len(trials) == 1, "ask returned %r" % trials)
-        return int(trials[0]["number"])
+        return int(trials[0]["trial"])
 
     def tell(self, campaign, trial, *outcome):
         if "--grade" in outcome:  # the CLI reads the campaign's scale first, to match the label
@@ -192,7 +194,7 @@ def main():
         url = "http://127.0.0.1:%d/metrics" % free_port()
         proc = subprocess.Popen([args.ogived, "--db", os.path.join(tmp, "ogive.db"), "--listen", run.server, "--no-auth",
                                  "--metrics-listen", url[len("http://"):-len("/metrics")],
-                                 "--sweep-interval-seconds", "0.2"], stdout=log, stderr=log)
+                                 "--sweep-interval", "0.2"], stdout=log, stderr=log)
         deadline = time.time() + 20
         while True:
             check(proc.poll() is None, "ogived exited at start")
@@ -237,14 +239,15 @@ def main():
         for label in ("fair", "good", "cracked", "fair"):
             run.tell("graded", run.ask("graded"), "--grade", label)
             told["grade"] += 1
-        run.ogive("ask", "no-such-campaign", "--json", method="Ask", code="NOT_FOUND")  # --json: no GetCampaign first
+        run.ogive("ask", "no-such-campaign", "--json", method="GetCampaign", code="NOT_FOUND")  # the design first
         lapsing = run.ask("scored", lease=1)
         # The sweeper (every 0.2 s) lapses it a little after 1 s.
         deadline = time.time() + 10
         while True:
+            run.calls[("GetCampaign", "OK")] = run.calls.get(("GetCampaign", "OK"), 0) + 1  # the design first
             trials = json.loads(run.ogive("campaign", "trials", "scored", "--state", "lapsed", "--json",
                                           method="ListTrials").stdout)
-            if [int(t["number"]) for t in trials] == [lapsing]:
+            if [int(t["trial"]) for t in trials] == [lapsing]:
                 break
             check(time.time() < deadline, "trial %d did not lapse" % lapsing)
             time.sleep(0.2)

@@ -138,7 +138,7 @@ done
 
 # ---- The server requires tokens ----
 step "start ogived; the health service answers without a token"
-start_server --sweep-interval-seconds 0.2
+start_server --sweep-interval 0.2
 [[ "$(health)" == 1 ]] || fail "health is not SERVING"
 grep -q "event=auth mode=tokens valid_tokens=3" "$TMP/ogived.log" || fail "the start log does not count the tokens"
 
@@ -166,7 +166,7 @@ grep -q "process" "$TMP/farm-list.out" && ! grep -q "other" "$TMP/farm-list.out"
   fail "the limited token lists: $(cat "$TMP/farm-list.out")"
 expect_refused PERMISSION_DENIED "limited to the campaigns process" "$TMP/farm.token" campaign show other
 number=$(as_token "$TMP/farm.token" ask process --worker node-1 --json |
-  "$PY" -c 'import json,sys; print(json.load(sys.stdin)[0]["number"])')
+  "$PY" -c 'import json,sys; print(json.load(sys.stdin)[0]["trial"])')
 as_token "$TMP/farm.token" tell process "$number" --score 2.5 --worker node-1 >/dev/null
 expect_refused PERMISSION_DENIED "Ask needs role worker or admin" "$TMP/viewer.token" ask process
 
@@ -176,14 +176,14 @@ grep -q "REPORTED BY" "$TMP/trials.txt" && grep -q "farm-a" "$TMP/trials.txt" ||
 as_token "$TMP/viewer.token" campaign trials process --csv >"$TMP/trials.csv"
 "$PY" - "$TMP/trials.csv" "$number" <<'PYEOF' || fail "csv: $(cat "$TMP/trials.csv")"
 import csv, sys
-rows = {r["number"]: r for r in csv.DictReader(open(sys.argv[1]))}
+rows = {r["trial"]: r for r in csv.DictReader(open(sys.argv[1]))}
 assert rows[sys.argv[2]]["reported_by"] == "farm-a", rows
 PYEOF
 as_token "$TMP/viewer.token" campaign trials process --json >"$TMP/trials.json"
 "$PY" - "$TMP/trials.json" "$number" <<'PYEOF' || fail "json: $(cat "$TMP/trials.json")"
 import json, sys
-t = [t for t in json.load(open(sys.argv[1])) if t["number"] == sys.argv[2]]
-assert len(t) == 1 and t[0]["reportedBy"] == "farm-a", t
+t = [t for t in json.load(open(sys.argv[1])) if str(t["trial"]) == sys.argv[2]]
+assert len(t) == 1 and t[0]["reported_by"] == "farm-a", t
 PYEOF
 
 step "a phase change records the admin's label in the event log"
@@ -240,10 +240,10 @@ PYEOF
 
 # ---- Other modes ----
 step "with --reflection and a low rate limit: reflection answers; the limit is RESOURCE_EXHAUSTED"
-start_server --reflection --max-requests-per-second-per-token 0.2
+start_server --reflection --max-requests-per-second-per-token 0.1
 [[ "$(reflection)" == ogive.v1.Ogive ]] || fail "reflection with --reflection: $(reflection)"
 as_token "$TMP/viewer.token" campaign list >/dev/null || fail "first call within the limit refused"
-expect_refused RESOURCE_EXHAUSTED "max-requests-per-second-per-token" "$TMP/viewer.token" campaign list
+expect_refused "RESOURCE_EXHAUSTED (RATE_LIMITED)" "max-requests-per-second-per-token" "$TMP/viewer.token" campaign list
 as_token "$TMP/alice.token" campaign list >/dev/null || fail "another token was held to viewer's limit"
 stop_server
 

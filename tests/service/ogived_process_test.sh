@@ -24,7 +24,7 @@ ogive() { timeout 30 "$OGIVE" --server "$SERVER" --timeout 5 --token-file "$TOKE
 # Starts ogived on $DB and a port that is free right now; waits until it answers.
 start_server() {
   SERVER="127.0.0.1:$(free_port)"
-  "$OGIVED" --db "$DB" --listen "$SERVER" --sweep-interval-seconds 0.2 >>"$TMP/ogived.log" 2>&1 &
+  "$OGIVED" --db "$DB" --listen "$SERVER" --sweep-interval 0.2 >>"$TMP/ogived.log" 2>&1 &
   OGIVED_PID=$!
   for _ in $(seq 100); do
     if timeout 5 "$OGIVE" --server "$SERVER" --timeout 1 --token-file "$TOKEN_FILE" campaign list >/dev/null 2>&1; then
@@ -54,7 +54,7 @@ stop_server() {
 }
 
 # The trial number of the first trial in `ogive ask --json` output on stdin.
-first_number() { "$PY" -c 'import json,sys; print(json.load(sys.stdin)[0]["number"])'; }
+first_number() { "$PY" -c 'import json,sys; print(json.load(sys.stdin)[0]["trial"])'; }
 
 # One worker: ask, wait $2 seconds, tell score "<trial>.25", and append "<trial> <score>" to
 # $TMP/$1.acked once the tell was acknowledged. Writes the number of each trial it asked for to
@@ -82,6 +82,16 @@ rc=0
 timeout 10 "$OGIVED" --no-such-option >"$TMP/usage.out" 2>&1 || rc=$?
 [[ "$rc" -eq 2 ]] || fail "unknown option: status $rc"
 grep -q -- "--no-such-option" "$TMP/usage.out" || fail "unknown option: $(cat "$TMP/usage.out")"
+grep -q "unknown option" "$TMP/usage.out" || fail "unknown option: $(cat "$TMP/usage.out")"
+rc=0
+timeout 10 "$OGIVED" --bogus >"$TMP/bogus.out" 2>&1 || rc=$?
+[[ "$rc" -eq 2 ]] && grep -q "unknown option '--bogus'" "$TMP/bogus.out" || fail "--bogus: $(cat "$TMP/bogus.out")"
+rc=0
+timeout 10 "$OGIVED" --sweep-interval 5x >"$TMP/interval.out" 2>&1 || rc=$?
+[[ "$rc" -eq 2 ]] && grep -q "90s, 15m, 2h, 2d" "$TMP/interval.out" || fail "--sweep-interval 5x: $(cat "$TMP/interval.out")"
+"$OGIVED" --version | grep -Eq "^ogived [0-9]+\.[0-9]+\.[0-9]+ \(database schema version [0-9]+\)$" \
+  || fail "ogived --version: $("$OGIVED" --version 2>&1)"
+"$OGIVE" --version | grep -Eq "^ogive [0-9]+\.[0-9]+\.[0-9]+$" || fail "ogive --version: $("$OGIVE" --version 2>&1)"
 head -c 4096 /dev/zero | tr '\0' 'x' >"$TMP/garbage.db"
 rc=0
 timeout 10 "$OGIVED" --db "$TMP/garbage.db" --listen "127.0.0.1:$(free_port)" >"$TMP/garbage.out" \
@@ -123,8 +133,8 @@ ogive campaign trials process --state lapsed --json >"$TMP/lapsed.json"
 "$PY" - "$TMP/lapsed.json" "$lapsing" <<'EOF' || fail "trial $lapsing did not lapse"
 import json, sys
 trials = json.load(open(sys.argv[1]))
-assert [t["number"] for t in trials] == [sys.argv[2]], trials
-assert trials[0]["state"] == "TRIAL_STATE_LAPSED", trials[0]
+assert [str(t["trial"]) for t in trials] == [sys.argv[2]], trials
+assert trials[0]["state"] == "lapsed", trials[0]
 EOF
 
 # ---- SIGTERM while workers are mid-way ----
@@ -168,17 +178,17 @@ ogive campaign trials process --json >"$TMP/trials1.json"
 ogive campaign show process --json >"$TMP/show1.json"
 "$PY" - "$TMP/trials1.json" "$TMP/all.acked" "$held" "$lapsing" <<'EOF' || fail "stored trials"
 import json, sys
-trials = {int(t["number"]): t for t in json.load(open(sys.argv[1]))}
+trials = {int(t["trial"]): t for t in json.load(open(sys.argv[1]))}
 acked = [line.split() for line in open(sys.argv[2]) if line.strip()]
 assert acked, "no acknowledged tells"
 for number, score in acked:
     t = trials.get(int(number))
     assert t is not None, "acknowledged trial %s is missing" % number
-    assert t["state"] == "TRIAL_STATE_REPORTED", t
-    assert t["outcome"]["score"] == float(score), (t, score)
+    assert t["state"] == "reported", t
+    assert t["score"] == float(score), (t, score)
 held, lapsing = int(sys.argv[3]), int(sys.argv[4])
-assert trials[held]["state"] == "TRIAL_STATE_LEASED", trials[held]
-assert trials[lapsing]["state"] == "TRIAL_STATE_LAPSED", trials[lapsing]
+assert trials[held]["state"] == "leased", trials[held]
+assert trials[lapsing]["state"] == "lapsed", trials[lapsing]
 assert sorted(trials) == list(range(1, len(trials) + 1)), sorted(trials)
 EOF
 
@@ -192,7 +202,7 @@ import json, sys
 show1, show2, trials1, trials2 = (json.load(open(p)) for p in sys.argv[1:5])
 s1, s2 = show1["status"], show2["status"]
 for s in (s1, s2):  # recent activity is dated by the clock and asks are not stored
-    for key in ("asOfUnixMs", "workers", "reportsLastHour"):
+    for key in ("as_of_unix_ms", "workers", "reports_last_hour"):
         s.pop(key, None)
 assert int(s1["generation"]) >= 2, s1
 assert s1["generation"] == s2["generation"], (s1["generation"], s2["generation"])
@@ -212,8 +222,8 @@ grep -qx "trial $held: stored" "$TMP/held.out" || fail "tell $held printed: $(ca
 ogive campaign trials process --state reported --json >"$TMP/reported.json"
 "$PY" - "$TMP/reported.json" "$held" <<'EOF' || fail "trial $held not reported"
 import json, sys
-t = [t for t in json.load(open(sys.argv[1])) if t["number"] == sys.argv[2]]
-assert len(t) == 1 and t[0]["outcome"]["score"] == float(sys.argv[2]) + 0.25, t
+t = [t for t in json.load(open(sys.argv[1])) if str(t["trial"]) == sys.argv[2]]
+assert len(t) == 1 and t[0]["score"] == float(sys.argv[2]) + 0.25, t
 EOF
 
 step "SIGINT stops ogived cleanly too; the file passes PRAGMA integrity_check"

@@ -19,7 +19,7 @@ answers() { timeout 5 "$OGIVE" --server "$1" --timeout 1 campaign list >/dev/nul
 # Starts ogived on database $1 and address $2 with its log in $3; sets STARTED_PID. Tokens are not
 # what this test is about: --no-auth (loopback only).
 start() {
-  "$OGIVED" --db "$1" --listen "$2" --sweep-interval-seconds 0.2 --no-auth >"$3" 2>&1 &
+  "$OGIVED" --db "$1" --listen "$2" --sweep-interval 0.2 --no-auth >"$3" 2>&1 &
   STARTED_PID=$!
   PIDS+=("$STARTED_PID")
 }

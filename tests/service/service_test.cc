@@ -17,6 +17,7 @@
 #include <functional>
 #include <limits>
 #include <memory>
+#include <optional>
 #include <string>
 #include <thread>
 #include <vector>
@@ -28,6 +29,7 @@
 #include "absl/synchronization/notification.h"
 #include "absl/time/clock.h"
 #include "absl/time/time.h"
+#include "client/error_reason.h"
 #include "client/ogive_client.h"
 #include "gmock/gmock.h"
 #include "google/protobuf/descriptor.h"
@@ -160,6 +162,8 @@ class LoopbackServer {
 
   std::string target() const { return absl::StrCat("127.0.0.1:", port_); }
   service::Registry& registry() { return *registry_; }
+  // What ogived does first on SIGTERM: new calls are refused from now on.
+  bool Drain() { return service_->Drain(absl::Seconds(10)); }
   grpc::Server& server() { return *server_; }
 
   std::unique_ptr<client::Client> NewClient() const {
@@ -612,6 +616,19 @@ TEST_F(ServiceTest, AskTellCoversEveryParameterAndOutcomeKind) {
   }
   EXPECT_EQ(status.best().outcome().score(), best);
   ExpectSameAfterRestart({"mixed"});
+}
+
+// A draining server refuses new calls with UNAVAILABLE and reason DRAINING: retry, here or on another
+// replica.
+TEST_F(ServiceTest, ADrainingServerRefusesNewCallsWithReasonDraining) {
+  ASSERT_TRUE(client_->CreateCampaign(MixedDesign("drained")).ok());
+  ASSERT_TRUE(server_->Drain());
+  const absl::Status refused = client_->GetCampaign("drained").status();
+  EXPECT_EQ(refused.code(), absl::StatusCode::kUnavailable) << refused;
+  std::optional<client::ErrorReason> why = client::ErrorReasonOf(refused);
+  ASSERT_TRUE(why.has_value()) << refused;
+  EXPECT_EQ(why->reason, "DRAINING");
+  EXPECT_EQ(why->domain, "ogive.v1");
 }
 
 TEST_F(ServiceTest, GradedCampaignStoresGradesByLabel) {

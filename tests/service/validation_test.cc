@@ -621,8 +621,8 @@ TEST(LimitFlagsTest, EveryLimitHasAFlagThatSetsItAndRefusesValuesBelowItsMinimum
   for (const service::LimitFlag& f : service::LimitFlags()) {
     SCOPED_TRACE(f.flag);
     ++seen;
-    EXPECT_THAT(help, HasSubstr(absl::StrCat(f.flag, " N")));
-    EXPECT_THAT(help, HasSubstr(absl::StrCat(f.help, " (default ", defaults.*f.member, ")")));
+    EXPECT_THAT(help, HasSubstr(absl::StrCat(f.flag, f.seconds ? " DURATION" : " N")));
+    EXPECT_THAT(help, HasSubstr(absl::StrCat(f.help, " (default ", defaults.*f.member, f.seconds ? "s" : "", ")")));
     service::ServiceLimits limits;
     ASSERT_TRUE(service::SetLimitFromFlag(limits, f.flag, absl::StrCat(f.min + 7)).ok());
     EXPECT_EQ(limits.*f.member, f.min + 7);
@@ -631,7 +631,14 @@ TEST(LimitFlagsTest, EveryLimitHasAFlagThatSetsItAndRefusesValuesBelowItsMinimum
                                   std::string("99999999999")}) {
       const absl::Status s = service::SetLimitFromFlag(limits, f.flag, bad);
       EXPECT_EQ(s.code(), absl::StatusCode::kInvalidArgument) << bad;
-      EXPECT_THAT(std::string(s.message()), HasSubstr(absl::StrCat(f.flag, ": must be a whole number >= ", f.min)));
+      EXPECT_THAT(std::string(s.message()),
+                  HasSubstr(f.seconds ? absl::StrCat(f.flag, ": must be ")
+                                      : absl::StrCat(f.flag, ": must be a whole number >= ", f.min)));
+    }
+    if (f.seconds) {  // a duration flag takes units too
+      ASSERT_TRUE(service::SetLimitFromFlag(limits, f.flag, "2d").ok());
+      EXPECT_EQ(limits.*f.member, 2 * 86400);
+      ASSERT_TRUE(service::SetLimitFromFlag(limits, f.flag, absl::StrCat(f.min + 7, "s")).ok());
     }
     EXPECT_EQ(limits.*f.member, f.min + 7);  // a refused value changes nothing
     limits.*f.member = f.min - 1;

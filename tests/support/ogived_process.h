@@ -26,7 +26,7 @@ struct OgivedOptions {
   std::string binary;                    // path to ogived
   std::string db;                        // --db
   int port = 0;                          // loopback port; 0: a free one, picked once
-  std::vector<std::string> extra_flags;  // e.g. {"--sweep-interval-seconds", "0.2"}
+  std::vector<std::string> extra_flags;  // e.g. {"--sweep-interval", "0.2"}
   std::string log_path;                  // standard output and error are appended here
   absl::Duration start_timeout = absl::Seconds(30);
   // Runs ogived as this user and group (e.g. 65534, nobody) when >= 0; needs root.

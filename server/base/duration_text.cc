@@ -1,0 +1,44 @@
+#include "server/base/duration_text.h"
+
+#include <cmath>
+#include <string>
+
+#include "absl/strings/ascii.h"
+#include "absl/strings/numbers.h"
+#include "absl/strings/str_cat.h"
+
+namespace ogive {
+
+absl::StatusOr<absl::Duration> ParseDurationText(absl::string_view what, absl::string_view text) {
+  const absl::string_view trimmed = absl::StripAsciiWhitespace(text);
+  const absl::Status refused = absl::InvalidArgumentError(absl::StrCat(
+      what, ": must be a positive duration such as 90s, 15m, 2h, 2d or 1h30m (a bare number is seconds), got '",
+      text, "'"));
+  absl::Duration total = absl::ZeroDuration();
+  absl::string_view rest = trimmed;
+  // Days first: absl::ParseDuration knows units up to hours only. "2d" or "1d12h".
+  if (const size_t d = rest.find('d'); d != absl::string_view::npos) {
+    double days = 0;
+    if (!absl::SimpleAtod(rest.substr(0, d), &days) || !std::isfinite(days) || days < 0) return refused;
+    total = absl::Hours(24 * days);
+    rest = rest.substr(d + 1);
+    if (!rest.empty() && (rest[0] == '-' || rest[0] == '+')) return refused;  // "1d-3h"
+  }
+  if (!rest.empty()) {
+    double seconds = 0;
+    absl::Duration part;
+    if (absl::SimpleAtod(rest, &seconds) && total == absl::ZeroDuration()) {
+      if (!std::isfinite(seconds)) return refused;
+      part = absl::Seconds(seconds);
+    } else if (!absl::ParseDuration(std::string(rest), &part) || rest == "inf" || rest == "-inf") {
+      return refused;
+    }
+    total += part;
+  } else if (total == absl::ZeroDuration() || trimmed.empty()) {
+    return refused;
+  }
+  if (total <= absl::ZeroDuration() || total == absl::InfiniteDuration()) return refused;
+  return total;
+}
+
+}  // namespace ogive
