@@ -323,7 +323,7 @@ INSTANTIATE_TEST_SUITE_P(Functions, CampaignConcurrencyTest,
 // far from the current mean and with the best outcome of its cohort, enters the update as an
 // external solution: its step y = (x − m)/σ is clipped to the Mahalanobis radius
 // c_y = √n + 2n/(n + 2) (Hansen, "Injecting external solutions into CMA-ES", arXiv:1110.4181; rule
-// from memory; c_y = 4.8289 for n = 10 in REFERENCES.md). Unclipped, the same member would move
+// from memory; c_y = 4.8289 for n = 10 in docs/references.md). Unclipped, the same member would move
 // the mean further.
 TEST(CampaignClippingTest, StaleFarOffMemberIsClippedBeforeItMovesTheMean) {
   constexpr int kN = 10;

@@ -30,7 +30,7 @@ Eigen::VectorXd Bits(std::initializer_list<double> bits) {
   return v;
 }
 
-// REFERENCES.md, "Ranking and IGO" (Ollivier et al., JMLR 2017; formulas from memory): Bernoulli
+// docs/references.md, "Ranking and IGO" (Ollivier et al., JMLR 2017; formulas from memory): Bernoulli
 // IGO with truncation weights is PBIL with learning rate δt: p ← (1 − δt) p + δt · mean(bits of the
 // best half). By hand: p = (0.5, 0.5, 0.5), N = 4, δt = 0.1, margin 0. Members with scores (lower
 // is better):
@@ -72,7 +72,7 @@ TEST(BernoulliFamilyTest, PbilStepFromAnUnevenStart) {
   EXPECT_NEAR(p[2], 0.675, 1e-15);
 }
 
-// REFERENCES.md (IGO paper; from memory): with N = 2 and ŵ = (+1/2, −1/2) Bernoulli IGO is the
+// docs/references.md (IGO paper; from memory): with N = 2 and ŵ = (+1/2, −1/2) Bernoulli IGO is the
 // compact genetic algorithm with δt = 2/K: p ← p + δt (½ (x_w − p) − ½ (x_l − p)) = p + (1/K)(x_w −
 // x_l). By hand, K = 10 (δt = 0.2), p = (0.5, 0.5, 0.5, 0.3), winner (1, 0, 1, 0), loser (0, 1, 1,
 // 1):

@@ -23,7 +23,7 @@ CategoricalFamily Make(std::vector<Eigen::VectorXd> start, double learning_rate,
 
 Eigen::VectorXd Index(double k) { return Eigen::VectorXd::Constant(1, k); }
 
-// REFERENCES.md, "Ranking and IGO" (IGO paper; from memory): θ = (0.2, 0.3, 0.5), one member x =
+// docs/references.md, "Ranking and IGO" (IGO paper; from memory): θ = (0.2, 0.3, 0.5), one member x =
 // category 0 with weight 1, margin 0: Δθ/δt = e_0 − θ = (0.8, −0.3, −0.5) (the computed value (0.8,
 // −0.3) for the first K − 1 coordinates, the last from Σ Δθ = 0).
 TEST(CategoricalFamilyTest, NaturalGradientStepForOneMember) {
@@ -39,7 +39,7 @@ TEST(CategoricalFamilyTest, NaturalGradientStepForOneMember) {
 
 // The same step derived from the definition of the natural gradient (IGO paper; from memory): in
 // expectation parameters θ' = (θ_1 .. θ_{K−1}), θ_K = 1 − Σ θ', the inverse Fisher matrix is
-// diag(θ') − θ'θ'ᵀ (REFERENCES.md), and the natural gradient of ln P(x) is F⁻¹ ∇_θ' ln P(x) with
+// diag(θ') − θ'θ'ᵀ (docs/references.md), and the natural gradient of ln P(x) is F⁻¹ ∇_θ' ln P(x) with
 //   ∇_θ' ln θ_x = e_x / θ_x              for x < K,
 //   ∇_θ' ln θ_K = −(1, .., 1) / θ_K       for x = K.
 // The family's step over several members with weights must equal δt Σ_i ŵ_i F⁻¹ ∇ ln P(x_i),

@@ -14,7 +14,7 @@ namespace {
 // The reference table has six decimals, so a correct value is within half a unit of the last place.
 constexpr double kTableTolerance = 5e-6;
 
-// One column of the table "CMA-ES default parameters" in shared/REFERENCES.md (the project's list
+// One column of the table "CMA-ES default parameters" in docs/references.md (the project's list
 // of published check values): computed in double precision from N. Hansen, "The CMA Evolution Strategy: A Tutorial", arXiv:1604.00772
 // (2016), Table 1 (the form of the formulas from memory), with the 1/4 term in c_μ.
 struct TableColumn {
@@ -119,7 +119,7 @@ INSTANTIATE_TEST_SUITE_P(Table, CmaParametersTableTest, testing::ValuesIn(kTable
                            return "n" + std::to_string(param_info.param.n);
                          });
 
-// REFERENCES.md, "Invariants": where 1 + c_1/c_μ is the smallest candidate for α⁻ (n = 10 and 40),
+// docs/references.md, "Invariants": where 1 + c_1/c_μ is the smallest candidate for α⁻ (n = 10 and 40),
 // the negative weights sum to −α⁻ = −(1 + c_1/c_μ), so Σ w = 1 − (1 + c_1/c_μ) = −c_1/c_μ, which
 // makes the covariance decay 1 − c_1 − c_μ Σ w equal to 1 (tutorial, the remark beside the α⁻
 // choices).

@@ -115,7 +115,7 @@ Eigen::MatrixXd RandomRotation(int n, uint64_t seed) {
 
 // Sphere f(x) = ‖x − x*‖², n = 10, start at distance 1, σ0 = 0.3: f ≤ 1e-10 means the distance
 // shrank by 10^5. The budget of 3000 evaluations is about twice what a correct CMA-ES with λ = 10
-// needs (roughly 1000–1500). The floor relies on REFERENCES.md "Limits": the mirrored sequential
+// needs (roughly 1000–1500). The floor relies on docs/references.md "Limits": the mirrored sequential
 // (1+λ)-ES with optimal step size reduces ln‖x − x*‖ by about 0.235/n per evaluation (Auger,
 // Brockhoff, Hansen, FOGA 2011), so a reduction of 10^5 takes at least ≈ 11.51·10/0.235 ≈ 490
 // evaluations. A (μ/μ_w, λ)-ES with λ = 10 and adapted σ progresses markedly slower than that
@@ -138,7 +138,7 @@ TEST(GaussianFamilyTest, SphereConvergesWithinBudget) {
 
 // One generation from a fresh distribution (m, σ, C = I, p_σ = p_c = 0) recomputed from the update
 // equations of Hansen's tutorial (arXiv:1604.00772, the equations beside Table 1, their form from
-// memory as in REFERENCES.md; active CMA with the negative weights scaled by n/‖C^{-1/2} y‖²), with
+// memory as in docs/references.md; active CMA with the negative weights scaled by n/‖C^{-1/2} y‖²), with
 // the weights, μ_eff, c_σ, d_σ, c_c, c_1 and c_μ of CmaParameters (checked against the tutorial's
 // table in cma_parameters_test.cc). With C = I, C^{-1/2} = I:
 //   y_i = (x_i − m)/σ,  ⟨y⟩_w = Σ_{i≤μ} w_i y_{i:λ},  m' = m + c_m σ ⟨y⟩_w
@@ -319,7 +319,7 @@ TEST(GaussianFamilyTest, RotationInvarianceInDistribution) {
 }
 
 // c_y = √n + 2n/(n + 2) (Hansen, "Injecting external solutions into CMA-ES", arXiv:1110.4181; rule
-// from memory); REFERENCES.md computed 2.4142 (n=2), 4.8289 (n=10), 8.2293 (n=40), four decimals.
+// from memory); docs/references.md computed 2.4142 (n=2), 4.8289 (n=10), 8.2293 (n=40), four decimals.
 TEST(GaussianFamilyTest, ClipRadiusMatchesTheInjectionRule) {
   const std::pair<int, double> cases[] = {{2, 2.4142}, {10, 4.8289}, {40, 8.2293}};
   for (const auto& [n, c_y] : cases) {

@@ -45,7 +45,7 @@ std::vector<double> WeightsOf(const std::vector<Outcome>& cohort, const OutcomeO
 }
 
 // IGO quantile weights (Ollivier, Arnold, Auger, Hansen, JMLR 18, 2017; formulas from memory,
-// values computed in REFERENCES.md, "Ranking and IGO"): N = 10, w(q) = 2·1{q ≤ 1/2}.
+// values computed in docs/references.md, "Ranking and IGO"): N = 10, w(q) = 2·1{q ≤ 1/2}.
 TEST(TruncationQuantileWeightsTest, TenDistinctValuesGiveOneFifthToTheFiveBest) {
   const std::vector<double> w = TruncationQuantileWeights(10);
   ASSERT_EQ(w.size(), 10u);
@@ -60,7 +60,7 @@ TEST(TruncationQuantileWeightsTest, TenDistinctValuesGiveOneFifthToTheFiveBest) 
   }
 }
 
-// REFERENCES.md (computed): the 5th and 6th tied get 0.1 each.
+// docs/references.md (computed): the 5th and 6th tied get 0.1 each.
 TEST(TruncationQuantileWeightsTest, FifthAndSixthTiedShareTheirWeights) {
   const std::vector<double> w = WeightsOf(Scores({0, 1, 2, 3, 4, 4, 6, 7, 8, 9}), kMinimize);
   const std::vector<double> expected = {0.2, 0.2, 0.2, 0.2, 0.1, 0.1, 0, 0, 0, 0};
@@ -68,7 +68,7 @@ TEST(TruncationQuantileWeightsTest, FifthAndSixthTiedShareTheirWeights) {
   for (size_t i = 0; i < expected.size(); ++i) EXPECT_NEAR(w[i], expected[i], 1e-15) << "i=" << i;
 }
 
-// REFERENCES.md (computed): N = 4 all tied give 0.25 each.
+// docs/references.md (computed): N = 4 all tied give 0.25 each.
 TEST(TruncationQuantileWeightsTest, FourTiedGiveAQuarterEach) {
   const std::vector<double> w = WeightsOf(Scores({3, 3, 3, 3}), kMinimize);
   ASSERT_EQ(w.size(), 4u);
