@@ -9,16 +9,21 @@
 #include "absl/strings/str_cat.h"
 #include "absl/time/clock.h"
 #include "client/error_reason.h"
+#include "server/base/reason.h"
 
 namespace ogive::client {
 namespace {
+
+// Rows per page of the listings this client pages through: every server allows it (--max-page-size
+// is at least 100).
+constexpr int kPageSize = 100;
 
 // Worth another attempt: UNAVAILABLE (the server restarts, drains, or its store is busy), and a rate
 // limit whose named delay is within `max_backoff` (a longer one is the caller's to wait out).
 bool Retryable(const absl::Status& status, absl::Duration max_backoff) {
   if (status.code() == absl::StatusCode::kUnavailable) return true;
   std::optional<ErrorReason> why = ErrorReasonOf(status);
-  return why.has_value() && why->reason == "RATE_LIMITED" &&
+  return why.has_value() && why->reason == reason::kRateLimited &&
          why->retry_delay.value_or(absl::ZeroDuration()) <= max_backoff;
 }
 
@@ -117,7 +122,7 @@ absl::StatusOr<v1::CampaignView> Client::GetCampaign(const std::string& campaign
 absl::StatusOr<v1::ListCampaignsResponse> Client::ListCampaigns() {
   v1::ListCampaignsResponse all;
   v1::ListCampaignsRequest request;
-  request.set_page_size(1000);
+  request.set_page_size(kPageSize);
   do {
     v1::ListCampaignsResponse page;
     if (absl::Status s = Call(&v1::Ogive::Stub::ListCampaigns, request, &page); !s.ok()) return s;
@@ -175,7 +180,7 @@ absl::StatusOr<std::vector<v1::Trial>> Client::ListAllTrials(const std::string& 
   v1::ListTrialsRequest request;
   request.set_campaign(campaign);
   request.set_state(state);
-  request.set_page_size(1000);
+  request.set_page_size(kPageSize);
   while (true) {
     absl::StatusOr<v1::ListTrialsResponse> page = ListTrials(request);
     if (!page.ok()) return page.status();
@@ -195,7 +200,7 @@ absl::StatusOr<std::vector<v1::GenerationView>> Client::ListAllGenerations(const
   std::vector<v1::GenerationView> all;
   v1::ListGenerationsRequest request;
   request.set_campaign(campaign);
-  request.set_page_size(100);  // every server allows it: --max-page-size is at least 100
+  request.set_page_size(kPageSize);
   while (true) {
     absl::StatusOr<v1::ListGenerationsResponse> page = ListGenerations(request);
     if (!page.ok()) return page.status();
@@ -238,10 +243,17 @@ LeaseRenewer::LeaseRenewer(Client* client, std::string campaign, std::vector<int
   thread_ = std::thread([this, client, campaign = std::move(campaign), trials = std::move(trials),
                          worker = std::move(worker), lease_seconds, interval] {
     while (!stop_.WaitForNotificationWithTimeout(interval)) {
-      if (client->Renew(campaign, trials, worker, lease_seconds, &cancellation_).ok()) {
+      const absl::Status renewed = client->Renew(campaign, trials, worker, lease_seconds, &cancellation_).status();
+      if (renewed.ok()) {
         ++renewals_;
-      } else {
-        ++failures_;
+        continue;
+      }
+      ++failures_;
+      // A lease that can never be renewed again: stop asking.
+      if (HasReason(renewed, reason::kLeaseHeldByOther) || HasReason(renewed, reason::kTrialNotFound) ||
+          HasReason(renewed, reason::kTrialAlreadyReported) || HasReason(renewed, reason::kCampaignNotFound)) {
+        gave_up_ = true;
+        return;
       }
     }
   });

@@ -2,11 +2,11 @@
 //
 // Every call has a deadline (ClientOptions::call_timeout). Calls that fail with UNAVAILABLE, or are
 // refused with reason RATE_LIMITED and a delay of at most max_backoff, are retried with exponential
-// backoff (at least the delay a rate limit names) up to ClientOptions::max_attempts (the channel reconnects during the backoff, so a
-// restarted server is found at once); every other refusal is returned at once, with its reason for
-// ErrorReasonOf (error_reason.h). Writes
-// are safe to retry: Ask carries a request id chosen once per call, Tell and Renew are idempotent by
-// trial number (the same outcome twice is accepted once).
+// backoff (at least the delay a rate limit names) up to ClientOptions::max_attempts (the channel
+// reconnects during the backoff, so a restarted server is found at once); every other refusal is
+// returned at once, with its reason for ErrorReasonOf (error_reason.h). Writes are safe to retry:
+// Ask carries a request id chosen once per call, Tell and Renew are idempotent by trial number (the
+// same outcome twice is accepted once).
 //
 // Thread-safe: one Client may be shared by many threads (gRPC channels are).
 #ifndef OGIVE_CLIENT_OGIVE_CLIENT_H_
@@ -111,7 +111,9 @@ class Client {
 
 // Keeps the leases of some trials alive while a long evaluation runs: renews them every `interval`
 // (default: a third of the lease) on a background thread until destroyed. Renewal errors are counted,
-// not fatal: the lease may lapse, and the late report is still stored. The destructor cancels a
+// not fatal: the lease may lapse, and the late report is still stored. It stops renewing for good when
+// the server says the lease can never be renewed again (LEASE_HELD_BY_OTHER, TRIAL_NOT_FOUND,
+// TRIAL_ALREADY_REPORTED, CAMPAIGN_NOT_FOUND): gave_up() tells. The destructor cancels a
 // renewal in flight (and its retries) rather than wait for it, so a finished evaluation is reported
 // at once even when the server does not answer.
 class LeaseRenewer {
@@ -124,12 +126,14 @@ class LeaseRenewer {
 
   int renewals() const { return renewals_; }
   int failures() const { return failures_; }
+  bool gave_up() const { return gave_up_; }
 
  private:
   absl::Notification stop_;
   Cancellation cancellation_;
   std::atomic<int> renewals_{0};
   std::atomic<int> failures_{0};
+  std::atomic<bool> gave_up_{false};
   std::thread thread_;
 };
 

@@ -23,6 +23,7 @@
 #include <cstdlib>
 #include <cstring>
 #include <memory>
+#include <optional>
 #include <string>
 #include <thread>
 
@@ -37,6 +38,7 @@
 #include "grpcpp/health_check_service_interface.h"
 #include "server/admin_socket.h"
 #include "server/base/duration_text.h"
+#include "server/base/reason.h"
 #include "server/backup_command.h"
 #include "server/metrics/metric_registry.h"
 #include "server/metrics/metrics_http_server.h"
@@ -116,14 +118,49 @@ struct Flags {
   std::exit(2);
 }
 
-// True for the options that take a value (the switches are handled before this is asked).
-bool TakesValue(const std::string& name) {
-  static constexpr const char* kValueOptions[] = {
-      "--db", "--listen", "--metrics-listen", "--tls-cert", "--tls-key", "--tls-client-ca",
-      "--max-requests-per-second-per-token", "--sweep-interval"};
-  for (const char* option : kValueOptions) {
-    if (name == option) return true;
+// An option that takes a value, and what it does with it (Fail() on a bad one).
+struct ValueOption {
+  const char* name;
+  void (*set)(Flags& flags, const std::string& value);
+};
+
+// Every option with a value but the limits (ogive::service::LimitFlags(), tried after these).
+constexpr ValueOption kValueOptions[] = {
+    {"--db", [](Flags& f, const std::string& v) { f.db = v; }},
+    {"--listen", [](Flags& f, const std::string& v) { f.listen = v; }},
+    {"--metrics-listen",
+     [](Flags& f, const std::string& v) {
+       if (v.empty()) Fail("--metrics-listen: needs host:port (e.g. 127.0.0.1:7076)");
+       f.metrics_listen = v;
+     }},
+    {"--tls-cert", [](Flags& f, const std::string& v) { f.transport.tls_cert_path = v; }},
+    {"--tls-key", [](Flags& f, const std::string& v) { f.transport.tls_key_path = v; }},
+    {"--tls-client-ca", [](Flags& f, const std::string& v) { f.transport.tls_client_ca_path = v; }},
+    {"--max-requests-per-second-per-token",
+     [](Flags& f, const std::string& v) {
+       double& rate = f.auth.max_requests_per_second_per_token;
+       if (!absl::SimpleAtod(v, &rate) || !std::isfinite(rate) || rate < 0) {
+         Fail(absl::StrCat("--max-requests-per-second-per-token: must be 0 (no limit) or a positive number, got '",
+                           v, "'"));
+       }
+     }},
+    {"--sweep-interval",
+     [](Flags& f, const std::string& v) {
+       absl::StatusOr<absl::Duration> interval = ogive::ParseDurationText("--sweep-interval", v);
+       if (!interval.ok()) Fail(std::string(interval.status().message()));
+       f.sweep_interval_seconds = absl::ToDoubleSeconds(*interval);
+     }},
+};
+
+// The option of kValueOptions named `name`, or nullptr.
+const ValueOption* FindValueOption(const std::string& name) {
+  for (const ValueOption& option : kValueOptions) {
+    if (name == option.name) return &option;
   }
+  return nullptr;
+}
+
+bool IsLimitFlag(const std::string& name) {
   ogive::service::ServiceLimits scratch;
   return !absl::IsNotFound(ogive::service::SetLimitFromFlag(scratch, name, ""));
 }
@@ -159,7 +196,8 @@ Flags ParseFlags(int argc, char** argv) {
     }
     const size_t eq = arg.find('=');
     const std::string name = arg.substr(0, eq);
-    if (!TakesValue(name)) {
+    const ValueOption* option = FindValueOption(name);
+    if (option == nullptr && !IsLimitFlag(name)) {
       Fail(absl::StrCat(arg.rfind("-", 0) == 0 ? "unknown option '" : "unexpected argument '", name,
                         "' (see --help)"));
     }
@@ -171,32 +209,10 @@ Flags ParseFlags(int argc, char** argv) {
     } else {
       Fail(absl::StrCat(name, ": needs a value (see --help)"));
     }
-    if (name == "--db") {
-      flags.db = value;
-    } else if (name == "--listen") {
-      flags.listen = value;
-    } else if (name == "--metrics-listen") {
-      if (value.empty()) Fail("--metrics-listen: needs host:port (e.g. 127.0.0.1:7076)");
-      flags.metrics_listen = value;
-    } else if (name == "--tls-cert") {
-      flags.transport.tls_cert_path = value;
-    } else if (name == "--tls-key") {
-      flags.transport.tls_key_path = value;
-    } else if (name == "--tls-client-ca") {
-      flags.transport.tls_client_ca_path = value;
-    } else if (absl::Status s = ogive::service::SetLimitFromFlag(flags.limits, name, value); !absl::IsNotFound(s)) {
-      if (!s.ok()) Fail(std::string(s.message()));
-    } else if (name == "--max-requests-per-second-per-token") {
-      double& rate = flags.auth.max_requests_per_second_per_token;
-      if (!absl::SimpleAtod(value, &rate) || !std::isfinite(rate) || rate < 0) {
-        Fail(absl::StrCat(name, ": must be 0 (no limit) or a positive number, got '", value, "'"));
-      }
-    } else if (name == "--sweep-interval") {
-      absl::StatusOr<absl::Duration> interval = ogive::ParseDurationText(name, value);
-      if (!interval.ok()) Fail(std::string(interval.status().message()));
-      flags.sweep_interval_seconds = absl::ToDoubleSeconds(*interval);
-    } else {
-      Fail(absl::StrCat("unknown option '", name, "' (see --help)"));
+    if (option != nullptr) {
+      option->set(flags, value);
+    } else if (absl::Status s = ogive::service::SetLimitFromFlag(flags.limits, name, value); !s.ok()) {
+      Fail(std::string(s.message()));
     }
   }
   if (absl::Status s = flags.limits.Validate(); !s.ok()) Fail(std::string(s.message()));
@@ -246,8 +262,8 @@ int main(int argc, char** argv) {
   absl::StatusOr<std::unique_ptr<ogive::storage::SqliteStore>> store =
       ogive::storage::SqliteStore::Open(flags.db, store_options);
   if (!store.ok()) {
-    const bool not_writable =
-        !flags.read_only && store.status().message().find("not writable") != std::string::npos;
+    const std::optional<ogive::Reason> why = ogive::ReasonOf(store.status());
+    const bool not_writable = !flags.read_only && why.has_value() && why->reason == ogive::reason::kReadOnly;
     Fail(absl::StrCat("cannot open database '", flags.db, "': ", store.status().message(),
                       not_writable ? " (ogived --read-only serves it for reading)" : ""));
   }

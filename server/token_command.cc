@@ -227,6 +227,9 @@ int RunTokenCommand(int argc, char** argv) {
     if (arg.rfind("--", 0) == 0) {
       const size_t eq = arg.find('=');
       const std::string name = arg.substr(0, eq);
+      if (name != "--db" && name != "--role" && name != "--label" && name != "--campaign") {
+        return Usage(absl::StrCat("unknown option '", name, "'"));
+      }
       std::string value;
       if (eq != std::string::npos) {
         value = arg.substr(eq + 1);
@@ -241,10 +244,8 @@ int RunTokenCommand(int argc, char** argv) {
         args.role = value;
       } else if (name == "--label") {
         args.label = value;
-      } else if (name == "--campaign") {
-        args.campaigns.push_back(value);
       } else {
-        return Usage(absl::StrCat("unknown option '", name, "'"));
+        args.campaigns.push_back(value);
       }
     } else if (args.command.empty()) {
       args.command = arg;

@@ -30,6 +30,7 @@
 #include "google/protobuf/io/coded_stream.h"
 #include "google/protobuf/io/zero_copy_stream_impl_lite.h"
 #include "server/base/check.h"
+#include "server/base/reason.h"
 #include "storage/schema.h"
 #include "storage/sqlite_connection.h"
 
@@ -66,8 +67,9 @@ bool Parse(absl::string_view bytes, google::protobuf::MessageLite& message) {
 }
 
 absl::Status ReadOnlyError(const std::string& path) {
-  return absl::FailedPreconditionError(
-      absl::StrCat("database '", path, "' is open read-only; it takes no writes"));
+  return WithReason(absl::FailedPreconditionError(
+                        absl::StrCat("database '", path, "' is open read-only; it takes no writes")),
+                    {std::string(reason::kReadOnly), {}, std::nullopt});
 }
 
 // Sets up one connection and reads every setting back: a setting SQLite silently ignored would
@@ -421,8 +423,9 @@ absl::StatusOr<std::unique_ptr<SqliteStore>> SqliteStore::Open(const std::string
     if (!writer.ok()) return writer.status();
     store->writer_ = *std::move(writer);
     if (store->writer_->ReadOnly()) {
-      return absl::FailedPreconditionError(absl::StrCat(
-          "database file '", path, "' is not writable; open it with read_only to read it"));
+      return WithReason(absl::FailedPreconditionError(absl::StrCat(
+                            "database file '", path, "' is not writable; open it with read_only to read it")),
+                        {std::string(reason::kReadOnly), {}, std::nullopt});
     }
     // One writing store per database file: a second server on the same file would hand out the same
     // trial numbers and overwrite acknowledged outcomes. The lock is on a side file (SQLite's own

@@ -38,7 +38,7 @@ constexpr char kSafetyNote[] =
 const OptionSpec kGlobalOptions[] = {
     {"--server", "", "HOST:PORT", "the server (default $OGIVE_SERVER, else 127.0.0.1:7075)"},
     {"--timeout", "", "DURATION", "deadline of each call to the server (default 30s)"},
-    {"--json", "", "", "print data as protobuf JSON instead of tables and text"},
+    {"--json", "", "", "print data as JSON instead of tables and text (trials as export records)"},
     {"--token-file", "", "PATH", "file holding the access token (default: $OGIVE_TOKEN)"},
     {"--tls", "", "", "use TLS, trusting the system's CA certificates (implied by --tls-*)"},
     {"--tls-ca", "", "PEM", "CA certificates that sign the server's (default $OGIVE_TLS_CA)"},
@@ -58,6 +58,12 @@ int UsageError(const Command& command, absl::string_view message) {
   std::fprintf(stderr, "%s: %s\n(see '%s --help')\n", Prefix(command).c_str(),
                std::string(message).c_str(), Prefix(command).c_str());
   return kExitUsage;
+}
+
+// "ALREADY_EXISTS (OUTCOME_CONFLICT)": a report's code and the server's reason for it.
+std::string ResultCode(const v1::ReportResult& r) {
+  return absl::StrCat(absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())),
+                      r.reason().empty() ? "" : absl::StrCat(" (", r.reason(), ")"));
 }
 
 int ServerError(const Invocation& inv, const absl::Status& status) {
@@ -348,9 +354,7 @@ int RunTell(const Invocation& inv) {
   for (const v1::ReportResult& r : told->results()) {
     if (r.code() != 0) {
       std::fprintf(stderr, "%s: trial %lld: %s: %s\n", Prefix(*inv.command).c_str(),
-                   static_cast<long long>(r.trial()),
-                   absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())).c_str(),
-                   r.message().c_str());
+                   static_cast<long long>(r.trial()), ResultCode(r).c_str(), r.message().c_str());
       exit_code = kExitServerError;
     } else if (!inv.globals.json) {
       Print(absl::StrCat("trial ", r.trial(), ": ",
@@ -481,8 +485,7 @@ int RunImport(const Invocation& inv) {
       const v1::ReportResult& r = told->results(i);
       if (r.code() != 0) {
         refused.push_back(absl::StrCat(path, ":", lines[static_cast<size_t>(i)], ": trial ", r.trial(), ": ",
-                                       absl::StatusCodeToString(static_cast<absl::StatusCode>(r.code())), ": ",
-                                       r.message()));
+                                       ResultCode(r), ": ", r.message()));
       } else {
         ++stored;
         if (r.late()) ++late;
@@ -835,10 +838,10 @@ std::string HelpText(const Command* command, const std::vector<std::string>& gro
   out += "\nglobal options (anywhere on the line):\n";
   AppendOptions(&out, kGlobalOptions);
   out +=
-      "\n'ogive COMMAND --help' describes a command.\n"
+      "\n'ogive COMMAND --help' describes a command; 'ogive --version' prints the version.\n"
       "\n"
-      "exit status: 0 success; 1 the server refused or failed a call (its gRPC code is printed);\n"
-      "2 a usage error; 'ogive work' stopped by SIGTERM exits 143 (SIGINT: 130).\n"
+      "exit status: 0 success; 1 the server refused or failed a call (its gRPC code and reason are\n"
+      "printed); 2 a usage error; 'ogive work' stopped by SIGTERM exits 143 (SIGINT: 130).\n"
       "\n";
   out += kSafetyNote;
   return out;

@@ -343,6 +343,9 @@ TEST(CsvReaderTest, ByteOrderMarkAndSeparatorsOfSpreadsheetPrograms) {
   EXPECT_EQ(DetectSeparator("trial,outcome\n"), ',');
   EXPECT_EQ(DetectSeparator("\"a;b;c\",outcome\n"), ',');  // separators inside quotes do not count
   EXPECT_EQ(DetectSeparator("trial\n"), ',');
+  EXPECT_EQ(DetectSeparator("1;3,25\n"), ';');  // no header: the comma beside ';' is a decimal comma
+  EXPECT_EQ(DetectSeparator("1\t3,25\n"), '\t');
+  EXPECT_EQ(DetectSeparator("1,good,dull; matte\n"), ',');
   absl::StatusOr<std::vector<CsvRecord>> records = ParseCsv("trial;outcome\r\n7;\"3,25\"\r\n", ';');
   ASSERT_TRUE(records.ok());
   ASSERT_EQ(records->size(), 2u);
@@ -356,6 +359,45 @@ TEST(CsvReaderTest, ByteOrderMarkAndSeparatorsOfSpreadsheetPrograms) {
   EXPECT_EQ(with_comma.to_report[0].outcome.score(), 3.25);
   const ImportPlan without = PlanImport(*records, Design(kMixedDesign), {t}, /*decimal_comma=*/false);
   EXPECT_EQ(without.bad.size(), 1u);
+  // The same without a header row, as a spreadsheet saves a quick list: separator and decimal comma
+  // are found from the data alone.
+  const std::string headerless = "\xEF\xBB\xBF" "7;3,25\r\n";
+  const absl::string_view body = StripByteOrderMark(headerless);
+  const char separator = DetectSeparator(body);
+  absl::StatusOr<std::vector<CsvRecord>> rows = ParseCsv(body, separator);
+  ASSERT_TRUE(rows.ok());
+  const ImportPlan quick = PlanImport(*rows, Design(kMixedDesign), {t}, separator != ',');
+  ASSERT_EQ(quick.to_report.size(), 1u) << (quick.bad.empty() ? "" : quick.bad[0].reason);
+  EXPECT_EQ(quick.to_report[0].outcome.score(), 3.25);
+}
+
+// An export of one campaign imported into another whose trials have the same numbers reports
+// nothing: each row's candidate differs from that campaign's trial, and the row says so.
+TEST(ExportImportTest, AnExportOfAnotherCampaignIsRefusedRowByRow) {
+  const v1::CampaignDesign design = Design(kMixedDesign);
+  v1::Trial theirs;
+  theirs.set_number(1);
+  theirs.set_state(v1::TRIAL_STATE_REPORTED);
+  *theirs.mutable_candidate() = MixedCandidate();
+  theirs.mutable_outcome()->set_score(2.5);
+  v1::Trial ours = theirs;
+  ours.clear_outcome();
+  ours.set_state(v1::TRIAL_STATE_LEASED);
+  (*ours.mutable_candidate()->mutable_values())["peak-temp"].set_real(700.25);
+  absl::StatusOr<std::vector<CsvRecord>> records = ParseCsv(TrialsExportCsv(design, {theirs}));
+  ASSERT_TRUE(records.ok());
+  const ImportPlan plan = PlanImport(*records, design, {ours});
+  EXPECT_TRUE(plan.to_report.empty());
+  ASSERT_EQ(plan.bad.size(), 1u);
+  EXPECT_THAT(plan.bad[0].reason, HasSubstr("peak-temp is '812.5', this campaign's trial 1 has 700.25"));
+  // Digits shortened by a spreadsheet still match.
+  std::string csv = TrialsExportCsv(design, {theirs});
+  ours = theirs;
+  ours.clear_outcome();
+  (*ours.mutable_candidate()->mutable_values())["peak-temp"].set_real(812.5 + 1e-12);
+  records = ParseCsv(csv);
+  ASSERT_TRUE(records.ok());
+  EXPECT_EQ(PlanImport(*records, design, {ours}).to_report.size(), 1u);
 }
 
 TEST(ViewsTest, TrialsTableShowsOutcomesAndParameters) {
@@ -514,7 +556,7 @@ TEST(ArgsTest, ValueParsers) {
   EXPECT_EQ(*ParsePositiveSeconds("--lease", "2h"), 7200);
   EXPECT_EQ(*ParsePositiveSeconds("--lease", "2d"), 172800);
   EXPECT_THAT(std::string(ParsePositiveSeconds("--lease", "0").status().message()),
-              HasSubstr("--lease: must be a positive duration such as 90s, 15m, 2h, 2d or 1h30m "
+              HasSubstr("--lease: must be a positive duration of at most 3650d, such as 90s, 15m, 2h, 2d or 1h30m "
                         "(a bare number is seconds), got '0'"));
   EXPECT_EQ(*ParseInteger("-n", "7", 1, 10), 7);
   EXPECT_THAT(std::string(ParseInteger("-n", "0", 1, 10).status().message()),
@@ -540,7 +582,7 @@ TEST(CommandLineTest, ServerFromTheEnvironmentUnlessGiven) {
   EXPECT_THAT(UsageMessage({"campaign", "list", "--server", "nohost"}),
               HasSubstr("--server: must be HOST:PORT"));
   EXPECT_THAT(UsageMessage({"campaign", "list", "--timeout", "-1"}),
-              HasSubstr("--timeout: must be a positive duration such as 90s"));
+              HasSubstr("--timeout: must be a positive duration of at most 3650d, such as 90s"));
 }
 
 TEST(CommandLineTest, TlsOptionsFromTheCommandLineElseTheEnvironment) {
@@ -678,7 +720,7 @@ TEST(WorkArgsTest, ErrorsNameTheOption) {
   EXPECT_THAT(message({"work", "S", "--max-trials", "many", "--", "x"}),
               HasSubstr("--max-trials: must be a whole number"));
   EXPECT_THAT(message({"work", "S", "--lease", "-5", "--", "x"}),
-              HasSubstr("--lease: must be a positive duration such as 90s"));
+              HasSubstr("--lease: must be a positive duration of at most 3650d, such as 90s"));
 }
 
 TEST(TellArgsTest, ExactlyOneOutcome) {

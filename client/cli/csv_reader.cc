@@ -21,8 +21,9 @@ char DetectSeparator(absl::string_view text) {
     semicolons += c == ';';
     tabs += c == '\t';
   }
-  if (semicolons > commas && semicolons >= tabs) return ';';
-  if (tabs > commas && tabs > semicolons) return '\t';
+  // On a tie with commas, ';' or the tab wins: a comma beside them is a decimal comma ("1;3,25").
+  if (semicolons > 0 && semicolons >= commas && semicolons >= tabs) return ';';
+  if (tabs > 0 && tabs >= commas) return '\t';
   return ',';
 }
 

@@ -27,7 +27,8 @@ absl::StatusOr<std::vector<CsvRecord>> ParseCsv(absl::string_view text, char sep
 absl::string_view StripByteOrderMark(absl::string_view text);
 
 // The separator of `text`: whichever of ',', ';' and tab occurs most often outside quotes in its
-// first record; ',' when none does or on a tie with ','.
+// first record; on a tie with ',' the other one (a comma beside ';' or a tab is a decimal comma,
+// "1;3,25"); ',' when none occurs.
 char DetectSeparator(absl::string_view text);
 
 }  // namespace ogive::cli

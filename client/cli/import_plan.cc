@@ -5,6 +5,9 @@
 #include <cmath>
 #include <cstdlib>
 #include <optional>
+#include <string>
+#include <utility>
+#include <vector>
 
 #include "absl/container/flat_hash_map.h"
 #include "absl/strings/ascii.h"
@@ -13,6 +16,7 @@
 #include "absl/strings/str_cat.h"
 #include "client/cli/format.h"
 #include "client/cli/grade_match.h"
+#include "client/cli/trial_export.h"
 
 namespace ogive::cli {
 namespace {
@@ -23,6 +27,7 @@ struct Columns {
   int note = 2;    // -1 when the file has none
   int score = -1;  // the export layout: outcome holds the kind, score and grade the value
   int grade = -1;
+  std::vector<std::pair<int, const v1::Parameter*>> parameters;  // the export's candidate columns
   bool export_layout() const { return score >= 0 && grade >= 0; }
 };
 
@@ -45,6 +50,32 @@ std::string WithDecimalPoint(absl::string_view text) {
     out[out.find(',')] = '.';
   }
   return out;
+}
+
+// Whether an export's field `text` shows `value` (reals to 1e-9 relative: a spreadsheet may have
+// shortened the digits; flags as true/false in any case, or 1/0).
+bool SameValue(absl::string_view text, const v1::Value& value, bool decimal_comma) {
+  const absl::string_view t = absl::StripAsciiWhitespace(text);
+  switch (value.kind_case()) {
+    case v1::Value::kReal: {
+      const std::string copy = decimal_comma ? WithDecimalPoint(t) : std::string(t);
+      char* end = nullptr;
+      const double x = std::strtod(copy.c_str(), &end);
+      return end == copy.c_str() + copy.size() && !copy.empty() &&
+             std::fabs(x - value.real()) <= 1e-9 * std::max(1.0, std::fabs(value.real()));
+    }
+    case v1::Value::kInteger: {
+      int64_t n = 0;
+      return absl::SimpleAtoi(t, &n) && n == value.integer();
+    }
+    case v1::Value::kCategorical:
+      return t == value.categorical();
+    case v1::Value::kFlag:
+      return value.flag() ? (absl::EqualsIgnoreCase(t, "true") || t == "1")
+                          : (absl::EqualsIgnoreCase(t, "false") || t == "0");
+    default:
+      return false;
+  }
 }
 
 absl::StatusOr<v1::Outcome> ParseOutcomeField(absl::string_view text, const v1::Objective& objective,
@@ -144,7 +175,7 @@ ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::CampaignD
     const CsvRecord& head = records[0];
     if (!head.fields.empty() && !absl::SimpleAtoi(absl::StripAsciiWhitespace(head.fields[0]), &ignored)) {
       // A header row: find the columns by name.
-      columns = Columns{-1, -1, -1, -1, -1};
+      columns = Columns{-1, -1, -1, -1, -1, {}};
       for (size_t i = 0; i < head.fields.size(); ++i) {
         const std::string name = absl::AsciiStrToLower(absl::StripAsciiWhitespace(head.fields[i]));
         if (name == "trial") columns.trial = static_cast<int>(i);
@@ -152,6 +183,13 @@ ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::CampaignD
         if (name == "note") columns.note = static_cast<int>(i);
         if (name == "score") columns.score = static_cast<int>(i);
         if (name == "grade") columns.grade = static_cast<int>(i);
+      }
+      // The candidate's columns, as the export names them ("peak_temp (degC)").
+      for (size_t i = 0; i < head.fields.size(); ++i) {
+        const absl::string_view name = absl::StripAsciiWhitespace(head.fields[i]);
+        for (const v1::Parameter& parameter : design.parameters()) {
+          if (name == ExportColumnName(parameter)) columns.parameters.emplace_back(static_cast<int>(i), &parameter);
+        }
       }
       first = 1;
       if (columns.trial < 0 || columns.outcome < 0) {
@@ -206,6 +244,24 @@ ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::CampaignD
     }
     if (!outcome.ok()) {
       bad(absl::StrCat("trial ", number, ": ", outcome.status().message()));
+      continue;
+    }
+    // An export names the candidate too: it must be this campaign's trial, not another campaign's
+    // trial of the same number.
+    std::string mismatch;
+    for (const auto& [column, parameter] : columns.parameters) {
+      const std::optional<std::string> text = field(column);
+      const auto value = found->second->candidate().values().find(parameter->name());
+      if (!text.has_value() || value == found->second->candidate().values().end()) continue;
+      if (!SameValue(*text, value->second, decimal_comma)) {
+        mismatch = absl::StrCat("trial ", number, ": the file's ", parameter->name(), " is '", *text,
+                                "', this campaign's trial ", number, " has ", ValueData(value->second),
+                                " (an export of another campaign?)");
+        break;
+      }
+    }
+    if (!mismatch.empty()) {
+      bad(mismatch);
       continue;
     }
     if (std::optional<std::string> note = field(columns.note); note.has_value()) outcome->set_note(*note);

@@ -40,7 +40,9 @@ struct ImportPlan {
 // - the records of `ogive campaign export --csv` and `ogive campaign trials --csv` (a header with
 //   trial, outcome, score and grade columns, among others): outcome is the kind (score, grade,
 //   infeasible, void, or empty for a trial without one, which is skipped), the value is in the score
-//   or grade column. An export imported into its own campaign is therefore found stored already.
+//   or grade column. An export imported into its own campaign is therefore found stored already. Its
+//   candidate columns must match the campaign's trial of that number (reals to 1e-9 relative), so an
+//   export of another campaign is refused row by row instead of reporting onto the wrong trials.
 // With `decimal_comma` (the file separates fields with ';' or tabs, as spreadsheet programs do where
 // a comma is the decimal mark), a score may be written "3,25".
 ImportPlan PlanImport(const std::vector<CsvRecord>& records, const v1::CampaignDesign& design,

@@ -79,11 +79,13 @@ std::string JsonString(const std::string& text) {
   return out;
 }
 
+std::string ExportColumnName(const v1::Parameter& parameter) {
+  return parameter.unit().empty() ? parameter.name() : StrCat(parameter.name(), " (", parameter.unit(), ")");
+}
+
 std::vector<std::string> ExportHeader(const v1::CampaignDesign& design) {
   std::vector<std::string> header = {"trial", "state", "outcome", "score", "grade", "note"};
-  for (const v1::Parameter& p : design.parameters()) {
-    header.push_back(p.unit().empty() ? p.name() : StrCat(p.name(), " (", p.unit(), ")"));
-  }
+  for (const v1::Parameter& p : design.parameters()) header.push_back(ExportColumnName(p));
   for (const char* column : {"generation", "consumed_by", "use", "late", "worker", "reported_by", "reported_at",
                              "lease_deadline"}) {
     header.emplace_back(column);

@@ -22,6 +22,9 @@ namespace ogive::cli {
 // late, worker, reported_by, reported_at, lease_deadline.
 std::vector<std::string> ExportHeader(const v1::CampaignDesign& design);
 
+// A parameter's column: "peak_temp (degC)", or the bare name without a unit.
+std::string ExportColumnName(const v1::Parameter& parameter);
+
 // RFC 4180: a header row, then one record per trial; records end in CRLF; fields holding a comma, a
 // double quote, CR or LF are quoted with inner quotes doubled. Empty fields for what a trial does not
 // have (a score of a graded trial, consumed_by of an unconsumed one, reported_at before a report).

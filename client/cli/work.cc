@@ -28,6 +28,7 @@
 #include "client/cli/format.h"
 #include "client/cli/outcome_line.h"
 #include "client/error_reason.h"
+#include "server/base/reason.h"
 
 extern char** environ;
 
@@ -348,7 +349,10 @@ int WorkLoop::StopSignal() {
 }
 
 bool WorkLoop::Patient(const absl::Status& status, absl::string_view what) {
-  if (status.code() != absl::StatusCode::kUnavailable) return false;
+  // The server restarts or drains, or the token's request rate is spent: both pass.
+  if (status.code() != absl::StatusCode::kUnavailable && !client::HasReason(status, reason::kRateLimited)) {
+    return false;
+  }
   const absl::Time now = absl::Now();
   if (unavailable_since_ == absl::InfiniteFuture()) {
     unavailable_since_ = now;
@@ -435,25 +439,30 @@ void WorkLoop::AskForTrials() {
 
 void WorkLoop::HandleAskRefusal(const absl::Status& status) {
   if (Patient(status, "asking for trials")) {
-    retry_at_ = absl::Now() + options_.retry_interval;
+    const std::optional<client::ErrorReason> why = client::ErrorReasonOf(status);
+    retry_at_ = absl::Now() + std::max(options_.retry_interval,
+                                       why.has_value() ? why->retry_delay.value_or(absl::ZeroDuration())
+                                                       : absl::ZeroDuration());
     return;
   }
   // The reason decides, never the wording: done ends the loop; paused, a trial budget taken up by
   // outstanding trials, or a rate limit mean asking again later; anything else is fatal.
   const std::optional<client::ErrorReason> why = client::ErrorReasonOf(status);
-  const std::string reason = why.has_value() ? why->reason : "";
-  if (reason != "CAMPAIGN_DONE" && reason != "CAMPAIGN_PAUSED" && reason != "BUDGET_COMMITTED" &&
-      reason != "RATE_LIMITED") {
+  const std::string why_not = why.has_value() ? why->reason : "";
+  if (why_not != reason::kCampaignDone && why_not != reason::kCampaignPaused &&
+      why_not != reason::kBudgetCommitted && why_not != reason::kRateLimited) {
     Log(absl::StrCat("ogive work: asking for trials failed: ", ErrorText(status)));
     stop_ = Stop::kFatal;
     exit_code_ = 1;
     return;
   }
-  if (reason == "CAMPAIGN_DONE") {
+  if (why_not == reason::kCampaignDone) {
     stop_ = Stop::kDone;
     // For the log: the phase as the campaign's view shows it, else the reason's metadata.
-    std::string done_text = absl::StrCat("done (", why->metadata.count("done_reason") > 0
-                                                       ? why->metadata.at("done_reason") : "", ")");
+    std::string done_text = "done";
+    if (auto it = why->metadata.find("done_reason"); it != why->metadata.end() && !it->second.empty()) {
+      done_text = absl::StrCat("done (", it->second, ")");
+    }
     if (absl::StatusOr<v1::CampaignView> view = client_.GetCampaign(options_.campaign); view.ok()) {
       done_text = PhaseWithReason(view->status());
       if (!view->status().phase_message().empty()) absl::StrAppend(&done_text, ": ", view->status().phase_message());
@@ -467,7 +476,7 @@ void WorkLoop::HandleAskRefusal(const absl::Status& status) {
     return;
   }
   const std::string message =
-      reason == "CAMPAIGN_PAUSED"
+      why_not == reason::kCampaignPaused
           ? absl::StrCat("campaign ", options_.campaign, " is paused; asking again every ",
                          absl::FormatDuration(options_.retry_interval), " until it is resumed")
           : absl::StrCat("waiting: ", status.message());
@@ -564,7 +573,8 @@ void WorkLoop::Tell(const std::vector<std::pair<const Running*, v1::Outcome>>& r
       if (result.code() != 0) {
         absl::StrAppend(&line, "; NOT stored: ",
                         absl::StatusCodeToString(static_cast<absl::StatusCode>(result.code())),
-                        ": ", result.message());
+                        result.reason().empty() ? "" : absl::StrCat(" (", result.reason(), ")"), ": ",
+                        result.message());
       } else if (result.duplicate()) {
         absl::StrAppend(&line, "; already stored (duplicate)");
       } else if (result.late()) {

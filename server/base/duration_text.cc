@@ -11,15 +11,19 @@ namespace ogive {
 
 absl::StatusOr<absl::Duration> ParseDurationText(absl::string_view what, absl::string_view text) {
   const absl::string_view trimmed = absl::StripAsciiWhitespace(text);
-  const absl::Status refused = absl::InvalidArgumentError(absl::StrCat(
-      what, ": must be a positive duration such as 90s, 15m, 2h, 2d or 1h30m (a bare number is seconds), got '",
-      text, "'"));
+  const absl::Status refused = absl::InvalidArgumentError(
+      absl::StrCat(what, ": must be a positive duration of at most ", absl::ToInt64Hours(kMaxDurationText) / 24,
+                   "d, such as 90s, 15m, 2h, 2d or 1h30m (a bare number is seconds), got '", text, "'"));
   absl::Duration total = absl::ZeroDuration();
   absl::string_view rest = trimmed;
   // Days first: absl::ParseDuration knows units up to hours only. "2d" or "1d12h".
-  if (const size_t d = rest.find('d'); d != absl::string_view::npos) {
+  const size_t d = rest.find('d');
+  const bool has_days = d != absl::string_view::npos;
+  if (has_days) {
     double days = 0;
-    if (!absl::SimpleAtod(rest.substr(0, d), &days) || !std::isfinite(days) || days < 0) return refused;
+    if (!absl::SimpleAtod(rest.substr(0, d), &days) || !std::isfinite(days) || days < 0 || days > 1e6) {
+      return refused;
+    }
     total = absl::Hours(24 * days);
     rest = rest.substr(d + 1);
     if (!rest.empty() && (rest[0] == '-' || rest[0] == '+')) return refused;  // "1d-3h"
@@ -27,17 +31,18 @@ absl::StatusOr<absl::Duration> ParseDurationText(absl::string_view what, absl::s
   if (!rest.empty()) {
     double seconds = 0;
     absl::Duration part;
-    if (absl::SimpleAtod(rest, &seconds) && total == absl::ZeroDuration()) {
-      if (!std::isfinite(seconds)) return refused;
+    if (!has_days && absl::SimpleAtod(rest, &seconds)) {  // a bare number: seconds ("1d90" is no form)
+      if (!std::isfinite(seconds) || std::fabs(seconds) > 1e12) return refused;
       part = absl::Seconds(seconds);
-    } else if (!absl::ParseDuration(std::string(rest), &part) || rest == "inf" || rest == "-inf") {
+    } else if (!absl::ParseDuration(std::string(rest), &part) || part == absl::InfiniteDuration() ||
+               part == -absl::InfiniteDuration()) {
       return refused;
     }
     total += part;
-  } else if (total == absl::ZeroDuration() || trimmed.empty()) {
-    return refused;
+  } else if (!has_days) {
+    return refused;  // empty
   }
-  if (total <= absl::ZeroDuration() || total == absl::InfiniteDuration()) return refused;
+  if (total <= absl::ZeroDuration() || total > kMaxDurationText) return refused;
   return total;
 }
 

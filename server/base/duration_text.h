@@ -11,9 +11,13 @@
 
 namespace ogive {
 
-// The positive, finite duration `text` names. INVALID_ARGUMENT naming `what` (a flag, e.g.
-// "--lease"), the text given and the forms allowed, for anything else (empty, zero, negative,
-// an unknown unit, an infinite or NaN number).
+// The longest duration accepted: ten years, far beyond any lease, deadline or interval, and far
+// below what a clock's arithmetic can overflow on.
+inline constexpr absl::Duration kMaxDurationText = absl::Hours(24 * 3650);
+
+// The positive duration `text` names, at most kMaxDurationText. INVALID_ARGUMENT naming `what` (a
+// flag, e.g. "--lease"), the text given and the forms allowed, for anything else (empty, zero,
+// negative, too long, an unknown unit, an infinite or NaN number, "1d90").
 absl::StatusOr<absl::Duration> ParseDurationText(absl::string_view what, absl::string_view text);
 
 }  // namespace ogive

@@ -31,6 +31,9 @@ inline constexpr absl::string_view kCampaignNotFound = "CAMPAIGN_NOT_FOUND";
 inline constexpr absl::string_view kTrialNotFound = "TRIAL_NOT_FOUND";
 inline constexpr absl::string_view kInvalidField = "INVALID_FIELD";
 inline constexpr absl::string_view kLimitExceeded = "LIMIT_EXCEEDED";
+inline constexpr absl::string_view kTrialAlreadyReported = "TRIAL_ALREADY_REPORTED";
+inline constexpr absl::string_view kCampaignExists = "CAMPAIGN_EXISTS";
+inline constexpr absl::string_view kReadOnly = "READ_ONLY";
 }  // namespace reason
 
 // google.rpc.ErrorInfo.domain of every reason above.

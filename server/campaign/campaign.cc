@@ -172,7 +172,8 @@ class Campaign::Planner {
       return result;
     }
     if (absl::Status s = search::CheckOutcome(report.outcome, campaign_.order_); !s.ok()) {
-      result.status = absl::InvalidArgumentError(absl::StrCat("trial ", report.trial, ": ", s.message()));
+      result.status = WithReason(absl::InvalidArgumentError(absl::StrCat("trial ", report.trial, ": ", s.message())),
+                                 {std::string(reason::kInvalidField), {{"field", "outcome"}}, std::nullopt});
       return result;
     }
     if (existing->outcome.has_value()) {
@@ -543,7 +544,9 @@ absl::StatusOr<Change> Campaign::PlanRenew(absl::Span<const int64_t> trials, con
                         {std::string(reason::kTrialNotFound), {{"trial", absl::StrCat(number)}}, std::nullopt});
     }
     if (t->outcome.has_value()) {
-      return absl::FailedPreconditionError(absl::StrCat("trial ", number, ": already reported; nothing to renew"));
+      return WithReason(
+          absl::FailedPreconditionError(absl::StrCat("trial ", number, ": already reported; nothing to renew")),
+          {std::string(reason::kTrialAlreadyReported), {{"trial", absl::StrCat(number)}}, std::nullopt});
     }
     if (!t->worker.empty() && t->worker != worker) {
       return WithReason(absl::FailedPreconditionError(absl::StrCat("trial ", number, ": leased to worker '",

@@ -10,6 +10,7 @@
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/synchronization/notification.h"
+#include "server/base/reason.h"
 #include "server/codec/design_codec.h"
 #include "server/codec/campaign_codec.h"
 #include "server/service/page_token.h"
@@ -37,17 +38,6 @@ absl::StatusOr<Response> AwaitReply(absl::FunctionRef<void(Reply<Response>)> sta
   return result;
 }
 
-// The number a numbered listing's token resumes after (0 for the first page).
-absl::StatusOr<int64_t> PagePosition(const PageScope& scope, absl::string_view token) {
-  absl::StatusOr<std::string> position = ReadPageToken(scope, token);
-  if (!position.ok()) return position.status();
-  int64_t after = 0;
-  if (!position->empty() && (!absl::SimpleAtoi(*position, &after) || after < 0)) {
-    return absl::InvalidArgumentError("page_token: not a token this server issued; pass next_page_token as is");
-  }
-  return after;
-}
-
 }  // namespace
 
 absl::StatusOr<v1::CampaignView> CreateCampaign(Registry& registry, const v1::CreateCampaignRequest& request) {
@@ -70,7 +60,7 @@ absl::StatusOr<v1::ListCampaignsResponse> ListCampaigns(Registry& registry, cons
   const PageScope page_scope{'c', "", ""};
   absl::StatusOr<std::string> after = ReadPageToken(page_scope, request.page_token());
   if (!after.ok()) return after.status();
-  const int page_size = request.page_size() == 0 ? 100 : request.page_size();
+  const int page_size = request.page_size() == 0 ? kDefaultPageSize : request.page_size();
   v1::ListCampaignsResponse response;
   std::vector<std::shared_ptr<CampaignHost>> hosts = registry.All();
   std::sort(hosts.begin(), hosts.end(), [](const auto& a, const auto& b) { return a->name() < b->name(); });
@@ -108,7 +98,10 @@ void Tell(Registry& registry, const v1::TellRequest& request, absl::Time now, co
     const v1::Report& r = request.reports(i);
     absl::StatusOr<search::Outcome> outcome = codec::OutcomeFromProto(r.outcome(), objective);
     if (!outcome.ok()) {
-      return reply(absl::InvalidArgumentError(absl::StrCat("reports[", i, "].", outcome.status().message())));
+      // The codec's message starts with the outcome's own path ("outcome.grade: ...").
+      return reply(WithReason(absl::InvalidArgumentError(absl::StrCat("reports[", i, "].", outcome.status().message())),
+                              {std::string(reason::kInvalidField), {{"field", absl::StrCat("reports[", i, "].outcome")}},
+                               std::nullopt}));
     }
     reports.push_back({r.trial(), *outcome, r.outcome().note(), token_label});
   }
@@ -141,19 +134,19 @@ absl::StatusOr<v1::RenewResponse> Renew(Registry& registry, const v1::RenewReque
 absl::StatusOr<v1::ListTrialsResponse> ListTrials(Registry& registry, const v1::ListTrialsRequest& request) {
   if (absl::Status s = ValidateListTrials(request, registry.limits()); !s.ok()) return s;
   const PageScope page_scope{'t', request.campaign(), absl::StrCat(static_cast<int>(request.state()))};
-  absl::StatusOr<int64_t> after = PagePosition(page_scope, request.page_token());
+  absl::StatusOr<int64_t> after = ReadPageNumber(page_scope, request.page_token());
   if (!after.ok()) return after.status();
   std::optional<campaign::TrialState> state;
   if (request.state() != v1::TRIAL_STATE_UNSPECIFIED) {
     absl::StatusOr<campaign::TrialState> s = codec::TrialStateFromProto(request.state());
-    if (!s.ok()) return absl::InvalidArgumentError(absl::StrCat("state: ", s.status().message()));
+    if (!s.ok()) return InvalidField("state", s.status().message());
     state = *s;
   }
   absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return host.status();
   int64_t next_after = 0;
   v1::ListTrialsResponse response;
-  for (v1::Trial& t : (*host)->Trials(state, *after, request.page_size() == 0 ? 100 : request.page_size(), &next_after)) {
+  for (v1::Trial& t : (*host)->Trials(state, *after, request.page_size() == 0 ? kDefaultPageSize : request.page_size(), &next_after)) {
     *response.add_trials() = std::move(t);
   }
   if (next_after > 0) response.set_next_page_token(MakePageToken(page_scope, absl::StrCat(next_after)));
@@ -164,13 +157,13 @@ absl::StatusOr<v1::ListGenerationsResponse> ListGenerations(Registry& registry,
                                                             const v1::ListGenerationsRequest& request) {
   if (absl::Status s = ValidateListGenerations(request, registry.limits()); !s.ok()) return s;
   const PageScope page_scope{'g', request.campaign(), ""};
-  absl::StatusOr<int64_t> after = PagePosition(page_scope, request.page_token());
+  absl::StatusOr<int64_t> after = ReadPageNumber(page_scope, request.page_token());
   if (!after.ok()) return after.status();
   absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return host.status();
   int64_t next_after = 0;
   absl::StatusOr<std::vector<v1::GenerationView>> views =
-      (*host)->Generations(*after, request.page_size() == 0 ? 100 : request.page_size(), &next_after);
+      (*host)->Generations(*after, request.page_size() == 0 ? kDefaultPageSize : request.page_size(), &next_after);
   if (!views.ok()) return views.status();
   v1::ListGenerationsResponse response;
   for (v1::GenerationView& g : *views) *response.add_generations() = std::move(g);
@@ -193,8 +186,7 @@ absl::StatusOr<v1::CampaignView> SetPhase(Registry& registry, const v1::SetPhase
       command = campaign::PhaseCommand::kFinish;
       break;
     default:
-      return absl::InvalidArgumentError(
-          "command: must be PHASE_COMMAND_PAUSE, PHASE_COMMAND_RESUME or PHASE_COMMAND_FINISH");
+      return InvalidField("command", "must be PHASE_COMMAND_PAUSE, PHASE_COMMAND_RESUME or PHASE_COMMAND_FINISH");
   }
   absl::StatusOr<std::shared_ptr<CampaignHost>> host = registry.Find(request.campaign());
   if (!host.ok()) return host.status();

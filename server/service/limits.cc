@@ -49,10 +49,9 @@ absl::Status SetLimitFromFlag(ServiceLimits& limits, absl::string_view flag, abs
       absl::StatusOr<absl::Duration> duration = ParseDurationText(flag, value);
       if (!duration.ok()) return duration.status();
       const int64_t whole = absl::ToInt64Seconds(*duration);
-      if (whole < f.min || whole > std::numeric_limits<int>::max()) {
-        return absl::InvalidArgumentError(absl::StrCat(flag, ": must be at least ", f.min, "s and at most ",
-                                                       std::numeric_limits<int>::max(), "s (", f.help, "), got '",
-                                                       value, "'"));
+      if (whole < f.min || whole > std::numeric_limits<int>::max() || *duration != absl::Seconds(whole)) {
+        return absl::InvalidArgumentError(absl::StrCat(flag, ": must be a whole number of seconds, at least ", f.min,
+                                                       "s (", f.help, "), got '", value, "'"));
       }
       limits.*f.member = static_cast<int>(whole);
       return absl::OkStatus();

@@ -27,8 +27,8 @@ struct ServiceLimits {
   int max_request_id_bytes = 128;       // request ids (the C++ client sends 32)
   int max_note_bytes = 4096;            // the note of a report
   int max_description_bytes = 1024;     // a parameter's description
-  int max_campaigns = 10000;              // campaigns per server
-  int max_page_size = 1000;             // trials per ListTrials page, generations per ListGenerations page
+  int max_campaigns = 10000;            // campaigns per server
+  int max_page_size = 1000;             // rows per page of ListCampaigns, ListTrials and ListGenerations
   int max_lease_seconds = 30 * 24 * 3600;  // longest lease, 30 days
 
   // INVALID_ARGUMENT naming the first field below its smallest allowed value (LimitFlag::min).
@@ -50,11 +50,11 @@ absl::Span<const LimitFlag> LimitFlags();
 
 // Sets the limit whose flag is `flag` from `value`. NOT_FOUND when no limit has that flag;
 // INVALID_ARGUMENT naming the flag when `value` is not a whole number >= the limit's minimum (or, for
-// a duration, not a duration of at least that many seconds).
+// a duration, not a whole number of seconds of at least that many).
 absl::Status SetLimitFromFlag(ServiceLimits& limits, absl::string_view flag, absl::string_view value);
 
 // The --help lines of every limit flag, each with its default:
-// "  --max-ask-count N            trials per Ask and Renew (default 1000)\n".
+// "  --max-ask-count N           trials per Ask, trial numbers per Renew (default 1000)\n".
 std::string LimitFlagsHelp();
 
 }  // namespace ogive::service

@@ -1,5 +1,6 @@
 #include "server/service/page_token.h"
 
+#include <algorithm>
 #include <cstdint>
 
 #include "absl/strings/escaping.h"
@@ -29,6 +30,8 @@ uint32_t ScopeDigest(const PageScope& scope) {
   return hash;
 }
 
+constexpr absl::string_view kNotOurs = "not a token this server issued; pass next_page_token as is";
+
 absl::Status Refused(absl::string_view why) {
   return WithReason(absl::InvalidArgumentError(absl::StrCat("page_token: ", why)),
                     {std::string(reason::kInvalidField), {{"field", "page_token"}}, std::nullopt});
@@ -41,23 +44,37 @@ std::string MakePageToken(const PageScope& scope, absl::string_view position) {
                       absl::WebSafeBase64Escape(position));
 }
 
+size_t MaxPageTokenBytes(int max_position_bytes) {
+  const size_t bytes = static_cast<size_t>(std::max(max_position_bytes, 20));  // an int64 has 20 digits
+  return 1 + 8 + 4 * ((bytes + 2) / 3);
+}
+
 absl::StatusOr<std::string> ReadPageToken(const PageScope& scope, absl::string_view token) {
   if (token.empty()) return std::string();
-  constexpr absl::string_view kNotOurs = "not a token this server issued; pass next_page_token as is";
-  if (token.size() > kMaxPageTokenBytes || token.size() < 9) return Refused(kNotOurs);
+  if (token.size() < 9) return Refused(kNotOurs);
   uint32_t digest = 0;
   if (!absl::SimpleHexAtoi(token.substr(1, 8), &digest)) return Refused(kNotOurs);
-  if (token[0] != scope.listing || (scope.listing == 'c' && digest != ScopeDigest(scope))) {
+  if (token[0] != scope.listing) {
     return Refused("not a token this server issued for this listing (it belongs to another one); start this "
                    "one without a token");
   }
   if (digest != ScopeDigest(scope)) {
+    // The campaign list has no campaign or filter: a digest that does not match is damage.
+    if (scope.listing == 'c') return Refused(kNotOurs);
     return Refused("not a token this server issued for this campaign and filter (it belongs to another "
                    "campaign or state); start again without a token");
   }
   std::string position;
   if (!absl::WebSafeBase64Unescape(token.substr(9), &position)) return Refused(kNotOurs);
   return position;
+}
+
+absl::StatusOr<int64_t> ReadPageNumber(const PageScope& scope, absl::string_view token) {
+  absl::StatusOr<std::string> position = ReadPageToken(scope, token);
+  if (!position.ok()) return position.status();
+  int64_t after = 0;
+  if (!position->empty() && (!absl::SimpleAtoi(*position, &after) || after < 0)) return Refused(kNotOurs);
+  return after;
 }
 
 }  // namespace ogive::service

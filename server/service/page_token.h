@@ -10,6 +10,8 @@
 #ifndef OGIVE_SERVER_SERVICE_PAGE_TOKEN_H_
 #define OGIVE_SERVER_SERVICE_PAGE_TOKEN_H_
 
+#include <cstddef>
+#include <cstdint>
 #include <string>
 
 #include "absl/status/statusor.h"
@@ -17,9 +19,12 @@
 
 namespace ogive::service {
 
-// The longest token MakePageToken makes for a position of up to 192 bytes (a campaign name is at
-// most 128 bytes; numbers are shorter).
-inline constexpr size_t kMaxPageTokenBytes = 1 + 8 + 256;
+// Rows per page when a request asks for 0.
+inline constexpr int kDefaultPageSize = 100;
+
+// The longest token MakePageToken makes for a position of up to `max_position_bytes` bytes (the
+// server's longest campaign name; numbers are shorter): what a listing request may carry.
+size_t MaxPageTokenBytes(int max_position_bytes);
 
 // What a token is bound to.
 struct PageScope {
@@ -32,8 +37,12 @@ struct PageScope {
 std::string MakePageToken(const PageScope& scope, absl::string_view position);
 
 // The position `token` resumes after, "" for an empty token (the first page). INVALID_ARGUMENT
-// naming page_token when the token was not made by MakePageToken for `scope`.
+// (reason INVALID_FIELD, field page_token) when the token was not made by MakePageToken for `scope`.
 absl::StatusOr<std::string> ReadPageToken(const PageScope& scope, absl::string_view token);
+
+// The same for listings whose position is a number (trials, generations): 0 for an empty token,
+// INVALID_ARGUMENT as above for anything but a token of a number >= 0.
+absl::StatusOr<int64_t> ReadPageNumber(const PageScope& scope, absl::string_view token);
 
 }  // namespace ogive::service
 

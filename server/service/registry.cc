@@ -72,7 +72,9 @@ absl::StatusOr<std::shared_ptr<CampaignHost>> Registry::Create(const v1::Campaig
     absl::ReaderMutexLock lock(&mu_);
     if (auto it = campaigns_.find(design.name()); it != campaigns_.end()) {
       if (!request_id.empty() && it->second->create_request_id() == request_id) return it->second;
-      return absl::AlreadyExistsError(absl::StrCat("design.name: a campaign named '", design.name(), "' already exists"));
+      return WithReason(
+          absl::AlreadyExistsError(absl::StrCat("design.name: a campaign named '", design.name(), "' already exists")),
+          {std::string(reason::kCampaignExists), {{"campaign", design.name()}}, std::nullopt});
     }
     if (static_cast<int>(campaigns_.size()) >= limits_.max_campaigns) {
       return WithReason(absl::ResourceExhaustedError(absl::StrCat("this server holds its limit of ",

@@ -12,6 +12,12 @@
 #include "server/service/page_token.h"
 
 namespace ogive::service {
+
+absl::Status InvalidField(absl::string_view path, absl::string_view rule) {
+  return WithReason(absl::InvalidArgumentError(absl::StrCat(path, ": ", rule)),
+                    {std::string(reason::kInvalidField), {{"field", std::string(path)}}, std::nullopt});
+}
+
 namespace {
 
 using absl::StrCat;
@@ -25,10 +31,7 @@ constexpr int kMaxPopulation = 100000;
 constexpr const char* kReservedEnvNames[] = {"CAMPAIGN",  "TRIAL",  "CANDIDATE_FILE", "SERVER",  "TOKEN",
                                              "TLS",    "TLS_CA", "TLS_CERT",       "TLS_KEY", "TLS_SERVER_NAME"};
 
-absl::Status Invalid(absl::string_view path, absl::string_view rule) {
-  return WithReason(absl::InvalidArgumentError(StrCat(path, ": ", rule)),
-                    {std::string(reason::kInvalidField), {{"field", std::string(path)}}, std::nullopt});
-}
+absl::Status Invalid(absl::string_view path, absl::string_view rule) { return InvalidField(path, rule); }
 
 // A value as messages show it: quoted, at most 64 bytes, control characters escaped.
 std::string Shown(absl::string_view value) {
@@ -43,6 +46,18 @@ absl::Status CheckCount(absl::string_view path, int64_t count, int64_t min, int6
     return WithReason(
         absl::ResourceExhaustedError(StrCat(path, ": at most ", max, " ", what, " (this server's limit), got ", count)),
         {std::string(reason::kLimitExceeded), {{"field", std::string(path)}}, std::nullopt});
+  }
+  return absl::OkStatus();
+}
+
+// A listing's page_size and page_token (the token's own checks are page_token.h's).
+absl::Status CheckPaging(int32_t page_size, const std::string& page_token, const ServiceLimits& limits) {
+  if (page_size < 0 || page_size > limits.max_page_size) {
+    return Invalid("page_size", StrCat("must be 0 (", kDefaultPageSize, ") or in 1..", limits.max_page_size,
+                                       ", got ", page_size));
+  }
+  if (page_token.size() > MaxPageTokenBytes(limits.max_name_bytes)) {
+    return Invalid("page_token", "not a token this server issued; pass next_page_token as is");
   }
   return absl::OkStatus();
 }
@@ -441,37 +456,16 @@ absl::Status ValidateListTrials(const v1::ListTrialsRequest& request, const Serv
                                      "TRIAL_STATE_LAPSED or TRIAL_STATE_VOIDED, got ",
                                      static_cast<int>(request.state())));
   }
-  if (request.page_size() < 0 || request.page_size() > limits.max_page_size) {
-    return Invalid("page_size",
-                   StrCat("must be 0 (100) or in 1..", limits.max_page_size, ", got ", request.page_size()));
-  }
-  if (request.page_token().size() > kMaxPageTokenBytes) {
-    return Invalid("page_token", "not a token this server issued; pass next_page_token as is");
-  }
-  return absl::OkStatus();
+  return CheckPaging(request.page_size(), request.page_token(), limits);
 }
 
 absl::Status ValidateListCampaigns(const v1::ListCampaignsRequest& request, const ServiceLimits& limits) {
-  if (request.page_size() < 0 || request.page_size() > limits.max_page_size) {
-    return Invalid("page_size",
-                   StrCat("must be 0 (100) or in 1..", limits.max_page_size, ", got ", request.page_size()));
-  }
-  if (request.page_token().size() > kMaxPageTokenBytes) {
-    return Invalid("page_token", "not a token this server issued; pass next_page_token as is");
-  }
-  return absl::OkStatus();
+  return CheckPaging(request.page_size(), request.page_token(), limits);
 }
 
 absl::Status ValidateListGenerations(const v1::ListGenerationsRequest& request, const ServiceLimits& limits) {
   if (absl::Status s = ValidateCampaignName("campaign", request.campaign(), limits); !s.ok()) return s;
-  if (request.page_size() < 0 || request.page_size() > limits.max_page_size) {
-    return Invalid("page_size",
-                   StrCat("must be 0 (100) or in 1..", limits.max_page_size, ", got ", request.page_size()));
-  }
-  if (request.page_token().size() > kMaxPageTokenBytes) {
-    return Invalid("page_token", "not a token this server issued; pass next_page_token as is");
-  }
-  return absl::OkStatus();
+  return CheckPaging(request.page_size(), request.page_token(), limits);
 }
 
 absl::Status ValidateSetPhase(const v1::SetPhaseRequest& request, const ServiceLimits& limits) {

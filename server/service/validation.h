@@ -29,6 +29,10 @@ namespace ogive::service {
 // CLI uses itself (OGIVE_CAMPAIGN, OGIVE_TRIAL, ...).
 absl::Status ValidateDesignShape(const v1::CampaignDesign& design, const ServiceLimits& limits);
 
+// INVALID_ARGUMENT "<path>: <rule>" with reason INVALID_FIELD naming `path` (e.g. "reports[2].outcome"):
+// the one way a malformed field is refused.
+absl::Status InvalidField(absl::string_view path, absl::string_view rule);
+
 // A campaign name as requests carry it (`field` is its path, e.g. "campaign"): 1..max_name_bytes of letters,
 // digits, '_', '-' and '.'.
 absl::Status ValidateCampaignName(absl::string_view field, const std::string& name, const ServiceLimits& limits);

@@ -116,6 +116,9 @@ rc=0
 token list --db "$TMP/missing.db" >"$TMP/missing.out" 2>&1 || rc=$?
 [[ "$rc" -eq 1 ]] && grep -q "no database file" "$TMP/missing.out" || fail "list of no file: $(cat "$TMP/missing.out")"
 [[ ! -e "$TMP/missing.db" ]] || fail "token list created a database file"
+rc=0
+token list --db "$DB" --bogus >"$TMP/bogus.out" 2>&1 || rc=$?
+[[ "$rc" -eq 2 ]] && grep -q "unknown option '--bogus'" "$TMP/bogus.out" || fail "--bogus: $rc $(cat "$TMP/bogus.out")"
 
 step "ogived token create prints the token once; list never shows it"
 token create --db "$DB" --role admin --label alice >"$TMP/alice.token" 2>"$TMP/create.log"

@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "absl/strings/str_cat.h"
+#include "absl/time/clock.h"
 #include "absl/time/time.h"
 #include "client/error_reason.h"
 #include "client/ogive_client.h"
@@ -100,6 +101,16 @@ TEST_F(ReasonsTest, EachRefusalCarriesItsReason) {
   v1::Report unknown = score;
   unknown.set_trial(999);
   ASSERT_TRUE(client_->Tell("kiln", {score}, "bench-1").ok());
+  EXPECT_EQ(ReasonOf(client_->Renew("kiln", {first}, "bench-1").status(), absl::StatusCode::kFailedPrecondition),
+            "TRIAL_ALREADY_REPORTED");
+  EXPECT_EQ(ReasonOf(client_->CreateCampaign(Design("kiln")).status(), absl::StatusCode::kAlreadyExists),
+            "CAMPAIGN_EXISTS");
+  v1::Report graded = score;  // a grade on a scored campaign: the whole call is refused, naming the report
+  graded.set_trial(asked->trials(1).number());
+  graded.mutable_outcome()->set_grade("good");
+  absl::Status malformed = client_->Tell("kiln", {graded}, "bench-1").status();
+  EXPECT_EQ(ReasonOf(malformed, absl::StatusCode::kInvalidArgument), "INVALID_FIELD");
+  EXPECT_EQ(client::ErrorReasonOf(malformed)->metadata["field"], "reports[0].outcome");
   absl::StatusOr<v1::TellResponse> told = client_->Tell("kiln", {other, unknown, score}, "bench-1");
   ASSERT_TRUE(told.ok()) << told.status();
   ASSERT_EQ(told->results_size(), 3);
@@ -122,6 +133,26 @@ TEST_F(ReasonsTest, EachRefusalCarriesItsReason) {
   EXPECT_EQ(ReasonOf(client_->SetPhase("kiln", v1::PHASE_COMMAND_RESUME).status(),
                      absl::StatusCode::kFailedPrecondition),
             "CAMPAIGN_DONE");
+}
+
+// A LeaseRenewer stops for good once the server says its lease can never be renewed again.
+TEST_F(ReasonsTest, ALeaseRenewerGivesUpOnATrialThatIsNoLongerLeased) {
+  ASSERT_TRUE(client_->CreateCampaign(Design("anneal")).ok());
+  absl::StatusOr<v1::AskResponse> asked = client_->Ask("anneal", 1, "node-1");
+  ASSERT_TRUE(asked.ok()) << asked.status();
+  const int64_t trial = asked->trials(0).number();
+  v1::Report done;
+  done.set_trial(trial);
+  done.mutable_outcome()->set_score(1.25);
+  ASSERT_TRUE(client_->Tell("anneal", {done}, "node-1").ok());
+  client::LeaseRenewer renewer(client_.get(), "anneal", {trial}, "node-1", 60, absl::Milliseconds(20));
+  const absl::Time deadline = absl::Now() + absl::Seconds(10);
+  while (!renewer.gave_up() && absl::Now() < deadline) absl::SleepFor(absl::Milliseconds(10));
+  EXPECT_TRUE(renewer.gave_up());
+  const int failures = renewer.failures();
+  absl::SleepFor(absl::Milliseconds(100));  // five more intervals: no more attempts
+  EXPECT_EQ(renewer.failures(), failures);
+  EXPECT_EQ(renewer.renewals(), 0);
 }
 
 TEST_F(ReasonsTest, ABudgetTakenByOutstandingTrialsSaysWaitAndFreesWhenOneIsVoided) {
@@ -204,8 +235,10 @@ TEST_F(ReasonsTest, PageTokensAreBoundToTheirListingCampaignAndFilter) {
   campaigns.set_page_token(token);
   v1::ListCampaignsResponse campaign_page;
   EXPECT_TRUE(refused(Call(&v1::Ogive::Stub::ListCampaigns, *stub_, campaigns, &campaign_page)));
+  // A token of this listing whose position is not a trial number: well formed, still refused.
+  std::string not_a_number = token.substr(0, 9) + "LTE";  // base64 of "-1"
   for (const std::string& forged : {std::string("t2"), token.substr(0, token.size() - 1) + "!", std::string(300, 't'),
-                                    "g" + token.substr(1)}) {
+                                    "g" + token.substr(1), not_a_number}) {
     v1::ListTrialsRequest bad = trials;
     bad.set_page_token(forged);
     EXPECT_TRUE(refused(Call(&v1::Ogive::Stub::ListTrials, *stub_, bad, &page))) << forged;

@@ -638,6 +638,11 @@ TEST(LimitFlagsTest, EveryLimitHasAFlagThatSetsItAndRefusesValuesBelowItsMinimum
     if (f.seconds) {  // a duration flag takes units too
       ASSERT_TRUE(service::SetLimitFromFlag(limits, f.flag, "2d").ok());
       EXPECT_EQ(limits.*f.member, 2 * 86400);
+      for (const char* fraction : {"1500ms", "90.5s", "0.5"}) {  // whole seconds only: nothing silently cut
+        EXPECT_THAT(std::string(service::SetLimitFromFlag(limits, f.flag, fraction).message()),
+                    HasSubstr("whole number of seconds"))
+            << fraction;
+      }
       ASSERT_TRUE(service::SetLimitFromFlag(limits, f.flag, absl::StrCat(f.min + 7, "s")).ok());
     }
     EXPECT_EQ(limits.*f.member, f.min + 7);  // a refused value changes nothing
