@@ -194,25 +194,49 @@ int RunCampaignWatch(const Invocation& inv) {
   const absl::TimeZone zone = absl::LocalTimeZone();
   v1::CampaignDesign design;  // the stream's later views are brief (no design)
   bool done = false;
-  absl::Status status = c->Watch(Arg(inv, 0), [&](const v1::CampaignView& update) {
-    v1::CampaignView view = update;
-    if (view.has_design()) {
-      design = view.design();
-    } else {
-      *view.mutable_design() = design;
+  bool got_view = false;
+  // A stream that breaks (the server restarts or drains, the network drops) is watched again with
+  // backoff, and the screen says so; after kWatchPatience without a view the command gives up.
+  constexpr absl::Duration kWatchPatience = absl::Minutes(5);
+  absl::Duration backoff = absl::Milliseconds(250);
+  absl::Time failing_since = absl::Now();
+  for (;;) {
+    got_view = false;
+    absl::Status status = c->Watch(Arg(inv, 0), [&](const v1::CampaignView& update) {
+      got_view = true;
+      v1::CampaignView view = update;
+      if (view.has_design()) {
+        design = view.design();
+      } else {
+        *view.mutable_design() = design;
+      }
+      if (inv.globals.json) {
+        Print(Json(update) + "\n");
+      } else if (terminal) {
+        Print("\x1b[H\x1b[2J" + WatchScreen(view, zone));  // home, clear screen, redraw
+      } else {
+        Print(WatchLine(view, zone));
+      }
+      done = view.status().phase() == v1::CAMPAIGN_PHASE_DONE;
+      return !done;
+    });
+    if (done) return kExitOk;
+    if (!status.ok() && status.code() != absl::StatusCode::kUnavailable) return ServerError(inv, status);
+    const absl::Time now = absl::Now();
+    if (got_view) {
+      failing_since = now;
+      backoff = absl::Milliseconds(250);
     }
-    if (inv.globals.json) {
-      Print(Json(update) + "\n");
-    } else if (terminal) {
-      Print("\x1b[H\x1b[2J" + WatchScreen(view, zone));  // home, clear screen, redraw
-    } else {
-      Print(WatchLine(view, zone));
+    if (now - failing_since > kWatchPatience) {
+      return ServerError(inv, status.ok() ? absl::UnavailableError("the server ended the stream") : status);
     }
-    done = view.status().phase() == v1::CAMPAIGN_PHASE_DONE;
-    return !done;
-  });
-  if (!status.ok()) return ServerError(inv, status);
-  return kExitOk;
+    std::fprintf(stderr, "ogive campaign watch: the stream from %s ended (%s); watching again in %s\n",
+                 inv.globals.server.c_str(),
+                 status.ok() ? "closed by the server" : std::string(status.message()).c_str(),
+                 absl::FormatDuration(backoff).c_str());
+    absl::SleepFor(backoff);
+    backoff = std::min(2 * backoff, absl::Seconds(10));
+  }
 }
 
 int RunPhase(const Invocation& inv, v1::PhaseCommand command) {
@@ -617,8 +641,13 @@ a grade; the word 'infeasible' is infeasible. Anything else, a non-zero exit sta
 death by a signal reports void, with a note saying why. The lease is renewed while
 PROGRAM runs.
 
-Stops when the campaign is done (exit 0), after N trials started (exit 0), or on a server
-error (exit 1); waits while the campaign is paused. On SIGTERM or SIGINT it sends SIGTERM to
+A failed run (non-zero exit, a signal, or longer than --trial-timeout: stopped with SIGTERM,
+then SIGKILL) delays the next trial, 0.5 s doubling up to 60 s; after
+--max-consecutive-failures of them in a row (10) it stops with exit 1.
+
+Stops when the campaign is done (exit 0), after N trials started (exit 0), on a server
+error (exit 1); waits while the campaign is paused, its trial budget is taken by outstanding
+trials, the server restarts or the token's rate limit is reached. On SIGTERM or SIGINT it sends SIGTERM to
 the running programs, reports their trials void and exits with 128 + the signal (143 for
 SIGTERM). One line per trial goes to standard error: 'trial 12: score 3.25 (41.2 s)'.
 )";
@@ -740,7 +769,11 @@ std::vector<Command> MakeCommands() {
                    {"--parallel", "", "K", "run K trials at once (default 1)"},
                    {"--lease", "", "DURATION",
                     "lease length, renewed every third of it (default: the campaign's)"},
-                   {"--worker", "", "ID", "worker name shown in trial lists (default HOST:PID)"}},
+                   {"--worker", "", "ID", "worker name shown in trial lists (default HOST:PID)"},
+                   {"--max-consecutive-failures", "", "N",
+                    "stop (status 1) after N failed runs in a row; 0 = never (default 10)"},
+                   {"--trial-timeout", "", "DURATION",
+                    "stop a program running longer and report its trial void (default: none)"}},
        .min_positional = 1,
        .max_positional = 1,
        .takes_program = true,
@@ -1046,6 +1079,16 @@ absl::StatusOr<WorkOptions> WorkOptionsFromArgs(const ParsedArgs& args,
     absl::StatusOr<double> value = ParsePositiveSeconds("--lease", *lease);
     if (!value.ok()) return value.status();
     options.lease_seconds = *value;
+  }
+  if (std::optional<std::string> n = args.Get("--max-consecutive-failures"); n.has_value()) {
+    absl::StatusOr<int64_t> value = ParseInteger("--max-consecutive-failures", *n, 0, 1000000);
+    if (!value.ok()) return value.status();
+    options.max_consecutive_failures = static_cast<int>(*value);
+  }
+  if (std::optional<std::string> timeout = args.Get("--trial-timeout"); timeout.has_value()) {
+    absl::StatusOr<double> value = ParsePositiveSeconds("--trial-timeout", *timeout);
+    if (!value.ok()) return value.status();
+    options.trial_timeout = absl::Seconds(*value);
   }
   options.worker = args.Get("--worker").value_or(default_worker);
   if (options.worker.empty()) {

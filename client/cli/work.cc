@@ -100,6 +100,7 @@ struct Running {
   bool exited = false;
   int wait_status = 0;
   absl::Time ended = absl::InfiniteFuture();  // when the program exited
+  absl::Time stopped_at = absl::InfiniteFuture();  // when --trial-timeout sent SIGTERM
 
   // How long the program ran (so far).
   absl::Duration RunTime() const { return std::min(ended, absl::Now()) - started; }
@@ -279,12 +280,17 @@ std::string ErrorText(const absl::Status& status) {
 }
 
 // The outcome of a finished program.
-v1::Outcome OutcomeOf(const Running& r, const v1::Objective& objective) {
+v1::Outcome OutcomeOf(const Running& r, const v1::Objective& objective, absl::Duration trial_timeout) {
   const std::string failure = DescribeFailure(r.wait_status);
-  if (failure.empty()) return ParseOutcomeLine(r.last_line.Get(), objective);
+  if (failure.empty() && r.stopped_at == absl::InfiniteFuture()) {
+    return ParseOutcomeLine(r.last_line.Get(), objective);
+  }
   v1::Outcome outcome;
   outcome.mutable_void_();
-  std::string note = absl::StrCat("the program ", failure);
+  std::string note = r.stopped_at != absl::InfiniteFuture()
+                         ? absl::StrCat("the program ran longer than --trial-timeout ",
+                                        absl::FormatDuration(trial_timeout), " and was stopped")
+                         : absl::StrCat("the program ", failure);
   const std::string last = r.last_line.Get();
   if (!last.empty()) absl::StrAppend(&note, "; its last line of output: ", QuoteForNote(last));
   outcome.set_note(std::move(note));
@@ -321,6 +327,10 @@ class WorkLoop {
   // restarting) for up to kUnavailablePatience. Prints the first failure.
   bool Patient(const absl::Status& status, absl::string_view what);
   void Finish(Running& r);
+  // Stops programs that ran past --trial-timeout: SIGTERM first, SIGKILL after the grace period.
+  void EnforceTrialTimeout();
+  // Counts a failed program (or resets the count after a good one); stops the loop past the limit.
+  void CountFailure(const Running& r, const v1::Outcome& outcome);
   void Tell(const std::vector<std::pair<const Running*, v1::Outcome>>& reports);
   int Shutdown(int signal_number);
   double RenewIntervalSeconds(const v1::Trial& trial) const;
@@ -337,6 +347,7 @@ class WorkLoop {
   std::string waiting_message_;  // printed once per stretch of waiting
   int stop_signal_ = 0;
   absl::Time unavailable_since_ = absl::InfiniteFuture();
+  int consecutive_failures_ = 0;
 };
 
 // How long the loop waits for an unreachable server (beyond the client's own retries) before it
@@ -392,6 +403,7 @@ int WorkLoop::Run() {
     if (running_.empty() && stop_ != Stop::kNone) break;
     WaitForEvents();
     if (StopSignal() != 0) return Shutdown(stop_signal_);
+    EnforceTrialTimeout();
     for (auto& r : running_) {
       if (r->out_fd >= 0) ReadOutput(*r);
       if (Reap(*r)) {
@@ -528,8 +540,16 @@ void WorkLoop::WaitForEvents() {
   for (const auto& r : running_) {
     if (r->out_fd >= 0) fds.push_back({r->out_fd, POLLIN, 0});
   }
-  // Wake at least once a second, so that a child whose exit we somehow missed is still reaped.
+  // Wake at least once a second, so that a child whose exit we somehow missed is still reaped, and
+  // in time for the next trial timeout.
   absl::Duration timeout = absl::Seconds(1);
+  if (options_.trial_timeout != absl::InfiniteDuration()) {
+    for (const auto& r : running_) {
+      const absl::Time due = r->stopped_at == absl::InfiniteFuture() ? r->started + options_.trial_timeout
+                                                                      : r->stopped_at + options_.stop_grace;
+      timeout = std::min(timeout, std::max(due - absl::Now(), absl::ZeroDuration()));
+    }
+  }
   if (stop_ == Stop::kNone && retry_at_ > absl::Now()) {
     timeout = std::min(timeout, retry_at_ - absl::Now());
   }
@@ -541,8 +561,52 @@ void WorkLoop::WaitForEvents() {
 
 void WorkLoop::Finish(Running& r) {
   r.renewer.reset();
-  Tell({{&r, OutcomeOf(r, design_.objective())}});
+  const v1::Outcome outcome = OutcomeOf(r, design_.objective(), options_.trial_timeout);
+  Tell({{&r, outcome}});
   unlink(r.candidate_file.c_str());
+  CountFailure(r, outcome);
+}
+
+void WorkLoop::EnforceTrialTimeout() {
+  if (options_.trial_timeout == absl::InfiniteDuration()) return;
+  const absl::Time now = absl::Now();
+  for (auto& r : running_) {
+    if (r->exited) continue;
+    if (r->stopped_at == absl::InfiniteFuture() && now - r->started >= options_.trial_timeout) {
+      Log(absl::StrCat("ogive work: trial ", r->trial.number(), ": the program ran longer than --trial-timeout ",
+                       absl::FormatDuration(options_.trial_timeout), "; stopping it"));
+      r->stopped_at = now;
+      SignalGroup(*r, SIGTERM);
+    } else if (r->stopped_at != absl::InfiniteFuture() && now - r->stopped_at >= options_.stop_grace) {
+      SignalGroup(*r, SIGKILL);
+    }
+  }
+}
+
+void WorkLoop::CountFailure(const Running& r, const v1::Outcome& outcome) {
+  const bool failed = outcome.has_void_() && (!DescribeFailure(r.wait_status).empty() ||
+                                              r.stopped_at != absl::InfiniteFuture());
+  if (!failed) {
+    consecutive_failures_ = 0;
+    return;
+  }
+  ++consecutive_failures_;
+  if (options_.max_consecutive_failures > 0 && consecutive_failures_ >= options_.max_consecutive_failures &&
+      stop_ == Stop::kNone) {
+    stop_ = Stop::kFatal;
+    exit_code_ = 1;
+    stop_message_ = absl::StrCat("the program failed ", consecutive_failures_,
+                                 " times in a row (--max-consecutive-failures ", options_.max_consecutive_failures,
+                                 "; the last: ", outcome.note(), "); stopping. Fix the program and start again.");
+    return;
+  }
+  // Wait before the next trial, doubling with each failure in a row.
+  absl::Duration wait = options_.first_failure_backoff;
+  for (int k = 1; k < consecutive_failures_ && wait < options_.max_failure_backoff; ++k) wait *= 2;
+  wait = std::min(wait, options_.max_failure_backoff);
+  retry_at_ = std::max(retry_at_, absl::Now() + wait);
+  Log(absl::StrCat("ogive work: ", consecutive_failures_, consecutive_failures_ == 1 ? " failure" : " failures",
+                   " in a row; the next trial starts in ", absl::FormatDuration(wait)));
 }
 
 void WorkLoop::Tell(const std::vector<std::pair<const Running*, v1::Outcome>>& reports) {

@@ -32,10 +32,20 @@ struct WorkOptions {
   double lease_seconds = 0;          // lease asked for and renewed; 0 = the campaign's default
   absl::Duration retry_interval = absl::Seconds(5);  // asking again while the campaign is paused
   absl::Duration stop_grace = absl::Seconds(10);     // after SIGTERM, before SIGKILL
+  // A program that fails (exits non-zero, is killed, or runs out of time) this many times in a row
+  // stops the loop with status 1; 0 = never. Between failures the loop waits, doubling from
+  // first_failure_backoff up to max_failure_backoff, so a broken program does not burn trials.
+  int max_consecutive_failures = 10;
+  absl::Duration first_failure_backoff = absl::Milliseconds(500);
+  absl::Duration max_failure_backoff = absl::Seconds(60);
+  // A program still running this long after it started is stopped (SIGTERM to its process group,
+  // SIGKILL after stop_grace) and its trial reported void; InfiniteDuration() = no limit.
+  absl::Duration trial_timeout = absl::InfiniteDuration();
 };
 
 // Runs the loop and returns the process exit status: 0 when the campaign is done or --max-trials is
-// reached, 1 on a server error (printed with its code), 2 if the campaign cannot be run this way (a
+// reached, 1 on a server error (printed with its code) or after max_consecutive_failures failed
+// programs in a row, 2 if the campaign cannot be run this way (a
 // parameter name that collides in the environment, a program that cannot be found), 128 + the
 // signal number after SIGTERM (143) or SIGINT (130), having voided every trial that was running.
 int RunWork(client::Client& client, const WorkOptions& options);

@@ -276,6 +276,29 @@ print("trials ok: %d scored-campaign trials, %d graded-campaign trials" % (len(r
 PY
 [[ $(grep -c voided "$TMP/voided.txt") -eq 4 ]] || fail "--state voided: $(cat "$TMP/voided.txt")"
 
+step "a program that always fails: the worker backs off and stops after --max-consecutive-failures"
+sed -e 's/name: "e2e-scored"/name: "e2e-broken"/' "$TMP/scored.txtpb" >"$TMP/broken.txtpb"
+timeout 10 "$OGIVE" campaign create "$TMP/broken.txtpb" >/dev/null || fail "campaign create broken"
+work e2e-broken broken --max-consecutive-failures 3 -- "$TMP/fail.sh"
+expect_rc 1 "always failing"
+expect_log broken "the program failed 3 times in a row (--max-consecutive-failures 3"
+expect_log broken "2 failures in a row; the next trial starts in 1s"
+voided=$(timeout 10 "$OGIVE" campaign trials e2e-broken --state voided --json | "$PY" -c 'import json,sys; print(len(json.load(sys.stdin)))')
+[[ "$voided" -eq 3 ]] || fail "always failing: $voided trials voided, expected exactly the limit of 3"
+leased=$(timeout 10 "$OGIVE" campaign trials e2e-broken --state leased --json | "$PY" -c 'import json,sys; print(len(json.load(sys.stdin)))')
+[[ "$leased" -eq 0 ]] || fail "always failing: $leased trials left leased"
+
+step "a program that hangs: --trial-timeout stops it, reports void with the reason, and goes on"
+printf '%s\n' '#!/usr/bin/env bash' 'echo 2.5' 'sleep 300' >"$TMP/hang.sh"
+chmod +x "$TMP/hang.sh"
+work e2e-broken hang --trial-timeout 1s --max-trials 2 -- "$TMP/hang.sh"
+expect_rc 0 "hanging program with --trial-timeout"
+[[ $(grep -c "the program ran longer than --trial-timeout 1s and was stopped" "$TMP/hang.log") -eq 2 ]] ||
+  fail "hang: expected 2 trials stopped by --trial-timeout: $(cat "$TMP/hang.log")"
+notes=$(timeout 10 "$OGIVE" campaign trials e2e-broken --state voided --json |
+  "$PY" -c 'import json,sys; print(sum("--trial-timeout" in t["note"] for t in json.load(sys.stdin)))')
+[[ "$notes" -eq 2 ]] || fail "hang: $notes void notes name --trial-timeout, expected 2"
+
 step "stop ogived with SIGTERM"
 kill -TERM "$OGIVED_PID"
 RC=0

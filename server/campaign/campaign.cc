@@ -133,6 +133,7 @@ class Campaign::Planner {
     for (int64_t number : expired) {
       Mutable(number).state = TrialState::kLapsed;
       --leased_delta_;
+      lapsed_.push_back(number);
     }
   }
 
@@ -256,6 +257,7 @@ class Campaign::Planner {
     change.engine = std::move(engine_);
     change.generations = std::move(generations_);
     change.distribution_changed = distribution_changed_;
+    change.lapsed = std::move(lapsed_);
     change.trials.reserve(overlay_.size());
     for (auto& [number, t] : overlay_) change.trials.push_back(std::move(t));
     return change;
@@ -428,6 +430,7 @@ class Campaign::Planner {
   int pending_removed_ = 0;             // pending outcomes this plan consumed or dropped
   std::vector<GenerationRecord> generations_;
   bool distribution_changed_ = false;
+  std::vector<int64_t> lapsed_;         // leases this plan found run out, in deadline order
 };
 
 Campaign::Campaign(search::Space space, search::OutcomeOrder order, search::DistributionOptions distribution_options,

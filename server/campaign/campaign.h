@@ -80,6 +80,7 @@ struct Change {
   EngineState engine;
   std::vector<GenerationRecord> generations;
   bool distribution_changed = false;  // an update or restart replaced the distribution
+  std::vector<int64_t> lapsed;        // trials whose lease ran out in this change (also in `trials`)
 };
 
 struct AskPlan {

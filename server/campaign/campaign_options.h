@@ -18,6 +18,10 @@ namespace ogive::campaign {
 inline constexpr int kDefaultStalenessLimit = 10;
 inline constexpr absl::Duration kDefaultLease = absl::Hours(1);
 
+// The largest population the engine runs: λ never grows beyond it (concurrency, restarts), and a
+// design may not ask for more (the service's validation takes this constant).
+inline constexpr int kMaxPopulationSize = 4096;
+
 struct CampaignOptions {
   uint64_t seed = 0;
   int staleness_limit = kDefaultStalenessLimit;  // generations; >= 0
@@ -29,7 +33,7 @@ struct CampaignOptions {
   // raised to the largest number of trials that were out at once since the previous one (never below
   // the design's λ, never above max_population_size).
   bool adapt_population = true;
-  int max_population_size = 4096;
+  int max_population_size = kMaxPopulationSize;
 
   // INVALID_ARGUMENT naming the field when a value is out of range.
   absl::Status Validate() const;

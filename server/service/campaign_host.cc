@@ -71,6 +71,15 @@ CampaignHost::Queued CampaignHost::ApplyAndQueue(campaign::Change change, std::v
   storage::CampaignWrite write;
   write.campaign_id = id_;
   write.chain = chain_;
+  // Leases that ran out, whichever request found them (the sweeper, or an ask, tell, renewal or phase
+  // change that swept first): the event log records every lapse, before what the request did.
+  std::vector<storage::Event> lapses;
+  for (int64_t number : change.lapsed) {
+    auto t = std::find_if(change.trials.begin(), change.trials.end(),
+                          [number](const campaign::Trial& trial) { return trial.number == number; });
+    lapses.push_back({"lapse", number, t != change.trials.end() ? t->worker : "", "", absl::ToUnixNanos(now)});
+  }
+  events.insert(events.begin(), lapses.begin(), lapses.end());
   for (const campaign::Trial& t : change.trials) write.trials.push_back(codec::TrialToProto(t));
   write.engine = codec::EngineStateToProto(change.engine, /*include_distribution=*/false);
   if (change.distribution_changed) {
@@ -89,7 +98,8 @@ CampaignHost::Queued CampaignHost::ApplyAndQueue(campaign::Change change, std::v
                       absl::ToUnixNanos(now)});
   }
   write.ask_request = ask_request;
-  for (storage::Event& event : events) event.token_label = token_label;
+  // The caller's token is behind what the request did, not behind the lapses it found.
+  for (size_t i = lapses.size(); i < events.size(); ++i) events[i].token_label = token_label;
   write.events = std::move(events);
   ChangeTally tally = TallyChange(campaign_, change);
   campaign_.Apply(std::move(change));
@@ -255,11 +265,7 @@ absl::StatusOr<int> CampaignHost::Sweep(absl::Time now) {
     campaign::Change change = campaign_.PlanSweep(now);
     if (change.trials.empty()) return 0;
     lapsed = static_cast<int>(change.trials.size());
-    std::vector<storage::Event> events;
-    for (const campaign::Trial& t : change.trials) {
-      events.push_back({"lapse", t.number, t.worker, "", absl::ToUnixNanos(now)});
-    }
-    queued = ApplyAndQueue(std::move(change), std::move(events), std::nullopt, now, "");
+    queued = ApplyAndQueue(std::move(change), {}, std::nullopt, now, "");  // the lapse events come with it
   }
   if (absl::Status s = Await(std::move(queued)); !s.ok()) return s;
   return lapsed;

@@ -271,7 +271,8 @@ grpc::Status OgiveService::Watch(grpc::ServerContext* context, const v1::WatchRe
     v1::CampaignView view = (*host)->View(/*brief=*/false, &version);
     while (writer->Write(view) && view.status().phase() != v1::CAMPAIGN_PHASE_DONE) {
       for (;;) {
-        if (context->IsCancelled() || stopping_) return grpc::Status::OK;
+        if (context->IsCancelled()) return grpc::Status::OK;
+        if (stopping_) return CallScope::Refusal();  // UNAVAILABLE, DRAINING: watch again, here or elsewhere
         if (!authorizer_->StillValid(caller.label)) {
           return ToGrpc(absl::UnauthenticatedError(
               absl::StrCat("authorization: the token '", caller.label, "' was revoked during the watch")));

@@ -9,6 +9,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "server/base/reason.h"
+#include "server/campaign/campaign_options.h"
 #include "server/service/page_token.h"
 
 namespace ogive::service {
@@ -24,7 +25,8 @@ using absl::StrCat;
 
 // Integer parameters may have at most this many values (the search core's limit, server/search/space.cc).
 constexpr uint64_t kMaxIntegerLevels = uint64_t{1} << 31;
-constexpr int kMaxPopulation = 100000;
+// λ and the expected number of workers: the engine's own ceiling (campaign_options.h).
+constexpr int kMaxPopulation = campaign::kMaxPopulationSize;
 
 // Environment variables `ogive work` sets or reads itself, without the OGIVE_ prefix
 // (client/cli/candidate_env.cc, client/cli/cli.cc). A parameter must not shadow them.
@@ -118,8 +120,12 @@ absl::Status CheckRequestId(absl::string_view path, const std::string& value, co
   return absl::OkStatus();
 }
 
+// Who asks, reports or renews: required, since leases, trial lists and the log name it.
 absl::Status CheckWorker(absl::string_view path, const std::string& value, const ServiceLimits& limits) {
-  return value.empty() ? absl::OkStatus() : CheckLabel(path, value, limits.max_name_bytes);
+  if (value.empty()) {
+    return Invalid(path, "must not be empty: name the worker, e.g. a host and slot such as node-7:2");
+  }
+  return CheckLabel(path, value, limits.max_name_bytes);
 }
 
 absl::Status CheckLease(absl::string_view path, double seconds, const ServiceLimits& limits) {

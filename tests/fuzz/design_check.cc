@@ -82,6 +82,7 @@ void CheckDesign(const v1::CampaignDesign& design) {
                        ", got ", asked->trials_size());
     v1::TellRequest tell;
     tell.set_campaign(design.name());
+    tell.set_worker("fuzz");
     for (int k = 0; k < asked->trials_size(); ++k) {
       const v1::Trial& trial = asked->trials(k);
       RequireCandidateInDesign(trial.candidate(), design);

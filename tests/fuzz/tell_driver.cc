@@ -234,7 +234,7 @@ std::optional<v1::AskResponse> TellDriver::SendAsk(const v1::AskRequest& r) {
   // above the server's limit RESOURCE_EXHAUSTED; every other bad field is INVALID_ARGUMENT.
   if (r.count() > limits.max_ask_count) {
     expected = absl::StatusCode::kResourceExhausted;
-  } else if (r.count() < 1 || static_cast<int>(r.worker().size()) > limits.max_name_bytes ||
+  } else if (r.count() < 1 || r.worker().empty() || static_cast<int>(r.worker().size()) > limits.max_name_bytes ||
              static_cast<int>(r.request_id().size()) > limits.max_name_bytes || !LeaseOk(r.lease_seconds(), limits)) {
     expected = absl::StatusCode::kInvalidArgument;
   } else if (retry) {
@@ -297,7 +297,7 @@ void TellDriver::SendTell(const v1::TellRequest& r) {
   const auto what = [&r] { return absl::StrCat("tell ", r.ShortDebugString().substr(0, 2000)); };
   const auto& labels = design_.objective().grade_scale().labels();
   bool valid = r.reports_size() >= 1 && r.reports_size() <= limits.max_reports_per_tell &&
-               static_cast<int>(r.worker().size()) <= limits.max_name_bytes;
+               !r.worker().empty() && static_cast<int>(r.worker().size()) <= limits.max_name_bytes;
   std::vector<search::Outcome> outcomes;
   for (const v1::Report& report : r.reports()) {
     const v1::Outcome& o = report.outcome();
@@ -429,7 +429,8 @@ void TellDriver::Renew() {
   const auto what = [&r] { return absl::StrCat("renew ", r.ShortDebugString()); };
 
   absl::StatusCode expected = absl::StatusCode::kOk;
-  if (n < 1 || static_cast<int>(r.worker().size()) > limits.max_name_bytes || !LeaseOk(r.lease_seconds(), limits)) {
+  if (n < 1 || r.worker().empty() || static_cast<int>(r.worker().size()) > limits.max_name_bytes ||
+      !LeaseOk(r.lease_seconds(), limits)) {
     expected = absl::StatusCode::kInvalidArgument;
   } else {
     for (int64_t number : r.trials()) {

@@ -76,7 +76,7 @@ class AuthServer {
     // As in ogived: a token written through the server is in force at once.
     admin_ = std::make_unique<service::TokenAdmin>(store_.get(), [this] { return now(); },
                                                    [this] { ASSERT_TRUE(authorizer_->Reload().ok()); });
-    service_ = std::make_unique<service::OgiveService>(registry_.get(), authorizer_.get(), [] { return absl::Now(); });
+    service_ = std::make_unique<service::OgiveService>(registry_.get(), authorizer_.get(), [this] { return now(); });
     grpc::EnableDefaultHealthCheckService(true);
     grpc::ServerBuilder builder;
     port_ = 0;
@@ -213,6 +213,7 @@ grpc::Status MakeCall(AuthServer& server, Call call, const std::string& authoriz
     case Call::kTell: {
       v1::TellRequest request;
       request.set_campaign(f.campaign);
+      request.set_worker("w");
       v1::Report* report = request.add_reports();
       report->set_trial(f.tell_trial);
       report->mutable_outcome()->set_score(0.5);
@@ -493,6 +494,27 @@ TEST_F(AuthTest, ReportsAndPhaseChangesRecordTheTokenLabel) {
   server_->Start();
   admin = ClientWith(server_->MakeToken("bob", "admin"));
   check("after a restart");
+}
+
+// A lease that runs out is logged as a lapse whichever request finds it first: here the next Ask,
+// before any sweep. The lapse carries no token label (no caller caused it); the ask carries its own.
+TEST_F(AuthTest, ALapseFoundByAnAskIsLoggedAsALapseWithoutTheCallersLabel) {
+  server_->Start();
+  std::unique_ptr<client::Client> admin = ClientWith(server_->MakeToken("alice", "admin"));
+  std::unique_ptr<client::Client> farm = ClientWith(server_->MakeToken("farm-a", "worker"));
+  ASSERT_TRUE(admin->CreateCampaign(Design("alpha")).ok());
+  absl::StatusOr<v1::AskResponse> first = farm->Ask("alpha", 1, "node-1", /*lease_seconds=*/10);
+  ASSERT_TRUE(first.ok()) << first.status();
+  server_->Advance(absl::Seconds(11));
+  absl::StatusOr<v1::AskResponse> second = farm->Ask("alpha", 1, "node-2", /*lease_seconds=*/10);
+  ASSERT_TRUE(second.ok()) << second.status();
+  absl::StatusOr<std::vector<storage::Event>> events = server_->store().ListEvents(1, 100);
+  ASSERT_TRUE(events.ok()) << events.status();
+  std::vector<std::string> log;
+  for (const storage::Event& e : *events) {
+    log.push_back(absl::StrCat(e.kind, " ", e.trial, " ", e.worker, " [", e.token_label, "]"));
+  }
+  EXPECT_THAT(log, ElementsAre("ask 1 node-1 [farm-a]", "lapse 1 node-1 []", "ask 2 node-2 [farm-a]"));
 }
 
 TEST_F(AuthTest, EachTokenIsHeldToItsRequestRate) {

@@ -103,6 +103,7 @@ TEST(CommitFailureTest, AFailedCommitStoresNothingAndTheCampaignKeepsServing) {
 
   v1::TellRequest tell;
   tell.set_campaign("kiln-fault");
+  tell.set_worker("kiln-1");
   v1::Report* report = tell.add_reports();
   report->set_trial(asked->trials(0).number());
   report->mutable_outcome()->set_score(2.5);
@@ -212,6 +213,7 @@ class DiskFailureTest : public ::testing::TestWithParam<std::tuple<DiskFailure, 
     ASSERT_TRUE(asked.ok()) << asked.status();
     v1::TellRequest tell;
     tell.set_campaign(kCampaign);
+    tell.set_worker("kiln-1");
     for (int64_t trial : {1, 2, 3}) {
       v1::Report* r = tell.add_reports();
       r->set_trial(trial);
@@ -341,6 +343,7 @@ const WriteRequest kWriteRequests[] = {
      [](Registry& registry, absl::Time now) {
        v1::TellRequest tell;
        tell.set_campaign(kCampaign);
+       tell.set_worker("kiln-1");
        v1::Report* r = tell.add_reports();
        r->set_trial(4);
        r->mutable_outcome()->set_score(9.0);
@@ -437,6 +440,7 @@ TEST(DeadlineRetryTest, ARetryAfterAnExpiredDeadlineIsAppliedOnce) {
   // Tell: likewise; the retry is a duplicate of the stored report.
   v1::TellRequest tell;
   tell.set_campaign("kiln-fault");
+  tell.set_worker("kiln-1");
   tell.set_worker("kiln-1");
   v1::Report* report = tell.add_reports();
   report->set_trial(1);

@@ -194,7 +194,7 @@ def run(args, tmp):
         # A NaN score is refused, naming the report; nothing is stored.
         nan_report = service_pb2.Report(trial=3, outcome=campaign_pb2.Outcome(score=math.nan))
         try:
-            stub.Tell(service_pb2.TellRequest(campaign="interop", reports=[nan_report]),
+            stub.Tell(service_pb2.TellRequest(campaign="interop", reports=[nan_report], worker="py"),
                       timeout=timeout)
             raise TestFailure("a NaN score was accepted")
         except grpc.RpcError as e:
@@ -234,7 +234,7 @@ def run(args, tmp):
         watch = stub.Watch(service_pb2.WatchRequest(campaign="interop"), timeout=30)
         first = next(watch)
         check(first.name == "interop" and first.status.reported == 1, "first view %s" % first)
-        stub.Tell(service_pb2.TellRequest(campaign="interop", reports=[
+        stub.Tell(service_pb2.TellRequest(campaign="interop", worker="py", reports=[
             service_pb2.Report(trial=3, outcome=campaign_pb2.Outcome(score=3.5))]), timeout=timeout)
         second = next(watch)
         check(second.status.reported == 2, "view after a report %s" % second.status)

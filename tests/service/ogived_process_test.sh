@@ -21,9 +21,10 @@ DB="$TMP/ogive.db"
 TOKEN_FILE="$TMP/admin.token"
 ogive() { timeout 30 "$OGIVE" --server "$SERVER" --timeout 5 --token-file "$TOKEN_FILE" "$@"; }
 
-# Starts ogived on $DB and a port that is free right now; waits until it answers.
+# Starts ogived on $DB and a port that was free at the first start (the same one on every restart,
+# as an upgrade keeps its address, so that clients reconnect); waits until it answers.
 start_server() {
-  SERVER="127.0.0.1:$(free_port)"
+  SERVER="${SERVER:-127.0.0.1:$(free_port)}"
   "$OGIVED" --db "$DB" --listen "$SERVER" --sweep-interval 0.2 >>"$TMP/ogived.log" 2>&1 &
   OGIVED_PID=$!
   for _ in $(seq 100); do
@@ -192,7 +193,12 @@ assert trials[lapsing]["state"] == "lapsed", trials[lapsing]
 assert sorted(trials) == list(range(1, len(trials) + 1)), sorted(trials)
 EOF
 
-step "restart again: generation, trial count, status and trials unchanged"
+step "restart again (a watch reconnects and says so): generation, trial count, status and trials unchanged"
+timeout 60 "$OGIVE" --server "$SERVER" --timeout 5 --token-file "$TOKEN_FILE" campaign watch process \
+  >"$TMP/watch.out" 2>"$TMP/watch.err" &
+WATCH_PID=$!
+for _ in $(seq 100); do [[ -s "$TMP/watch.out" ]] && break; sleep 0.1; done
+[[ -s "$TMP/watch.out" ]] || fail "campaign watch printed nothing: $(cat "$TMP/watch.err")"
 stop_server
 start_server
 ogive campaign trials process --json >"$TMP/trials2.json"
@@ -225,6 +231,15 @@ import json, sys
 t = [t for t in json.load(open(sys.argv[1])) if str(t["trial"]) == sys.argv[2]]
 assert len(t) == 1 and t[0]["score"] == float(sys.argv[2]) + 0.25, t
 EOF
+
+step "the watch went on across the restart and ends when the campaign is done"
+ogive campaign finish process >/dev/null || fail "campaign finish"
+rc=0
+timeout 30 tail --pid="$WATCH_PID" -f /dev/null || fail "campaign watch did not end after finish"
+wait "$WATCH_PID" || rc=$?
+[[ "$rc" -eq 0 ]] || fail "campaign watch exited $rc: $(cat "$TMP/watch.err")"
+grep -q "watching again" "$TMP/watch.err" || fail "campaign watch did not say it reconnected: $(cat "$TMP/watch.err")"
+grep -q "done" "$TMP/watch.out" || fail "campaign watch did not show the done campaign: $(tail -3 "$TMP/watch.out")"
 
 step "SIGINT stops ogived cleanly too; the file passes PRAGMA integrity_check"
 stop_server INT

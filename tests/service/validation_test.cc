@@ -29,6 +29,7 @@
 #include "grpcpp/grpcpp.h"
 #include "gtest/gtest.h"
 #include "ogive/v1/service.pb.h"
+#include "server/campaign/campaign_options.h"
 #include "server/service/authorizer.h"
 #include "server/service/grpc_service.h"
 #include "server/service/handlers.h"
@@ -146,6 +147,7 @@ class ValidationTest : public ::testing::Test {
     }
     v1::TellRequest tell;
     tell.set_campaign("base");
+    tell.set_worker("w1");
     v1::Report* r = tell.add_reports();
     r->set_trial(1);
     r->mutable_outcome()->set_score(1.5);
@@ -226,8 +228,12 @@ TEST_F(ValidationTest, TheBaseRequestsAreAcceptedAtTheLimits) {
   create.mutable_design()->mutable_parameters(0)->set_unit(std::string(24, 'u'));
   create.mutable_design()->mutable_parameters(0)->set_description(std::string(79, 'd') + "\n");
   create.mutable_design()->set_lease_seconds(3600);
+  // The engine's largest population (one source: campaign::kMaxPopulationSize), in both fields.
+  create.mutable_design()->set_population_size(campaign::kMaxPopulationSize);
+  create.mutable_design()->set_expected_workers(campaign::kMaxPopulationSize);
   absl::StatusOr<v1::CampaignView> created = service::CreateCampaign(*registry_, create);
   ASSERT_TRUE(created.ok()) << created.status();
+  EXPECT_EQ(created->status().population_size(), campaign::kMaxPopulationSize);
 
   v1::AskRequest ask;
   ask.set_campaign(create.design().name());
@@ -358,13 +364,14 @@ TEST_F(ValidationTest, DesignFieldsAreRefusedNamingTheirPath) {
          d.mutable_objective()->mutable_grade_scale()->add_labels("ok");
        }),
        kInvalid, {"design.objective.grade_scale.labels[0]", "at most 24 bytes"}},
-      {"population size beyond 100000",
-       Create([](v1::CampaignDesign& d) { d.set_population_size(100001); }), kInvalid,
-       {"design.population_size", "2..100000", "got 100001"}},
+      {"population size beyond the engine's largest",
+       Create([](v1::CampaignDesign& d) { d.set_population_size(4097); }), kInvalid,
+       {"design.population_size", "2..4096", "got 4097"}},
       {"negative expected workers", Create([](v1::CampaignDesign& d) { d.set_expected_workers(-2); }), kInvalid,
        {"design.expected_workers", "got -2"}},
-      {"expected workers beyond 100000", Create([](v1::CampaignDesign& d) { d.set_expected_workers(100001); }),
-       kInvalid, {"design.expected_workers", "1..100000"}},
+      {"expected workers beyond the engine's largest population",
+       Create([](v1::CampaignDesign& d) { d.set_expected_workers(4097); }), kInvalid,
+       {"design.expected_workers", "1..4096", "got 4097"}},
       {"lease NaN", Create([](v1::CampaignDesign& d) { d.set_lease_seconds(kNaN); }), kInvalid,
        {"design.lease_seconds", "(0, 3600]"}},
       {"lease infinite", Create([](v1::CampaignDesign& d) { d.set_lease_seconds(kInf); }), kInvalid,
@@ -462,6 +469,12 @@ TEST_F(ValidationTest, AskRenewAndTellFieldsAreRefusedNamingTheirPath) {
        ask([](v1::AskRequest& a) { a.set_worker("w\nts=0 event=tell"); }), kInvalid, {"worker", "control character"}},
       {"ask: worker with a leading blank", ask([](v1::AskRequest& a) { a.set_worker(" w"); }), kInvalid,
        {"worker", "blank"}},
+      {"ask: no worker", ask([](v1::AskRequest& a) { a.set_worker(""); }), kInvalid, {"worker", "must not be empty"}},
+      {"tell: no worker", tell("base", [](v1::TellRequest& t) { t.set_worker(""); }), kInvalid,
+       {"worker", "must not be empty"}},
+      // Checked before the lease's owner: an empty worker is malformed, not someone else.
+      {"renew: no worker", renew([](v1::RenewRequest& r) { r.set_worker(""); }), kInvalid,
+       {"worker", "must not be empty"}},
       {"ask: infinite lease", ask([](v1::AskRequest& a) { a.set_lease_seconds(kInf); }), kInvalid,
        {"lease_seconds", "(0, 3600]"}},
       {"ask: lease beyond the limit", ask([](v1::AskRequest& a) { a.set_lease_seconds(3600.5); }), kInvalid,
