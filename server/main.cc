@@ -33,6 +33,8 @@
 #include "absl/synchronization/mutex.h"
 #include "absl/synchronization/notification.h"
 #include "absl/time/clock.h"
+#include "google/protobuf/stubs/logging.h"
+#include "grpc/support/log.h"
 #include "grpcpp/ext/proto_server_reflection_plugin.h"
 #include "grpcpp/grpcpp.h"
 #include "grpcpp/health_check_service_interface.h"
@@ -231,6 +233,28 @@ void OnSignal(int) {
   [[maybe_unused]] ssize_t ignored = write(signal_pipe[1], &byte, 1);
 }
 
+// The gRPC and protobuf libraries' own messages, as lines of the server's log (same format, values
+// escaped and cut like every other), instead of their own formats on standard error.
+void LogGrpcMessage(gpr_log_func_args* args) {
+  const char* severity = args->severity == GPR_LOG_SEVERITY_ERROR  ? "error"
+                         : args->severity == GPR_LOG_SEVERITY_INFO ? "info"
+                                                                   : "debug";
+  ogive::service::LogLine({{"event", "grpc"},
+                           {"severity", severity},
+                           {"source", absl::StrCat(args->file == nullptr ? "" : args->file, ":", args->line)},
+                           {"detail", args->message == nullptr ? "" : args->message}});
+}
+
+void LogProtobufMessage(google::protobuf::LogLevel level, const char* file, int line, const std::string& message) {
+  const char* severity = level >= google::protobuf::LOGLEVEL_ERROR     ? "error"
+                         : level == google::protobuf::LOGLEVEL_WARNING ? "warning"
+                                                                       : "info";
+  ogive::service::LogLine({{"event", "protobuf"},
+                           {"severity", severity},
+                           {"source", absl::StrCat(file == nullptr ? "" : file, ":", line)},
+                           {"detail", message}});
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -248,6 +272,8 @@ int main(int argc, char** argv) {
   }
   // Lock-order checking is for tests; in the server it costs a graph update on every lock.
   absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
+  gpr_set_log_function(LogGrpcMessage);
+  google::protobuf::SetLogHandler(LogProtobufMessage);
   using ogive::service::LogLine;
 
   // Counted whether or not they are served: the cost is a few atomic adds per request. Declared

@@ -3,7 +3,9 @@
 #include <algorithm>
 #include <iterator>
 #include <map>
+#include <string>
 #include <utility>
+#include <vector>
 
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
@@ -28,11 +30,15 @@ bool SameOutcome(const search::Outcome& a, const search::Outcome& b) {
   return false;
 }
 
-std::string Describe(const search::Outcome& o) {
+// "score 3.25", "grade 'good'" (by its label when `labels` has it, else "grade #3"), "infeasible".
+std::string Describe(const search::Outcome& o, const std::vector<std::string>& labels) {
   switch (o.kind) {
     case search::Outcome::Kind::kScore:
       return absl::StrCat("score ", o.score);
     case search::Outcome::Kind::kGrade:
+      if (o.grade >= 0 && o.grade < static_cast<int>(labels.size())) {
+        return absl::StrCat("grade '", labels[static_cast<size_t>(o.grade)], "'");
+      }
       return absl::StrCat("grade #", o.grade);
     case search::Outcome::Kind::kInfeasible:
       return "infeasible";
@@ -185,8 +191,10 @@ class Campaign::Planner {
       }
       result.status = WithReason(
           absl::AlreadyExistsError(absl::StrCat("trial ", report.trial, ": already reported as ",
-                                                Describe(*existing->outcome), "; a different outcome (",
-                                                Describe(report.outcome), ") is refused")),
+                                                Describe(*existing->outcome, campaign_.options_.grade_labels),
+                                                "; a different outcome (",
+                                                Describe(report.outcome, campaign_.options_.grade_labels),
+                                                ") is refused")),
           {std::string(reason::kOutcomeConflict), {{"trial", absl::StrCat(report.trial)}}, std::nullopt});
       return result;
     }

@@ -5,6 +5,8 @@
 
 #include <cstdint>
 #include <optional>
+#include <string>
+#include <vector>
 
 #include "absl/status/status.h"
 #include "absl/time/time.h"
@@ -34,6 +36,9 @@ struct CampaignOptions {
   // the design's λ, never above max_population_size).
   bool adapt_population = true;
   int max_population_size = kMaxPopulationSize;
+  // For messages only: the grade scale's labels, worst first (empty for scored campaigns), so that a
+  // refusal names a grade as the technician wrote it, not by its place on the scale.
+  std::vector<std::string> grade_labels;
 
   // INVALID_ARGUMENT naming the field when a value is out of range.
   absl::Status Validate() const;

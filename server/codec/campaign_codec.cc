@@ -94,6 +94,8 @@ absl::StatusOr<campaign::CampaignOptions> CampaignOptionsFromDesign(const v1::Ca
   }
   if (design.lease_seconds() > 0) options.default_lease = absl::Seconds(design.lease_seconds());
   options.restarts = design.restarts();
+  options.grade_labels.assign(design.objective().grade_scale().labels().begin(),
+                              design.objective().grade_scale().labels().end());
   if (design.has_target() && design.has_target_grade()) {
     return absl::InvalidArgumentError("target, target_grade: set at most one of them");
   }

@@ -17,17 +17,52 @@
 namespace ogive::service {
 namespace {
 
+bool IsControl(char c) { return static_cast<unsigned char>(c) < 0x20 || c == '\x7f'; }
+
+// One value: at most kMaxLogValueBytes of it (cut at a UTF-8 character boundary, the original length
+// noted), quoted when it holds a blank, a quote, '=' or a control character, control characters
+// escaped, so that one value is always one field of one line.
 void Append(std::string& line, std::string_view value) {
-  const bool quote = value.empty() || value.find_first_of(" \"=\t\n") != std::string_view::npos;
+  const size_t original = value.size();
+  bool cut = false;
+  if (value.size() > kMaxLogValueBytes) {
+    size_t end = kMaxLogValueBytes;
+    while (end > 0 && (static_cast<unsigned char>(value[end]) & 0xC0) == 0x80) --end;  // continuation byte
+    value = value.substr(0, end);
+    cut = true;
+  }
+  bool quote = value.empty() || cut;
+  for (char c : value) quote = quote || c == ' ' || c == '"' || c == '=' || c == '\\' || IsControl(c);
   if (!quote) {
     line.append(value);
     return;
   }
   line.push_back('"');
   for (char c : value) {
-    if (c == '"' || c == '\\') line.push_back('\\');
-    line.push_back(c == '\n' ? ' ' : c);
+    switch (c) {
+      case '"':
+      case '\\':
+        line.push_back('\\');
+        line.push_back(c);
+        break;
+      case '\n':
+        line.append("\\n");
+        break;
+      case '\t':
+        line.append("\\t");
+        break;
+      case '\r':
+        line.append("\\r");
+        break;
+      default:
+        if (IsControl(c)) {
+          absl::StrAppend(&line, "\\x", absl::Hex(static_cast<unsigned char>(c), absl::kZeroPad2));
+        } else {
+          line.push_back(c);
+        }
+    }
   }
+  if (cut) absl::StrAppend(&line, "...[", original, " bytes]");
   line.push_back('"');
 }
 

@@ -1,5 +1,7 @@
 // Structured log lines on standard error: `ts=2026-12-01T22:50:01.123Z event=tell campaign=kiln trial=12
-// worker=node-3 code=OK`. Keys are stable; values with spaces are quoted. Never log a token.
+// worker=node-3 code=OK`. Keys are stable; values with blanks, quotes, '=' or control characters are
+// quoted with those escaped (\", \\, \n, \t, \r, \xHH), and each value is cut at kMaxLogValueBytes, so
+// that what a client sends can neither forge a line nor grow one without bound. Never log a token.
 //
 // A request never waits for standard error: LogLine formats the line and queues it, and one thread
 // of the log's own writes what is queued, many lines per write(2). If standard error stops taking
@@ -18,6 +20,8 @@
 namespace ogive::service {
 
 inline constexpr size_t kMaxQueuedLogBytes = 8 << 20;
+// Longest value written for one field; a longer one is cut and ends in "...[<length> bytes]".
+inline constexpr size_t kMaxLogValueBytes = 256;
 
 // Queues one line; lines from different threads never interleave and keep the order of the calls.
 void LogLine(std::initializer_list<std::pair<std::string_view, std::string>> fields);

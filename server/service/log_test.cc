@@ -98,6 +98,28 @@ TEST(LogTest, LinesFromManyThreadsArriveWholeAndInOrderPerThread) {
   EXPECT_EQ(seen, kThreads * kPerThread);
 }
 
+// What a client sends can neither forge a line nor grow one without bound: values are escaped
+// (control characters, quotes, backslashes) and cut at kMaxLogValueBytes with the length noted.
+TEST(LogTest, ValuesAreEscapedAndCutSoThatOneFieldStaysOneFieldOfOneLine) {
+  CapturedStderr captured;
+  const std::string huge(3 << 20, 'n');  // a 3 MiB name
+  LogLine({{"event", "hostile"}, {"worker", "w\nts=0 event=tell \"x\"\t\x01\\"}, {"campaign", huge},
+           {"note", std::string(255, 'a') + "\xC3\xA9" + std::string(50, 'b')}});  // a cut inside "é" backs off
+  LogLine({{"event", "end_of_hostile"}});
+  FlushLog();
+  const std::vector<std::string> lines = captured.DrainUntil("event=end_of_hostile");
+  std::vector<std::string> hostile;
+  for (const std::string& line : lines) {
+    if (line.find("event=hostile") != std::string::npos) hostile.push_back(line);
+  }
+  ASSERT_EQ(hostile.size(), 1u) << "the newline in the worker's name made a second line";
+  const std::string& line = hostile[0];
+  EXPECT_THAT(line, HasSubstr(R"( worker="w\nts=0 event=tell \"x\"\t\x01\\")"));
+  EXPECT_THAT(line, HasSubstr(absl::StrCat(" campaign=\"", std::string(kMaxLogValueBytes, 'n'), "...[3145728 bytes]\"")));
+  EXPECT_LT(line.size(), 4 * kMaxLogValueBytes);
+  EXPECT_THAT(line, HasSubstr(absl::StrCat(" note=\"", std::string(255, 'a'), "...[307 bytes]\"")));
+}
+
 // The timestamp is UTC (RFC 3339, milliseconds), and lines across a change of second carry their own
 // second (the formatted second is reused within a second).
 TEST(LogTest, TimestampsAreUtcMillisecondsOfTheMomentTheLineWasMade) {
@@ -131,9 +153,10 @@ TEST(LogTest, TimestampsAreUtcMillisecondsOfTheMomentTheLineWasMade) {
 TEST(LogTest, StuckStderrNeitherBlocksNorLosesLinesSilently) {
   CapturedStderr captured;
   // Nobody reads the pipe while these are logged: the queue fills, and LogLine must still return at
-  // once. 20 MiB is more than the pipe, the writer's batch and the queue can hold together.
-  const std::string pad(1000, 'x');
-  constexpr int kLines = 20000;
+  // once. 20 MiB is more than the pipe, the writer's batch and the queue can hold together (each
+  // value is at most kMaxLogValueBytes, so it takes many lines).
+  const std::string pad(kMaxLogValueBytes, 'x');
+  constexpr int kLines = 80000;
   const absl::Time start = absl::Now();
   for (int i = 0; i < kLines; ++i) LogLine({{"event", "fill"}, {"pad", pad}});
   EXPECT_LT(absl::Now() - start, absl::Seconds(10)) << "LogLine waited for standard error";

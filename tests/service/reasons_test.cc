@@ -155,6 +155,29 @@ TEST_F(ReasonsTest, ALeaseRenewerGivesUpOnATrialThatIsNoLongerLeased) {
   EXPECT_EQ(renewer.renewals(), 0);
 }
 
+// A conflicting grade is refused naming both grades by their labels, as the technician wrote them.
+TEST_F(ReasonsTest, AConflictingGradeIsRefusedNamingBothLabels) {
+  v1::CampaignDesign design = Design("glaze");
+  design.mutable_objective()->clear_direction();
+  for (const char* label : {"cracked", "poor", "fair", "good"}) {
+    design.mutable_objective()->mutable_grade_scale()->add_labels(label);
+  }
+  ASSERT_TRUE(client_->CreateCampaign(design).ok());
+  absl::StatusOr<v1::AskResponse> asked = client_->Ask("glaze", 1, "bench");
+  ASSERT_TRUE(asked.ok()) << asked.status();
+  v1::Report good;
+  good.set_trial(asked->trials(0).number());
+  good.mutable_outcome()->set_grade("good");
+  ASSERT_TRUE(client_->Tell("glaze", {good}, "bench").ok());
+  v1::Report fair = good;
+  fair.mutable_outcome()->set_grade("fair");
+  absl::StatusOr<v1::TellResponse> told = client_->Tell("glaze", {fair}, "bench");
+  ASSERT_TRUE(told.ok()) << told.status();
+  EXPECT_EQ(told->results(0).reason(), "OUTCOME_CONFLICT");
+  EXPECT_THAT(told->results(0).message(),
+              ::testing::HasSubstr("already reported as grade 'good'; a different outcome (grade 'fair') is refused"));
+}
+
 TEST_F(ReasonsTest, ABudgetTakenByOutstandingTrialsSaysWaitAndFreesWhenOneIsVoided) {
   ASSERT_TRUE(client_->CreateCampaign(Design("farm", /*budget=*/2)).ok());
   absl::StatusOr<v1::AskResponse> asked = client_->Ask("farm", 5, "node-1");
