@@ -18,10 +18,13 @@ namespace {
 // is at least 100).
 constexpr int kPageSize = 100;
 
-// Worth another attempt: UNAVAILABLE (the server restarts, drains, or its store is busy), and a rate
-// limit whose named delay is within `max_backoff` (a longer one is the caller's to wait out).
-bool Retryable(const absl::Status& status, absl::Duration max_backoff) {
+// Worth another attempt: UNAVAILABLE (the server restarts, drains, or its store is busy), CANCELLED
+// that the caller did not ask for (a server stopping mid-call; every call is safe to repeat: Ask by
+// its request id, Tell and Renew by trial number, the rest read), and a rate limit whose named delay
+// is within `max_backoff` (a longer one is the caller's to wait out).
+bool Retryable(const absl::Status& status, absl::Duration max_backoff, const Cancellation* cancellation) {
   if (status.code() == absl::StatusCode::kUnavailable) return true;
+  if (status.code() == absl::StatusCode::kCancelled) return cancellation == nullptr || !cancellation->cancelled();
   std::optional<ErrorReason> why = ErrorReasonOf(status);
   return why.has_value() && why->reason == reason::kRateLimited &&
          why->retry_delay.value_or(absl::ZeroDuration()) <= max_backoff;
@@ -81,7 +84,7 @@ absl::Status Client::Call(grpc::Status (v1::Ogive::Stub::*method)(grpc::ClientCo
     if (cancellation != nullptr && !cancellation->Enter(&context)) return cancelled;
     last = StatusFromGrpc(((*stub_).*method)(&context, request, response));
     if (cancellation != nullptr) cancellation->Leave();
-    if (!Retryable(last, options_.max_backoff)) return last;
+    if (!Retryable(last, options_.max_backoff, cancellation)) return last;
     if (attempt < options_.max_attempts) {
       if (std::optional<ErrorReason> why = ErrorReasonOf(last); why.has_value() && why->retry_delay.has_value()) {
         backoff = std::max(backoff, std::min(*why->retry_delay, options_.max_backoff));

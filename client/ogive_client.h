@@ -1,10 +1,11 @@
 // Client: a typed C++ client of the ogive service for workers, tools and tests.
 //
-// Every call has a deadline (ClientOptions::call_timeout). Calls that fail with UNAVAILABLE, or are
-// refused with reason RATE_LIMITED and a delay of at most max_backoff, are retried with exponential
-// backoff (at least the delay a rate limit names) up to ClientOptions::max_attempts (the channel
-// reconnects during the backoff, so a restarted server is found at once); every other refusal is
-// returned at once, with its reason for ErrorReasonOf (error_reason.h). Writes are safe to retry:
+// Every call has a deadline (ClientOptions::call_timeout). Calls that fail with UNAVAILABLE, or with
+// CANCELLED the caller did not ask for (a server stopping mid-call), or are refused with reason
+// RATE_LIMITED and a delay of at most max_backoff, are retried with exponential backoff (at least the
+// delay a rate limit names) up to ClientOptions::max_attempts (the channel reconnects during the
+// backoff, so a restarted server is found at once); every other refusal is returned at once, with its
+// reason for ErrorReasonOf (error_reason.h). Writes are safe to retry:
 // Ask carries a request id chosen once per call, Tell and Renew are idempotent by trial number (the
 // same outcome twice is accepted once).
 //

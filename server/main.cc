@@ -78,7 +78,7 @@ constexpr char kUsage[] =
     "  --allow-insecure-remote     listen on a non-loopback address without TLS (plain text!)\n"
     "  --max-requests-per-second-per-token R\n"
     "                              requests one token may send per second, in bursts of up to\n"
-    "                              2R (default 200; 0 = no limit); beyond: RESOURCE_EXHAUSTED\n"
+    "                              2R (default 1000; 0 = no limit); beyond: RESOURCE_EXHAUSTED\n"
     "  --no-auth                   accept calls without a token (loopback addresses only; for\n"
     "                              development): no roles, no audit labels, no rate limit\n"
     "  --reflection                serve gRPC server reflection (open to anyone who can connect;\n"

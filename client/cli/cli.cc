@@ -638,7 +638,8 @@ Each run sees the candidate in its environment:
 Standard input is /dev/null; standard output is copied through, and its last non-empty
 line is the outcome: a number is a score; a label of the campaign's grade scale (any case) is
 a grade; the word 'infeasible' is infeasible. Anything else, a non-zero exit status or
-death by a signal reports void, with a note saying why. The lease is renewed while
+death by a signal reports void, with a note saying why and the last lines of its standard
+error. The lease is renewed while
 PROGRAM runs.
 
 A failed run (non-zero exit, a signal, or longer than --trial-timeout: stopped with SIGTERM,

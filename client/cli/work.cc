@@ -92,6 +92,8 @@ struct Running {
   v1::Trial trial;
   pid_t pid = -1;
   int out_fd = -1;  // read end of the program's stdout; -1 once closed
+  int err_fd = -1;  // read end of the program's stderr; -1 once closed
+  std::string err_tail;  // the last kErrorTailBytes of its stderr, for the note of a failed run
   LastLine last_line;
   std::string echo;  // output not yet copied to our stdout (an unfinished line)
   absl::Time started;
@@ -138,12 +140,49 @@ void ReadOutput(Running& r) {
   }
 }
 
+// Bytes of the program's standard error kept for the note of a failed run.
+constexpr size_t kErrorTailBytes = 2048;
+
+// Copies what is available of the program's standard error to ours and keeps its tail; closes the
+// fd at end of file.
+void ReadErrors(Running& r) {
+  char buffer[1 << 14];
+  while (r.err_fd >= 0) {
+    const ssize_t n = read(r.err_fd, buffer, sizeof buffer);
+    if (n > 0) {
+      std::fwrite(buffer, 1, static_cast<size_t>(n), stderr);
+      std::fflush(stderr);
+      r.err_tail.append(buffer, static_cast<size_t>(n));
+      if (r.err_tail.size() > kErrorTailBytes) r.err_tail.erase(0, r.err_tail.size() - kErrorTailBytes);
+    } else if (n < 0 && errno == EINTR) {
+      continue;
+    } else if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK)) {
+      return;
+    } else {
+      close(r.err_fd);
+      r.err_fd = -1;
+    }
+  }
+}
+
 void CloseOutput(Running& r) {
   if (r.out_fd >= 0) {
     close(r.out_fd);
     r.out_fd = -1;
   }
+  if (r.err_fd >= 0) {
+    close(r.err_fd);
+    r.err_fd = -1;
+  }
   Echo(r, "", true);
+}
+
+// The last lines of what the program wrote to standard error (at most five, as one line separated by
+// " | "), or "".
+std::string ErrorTail(const Running& r) {
+  std::vector<absl::string_view> lines = absl::StrSplit(r.err_tail, '\n', absl::SkipWhitespace());
+  if (lines.size() > 5) lines.erase(lines.begin(), lines.end() - 5);
+  return absl::StrJoin(lines, " | ");
 }
 
 std::string TempDirectory() {
@@ -213,10 +252,18 @@ bool Spawn(const WorkOptions& options, const v1::CampaignDesign& design, Running
     *error = absl::StrCat("cannot create a pipe: ", std::strerror(errno));
     return false;
   }
+  int err[2];
+  if (pipe2(err, O_CLOEXEC) != 0) {
+    *error = absl::StrCat("cannot create a pipe: ", std::strerror(errno));
+    close(out[0]);
+    close(out[1]);
+    return false;
+  }
   posix_spawn_file_actions_t actions;
   posix_spawn_file_actions_init(&actions);
   posix_spawn_file_actions_addopen(&actions, STDIN_FILENO, "/dev/null", O_RDONLY, 0);
   posix_spawn_file_actions_adddup2(&actions, out[1], STDOUT_FILENO);  // dup2 clears O_CLOEXEC
+  posix_spawn_file_actions_adddup2(&actions, err[1], STDERR_FILENO);
   posix_spawnattr_t attributes;
   posix_spawnattr_init(&attributes);
   // Its own process group, so that SIGTERM reaches whatever the program starts, and the terminal's
@@ -237,13 +284,17 @@ bool Spawn(const WorkOptions& options, const v1::CampaignDesign& design, Running
   posix_spawn_file_actions_destroy(&actions);
   posix_spawnattr_destroy(&attributes);
   close(out[1]);
+  close(err[1]);
   if (result != 0) {
     close(out[0]);
+    close(err[0]);
     *error = absl::StrCat("cannot run '", options.command[0], "': ", std::strerror(result));
     return false;
   }
   fcntl(out[0], F_SETFL, fcntl(out[0], F_GETFL) | O_NONBLOCK);
+  fcntl(err[0], F_SETFL, fcntl(err[0], F_GETFL) | O_NONBLOCK);
   r.out_fd = out[0];
+  r.err_fd = err[0];
   r.started = absl::Now();
   return true;
 }
@@ -293,6 +344,8 @@ v1::Outcome OutcomeOf(const Running& r, const v1::Objective& objective, absl::Du
                          : absl::StrCat("the program ", failure);
   const std::string last = r.last_line.Get();
   if (!last.empty()) absl::StrAppend(&note, "; its last line of output: ", QuoteForNote(last));
+  const std::string errors = ErrorTail(r);
+  if (!errors.empty()) absl::StrAppend(&note, "; its standard error ended with: ", QuoteForNote(errors, 500));
   outcome.set_note(std::move(note));
   return outcome;
 }
@@ -360,8 +413,10 @@ int WorkLoop::StopSignal() {
 }
 
 bool WorkLoop::Patient(const absl::Status& status, absl::string_view what) {
-  // The server restarts or drains, or the token's request rate is spent: both pass.
-  if (status.code() != absl::StatusCode::kUnavailable && !client::HasReason(status, reason::kRateLimited)) {
+  // The server restarts or drains (a call it cut short ends CANCELLED), or the token's request rate
+  // is spent: all pass.
+  if (status.code() != absl::StatusCode::kUnavailable && status.code() != absl::StatusCode::kCancelled &&
+      !client::HasReason(status, reason::kRateLimited)) {
     return false;
   }
   const absl::Time now = absl::Now();
@@ -406,10 +461,12 @@ int WorkLoop::Run() {
     EnforceTrialTimeout();
     for (auto& r : running_) {
       if (r->out_fd >= 0) ReadOutput(*r);
+      if (r->err_fd >= 0) ReadErrors(*r);
       if (Reap(*r)) {
-        // The program is gone; a process it left behind may still hold the pipe open, so take what
+        // The program is gone; a process it left behind may still hold the pipes open, so take what
         // is there and stop reading.
         ReadOutput(*r);
+        ReadErrors(*r);
         CloseOutput(*r);
       }
     }
@@ -539,6 +596,7 @@ void WorkLoop::WaitForEvents() {
   fds.push_back({signal_pipe[0], POLLIN, 0});
   for (const auto& r : running_) {
     if (r->out_fd >= 0) fds.push_back({r->out_fd, POLLIN, 0});
+    if (r->err_fd >= 0) fds.push_back({r->err_fd, POLLIN, 0});
   }
   // Wake at least once a second, so that a child whose exit we somehow missed is still reaped, and
   // in time for the next trial timeout.
@@ -689,6 +747,7 @@ int WorkLoop::Shutdown(int signal_number) {
       r->exited = true;
     }
     ReadOutput(*r);
+    ReadErrors(*r);
     CloseOutput(*r);
     unlink(r->candidate_file.c_str());
   }

@@ -7,7 +7,8 @@
 // The program sees the candidate as environment variables (OGIVE_<NAME>=value, see candidate_env.h)
 // plus OGIVE_CAMPAIGN, OGIVE_TRIAL and OGIVE_CANDIDATE_FILE (a JSON file {name: value}, removed
 // afterwards). It runs in its own process group with standard input from /dev/null; its standard
-// output is copied to ours, its standard error passes through.
+// output is copied to ours, its standard error too, and the last lines of its standard error go into
+// the note of a failed run.
 //
 // Not thread-safe, and it owns the process's SIGTERM, SIGINT and SIGCHLD handlers while it runs:
 // call it once, from main.

@@ -167,6 +167,7 @@ work e2e-scored c --max-trials 1 -- "$TMP/fail.sh"
 expect_rc 0 "(c)"
 expect_log c "the program exited with status 3"
 expect_log c "the furnace is cold"  # its stderr passes through
+expect_log c 'its standard error ended with: "the furnace is cold"'  # ...and ends the void note
 
 step "(d) a program killed by SIGKILL"
 work e2e-scored d --max-trials 1 -- "$TMP/kill.sh"

@@ -44,7 +44,7 @@ struct AuthOptions {
   // unlimited admin with an empty audit label, and tokens sent are ignored.
   bool require_tokens = true;
   // Requests per second per token (0: no limit); bursts of twice as many (at least 1) pass at once.
-  double max_requests_per_second_per_token = 200;
+  double max_requests_per_second_per_token = 1000;
   absl::Duration refresh_interval = absl::Seconds(1);
   absl::Duration miss_refresh_interval = absl::Milliseconds(100);
 
