@@ -430,6 +430,12 @@ bool WorkLoop::Patient(const absl::Status& status, absl::string_view what) {
 
 int WorkLoop::Run() {
   absl::StatusOr<v1::CampaignView> view = client_.GetCampaign(options_.campaign);
+  // A farm that starts at once may find the server restarting or its shared token's rate spent.
+  while (!view.ok() && Patient(view.status(), "reading the campaign")) {
+    absl::SleepFor(std::min(options_.retry_interval, absl::Seconds(1)));
+    view = client_.GetCampaign(options_.campaign);
+  }
+  unavailable_since_ = absl::InfiniteFuture();
   if (!view.ok()) {
     Log(absl::StrCat("ogive work: ", ErrorText(view.status())));
     return 1;
