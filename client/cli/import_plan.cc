@@ -1,7 +1,6 @@
 #include "client/cli/import_plan.h"
 
 #include <algorithm>
-#include <cerrno>
 #include <cmath>
 #include <cstdlib>
 #include <optional>
@@ -43,13 +42,18 @@ bool SameOutcome(const v1::Outcome& a, const v1::Outcome& b) {
   }
 }
 
-// `text` with a decimal comma read as a point ("3,25" -> "3.25"), when it has one comma and no point.
-std::string WithDecimalPoint(absl::string_view text) {
-  std::string out(text);
-  if (std::count(out.begin(), out.end(), ',') == 1 && out.find('.') == std::string::npos) {
-    out[out.find(',')] = '.';
+// The number `text` is as a whole (strtod syntax; infinities included), or nullopt. With
+// `decimal_comma`, one comma and no point read as a decimal mark ("3,25" is 3.25).
+std::optional<double> ReadNumber(absl::string_view text, bool decimal_comma) {
+  std::string copy(text);
+  if (decimal_comma && std::count(copy.begin(), copy.end(), ',') == 1 && copy.find('.') == std::string::npos) {
+    copy[copy.find(',')] = '.';
   }
-  return out;
+  if (copy.empty()) return std::nullopt;
+  char* end = nullptr;
+  const double value = std::strtod(copy.c_str(), &end);
+  if (end != copy.c_str() + copy.size()) return std::nullopt;
+  return value;
 }
 
 // Whether an export's field `text` shows `value` (reals to 1e-9 relative: a spreadsheet may have
@@ -58,11 +62,8 @@ bool SameValue(absl::string_view text, const v1::Value& value, bool decimal_comm
   const absl::string_view t = absl::StripAsciiWhitespace(text);
   switch (value.kind_case()) {
     case v1::Value::kReal: {
-      const std::string copy = decimal_comma ? WithDecimalPoint(t) : std::string(t);
-      char* end = nullptr;
-      const double x = std::strtod(copy.c_str(), &end);
-      return end == copy.c_str() + copy.size() && !copy.empty() &&
-             std::fabs(x - value.real()) <= 1e-9 * std::max(1.0, std::fabs(value.real()));
+      const std::optional<double> x = ReadNumber(t, decimal_comma);
+      return x.has_value() && std::fabs(*x - value.real()) <= 1e-9 * std::max(1.0, std::fabs(value.real()));
     }
     case v1::Value::kInteger: {
       int64_t n = 0;
@@ -97,18 +98,15 @@ absl::StatusOr<v1::Outcome> ParseOutcomeField(absl::string_view text, const v1::
     outcome.set_grade(*grade);
     return outcome;
   }
-  const std::string copy = decimal_comma ? WithDecimalPoint(t) : std::string(t);
-  char* end = nullptr;
-  errno = 0;
-  const double value = std::strtod(copy.c_str(), &end);
-  if (end != copy.c_str() + copy.size()) {
+  const std::optional<double> value = ReadNumber(t, decimal_comma);
+  if (!value.has_value()) {
     return absl::InvalidArgumentError(absl::StrCat(
         "outcome: '", t, "' is not a number (a score), 'infeasible' or 'void'"));
   }
-  if (!std::isfinite(value)) {
+  if (!std::isfinite(*value)) {
     return absl::InvalidArgumentError(absl::StrCat("outcome: '", t, "' is not a finite number"));
   }
-  outcome.set_score(value);
+  outcome.set_score(*value);
   return outcome;
 }
 

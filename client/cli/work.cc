@@ -119,50 +119,46 @@ void Echo(Running& r, absl::string_view chunk, bool flush_all) {
   r.echo.erase(0, end);
 }
 
-// Reads what is available (the fd is non-blocking); closes the fd at end of file.
-void ReadOutput(Running& r) {
+// Passes each chunk `fd` has now to `take` (the fd is non-blocking); at end of file (or an error that
+// ends the stream alike) closes it and sets it to -1.
+template <typename Take>
+void ReadAvailable(int& fd, Take take) {
   char buffer[1 << 14];
-  while (r.out_fd >= 0) {
-    const ssize_t n = read(r.out_fd, buffer, sizeof buffer);
+  while (fd >= 0) {
+    const ssize_t n = read(fd, buffer, sizeof buffer);
     if (n > 0) {
-      const absl::string_view chunk(buffer, static_cast<size_t>(n));
-      r.last_line.Feed(chunk);
-      Echo(r, chunk, false);
-    } else if (n < 0 && errno == EINTR) {
-      continue;
-    } else if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK)) {
-      return;
-    } else {  // end of file, or an error that ends the output alike
-      close(r.out_fd);
-      r.out_fd = -1;
-      Echo(r, "", true);
-    }
-  }
-}
-
-// Bytes of the program's standard error kept for the note of a failed run.
-constexpr size_t kErrorTailBytes = 2048;
-
-// Copies what is available of the program's standard error to ours and keeps its tail; closes the
-// fd at end of file.
-void ReadErrors(Running& r) {
-  char buffer[1 << 14];
-  while (r.err_fd >= 0) {
-    const ssize_t n = read(r.err_fd, buffer, sizeof buffer);
-    if (n > 0) {
-      std::fwrite(buffer, 1, static_cast<size_t>(n), stderr);
-      std::fflush(stderr);
-      r.err_tail.append(buffer, static_cast<size_t>(n));
-      if (r.err_tail.size() > kErrorTailBytes) r.err_tail.erase(0, r.err_tail.size() - kErrorTailBytes);
+      take(absl::string_view(buffer, static_cast<size_t>(n)));
     } else if (n < 0 && errno == EINTR) {
       continue;
     } else if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK)) {
       return;
     } else {
-      close(r.err_fd);
-      r.err_fd = -1;
+      close(fd);
+      fd = -1;
     }
   }
+}
+
+// The program's standard output: its last line kept, copied to ours line by line.
+void ReadOutput(Running& r) {
+  ReadAvailable(r.out_fd, [&r](absl::string_view chunk) {
+    r.last_line.Feed(chunk);
+    Echo(r, chunk, false);
+  });
+  if (r.out_fd < 0) Echo(r, "", true);
+}
+
+// Bytes of the program's standard error kept for the note of a failed run.
+constexpr size_t kErrorTailBytes = 2048;
+
+// The program's standard error: copied to ours, its tail kept.
+void ReadErrors(Running& r) {
+  ReadAvailable(r.err_fd, [&r](absl::string_view chunk) {
+    std::fwrite(chunk.data(), 1, chunk.size(), stderr);
+    std::fflush(stderr);
+    r.err_tail.append(chunk.data(), chunk.size());
+    if (r.err_tail.size() > kErrorTailBytes) r.err_tail.erase(0, r.err_tail.size() - kErrorTailBytes);
+  });
 }
 
 void CloseOutput(Running& r) {

@@ -137,9 +137,10 @@ class Campaign::Planner {
       if (t->state == TrialState::kLeased && t->lease_deadline <= now_) expired.push_back(number);
     }
     for (int64_t number : expired) {
-      Mutable(number).state = TrialState::kLapsed;
+      Trial& t = Mutable(number);
+      t.state = TrialState::kLapsed;
       --leased_delta_;
-      lapsed_.push_back(number);
+      lapsed_.emplace_back(number, t.worker);
     }
   }
 
@@ -438,7 +439,7 @@ class Campaign::Planner {
   int pending_removed_ = 0;             // pending outcomes this plan consumed or dropped
   std::vector<GenerationRecord> generations_;
   bool distribution_changed_ = false;
-  std::vector<int64_t> lapsed_;         // leases this plan found run out, in deadline order
+  std::vector<std::pair<int64_t, std::string>> lapsed_;  // leases found run out, and their workers
 };
 
 Campaign::Campaign(search::Space space, search::OutcomeOrder order, search::DistributionOptions distribution_options,

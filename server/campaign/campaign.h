@@ -80,7 +80,9 @@ struct Change {
   EngineState engine;
   std::vector<GenerationRecord> generations;
   bool distribution_changed = false;  // an update or restart replaced the distribution
-  std::vector<int64_t> lapsed;        // trials whose lease ran out in this change (also in `trials`)
+  // Trials whose lease ran out in this change (they are in `trials` too), with the worker that held
+  // each, in deadline order.
+  std::vector<std::pair<int64_t, std::string>> lapsed;
 };
 
 struct AskPlan {

@@ -74,10 +74,8 @@ CampaignHost::Queued CampaignHost::ApplyAndQueue(campaign::Change change, std::v
   // Leases that ran out, whichever request found them (the sweeper, or an ask, tell, renewal or phase
   // change that swept first): the event log records every lapse, before what the request did.
   std::vector<storage::Event> lapses;
-  for (int64_t number : change.lapsed) {
-    auto t = std::find_if(change.trials.begin(), change.trials.end(),
-                          [number](const campaign::Trial& trial) { return trial.number == number; });
-    lapses.push_back({"lapse", number, t != change.trials.end() ? t->worker : "", "", absl::ToUnixNanos(now)});
+  for (const auto& [number, worker] : change.lapsed) {
+    lapses.push_back({"lapse", number, worker, "", absl::ToUnixNanos(now)});
   }
   events.insert(events.begin(), lapses.begin(), lapses.end());
   for (const campaign::Trial& t : change.trials) write.trials.push_back(codec::TrialToProto(t));

@@ -33,8 +33,6 @@ constexpr int kMaxPopulation = campaign::kMaxPopulationSize;
 constexpr const char* kReservedEnvNames[] = {"CAMPAIGN",  "TRIAL",  "CANDIDATE_FILE", "SERVER",  "TOKEN",
                                              "TLS",    "TLS_CA", "TLS_CERT",       "TLS_KEY", "TLS_SERVER_NAME"};
 
-absl::Status Invalid(absl::string_view path, absl::string_view rule) { return InvalidField(path, rule); }
-
 // A value as messages show it: quoted, at most 64 bytes, control characters escaped.
 std::string Shown(absl::string_view value) {
   const bool cut = value.size() > 64;
@@ -43,7 +41,7 @@ std::string Shown(absl::string_view value) {
 
 // A count of a repeated field: at least `min`; beyond the server's `max` it is RESOURCE_EXHAUSTED.
 absl::Status CheckCount(absl::string_view path, int64_t count, int64_t min, int64_t max, absl::string_view what) {
-  if (count < min) return Invalid(path, StrCat("needs ", min, "..", max, " ", what, ", got ", count));
+  if (count < min) return InvalidField(path, StrCat("needs ", min, "..", max, " ", what, ", got ", count));
   if (count > max) {
     return WithReason(
         absl::ResourceExhaustedError(StrCat(path, ": at most ", max, " ", what, " (this server's limit), got ", count)),
@@ -55,11 +53,11 @@ absl::Status CheckCount(absl::string_view path, int64_t count, int64_t min, int6
 // A listing's page_size and page_token (the token's own checks are page_token.h's).
 absl::Status CheckPaging(int32_t page_size, const std::string& page_token, const ServiceLimits& limits) {
   if (page_size < 0 || page_size > limits.max_page_size) {
-    return Invalid("page_size", StrCat("must be 0 (", kDefaultPageSize, ") or in 1..", limits.max_page_size,
+    return InvalidField("page_size", StrCat("must be 0 (", kDefaultPageSize, ") or in 1..", limits.max_page_size,
                                        ", got ", page_size));
   }
   if (page_token.size() > MaxPageTokenBytes(limits.max_name_bytes)) {
-    return Invalid("page_token", "not a token this server issued; pass next_page_token as is");
+    return InvalidField("page_token", "not a token this server issued; pass next_page_token as is");
   }
   return absl::OkStatus();
 }
@@ -73,11 +71,11 @@ bool IsControl(char c, bool multiline) {
 // Free text: at most `max_bytes`, no control characters (newlines and tabs too when `multiline`).
 absl::Status CheckText(absl::string_view path, const std::string& value, int max_bytes, bool multiline) {
   if (static_cast<int64_t>(value.size()) > max_bytes) {
-    return Invalid(path, StrCat("at most ", max_bytes, " bytes, got ", value.size()));
+    return InvalidField(path, StrCat("at most ", max_bytes, " bytes, got ", value.size()));
   }
   for (char c : value) {
     if (IsControl(c, multiline)) {
-      return Invalid(path, StrCat(Shown(value), " holds a control character; ",
+      return InvalidField(path, StrCat(Shown(value), " holds a control character; ",
                                   multiline ? "only tab and newline are allowed" : "none are allowed"));
     }
   }
@@ -86,10 +84,10 @@ absl::Status CheckText(absl::string_view path, const std::string& value, int max
 
 // A label (option, grade, worker): 1..max_bytes, no control characters, no blanks at either end.
 absl::Status CheckLabel(absl::string_view path, const std::string& value, int max_bytes) {
-  if (value.empty()) return Invalid(path, "must not be empty");
+  if (value.empty()) return InvalidField(path, "must not be empty");
   if (absl::Status s = CheckText(path, value, max_bytes, false); !s.ok()) return s;
   if (absl::ascii_isspace(value.front()) || absl::ascii_isspace(value.back())) {
-    return Invalid(path, StrCat(Shown(value), " must not start or end with a blank"));
+    return InvalidField(path, StrCat(Shown(value), " must not start or end with a blank"));
   }
   return absl::OkStatus();
 }
@@ -97,13 +95,13 @@ absl::Status CheckLabel(absl::string_view path, const std::string& value, int ma
 // A name: 1..max_bytes of letters, digits, '_', '-' (and '.' when `allow_dot`).
 absl::Status CheckIdentifier(absl::string_view path, const std::string& value, int max_bytes, bool allow_dot) {
   const char* allowed = allow_dot ? "letters, digits, '_', '-' and '.'" : "letters, digits, '_' and '-'";
-  if (value.empty()) return Invalid(path, StrCat("must not be empty; 1..", max_bytes, " ", allowed));
+  if (value.empty()) return InvalidField(path, StrCat("must not be empty; 1..", max_bytes, " ", allowed));
   if (static_cast<int64_t>(value.size()) > max_bytes) {
-    return Invalid(path, StrCat("at most ", max_bytes, " bytes, got ", value.size()));
+    return InvalidField(path, StrCat("at most ", max_bytes, " bytes, got ", value.size()));
   }
   for (char c : value) {
     if (!(absl::ascii_isalnum(c) || c == '_' || c == '-' || (allow_dot && c == '.'))) {
-      return Invalid(path, StrCat(Shown(value), " may hold only ", allowed));
+      return InvalidField(path, StrCat(Shown(value), " may hold only ", allowed));
     }
   }
   return absl::OkStatus();
@@ -112,10 +110,10 @@ absl::Status CheckIdentifier(absl::string_view path, const std::string& value, i
 // A request id: empty, or up to max_bytes of printable ASCII without blanks.
 absl::Status CheckRequestId(absl::string_view path, const std::string& value, const ServiceLimits& limits) {
   if (static_cast<int64_t>(value.size()) > limits.max_request_id_bytes) {
-    return Invalid(path, StrCat("at most ", limits.max_request_id_bytes, " bytes, got ", value.size()));
+    return InvalidField(path, StrCat("at most ", limits.max_request_id_bytes, " bytes, got ", value.size()));
   }
   for (char c : value) {
-    if (c <= ' ' || c > '~') return Invalid(path, StrCat(Shown(value), " may hold only printable ASCII without blanks"));
+    if (c <= ' ' || c > '~') return InvalidField(path, StrCat(Shown(value), " may hold only printable ASCII without blanks"));
   }
   return absl::OkStatus();
 }
@@ -123,14 +121,14 @@ absl::Status CheckRequestId(absl::string_view path, const std::string& value, co
 // Who asks, reports or renews: required, since leases, trial lists and the log name it.
 absl::Status CheckWorker(absl::string_view path, const std::string& value, const ServiceLimits& limits) {
   if (value.empty()) {
-    return Invalid(path, "must not be empty: name the worker, e.g. a host and slot such as node-7:2");
+    return InvalidField(path, "must not be empty: name the worker, e.g. a host and slot such as node-7:2");
   }
   return CheckLabel(path, value, limits.max_name_bytes);
 }
 
 absl::Status CheckLease(absl::string_view path, double seconds, const ServiceLimits& limits) {
   if (!std::isfinite(seconds) || seconds < 0 || seconds > limits.max_lease_seconds) {
-    return Invalid(path, StrCat("must be 0 (the default) or in (0, ", limits.max_lease_seconds, "] seconds, got ",
+    return InvalidField(path, StrCat("must be 0 (the default) or in (0, ", limits.max_lease_seconds, "] seconds, got ",
                                 seconds));
   }
   return absl::OkStatus();
@@ -138,7 +136,7 @@ absl::Status CheckLease(absl::string_view path, double seconds, const ServiceLim
 
 absl::Status CheckFinite(absl::string_view path, double value, absl::string_view context = "") {
   if (std::isfinite(value)) return absl::OkStatus();
-  return Invalid(path, StrCat("must be a finite number, got ", value, context));
+  return InvalidField(path, StrCat("must be a finite number, got ", value, context));
 }
 
 std::string EnvName(const std::string& parameter) {
@@ -157,26 +155,26 @@ absl::Status CheckParameterKind(const std::string& path, const v1::Parameter& p,
       if (absl::Status s = CheckFinite(path + ".real.low", r.low(), of); !s.ok()) return s;
       if (absl::Status s = CheckFinite(path + ".real.high", r.high(), of); !s.ok()) return s;
       if (!(r.low() < r.high())) {
-        return Invalid(path + ".real.low", StrCat("must be less than real.high (", r.high(), "), got ", r.low(), of));
+        return InvalidField(path + ".real.low", StrCat("must be less than real.high (", r.high(), "), got ", r.low(), of));
       }
       if (!std::isfinite(r.high() - r.low())) {
-        return Invalid(path + ".real", StrCat("high - low must be a finite number, got low=", r.low(),
+        return InvalidField(path + ".real", StrCat("high - low must be a finite number, got low=", r.low(),
                                               " high=", r.high(), of));
       }
       if (r.log() && !(r.low() > 0)) {
-        return Invalid(path + ".real.low", StrCat("must be > 0 on a log scale (real.log), got ", r.low(), of));
+        return InvalidField(path + ".real.low", StrCat("must be > 0 on a log scale (real.log), got ", r.low(), of));
       }
       return absl::OkStatus();
     }
     case v1::Parameter::kInteger: {
       const v1::IntegerRange& r = p.integer();
       if (!(r.low() < r.high())) {
-        return Invalid(path + ".integer.low",
+        return InvalidField(path + ".integer.low",
                        StrCat("must be less than integer.high (", r.high(), "), got ", r.low(), of));
       }
       // In unsigned arithmetic high - low cannot overflow.
       if (static_cast<uint64_t>(r.high()) - static_cast<uint64_t>(r.low()) >= kMaxIntegerLevels) {
-        return Invalid(path + ".integer", StrCat("at most ", kMaxIntegerLevels, " values (high - low + 1), got low=",
+        return InvalidField(path + ".integer", StrCat("at most ", kMaxIntegerLevels, " values (high - low + 1), got low=",
                                                  r.low(), " high=", r.high(), of));
       }
       return absl::OkStatus();
@@ -193,7 +191,7 @@ absl::Status CheckParameterKind(const std::string& path, const v1::Parameter& p,
         const std::string option_path = StrCat(path, ".categorical.options[", j, "]");
         if (absl::Status s = CheckLabel(option_path, options[j], limits.max_name_bytes); !s.ok()) return s;
         if (auto [it, inserted] = seen.emplace(options[j], j); !inserted) {
-          return Invalid(option_path, StrCat(Shown(options[j]), " appears twice (also options[", it->second,
+          return InvalidField(option_path, StrCat(Shown(options[j]), " appears twice (also options[", it->second,
                                              "]); options must be distinct"));
         }
       }
@@ -204,7 +202,7 @@ absl::Status CheckParameterKind(const std::string& path, const v1::Parameter& p,
     case v1::Parameter::KIND_NOT_SET:
       break;
   }
-  return Invalid(path, StrCat("set its kind: one of real, integer, categorical, flag", of));
+  return InvalidField(path, StrCat("set its kind: one of real, integer, categorical, flag", of));
 }
 
 absl::Status CheckObjective(const v1::Objective& objective, const ServiceLimits& limits) {
@@ -213,7 +211,7 @@ absl::Status CheckObjective(const v1::Objective& objective, const ServiceLimits&
       if (objective.direction() == v1::DIRECTION_LOWER_IS_BETTER || objective.direction() == v1::DIRECTION_HIGHER_IS_BETTER) {
         return absl::OkStatus();
       }
-      return Invalid("design.objective.direction",
+      return InvalidField("design.objective.direction",
                      StrCat("must be DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER, got ", static_cast<int>(objective.direction())));
     case v1::Objective::kGradeScale: {
       const auto& labels = objective.grade_scale().labels();
@@ -227,7 +225,7 @@ absl::Status CheckObjective(const v1::Objective& objective, const ServiceLimits&
         const std::string path = StrCat("design.objective.grade_scale.labels[", j, "]");
         if (absl::Status s = CheckLabel(path, labels[j], limits.max_name_bytes); !s.ok()) return s;
         if (auto [it, inserted] = seen.emplace(labels[j], j); !inserted) {
-          return Invalid(path, StrCat(Shown(labels[j]), " appears twice (also labels[", it->second,
+          return InvalidField(path, StrCat(Shown(labels[j]), " appears twice (also labels[", it->second,
                                       "]); labels must be distinct"));
         }
       }
@@ -236,7 +234,7 @@ absl::Status CheckObjective(const v1::Objective& objective, const ServiceLimits&
     case v1::Objective::ORDER_NOT_SET:
       break;
   }
-  return Invalid("design.objective", "set either direction (DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER) or grade_scale");
+  return InvalidField("design.objective", "set either direction (DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER) or grade_scale");
 }
 
 // One start value against its parameter's kind and bounds.
@@ -247,7 +245,7 @@ absl::Status CheckStartValue(const std::string& path, const v1::Value& value, co
       expected = "a real value";
       if (value.kind_case() != v1::Value::kReal) break;
       if (!(value.real() >= p.real().low() && value.real() <= p.real().high())) {
-        return Invalid(path + ".real", StrCat("must be in [", p.real().low(), ", ", p.real().high(), "], got ",
+        return InvalidField(path + ".real", StrCat("must be in [", p.real().low(), ", ", p.real().high(), "], got ",
                                               value.real()));
       }
       return absl::OkStatus();
@@ -255,7 +253,7 @@ absl::Status CheckStartValue(const std::string& path, const v1::Value& value, co
       expected = "an integer value";
       if (value.kind_case() != v1::Value::kInteger) break;
       if (value.integer() < p.integer().low() || value.integer() > p.integer().high()) {
-        return Invalid(path + ".integer", StrCat("must be in [", p.integer().low(), ", ", p.integer().high(),
+        return InvalidField(path + ".integer", StrCat("must be in [", p.integer().low(), ", ", p.integer().high(),
                                                  "], got ", value.integer()));
       }
       return absl::OkStatus();
@@ -265,7 +263,7 @@ absl::Status CheckStartValue(const std::string& path, const v1::Value& value, co
       for (const std::string& option : p.categorical().options()) {
         if (option == value.categorical()) return absl::OkStatus();
       }
-      return Invalid(path + ".categorical", StrCat(Shown(value.categorical()), " is not an option; allowed: ",
+      return InvalidField(path + ".categorical", StrCat(Shown(value.categorical()), " is not an option; allowed: ",
                                                    absl::StrJoin(p.categorical().options(), ", ")));
     case v1::Parameter::kFlag:
       expected = "a flag value";
@@ -274,7 +272,7 @@ absl::Status CheckStartValue(const std::string& path, const v1::Value& value, co
     case v1::Parameter::KIND_NOT_SET:
       break;
   }
-  return Invalid(path, StrCat("parameter '", p.name(), "' takes ", expected));
+  return InvalidField(path, StrCat("parameter '", p.name(), "' takes ", expected));
 }
 
 }  // namespace
@@ -297,19 +295,19 @@ absl::Status ValidateDesignShape(const v1::CampaignDesign& design, const Service
     const std::string path = StrCat("design.parameters[", i, "]");
     if (absl::Status s = CheckIdentifier(path + ".name", p.name(), limits.max_name_bytes, false); !s.ok()) return s;
     if (auto [it, inserted] = by_name.emplace(p.name(), i); !inserted) {
-      return Invalid(path + ".name", StrCat(Shown(p.name()), " appears twice (also parameters[", it->second,
+      return InvalidField(path + ".name", StrCat(Shown(p.name()), " appears twice (also parameters[", it->second,
                                             "]); parameter names must be distinct"));
     }
     const std::string env = EnvName(p.name());
     if (auto [it, inserted] = by_env.emplace(env, i); !inserted) {
-      return Invalid(path + ".name",
+      return InvalidField(path + ".name",
                      StrCat(Shown(p.name()), " and parameters[", it->second, "].name ",
                             Shown(design.parameters(it->second).name()), " both give OGIVE_", env,
                             " to the programs of 'ogive work'; names must differ in more than case, '-' and '_'"));
     }
     for (const char* reserved : kReservedEnvNames) {
       if (env == reserved) {
-        return Invalid(path + ".name", StrCat(Shown(p.name()), " would shadow OGIVE_", env,
+        return InvalidField(path + ".name", StrCat(Shown(p.name()), " would shadow OGIVE_", env,
                                               ", which 'ogive work' sets or reads itself; choose another name"));
       }
     }
@@ -321,34 +319,34 @@ absl::Status ValidateDesignShape(const v1::CampaignDesign& design, const Service
     if (absl::Status s = CheckParameterKind(path, p, limits); !s.ok()) return s;
   }
   if (!design.has_objective()) {
-    return Invalid("design.objective", "required: direction (DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER) or grade_scale");
+    return InvalidField("design.objective", "required: direction (DIRECTION_LOWER_IS_BETTER or DIRECTION_HIGHER_IS_BETTER) or grade_scale");
   }
   if (absl::Status s = CheckObjective(design.objective(), limits); !s.ok()) return s;
   const bool graded = design.objective().has_grade_scale();
 
   if (design.population_size() < 0 || design.population_size() == 1 || design.population_size() > kMaxPopulation) {
-    return Invalid("design.population_size", StrCat("must be 0 (the default) or in 2..", kMaxPopulation, ", got ",
+    return InvalidField("design.population_size", StrCat("must be 0 (the default) or in 2..", kMaxPopulation, ", got ",
                                                     design.population_size()));
   }
   if (design.expected_workers() < 0 || design.expected_workers() > kMaxPopulation) {
-    return Invalid("design.expected_workers", StrCat("must be 0 (meaning 1) or in 1..", kMaxPopulation, ", got ",
+    return InvalidField("design.expected_workers", StrCat("must be 0 (meaning 1) or in 1..", kMaxPopulation, ", got ",
                                                      design.expected_workers()));
   }
   if (design.staleness_limit() < 0) {
-    return Invalid("design.staleness_limit", StrCat("must be >= 0 (0 = the default), got ", design.staleness_limit()));
+    return InvalidField("design.staleness_limit", StrCat("must be >= 0 (0 = the default), got ", design.staleness_limit()));
   }
   if (design.trial_budget() < 0) {
-    return Invalid("design.trial_budget", StrCat("must be >= 0 (0 = no budget), got ", design.trial_budget()));
+    return InvalidField("design.trial_budget", StrCat("must be >= 0 (0 = no budget), got ", design.trial_budget()));
   }
   if (design.has_target() && design.has_target_grade()) {
-    return Invalid("design.target", "set at most one of target and target_grade");
+    return InvalidField("design.target", "set at most one of target and target_grade");
   }
   if (design.has_target()) {
-    if (graded) return Invalid("design.target", "a graded campaign takes target_grade, not target");
+    if (graded) return InvalidField("design.target", "a graded campaign takes target_grade, not target");
     if (absl::Status s = CheckFinite("design.target", design.target()); !s.ok()) return s;
   }
   if (design.has_target_grade()) {
-    if (!graded) return Invalid("design.target_grade", "a scored campaign takes target, not target_grade");
+    if (!graded) return InvalidField("design.target_grade", "a scored campaign takes target, not target_grade");
     if (absl::Status s = CheckLabel("design.target_grade", design.target_grade(), limits.max_name_bytes); !s.ok()) {
       return s;
     }
@@ -357,14 +355,14 @@ absl::Status ValidateDesignShape(const v1::CampaignDesign& design, const Service
       on_scale = on_scale || label == design.target_grade();
     }
     if (!on_scale) {
-      return Invalid("design.target_grade",
+      return InvalidField("design.target_grade",
                      StrCat(Shown(design.target_grade()), " is not on the scale; allowed: ",
                             absl::StrJoin(design.objective().grade_scale().labels(), ", ")));
     }
   }
   if (absl::Status s = CheckLease("design.lease_seconds", design.lease_seconds(), limits); !s.ok()) return s;
   if (!std::isfinite(design.initial_spread()) || design.initial_spread() < 0 || design.initial_spread() > 1) {
-    return Invalid("design.initial_spread",
+    return InvalidField("design.initial_spread",
                    StrCat("must be 0 (the default) or in (0, 1], a fraction of each range; got ", design.initial_spread()));
   }
   switch (design.gaussian_model()) {
@@ -373,14 +371,14 @@ absl::Status ValidateDesignShape(const v1::CampaignDesign& design, const Service
     case v1::GAUSSIAN_MODEL_DIAGONAL:
       break;
     default:
-      return Invalid("design.gaussian_model",
+      return InvalidField("design.gaussian_model",
                      StrCat("must be GAUSSIAN_MODEL_UNSPECIFIED, GAUSSIAN_MODEL_FULL or GAUSSIAN_MODEL_DIAGONAL, got ",
                             static_cast<int>(design.gaussian_model())));
   }
   for (const auto& [name, value] : design.start().values()) {
     const std::string path = StrCat("design.start.values[", Shown(name), "]");
     auto it = by_name.find(name);
-    if (it == by_name.end()) return Invalid(path, "not a parameter of this design");
+    if (it == by_name.end()) return InvalidField(path, "not a parameter of this design");
     if (absl::Status s = CheckStartValue(path, value, design.parameters(it->second)); !s.ok()) return s;
   }
   return absl::OkStatus();
@@ -427,12 +425,12 @@ absl::Status ValidateTell(const v1::TellRequest& request, const ServiceLimits& l
       case v1::Outcome::kVoid:
         break;
       case v1::Outcome::KIND_NOT_SET:
-        return Invalid(path + ".outcome", "set one of score, grade, infeasible, void");
+        return InvalidField(path + ".outcome", "set one of score, grade, infeasible, void");
     }
     // A note is stored and shown exactly as sent (any text, control characters included): only its length
     // is limited.
     if (o.note().size() > static_cast<size_t>(limits.max_note_bytes)) {
-      return Invalid(path + ".outcome.note", StrCat("at most ", limits.max_note_bytes, " bytes, got ", o.note().size()));
+      return InvalidField(path + ".outcome.note", StrCat("at most ", limits.max_note_bytes, " bytes, got ", o.note().size()));
     }
   }
   return absl::OkStatus();
@@ -458,7 +456,7 @@ absl::Status ValidateListTrials(const v1::ListTrialsRequest& request, const Serv
     case v1::TRIAL_STATE_VOIDED:
       break;
     default:
-      return Invalid("state", StrCat("must be TRIAL_STATE_UNSPECIFIED (all), TRIAL_STATE_LEASED, TRIAL_STATE_REPORTED, "
+      return InvalidField("state", StrCat("must be TRIAL_STATE_UNSPECIFIED (all), TRIAL_STATE_LEASED, TRIAL_STATE_REPORTED, "
                                      "TRIAL_STATE_LAPSED or TRIAL_STATE_VOIDED, got ",
                                      static_cast<int>(request.state())));
   }
@@ -482,7 +480,7 @@ absl::Status ValidateSetPhase(const v1::SetPhaseRequest& request, const ServiceL
     case v1::PHASE_COMMAND_FINISH:
       break;
     default:
-      return Invalid("command", StrCat("must be PHASE_COMMAND_PAUSE, PHASE_COMMAND_RESUME or PHASE_COMMAND_FINISH, got ",
+      return InvalidField("command", StrCat("must be PHASE_COMMAND_PAUSE, PHASE_COMMAND_RESUME or PHASE_COMMAND_FINISH, got ",
                                        static_cast<int>(request.command())));
   }
   return CheckRequestId("request_id", request.request_id(), limits);

@@ -86,6 +86,17 @@ def same(actual, wanted, what):
             what, wanted, actual))
 
 
+def all_pages(method, request, into, field):
+    """Every row of a paged listing: `method` called with `request` until next_page_token is empty, the
+    rows of `field` gathered into the response `into`."""
+    while True:
+        page = method(request, timeout=T)
+        getattr(into, field).extend(getattr(page, field))
+        if not page.next_page_token:
+            return into
+        request.page_token = page.next_page_token
+
+
 def code_of(grpc, call):
     try:
         call()
@@ -116,15 +127,8 @@ def run(args, tmp):
         admin = stub("fixture-admin")
 
         # The list, page by page (the old server had no pages: one response held every campaign).
-        listed = service_pb2.ListCampaignsResponse()
-        page_token = ""
-        while True:
-            page = admin.ListCampaigns(service_pb2.ListCampaignsRequest(page_size=3, page_token=page_token),
-                                       timeout=T)
-            listed.campaigns.extend(page.campaigns)
-            page_token = page.next_page_token
-            if not page_token:
-                break
+        listed = all_pages(admin.ListCampaigns, service_pb2.ListCampaignsRequest(page_size=3),
+                           service_pb2.ListCampaignsResponse(), "campaigns")
         old_list = expected(service_pb2.ListCampaignsResponse, "list")
         check(len(old_list.campaigns) == len(NAMES), "the fixture lists %d campaigns" % len(old_list.campaigns))
         same([without_clock(v) for v in listed.campaigns], [without_clock(v) for v in old_list.campaigns],
@@ -134,27 +138,13 @@ def run(args, tmp):
             view = admin.GetCampaign(service_pb2.GetCampaignRequest(campaign=name), timeout=T)
             same(without_clock(view), without_clock(expected(service_pb2.CampaignView, "get-" + name)),
                  "GetCampaign(%s)" % name)
-            trials = service_pb2.ListTrialsResponse()
-            page_token = ""
-            while True:
-                page = admin.ListTrials(service_pb2.ListTrialsRequest(campaign=name, page_size=5,
-                                                                      page_token=page_token), timeout=T)
-                trials.trials.extend(page.trials)
-                page_token = page.next_page_token
-                if not page_token:
-                    break
+            trials = all_pages(admin.ListTrials, service_pb2.ListTrialsRequest(campaign=name, page_size=5),
+                               service_pb2.ListTrialsResponse(), "trials")
             old_trials = expected(service_pb2.ListTrialsResponse, "trials-" + name)
             check(len(old_trials.trials) > 10, "the fixture's %s has only %d trials" % (name, len(old_trials.trials)))
             same(trials, old_trials, "the trials of %s" % name)
-            generations = service_pb2.ListGenerationsResponse()
-            page_token = ""
-            while True:
-                page = admin.ListGenerations(service_pb2.ListGenerationsRequest(campaign=name, page_token=page_token),
-                                             timeout=T)
-                generations.generations.extend(page.generations)
-                page_token = page.next_page_token
-                if not page_token:
-                    break
+            generations = all_pages(admin.ListGenerations, service_pb2.ListGenerationsRequest(campaign=name),
+                                    service_pb2.ListGenerationsResponse(), "generations")
             same(generations, expected(service_pb2.ListGenerationsResponse, "generations-" + name),
                  "the generations of %s" % name)
 
