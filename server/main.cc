@@ -48,6 +48,7 @@
 #include "server/service/grpc_service.h"
 #include "server/service/log.h"
 #include "server/service/registry.h"
+#include "server/service/request_body.h"
 #include "server/service/service_metrics.h"
 #include "server/service/token_admin.h"
 #include "server/service/token_admin_service.h"
@@ -332,7 +333,7 @@ int main(int argc, char** argv) {
   if (!flags.reflection) builder.SetOption(std::make_unique<ogive::WithoutReflection>());
   int port = 0;
   builder.AddListeningPort(flags.listen, transport->credentials, &port);
-  builder.SetMaxReceiveMessageSize(flags.limits.max_message_bytes);
+  builder.SetMaxReceiveMessageSize(ogive::service::TransportReceiveLimit(flags.limits));
   // A port already in use is an error, not a port to share with another server.
   builder.AddChannelArgument(GRPC_ARG_ALLOW_REUSEPORT, 0);
   // The synchronous methods (all but Ask and Tell) block until their commit, so several may run at

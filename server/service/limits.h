@@ -18,7 +18,7 @@
 namespace ogive::service {
 
 struct ServiceLimits {
-  int max_message_bytes = 4 << 20;      // gRPC receive limit per message
+  int max_message_bytes = 4 << 20;      // bytes of one request (request_body.h)
   int max_ask_count = 1000;             // trials per Ask, trial numbers per Renew
   int max_reports_per_tell = 1000;      // reports per Tell
   int max_parameters = 1000;            // parameters per design

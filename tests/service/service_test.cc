@@ -47,6 +47,7 @@
 #include "server/service/grpc_service.h"
 #include "server/service/limits.h"
 #include "server/service/registry.h"
+#include "server/service/request_body.h"
 #include "storage/sqlite_store.h"
 #include "tests/support/status_activity.h"
 
@@ -135,7 +136,7 @@ class LoopbackServer {
     grpc::ServerBuilder builder;
     port_ = 0;
     builder.AddListeningPort("127.0.0.1:0", grpc::InsecureServerCredentials(), &port_);
-    builder.SetMaxReceiveMessageSize(kMaxReceiveBytes);
+    builder.SetMaxReceiveMessageSize(service::TransportReceiveLimit(limits_));
     builder.RegisterService(service_.get());
     server_ = builder.BuildAndStart();
     if (server_ == nullptr || port_ == 0) {
@@ -1578,13 +1579,24 @@ TEST_F(ServiceTest, RequestLargerThanTheReceiveLimitIsResourceExhausted) {
   AskOk("big", 1);
   const std::string before = StoredState("big");
 
+  // Over the limit: refused by ogived, naming the flag and the limit.
   EXPECT_THAT(
-      client_->Tell("big", {ScoreReport(1, 1.0, std::string(200 << 10, 'x'))}, "w").status(),
-      StatusIs(absl::StatusCode::kResourceExhausted, HasSubstr(absl::StrCat(kMaxReceiveBytes))));
+      client_->Tell("big", {ScoreReport(1, 1.0, std::string(kMaxReceiveBytes + 100, 'x'))}, "w").status(),
+      StatusIs(absl::StatusCode::kResourceExhausted,
+               AllOf(HasSubstr("--max-message-bytes"), HasSubstr(absl::StrCat(kMaxReceiveBytes)))));
+  // As many reports as make the request a little over the limit.
   std::vector<v1::Report> thousands;
-  for (int i = 0; i < 8000; ++i) thousands.push_back(ScoreReport(1, 1.0));
+  v1::TellRequest sized;
+  while (sized.ByteSizeLong() <= kMaxReceiveBytes + 1000) {
+    thousands.push_back(ScoreReport(1, 1.0));
+    *sized.add_reports() = thousands.back();
+  }
   EXPECT_THAT(client_->Tell("big", thousands, "w").status(),
-              StatusIs(absl::StatusCode::kResourceExhausted, HasSubstr("larger than max")));
+              StatusIs(absl::StatusCode::kResourceExhausted, HasSubstr("--max-message-bytes")));
+  // Past twice the limit: cut off by gRPC itself, before ogived reads it.
+  EXPECT_THAT(
+      client_->Tell("big", {ScoreReport(1, 1.0, std::string(2 * kMaxReceiveBytes + 100, 'x'))}, "w").status(),
+      StatusIs(absl::StatusCode::kResourceExhausted, HasSubstr("larger than max")));
 
   EXPECT_EQ(StoredState("big"), before);
   EXPECT_EQ(TellOk("big", {ScoreReport(1, 1.0)}).results(0).code(), 0);  // still serving

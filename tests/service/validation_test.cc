@@ -32,6 +32,7 @@
 #include "server/campaign/campaign_options.h"
 #include "server/service/authorizer.h"
 #include "server/service/grpc_service.h"
+#include "server/service/validation.h"
 #include "server/service/handlers.h"
 #include "server/service/limits.h"
 #include "server/service/registry.h"
@@ -611,17 +612,10 @@ TEST_F(ValidationTest, ReadAndPhaseRequestsAreRefusedNamingTheirPath) {
        kInvalid, {"campaign", "letters, digits"}},
       {"watch: bad campaign",
        [](service::Registry& r) {
-         // Refused before anything is written to the stream, so no writer is needed.
-         service::AuthOptions open;
-         open.require_tokens = false;
-         std::unique_ptr<service::Authorizer> authorizer =
-             *service::Authorizer::Create(nullptr, open, [] { return absl::Now(); });
-         service::OgiveService service(&r, authorizer.get(), [] { return absl::Now(); });
-         grpc::ServerContext context;
+         // OgiveService::StreamedWatch calls this before anything is written to the stream.
          v1::WatchRequest request;
          request.set_campaign(std::string(25, 'w'));
-         const grpc::Status s = service.Watch(&context, &request, nullptr);
-         return absl::Status(static_cast<absl::StatusCode>(s.error_code()), s.error_message());
+         return service::ValidateWatch(request, r.limits());
        },
        kInvalid, {"campaign", "at most 24 bytes"}},
   });
