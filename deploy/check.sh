@@ -4,7 +4,10 @@
 #      report's rendering test);
 #   2. the `ci` preset (optimized, assertions kept, warnings are errors): build and ctest;
 #   3. the `asan` preset: the same tests under AddressSanitizer and UndefinedBehaviorSanitizer;
-#   4. the `fuzz` preset (clang++ and libFuzzer): each fuzz target for OGIVE_FUZZ_SECONDS (default
+#   4. the `tsan` preset (clang++): the whole tree built with -Wthread-safety (clang's check of the
+#      ABSL_GUARDED_BY annotations; a finding is an error), and the concurrent tests (storage,
+#      service, client, the process tests of ogived and ogive work) run under ThreadSanitizer;
+#   5. the `fuzz` preset (clang++ and libFuzzer): each fuzz target for OGIVE_FUZZ_SECONDS (default
 #      60) from a copy of its committed corpus (tests/fuzz/run_fuzzers.sh).
 # Any failure, sanitizer report or fuzzer crash fails the whole check. Each step prints its time.
 set -euo pipefail
@@ -41,6 +44,9 @@ step "ci tests" ctest --preset ci -j "$jobs" --timeout 1200
 step "asan configure" cmake --preset asan
 step "asan build" cmake --build --preset asan -j "$jobs"
 step "asan tests" asan_tests
+step "tsan configure" cmake --preset tsan
+step "tsan build" cmake --build --preset tsan -j "$jobs"
+step "tsan tests" ctest --preset tsan -j "$jobs" --timeout 1200
 step "fuzz configure" cmake --preset fuzz
 step "fuzz build" cmake --build --preset fuzz -j "$jobs"
 step "fuzz run" bash tests/fuzz/run_fuzzers.sh --seconds "$fuzz_seconds"

@@ -11,7 +11,7 @@ packages=(
   libssl-dev openssl
   libcpp-httplib-dev
   libjemalloc-dev  # ogived's allocator (CMakeLists.txt says why)
-  clang libclang-rt-14-dev  # the `fuzz` preset: clang++ with libFuzzer and its sanitizer runtimes
+  clang libclang-rt-14-dev  # the `fuzz` and `tsan` presets: clang++, libFuzzer, the sanitizer runtimes
   python3-numpy python3-scipy python3-grpcio python3-protobuf
   python3-prometheus-client python3-yaml
   systemd

@@ -48,7 +48,7 @@ constexpr double kTarget = 1e-8;
 constexpr double kLease = 5.0;
 constexpr double kVanish = 0.1;
 constexpr double kVoid = 0.05;
-constexpr double kDuplicate = 0.05;
+constexpr double kDuplicateRate = 0.05;
 
 enum class Durations { kLognormal, kPareto };
 
@@ -126,7 +126,7 @@ Result RunEngine(const Problem& problem, int workers, int expected_workers, Dura
       result.time = e.time;
       return result;
     }
-    if (model.Happens(kDuplicate)) {
+    if (model.Happens(kDuplicateRate)) {
       events.push({e.time + model.random.Uniform() * 2.0, sequence++, Event::kDuplicate, e.trial, e.outcome});
     }
     events.push({e.time, sequence++, Event::kFree, 0, {}});
@@ -285,7 +285,7 @@ int main(int argc, char** argv) {
   std::printf("{\n  \"benchmark\": \"ogive-bench-async\",\n  \"budget\": %ld,\n  \"target\": %g,\n"
               "  \"lease\": %g,\n  \"vanish_probability\": %g,\n  \"void_probability\": %g,\n"
               "  \"duplicate_fraction\": %g,\n  \"results\": [",
-              kBudget, kTarget, kLease, kVanish, kVoid, kDuplicate);
+              kBudget, kTarget, kLease, kVanish, kVoid, kDuplicateRate);
   for (size_t k = 0; k < rows.size(); ++k) {
     const Row& r = rows[k];
     std::printf("%s\n    {\"problem\": \"%s\", \"n\": %d, \"workers\": %d, \"mode\": \"%s\", \"durations\": \"%s\", "
