@@ -127,6 +127,23 @@ class Campaign::Planner {
   EngineState& engine() { return engine_; }
   int64_t outstanding() const { return static_cast<int64_t>(campaign_.leases_.size()) + leased_delta_; }
 
+  // Trials out that are still being evaluated, as far as the campaign can tell: leased within the
+  // last kLiveEvaluations typical evaluation times (docs/math.md, "Population"). A trial whose
+  // worker vanished stops counting then, not when its lease lapses. Until an update has measured
+  // the evaluation time, every trial out counts. Trials are numbered in the order they were leased,
+  // so the count reads only the trials leased in that window.
+  int64_t live_outstanding() const {
+    if (engine_.evaluation_seconds <= 0) return outstanding();
+    const absl::Time since = now_ - absl::Seconds(kLiveEvaluations * engine_.evaluation_seconds);
+    int64_t live = 0;
+    for (int64_t number = engine_.next_trial - 1; number >= 1; --number) {
+      const Trial* t = Get(number);
+      if (t->leased_at <= since) break;
+      if (t->state == TrialState::kLeased) ++live;
+    }
+    return live;
+  }
+
   // Lapses every lease that ran out by now: the campaign's leases in deadline order, up to now (a lease
   // this plan changed is judged by its trial as the plan sees it).
   void Sweep() {
@@ -164,7 +181,7 @@ class Campaign::Planner {
       overlay_.emplace(t.number, std::move(t));
     }
     engine_.random = random.state();
-    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(outstanding()));
+    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(live_outstanding()));
     return numbers;
   }
 
@@ -252,7 +269,7 @@ class Campaign::Planner {
     t.state = TrialState::kLeased;
     t.worker = worker;
     t.lease_deadline = deadline;
-    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(outstanding()));
+    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(live_outstanding()));
   }
 
   void SetPhase(Phase phase, DoneReason reason, std::string message) {
@@ -313,8 +330,10 @@ class Campaign::Planner {
     std::vector<search::Outcome> outcomes;
     GenerationRecord record;
     double staleness_sum = 0;
+    std::vector<double> durations;
     for (int64_t number : cohort) {
       const Trial& t = *Get(number);
+      durations.push_back(std::max(0.0, absl::ToDoubleSeconds(t.reported_at - t.leased_at)));
       const int staleness = static_cast<int>(engine_.generation - t.generation);
       members.push_back({t.x, t.repaired || staleness > 0});
       outcomes.push_back(*t.outcome);
@@ -344,6 +363,10 @@ class Campaign::Planner {
     }
     ++engine_.generation;
     engine_.flat_generations = flat ? engine_.flat_generations + 1 : 0;
+    // The median, not the mean: a few evaluations that ran far longer (or reports that waited on a
+    // worker's disk) do not move it.
+    std::nth_element(durations.begin(), durations.begin() + durations.size() / 2, durations.end());
+    engine_.evaluation_seconds = durations[durations.size() / 2];
     record.generation = engine_.generation;
     record.epoch = engine_.epoch;
     record.population_size = static_cast<int>(cohort.size());
@@ -372,15 +395,15 @@ class Campaign::Planner {
     if (converged.has_value()) RestartOrStop(*converged);
   }
 
-  // λ follows the observed concurrency: at least the base population, at least the most trials that
-  // were out at once since the last update (so a cohort is never mostly older than one generation),
-  // at most the configured cap.
+  // λ follows the observed concurrency: at least the base population, at least the most live trials
+  // that were out at once since the last update (so a cohort is never mostly older than one
+  // generation), at most the configured cap.
   void AdaptPopulation(search::SearchDistribution& next) {
     int lambda = engine_.base_population;
     if (campaign_.options_.adapt_population) lambda = std::max(lambda, engine_.peak_outstanding);
     lambda = std::clamp(lambda, 2, std::max(2, campaign_.options_.max_population_size));
     if (lambda != next.population_size()) next.SetPopulationSize(lambda);
-    engine_.peak_outstanding = static_cast<int>(outstanding());
+    engine_.peak_outstanding = static_cast<int>(live_outstanding());
   }
 
   void RestartOrStop(const std::string& why) {

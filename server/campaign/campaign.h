@@ -56,7 +56,8 @@ struct EngineState {
   int64_t informative = 0;       // informative outcomes stored so far (the budget counts these)
   int base_population = 0;       // the design's λ, doubled at each restart
   int64_t flat_generations = 0;  // consecutive updates whose cohort was all tied
-  int peak_outstanding = 0;      // most trials out at once since the last update
+  int peak_outstanding = 0;      // most live trials out at once since the last update (docs/math.md)
+  double evaluation_seconds = 0; // typical evaluation time: median of the last cohort's (0: none yet)
   int64_t best_trial = 0;        // best informative outcome so far, 0 = none
   double sigma0 = 0.0;           // initial step size (internal units)
 };
@@ -113,6 +114,9 @@ class Campaign {
  public:
   // The largest count one Ask may request.
   static constexpr int kMaxAskCount = 10000;
+  // A trial out counts as being evaluated, toward the population, for this many typical evaluation
+  // times after it was leased (EngineState::evaluation_seconds; docs/math.md, "Population").
+  static constexpr double kLiveEvaluations = 3.0;
 
   // A new campaign. INVALID_ARGUMENT naming the field for invalid options.
   static absl::StatusOr<Campaign> Create(search::Space space, search::OutcomeOrder order,

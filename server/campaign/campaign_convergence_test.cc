@@ -620,6 +620,72 @@ TEST(CampaignPopulationTest, PopulationFollowsTheObservedConcurrency) {
   EXPECT_EQ(quiet.back().population_size, lambda0);
 }
 
+// `workers` workers, each evaluation taking `seconds`, with leases of an hour. Every
+// `vanish_every`-th trial is abandoned (its worker vanished and a fresh one asked at once), so it
+// stays out until its lease lapses. Returns the generation records of `reports` reports.
+std::vector<GenerationRecord> FarmWithVanishing(Campaign& campaign, const ogive::testing::BbobFunction& f,
+                                                int workers, double seconds, int vanish_every, int reports,
+                                                absl::Time& now) {
+  std::vector<GenerationRecord> records;
+  std::deque<std::pair<absl::Time, int64_t>> running;  // (finish, trial), in finish order
+  int asked_count = 0;
+  auto ask = [&]() -> bool {
+    for (;;) {
+      absl::StatusOr<std::vector<Trial>> asked = campaign.Ask(1, "w", absl::Hours(1), now);
+      EXPECT_TRUE(asked.ok()) << asked.status();
+      if (!asked.ok()) return false;
+      if (++asked_count % vanish_every != 0) {
+        running.emplace_back(now + absl::Seconds(seconds), asked->front().number);
+        return true;
+      }
+    }
+  };
+  for (int w = 0; w < workers; ++w) {
+    if (!ask()) return records;
+    now += absl::Seconds(seconds / workers);  // staggered starts
+  }
+  for (int k = 0; k < reports; ++k) {
+    const auto [finish, number] = running.front();
+    running.pop_front();
+    now = std::max(now, finish);
+    const Trial& t = *campaign.trial(number);
+    const Report r = MakeReport(number, search::Outcome::Score(f(UserPoint(campaign.space(), t.x))));
+    absl::StatusOr<TellPlan> plan = campaign.PlanTell({&r, 1}, now);
+    EXPECT_TRUE(plan.ok()) << plan.status();
+    if (!plan.ok()) return records;
+    for (const GenerationRecord& g : plan->change.generations) records.push_back(g);
+    campaign.Apply(std::move(plan->change));
+    if (!ask()) return records;
+  }
+  return records;
+}
+
+TEST(CampaignPopulationTest, TrialsOfVanishedWorkersStopCountingAfterAFewEvaluationTimes) {
+  constexpr int kN = 10;
+  constexpr int kWorkers = 8;
+  const ogive::testing::BbobFunction f = ogive::testing::BbobFunction::Create(1, kN, 8);
+  for (int vanish_every : {20, 5}) {  // 5% and 20% of trials abandoned
+    SCOPED_TRACE(vanish_every);
+    CampaignOptions options;
+    options.seed = 9;
+    Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), kMinimize, {}, options);
+    ASSERT_EQ(campaign.distribution().population_size(), 10);
+    absl::Time now = Origin();
+    std::vector<GenerationRecord> records = FarmWithVanishing(campaign, f, kWorkers, 60.0, vanish_every, 600, now);
+    ASSERT_GE(records.size(), 30u);
+    // Abandoned trials pile up for an hour (60 evaluation times): counting them, λ would pass
+    // 8 + 60·8/20 = 32 at 5% and 8 + 60·8/5 = 104 at 20%. Counted for 3 evaluation times, at most
+    // 8 + 3·8/5 ≈ 13 are out at once on average at 20%; the peak of a generation adds a few.
+    EXPECT_GT(campaign.counts().leased, 30);  // the abandoned trials are still out
+    int largest = 0;
+    for (size_t g = records.size() / 2; g < records.size(); ++g) largest = std::max(largest, records[g].population_size);
+    EXPECT_LE(largest, 2 * kWorkers);
+    EXPECT_GE(largest, 10);
+    // The typical evaluation time is measured: every evaluation took 60 s.
+    EXPECT_DOUBLE_EQ(campaign.engine().evaluation_seconds, 60.0);
+  }
+}
+
 TEST(CampaignPopulationTest, NoAdaptationWhenTurnedOffAndNeverAboveTheCap) {
   constexpr int kN = 10;
   const ogive::testing::BbobFunction f = ogive::testing::BbobFunction::Create(1, kN, 8);

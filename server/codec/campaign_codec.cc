@@ -245,6 +245,7 @@ v1::EngineState EngineStateToProto(const campaign::EngineState& e, bool include_
   p.set_peak_outstanding(e.peak_outstanding);
   p.set_best_trial(e.best_trial);
   p.set_sigma0(e.sigma0);
+  p.set_evaluation_seconds(e.evaluation_seconds);
   return p;
 }
 
@@ -297,6 +298,10 @@ absl::StatusOr<campaign::EngineState> EngineStateFromProto(const v1::EngineState
   e.peak_outstanding = p.peak_outstanding();
   e.best_trial = p.best_trial();
   e.sigma0 = p.sigma0();
+  e.evaluation_seconds = p.evaluation_seconds();
+  if (!(e.evaluation_seconds >= 0) || !std::isfinite(e.evaluation_seconds)) {
+    return absl::DataLossError("engine state: evaluation_seconds must be finite and not negative");
+  }
   return e;
 }
 

@@ -18,7 +18,7 @@
 // Success: f − f_opt ≤ 1e-8 (or the optimum of a discrete problem) before 2·10^5 evaluations. Time is
 // simulated: the figures do not depend on the machine.
 //
-// Usage: ogive-bench-async [--seeds N] [--quick]
+// Usage: ogive-bench-async [--seeds N] [--quick] [--only PROBLEM] [--faults]
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
@@ -49,6 +49,14 @@ constexpr double kLease = 5.0;
 constexpr double kVanish = 0.1;
 constexpr double kVoid = 0.05;
 constexpr double kDuplicateRate = 0.05;
+
+// What goes wrong, and the lease length (in median evaluation times).
+struct Faults {
+  double vanish = kVanish;
+  double void_probability = kVoid;
+  double duplicate = kDuplicateRate;
+  double lease = kLease;
+};
 
 enum class Durations { kLognormal, kPareto };
 
@@ -82,12 +90,13 @@ struct Event {
   bool operator>(const Event& o) const { return time != o.time ? time > o.time : sequence > o.sequence; }
 };
 
-Result RunEngine(const Problem& problem, int workers, int expected_workers, Durations durations, uint64_t seed) {
+Result RunEngine(const Problem& problem, int workers, int expected_workers, Durations durations, uint64_t seed,
+                 const Faults& faults = {}) {
   ogive::search::DistributionOptions options = problem.options;
   options.expected_workers = expected_workers;
   ogive::campaign::CampaignOptions campaign_options;
   campaign_options.seed = seed;
-  campaign_options.default_lease = absl::Seconds(kLease);
+  campaign_options.default_lease = absl::Seconds(faults.lease);
   campaign_options.restarts = true;  // part of the engine: a run caught in a local minimum restarts (IPOP)
   ogive::campaign::Campaign campaign =
       *ogive::campaign::Campaign::Create(problem.space, ogive::search::OutcomeOrder{}, options, campaign_options);
@@ -104,13 +113,13 @@ Result RunEngine(const Problem& problem, int workers, int expected_workers, Dura
       if (!asked.ok()) break;  // done (converged) before reaching the target
       const ogive::campaign::Trial& t = asked->front();
       const double duration = model.Duration();
-      if (model.Happens(kVanish)) {
+      if (model.Happens(faults.vanish)) {
         // Vanishes part-way; a fresh worker asks at once. The lease lapses on its own.
         events.push({e.time + model.random.Uniform() * duration, sequence++, Event::kFree, 0, {}});
         continue;
       }
       Outcome outcome = Outcome::Void();
-      if (!model.Happens(kVoid)) {
+      if (!model.Happens(faults.void_probability)) {
         const double gap = problem.gap(campaign.space().Decode(t.x));
         outcome = Outcome::Score(gap);
       }
@@ -126,7 +135,7 @@ Result RunEngine(const Problem& problem, int workers, int expected_workers, Dura
       result.time = e.time;
       return result;
     }
-    if (model.Happens(kDuplicateRate)) {
+    if (model.Happens(faults.duplicate)) {
       events.push({e.time + model.random.Uniform() * 2.0, sequence++, Event::kDuplicate, e.trial, e.outcome});
     }
     events.push({e.time, sequence++, Event::kFree, 0, {}});
@@ -135,7 +144,7 @@ Result RunEngine(const Problem& problem, int workers, int expected_workers, Dura
 }
 
 // The synchronous barrier baseline on the search core.
-Result RunBarrier(const Problem& problem, int workers, Durations durations, uint64_t seed) {
+Result RunBarrier(const Problem& problem, int workers, Durations durations, uint64_t seed, const Faults& faults = {}) {
   ogive::search::DistributionOptions options = problem.options;
   const int lambda = std::max(workers, SearchDistribution::DefaultPopulationSize(problem.space, 1));
   options.population_size = lambda;
@@ -165,19 +174,19 @@ Result RunBarrier(const Problem& problem, int workers, Durations durations, uint
       const double start = std::max(ready_time, worker_free.top());
       worker_free.pop();
       const double duration = model.Duration();
-      if (model.Happens(kVanish)) {
+      if (model.Happens(faults.vanish)) {
         worker_free.push(start + model.random.Uniform() * duration);
-        ready.push({start + kLease, i});
+        ready.push({start + faults.lease, i});
         continue;
       }
       const double finish = start + duration;
       worker_free.push(finish);
       ++result.evaluations;
-      if (model.Happens(kVoid)) {
+      if (model.Happens(faults.void_probability)) {
         ready.push({finish, i});
         continue;
       }
-      if (finish > start + kLease) ready.push({start + kLease, i});  // lapsed: re-issued meanwhile
+      if (finish > start + faults.lease) ready.push({start + faults.lease, i});  // lapsed: re-issued meanwhile
       done_at[i] = std::min(done_at[i], finish);
       if (gaps[i] <= kTarget && (!result.solved || finish < result.time)) {
         result.solved = true;
@@ -223,6 +232,63 @@ Row Summarize(const std::string& problem, int n, int workers, const std::string&
           static_cast<double>(times.size()) / results.size()};
 }
 
+// --faults: vanishing workers at 0, 5% and 20% of trials (nothing else goes wrong), leases of 2 and
+// 20 median evaluation times, W = 8 and W = 4 λ_default, on f1, f10 and f11 (n = 10). Each row's
+// evaluations are compared with the same row without vanishing, and its time with the barrier's on
+// the same faults. Prints one JSON object.
+int RunFaultRows(int seeds, bool quick) {
+  struct FaultRow {
+    std::string problem;
+    int workers;
+    double lease, vanish;
+    double success_rate, median_evals, evals_ratio_to_no_vanish, time_ratio_to_barrier, barrier_success_rate;
+  };
+  std::vector<FaultRow> rows;
+  const std::vector<std::string> problems = quick ? std::vector<std::string>{"f1"}
+                                                  : std::vector<std::string>{"f1", "f10", "f11"};
+  constexpr int kN = 10;
+  const int lambda_default = ogive::search::DefaultPopulationSize(kN);
+  for (const std::string& name : problems) {
+    for (int workers : {8, 4 * lambda_default}) {
+      for (double lease : {2.0, 20.0}) {
+        double no_vanish_evals = -1;
+        for (double vanish : {0.0, 0.05, 0.2}) {
+          if (quick && vanish == 0.05) continue;
+          Faults faults;
+          faults.vanish = vanish;
+          faults.void_probability = 0;
+          faults.duplicate = 0;
+          faults.lease = lease;
+          std::vector<Result> engine, barrier;
+          for (int s = 0; s < seeds; ++s) {
+            const Problem problem = ogive::testing::MakeProblem(name, kN, 1000 + s);
+            engine.push_back(RunEngine(problem, workers, workers, Durations::kLognormal, 7000 + s, faults));
+            barrier.push_back(RunBarrier(problem, workers, Durations::kLognormal, 7000 + s, faults));
+          }
+          const Row e = Summarize(name, kN, workers, "engine", "lognormal", engine);
+          const Row b = Summarize(name, kN, workers, "barrier", "lognormal", barrier);
+          if (vanish == 0) no_vanish_evals = e.median_evals;
+          rows.push_back({name, workers, lease, vanish, e.success_rate, e.median_evals,
+                          e.median_evals / no_vanish_evals, e.median_time / b.median_time, b.success_rate});
+        }
+      }
+    }
+  }
+  std::printf("{\n  \"benchmark\": \"ogive-bench-async --faults\",\n  \"budget\": %ld,\n  \"target\": %g,\n"
+              "  \"seeds\": %d,\n  \"durations\": \"lognormal, median 1\",\n  \"rows\": [",
+              kBudget, kTarget, seeds);
+  for (size_t k = 0; k < rows.size(); ++k) {
+    const FaultRow& r = rows[k];
+    std::printf("%s\n    {\"problem\": \"%s\", \"n\": %d, \"workers\": %d, \"lease\": %g, \"vanish\": %g, "
+                "\"success_rate\": %.3f, \"median_evals\": %.1f, \"evals_ratio_to_no_vanish\": %.3f, "
+                "\"time_ratio_to_barrier\": %.3f, \"barrier_success_rate\": %.3f}",
+                k ? "," : "", r.problem.c_str(), kN, r.workers, r.lease, r.vanish, r.success_rate, r.median_evals,
+                r.evals_ratio_to_no_vanish, r.time_ratio_to_barrier, r.barrier_success_rate);
+  }
+  std::printf("\n  ]\n}\n");
+  return 0;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -233,6 +299,9 @@ int main(int argc, char** argv) {
     if (std::strcmp(argv[i], "--seeds") == 0 && i + 1 < argc) seeds = std::atoi(argv[++i]);
     if (std::strcmp(argv[i], "--quick") == 0) quick = true;
     if (std::strcmp(argv[i], "--only") == 0 && i + 1 < argc) only = argv[++i];
+  }
+  for (int i = 1; i < argc; ++i) {
+    if (std::strcmp(argv[i], "--faults") == 0) return RunFaultRows(seeds, quick);
   }
   struct Case {
     std::string problem;

@@ -97,7 +97,7 @@ Eigen::MatrixXd RandomRotation(int n, std::mt19937_64& rng) {
 
 BbobFunction BbobFunction::Create(int function_id, int n, uint64_t instance_seed) {
   OGIVE_CHECK(function_id == 1 || function_id == 2 || function_id == 8 || function_id == 10 ||
-              function_id == 15);
+              function_id == 11 || function_id == 15);
   OGIVE_CHECK(n >= 1);
   std::mt19937_64 rng(instance_seed);
   BbobFunction f;
@@ -110,13 +110,18 @@ BbobFunction BbobFunction::Create(int function_id, int n, uint64_t instance_seed
   // a Cauchy distribution, rounded and clipped to [-1000, 1000] (from memory).
   f.f_opt_ = std::round(Uniform(rng, -100.0, 100.0) * 100.0) / 100.0;
 
-  if (function_id == 10 || function_id == 15) f.r_ = RandomRotation(n, rng);
+  if (function_id == 10 || function_id == 11 || function_id == 15) f.r_ = RandomRotation(n, rng);
   if (function_id == 15) f.q_ = RandomRotation(n, rng);
 
   if (function_id == 2 || function_id == 10) {
     // Ellipsoid weights 10^(6 (i - 1) / (n - 1)), RR-6829 f2 and f10 (from memory).
     f.weights_.resize(n);
     for (int i = 0; i < n; ++i) f.weights_(i) = std::pow(10.0, 6.0 * AxisRatio(i, n));
+  }
+  if (function_id == 11) {
+    // Discus weights: 10^6 on the first axis, 1 on the others, RR-6829 f11 (from memory).
+    f.weights_ = Eigen::VectorXd::Ones(n);
+    f.weights_(0) = 1e6;
   }
   if (function_id == 8) {
     // max(1, sqrt(n) / 8), RR-6829 f8 (from memory).
@@ -156,6 +161,10 @@ double BbobFunction::operator()(const Eigen::VectorXd& x) const {
     }
     case 10:
       // f10 rotated ellipsoid, RR-6829 (from memory): f2's weighted sum, z = T_osz(R (x - x_opt)).
+      return weights_.dot(Tosz(r_ * d).cwiseAbs2()) + f_opt_;
+    case 11:
+      // f11 discus, RR-6829 (from memory): 10^6 z_1^2 + sum_{i>=2} z_i^2 + f_opt,
+      // z = T_osz(R (x - x_opt)): one direction a thousand times more sensitive than all others.
       return weights_.dot(Tosz(r_ * d).cwiseAbs2()) + f_opt_;
     case 15: {
       // f15 rotated Rastrigin, RR-6829 (from memory):

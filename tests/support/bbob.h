@@ -46,7 +46,7 @@ Eigen::MatrixXd RandomRotation(int n, std::mt19937_64& rng);
 // rotated ones carry two or three n x n matrices.
 class BbobFunction {
  public:
-  // function_id must be 1, 2, 8, 10 or 15 and n >= 1 (checked; aborts otherwise). The instance is
+  // function_id must be 1, 2, 8, 10, 11 or 15 and n >= 1 (checked; aborts otherwise). The instance is
   // drawn from std::mt19937_64 seeded with instance_seed, in this order: x_opt (uniform in
   // [-4, 4]^n), f_opt, then R and Q when the function uses them. Same arguments, same instance.
   static BbobFunction Create(int function_id, int n, uint64_t instance_seed);
@@ -59,7 +59,7 @@ class BbobFunction {
   int n() const { return n_; }
   int id() const { return id_; }
 
-  // The rotations of the instance. R is used by f10 and f15, Q by f15 only; for a function that
+  // The rotations of the instance. R is used by f10, f11 and f15, Q by f15 only; for a function that
   // does not use one, it is an empty (0 x 0) matrix.
   const Eigen::MatrixXd& r() const { return r_; }
   const Eigen::MatrixXd& q() const { return q_; }

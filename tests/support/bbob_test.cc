@@ -283,6 +283,24 @@ TEST(RotatedEllipsoidTest, ConditioningAlongRotatedAxes) {
   }
 }
 
+TEST(RotatedDiscusTest, OneSensitiveRotatedAxis) {
+  // f11 = 10^6 z_1^2 + sum_{i>=2} z_i^2 + f_opt, z = T_osz(R (x - x_opt)) (RR-6829, from memory).
+  // At x = x_opt + t R^T e_i, z = T_osz(t e_i): 10^6 T_osz(t)^2 for i = 1, T_osz(t)^2 otherwise;
+  // T_osz(1) = 1 and T_osz(2)^2 = 3.9537713184117996 (bc -l, as above).
+  for (int n : kDims) {
+    if (n < 2) continue;
+    for (uint64_t seed : kSeeds) {
+      const BbobFunction f = BbobFunction::Create(11, n, seed);
+      const Eigen::VectorXd& xo = f.x_opt();
+      const Eigen::MatrixXd rt = f.r().transpose();
+      EXPECT_NEAR(f(xo) - f.f_opt(), 0.0, 1e-12) << "n=" << n;
+      EXPECT_NEAR(f(xo + rt * Unit(n, 0)) - f.f_opt(), 1e6, 1e-6) << "n=" << n;
+      EXPECT_NEAR(f(xo + rt * Unit(n, n - 1)) - f.f_opt(), 1.0, 1e-9) << "n=" << n;
+      EXPECT_NEAR(f(xo + 2.0 * rt * Unit(n, 1)) - f.f_opt(), 3.9537713184117996, 1e-9) << "n=" << n;
+    }
+  }
+}
+
 TEST(RosenbrockTest, HandValues) {
   // f8 = sum_{i<n} 100 (z_i^2 - z_{i+1})^2 + (z_i - 1)^2 + f_opt, z = s (x - x_opt) + 1,
   // s = max(1, sqrt(n)/8): s = 1 for n <= 64, s = 2 for n = 256.

@@ -15,7 +15,7 @@
 namespace ogive::testing {
 
 struct Problem {
-  std::string name;  // "f1", "f2", "f8", "f10", "f15", "onemax", "leadingones", "mixed"
+  std::string name;  // "f1", "f2", "f8", "f10", "f11", "f15", "onemax", "leadingones", "mixed"
   int n = 0;         // number of parameters
   search::Space space;
   search::DistributionOptions options;                 // start point and spread of the protocol
