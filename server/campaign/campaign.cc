@@ -1,6 +1,7 @@
 #include "server/campaign/campaign.h"
 
 #include <algorithm>
+#include <cmath>
 #include <iterator>
 #include <map>
 #include <string>
@@ -46,6 +47,16 @@ std::string Describe(const search::Outcome& o, const std::vector<std::string>& l
       return "void";
   }
   return "?";
+}
+
+// Bounds are hard: a spread wider than the box says nothing more (every sample folds back into it)
+// and only lengthens the way back once the outcomes differ, so σ·√λmax(C) is held at the width of
+// the box, Campaign::kMaxStepSpread in internal units (docs/math.md, "Stopping and restarts").
+void HoldSpreadWithinTheBox(search::SearchDistribution& d) {
+  if (!d.gaussian()) return;
+  const search::GaussianState& s = d.gaussian()->state();
+  const double spread = s.sigma * std::sqrt(s.eigenvalues.maxCoeff());
+  if (spread > Campaign::kMaxStepSpread) d.ScaleStepSize(Campaign::kMaxStepSpread / spread);
 }
 
 }  // namespace
@@ -380,6 +391,7 @@ class Campaign::Planner {
         const search::CmaParameters& cp = next.gaussian()->parameters();
         next.ScaleStepSize(std::exp(0.2 + cp.c_sigma / cp.d_sigma));
       }
+      HoldSpreadWithinTheBox(next);
       AdaptPopulation(next);
       converged = ConvergenceReason(next, engine_.flat_generations, engine_.sigma0);
       engine_.distribution = std::make_shared<const search::SearchDistribution>(std::move(next));

@@ -117,6 +117,9 @@ class Campaign {
   // A trial out counts as being evaluated, toward the population, for this many typical evaluation
   // times after it was leased (EngineState::evaluation_seconds; docs/math.md, "Population").
   static constexpr double kLiveEvaluations = 3.0;
+  // The largest spread σ·√λmax(C) of the Gaussian block, in internal units (1 = the width of every
+  // real and integer range): a wider one carries no information inside hard bounds.
+  static constexpr double kMaxStepSpread = 1.0;
 
   // A new campaign. INVALID_ARGUMENT naming the field for invalid options.
   static absl::StatusOr<Campaign> Create(search::Space space, search::OutcomeOrder order,

@@ -146,6 +146,43 @@ TEST(CampaignGradesTest, ThreeGradeSphereReachesTheBestGrade) {
   }
 }
 
+// Every outcome on the worst of three grades: each cohort is tied below the top, so after each
+// update σ is widened by exp(0.2 + c_σ/d_σ) (flat fitness), about 1.3x for n = 5. Sixty such
+// generations would take σ to about 10⁷ times its start; the campaign holds the spread σ√λmax(C) at
+// the width of the box instead (kMaxStepSpread, internal units), keeps sampling the whole box and
+// stays open, since ties below the top grade do not count towards EqualValues.
+TEST(CampaignGradesTest, CohortsTiedBelowTheTopWidenTheSpreadOnlyToTheBox) {
+  constexpr int kN = 5;
+  search::OutcomeOrder order;
+  order.graded = true;
+  order.grade_count = 3;
+  CampaignOptions options;
+  options.seed = 3;
+  Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), order, {}, options);
+  double widest = 0.0;
+  for (int g = 0; g < 60; ++g) {
+    RunSequential(
+        campaign, [](const Trial&) { return search::Outcome::Grade(0); },
+        campaign.distribution().population_size(), [](const search::Outcome&) { return false; }, false);
+    const search::GaussianState& s = campaign.distribution().gaussian()->state();
+    const double spread = s.sigma * std::sqrt(s.eigenvalues.maxCoeff());
+    EXPECT_LE(spread, Campaign::kMaxStepSpread * (1 + 1e-12)) << "generation " << campaign.engine().generation;
+    widest = std::max(widest, spread);
+  }
+  EXPECT_EQ(campaign.engine().generation, 60);
+  EXPECT_NEAR(widest, Campaign::kMaxStepSpread, 1e-9);  // the widening reached the bound
+  EXPECT_EQ(campaign.engine().phase, Phase::kOpen) << campaign.engine().phase_message;
+  // Samples cover the box: over the last 200 trials, every coordinate has samples in each third.
+  for (int j = 0; j < kN; ++j) {
+    int thirds[3] = {0, 0, 0};
+    for (int64_t k = campaign.trial_count() - 199; k <= campaign.trial_count(); ++k) {
+      const double u = campaign.trial(k)->x[j];
+      ++thirds[std::min(2, static_cast<int>(u * 3))];
+    }
+    for (int third : thirds) EXPECT_GE(third, 20) << "coordinate " << j;
+  }
+}
+
 // A cohort whose outcomes all tie carries no information, like one ranked at random. Cumulative
 // step-size adaptation is built so that under random selection p_σ ~ N(0, I) and ln σ is unbiased
 // (Hansen, "The CMA Evolution Strategy: A Tutorial", arXiv:1604.00772, the design of CSA; from

@@ -10,7 +10,6 @@ namespace {
 constexpr double kMaxCondition = 1e14;
 constexpr double kTolX = 1e-12;
 constexpr double kIntegerCellFraction = 1e-3;
-constexpr double kTolUpSigma = 1e4;
 // Probabilities at their margin: the projection and clamping set them exactly; this absorbs rounding.
 constexpr double kMarginSlack = 1e-12;
 
@@ -41,7 +40,6 @@ std::optional<std::string> GaussianReason(const search::GaussianFamily& g, doubl
   if (max_ev / min_ev > kMaxCondition) {
     return absl::StrCat("condition number of C is ", max_ev / min_ev, " > 1e14");
   }
-  if (s.sigma * std::sqrt(max_ev) > kTolUpSigma * sigma0) return "the step size ran away (TolUpSigma)";
   const Eigen::VectorXd c_diag = s.diagonal ? Eigen::VectorXd(s.covariance.col(0)) : Eigen::VectorXd(s.covariance.diagonal());
   bool all_small = true;
   for (int j = 0; j < n; ++j) {

@@ -6,12 +6,12 @@
 //   NoEffectCoord  adding 0.2 σ √C_jj to any coordinate leaves it unchanged
 //   TolX           every real coordinate's σ √C_jj below 1e-12 σ0, and integers' below a thousandth of
 //                  their cell (the margin keeps sampling wider, but the distribution has settled)
-//   TolUpSigma     σ √(max eigenvalue) above 1e4 σ0 (the step size ran away)
 //   EqualValues    every cohort ranking flat for 10 + ⌈30 n / λ⌉ generations
 //   collapsed      every flag probability at its margin, every categorical at one option
 // The Gaussian tests count only when the discrete blocks have collapsed too (or are absent), so a
 // settled continuous block does not stop a search that is still choosing options; EqualValues stops
-// on its own.
+// on its own. The tutorial's TolUpSigma has no place here: the campaign holds σ √(max eigenvalue)
+// at the width of the box after every update (Campaign::kMaxStepSpread), so it cannot run away.
 #ifndef OGIVE_SERVER_CAMPAIGN_TERMINATION_H_
 #define OGIVE_SERVER_CAMPAIGN_TERMINATION_H_
 
