@@ -253,6 +253,11 @@ class Campaign::Planner {
     if (best == nullptr || search::CompareOutcomes(*t.outcome, *best->outcome, campaign_.order_) < 0) {
       engine_.best_trial = t.number;
     }
+    const Trial* epoch_best = Get(engine_.epoch_best_trial);
+    if (t.epoch == engine_.epoch &&
+        (epoch_best == nullptr || search::CompareOutcomes(*t.outcome, *epoch_best->outcome, campaign_.order_) < 0)) {
+      engine_.epoch_best_trial = t.number;
+    }
     return result;
   }
 
@@ -374,6 +379,7 @@ class Campaign::Planner {
     }
     ++engine_.generation;
     engine_.flat_generations = flat ? engine_.flat_generations + 1 : 0;
+    if (!all_tied) engine_.last_mixed_generation = engine_.generation;
     // The median, not the mean: a few evaluations that ran far longer (or reports that waited on a
     // worker's disk) do not move it.
     std::nth_element(durations.begin(), durations.begin() + durations.size() / 2, durations.end());
@@ -385,11 +391,8 @@ class Campaign::Planner {
     record.mean_staleness = staleness_sum / cohort.size();
     std::optional<std::string> converged;
     if (updated.ok()) {
-      // Flat fitness: a cohort tied below the top level saw no difference at all; widen the step so
-      // the next one can (σ · exp(0.2 + c_σ/d_σ), common practice in CMA-ES implementations).
       if (all_tied && uninformative_level && next.gaussian()) {
-        const search::CmaParameters& cp = next.gaussian()->parameters();
-        next.ScaleStepSize(std::exp(0.2 + cp.c_sigma / cp.d_sigma));
+        next.ScaleStepSize(TiedCohortStepFactor(level, next.gaussian()->parameters()));
       }
       HoldSpreadWithinTheBox(next);
       AdaptPopulation(next);
@@ -405,6 +408,28 @@ class Campaign::Planner {
     record.best_trial = engine_.best_trial;
     generations_.push_back(std::move(record));
     if (converged.has_value()) RestartOrStop(*converged);
+  }
+
+  // A cohort tied below the top of the scale (one grade that is not the best, or all infeasible)
+  // carries no direction, but the epoch's other outcomes say which way the step should go
+  // (docs/math.md, "Ties and coarse grades"). With φ = exp(0.2 + c_σ/d_σ), the flat-fitness factor
+  // of common practice in CMA-ES implementations:
+  //  - tied on a level worse than the best this epoch has sampled: a better region lies within
+  //    reach and the samples now miss it, so narrow, σ/φ;
+  //  - tied on that best level, with a cohort of mixed outcomes within the last kMixedCohortWindow
+  //    updates: the level's edge is within the samples' reach and a better level, if any, is nested
+  //    inside it, so keep σ (the update's own step-size adaptation acts);
+  //  - tied on that best level with no mixed cohort that recent: a plateau wider than the samples,
+  //    so widen, σ·φ.
+  double TiedCohortStepFactor(const search::Outcome& level, const search::CmaParameters& cp) const {
+    const double phi = std::exp(0.2 + cp.c_sigma / cp.d_sigma);
+    const Trial* epoch_best = Get(engine_.epoch_best_trial);
+    if (epoch_best != nullptr && search::CompareOutcomes(level, *epoch_best->outcome, campaign_.order_) > 0) {
+      return 1.0 / phi;
+    }
+    const bool edge_in_reach = engine_.last_mixed_generation > 0 &&
+                               engine_.generation - engine_.last_mixed_generation <= Campaign::kMixedCohortWindow;
+    return edge_in_reach ? 1.0 : phi;
   }
 
   // λ follows the observed concurrency: at least the base population, at least the most live trials
@@ -439,6 +464,8 @@ class Campaign::Planner {
     engine_.distribution = std::make_shared<const search::SearchDistribution>(*std::move(fresh));
     ++engine_.epoch;
     engine_.flat_generations = 0;
+    engine_.epoch_best_trial = 0;
+    engine_.last_mixed_generation = 0;
     engine_.phase_message = absl::StrCat("restart ", engine_.epoch, " with population ", engine_.base_population,
                                          " after: ", why);
     // Outcomes waiting for the old distribution are kept but cannot inform the new one.

@@ -58,6 +58,8 @@ struct EngineState {
   int64_t flat_generations = 0;  // consecutive updates whose cohort was all tied
   int peak_outstanding = 0;      // most live trials out at once since the last update (docs/math.md)
   double evaluation_seconds = 0; // typical evaluation time: median of the last cohort's (0: none yet)
+  int64_t epoch_best_trial = 0;       // best informative outcome sampled in this epoch, 0 = none
+  int64_t last_mixed_generation = 0;  // last update of this epoch whose cohort was not all tied, 0 = none
   int64_t best_trial = 0;        // best informative outcome so far, 0 = none
   double sigma0 = 0.0;           // initial step size (internal units)
 };
@@ -120,6 +122,9 @@ class Campaign {
   // The largest spread σ·√λmax(C) of the Gaussian block, in internal units (1 = the width of every
   // real and integer range): a wider one carries no information inside hard bounds.
   static constexpr double kMaxStepSpread = 1.0;
+  // A cohort tied on the best level of its epoch keeps σ when a cohort of mixed outcomes came within
+  // this many updates, and widens it otherwise (docs/math.md, "Ties and coarse grades").
+  static constexpr int kMixedCohortWindow = 5;
 
   // A new campaign. INVALID_ARGUMENT naming the field for invalid options.
   static absl::StatusOr<Campaign> Create(search::Space space, search::OutcomeOrder order,

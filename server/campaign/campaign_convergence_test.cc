@@ -183,6 +183,33 @@ TEST(CampaignGradesTest, CohortsTiedBelowTheTopWidenTheSpreadOnlyToTheBox) {
   }
 }
 
+// Ties and coarse grades (docs/math.md): a cohort tied on a level worse than the best the epoch has
+// sampled narrows the step (the better region was within reach and the samples now miss it), where
+// one tied on the best level with no mixed cohort nearby widens it (a plateau). Here trial 1 is the
+// only one on the middle grade: the first cohort is mixed, every later one is tied on the worst
+// grade, below the epoch's best. Each such update divides σ by φ = exp(0.2 + c_σ/d_σ) ≈ 1.47 (n = 5,
+// λ = 8) besides its own adaptation, so ten of them shrink σ by more than 10; widening would grow it.
+TEST(CampaignGradesTest, CohortsTiedBelowTheEpochsBestNarrowTheStep) {
+  constexpr int kN = 5;
+  search::OutcomeOrder order;
+  order.graded = true;
+  order.grade_count = 3;
+  CampaignOptions options;
+  options.seed = 4;
+  Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), order, {}, options);
+  const int lambda = campaign.distribution().population_size();
+  auto grade = [](const Trial& t) { return search::Outcome::Grade(t.number == 1 ? 1 : 0); };
+  RunSequential(campaign, grade, lambda, [](const search::Outcome&) { return false; }, false);
+  ASSERT_EQ(campaign.engine().generation, 1);
+  EXPECT_EQ(campaign.engine().epoch_best_trial, 1);
+  EXPECT_EQ(campaign.engine().last_mixed_generation, 1);
+  const double sigma1 = campaign.distribution().gaussian()->state().sigma;
+  RunSequential(campaign, grade, 10 * lambda, [](const search::Outcome&) { return false; }, false);
+  ASSERT_EQ(campaign.engine().generation, 11);
+  EXPECT_LT(campaign.distribution().gaussian()->state().sigma, sigma1 / 10);
+  EXPECT_EQ(campaign.engine().phase, Phase::kOpen);
+}
+
 // A cohort whose outcomes all tie carries no information, like one ranked at random. Cumulative
 // step-size adaptation is built so that under random selection p_σ ~ N(0, I) and ln σ is unbiased
 // (Hansen, "The CMA Evolution Strategy: A Tutorial", arXiv:1604.00772, the design of CSA; from

@@ -136,6 +136,8 @@ inline void ExpectSameEngine(const EngineState& a, const EngineState& b) {
   EXPECT_EQ(a.flat_generations, b.flat_generations);
   EXPECT_EQ(a.peak_outstanding, b.peak_outstanding);
   EXPECT_EQ(a.evaluation_seconds, b.evaluation_seconds);
+  EXPECT_EQ(a.epoch_best_trial, b.epoch_best_trial);
+  EXPECT_EQ(a.last_mixed_generation, b.last_mixed_generation);
   EXPECT_EQ(a.best_trial, b.best_trial);
   EXPECT_EQ(a.sigma0, b.sigma0);
   ASSERT_NE(a.distribution, nullptr);

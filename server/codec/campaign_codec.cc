@@ -246,6 +246,8 @@ v1::EngineState EngineStateToProto(const campaign::EngineState& e, bool include_
   p.set_best_trial(e.best_trial);
   p.set_sigma0(e.sigma0);
   p.set_evaluation_seconds(e.evaluation_seconds);
+  p.set_epoch_best_trial(e.epoch_best_trial);
+  p.set_last_mixed_generation(e.last_mixed_generation);
   return p;
 }
 
@@ -299,6 +301,8 @@ absl::StatusOr<campaign::EngineState> EngineStateFromProto(const v1::EngineState
   e.best_trial = p.best_trial();
   e.sigma0 = p.sigma0();
   e.evaluation_seconds = p.evaluation_seconds();
+  e.epoch_best_trial = p.epoch_best_trial();
+  e.last_mixed_generation = p.last_mixed_generation();
   if (!(e.evaluation_seconds >= 0) || !std::isfinite(e.evaluation_seconds)) {
     return absl::DataLossError("engine state: evaluation_seconds must be finite and not negative");
   }

@@ -6,7 +6,9 @@
 // LeadingOnes, the mixed problem). `update_cost` times one update at n = 10, 100 (full covariance) and
 // 1000 (diagonal) against one Eigen eigendecomposition of an n×n matrix in the same run.
 //
-// Usage: ogive-bench-search [--seeds N] [--quick]
+// --grades: the graded rows instead (tests/bench/grade_rows.h).
+//
+// Usage: ogive-bench-search [--seeds N] [--quick] [--grades]
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -21,6 +23,7 @@
 #include "server/search/ranking.h"
 #include "server/search/search_distribution.h"
 #include "server/search/space.h"
+#include "tests/bench/grade_rows.h"
 #include "tests/support/problems.h"
 
 namespace {
@@ -122,6 +125,9 @@ int main(int argc, char** argv) {
     if (std::strcmp(argv[i], "--quick") == 0) quick = true;
     if (std::strcmp(argv[i], "--discrete-rate") == 0 && i + 1 < argc) discrete_rate = std::atof(argv[++i]);
     if (std::strcmp(argv[i], "--only") == 0 && i + 1 < argc) only = argv[++i];
+  }
+  for (int i = 1; i < argc; ++i) {
+    if (std::strcmp(argv[i], "--grades") == 0) return ogive::bench::RunGradeRows(seeds, quick);
   }
   const std::vector<int> dims = quick ? std::vector<int>{10} : std::vector<int>{10, 20};
   auto wanted = [&only](const std::string& name) { return name.rfind(only, 0) == 0; };
