@@ -139,8 +139,8 @@ class Campaign::Planner {
   int64_t outstanding() const { return static_cast<int64_t>(campaign_.leases_.size()) + leased_delta_; }
 
   // Trials out that are still being evaluated, as far as the campaign can tell: leased within the
-  // last kLiveEvaluations typical evaluation times (docs/math.md, "Population"). A trial whose
-  // worker vanished stops counting then, not when its lease lapses. Until an update has measured
+  // last kLiveEvaluations typical evaluation times (docs/math.md, "Only live trials count"). A trial
+  // whose worker vanished stops counting then, not when its lease lapses. Until an update has measured
   // the evaluation time, every trial out counts. Trials are numbered in the order they were leased,
   // so the count reads only the trials leased in that window.
   int64_t live_outstanding() const {

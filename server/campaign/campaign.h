@@ -117,7 +117,7 @@ class Campaign {
   // The largest count one Ask may request.
   static constexpr int kMaxAskCount = 10000;
   // A trial out counts as being evaluated, toward the population, for this many typical evaluation
-  // times after it was leased (EngineState::evaluation_seconds; docs/math.md, "Population").
+  // times after it was leased (EngineState::evaluation_seconds; docs/math.md, "Only live trials count").
   static constexpr double kLiveEvaluations = 3.0;
   // The largest spread σ·√λmax(C) of the Gaussian block, in internal units (1 = the width of every
   // real and integer range): a wider one carries no information inside hard bounds.
