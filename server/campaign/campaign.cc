@@ -54,8 +54,7 @@ std::string Describe(const search::Outcome& o, const std::vector<std::string>& l
 // the box, Campaign::kMaxStepSpread in internal units (docs/math.md, "Stopping and restarts").
 void HoldSpreadWithinTheBox(search::SearchDistribution& d) {
   if (!d.gaussian()) return;
-  const search::GaussianState& s = d.gaussian()->state();
-  const double spread = s.sigma * std::sqrt(s.eigenvalues.maxCoeff());
+  const double spread = d.gaussian()->LargestSpread();
   if (spread > Campaign::kMaxStepSpread) d.ScaleStepSize(Campaign::kMaxStepSpread / spread);
 }
 
@@ -155,6 +154,13 @@ class Campaign::Planner {
     return live;
   }
 
+  // Raises the peak to the live trials out now. Live trials are a subset of those out, so the scan
+  // is skipped when even all of those would not raise it.
+  void NotePeak() {
+    if (outstanding() <= engine_.peak_outstanding) return;
+    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(live_outstanding()));
+  }
+
   // Lapses every lease that ran out by now: the campaign's leases in deadline order, up to now (a lease
   // this plan changed is judged by its trial as the plan sees it).
   void Sweep() {
@@ -192,7 +198,7 @@ class Campaign::Planner {
       overlay_.emplace(t.number, std::move(t));
     }
     engine_.random = random.state();
-    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(live_outstanding()));
+    NotePeak();
     return numbers;
   }
 
@@ -285,7 +291,7 @@ class Campaign::Planner {
     t.state = TrialState::kLeased;
     t.worker = worker;
     t.lease_deadline = deadline;
-    engine_.peak_outstanding = std::max<int>(engine_.peak_outstanding, static_cast<int>(live_outstanding()));
+    NotePeak();
   }
 
   void SetPhase(Phase phase, DoneReason reason, std::string message) {

@@ -146,26 +146,31 @@ TEST(CampaignGradesTest, ThreeGradeSphereReachesTheBestGrade) {
   }
 }
 
-// Every outcome on the worst of three grades: each cohort is tied below the top, so after each
-// update σ is widened by exp(0.2 + c_σ/d_σ) (flat fitness), about 1.3x for n = 5. Sixty such
-// generations would take σ to about 10⁷ times its start; the campaign holds the spread σ√λmax(C) at
-// the width of the box instead (kMaxStepSpread, internal units), keeps sampling the whole box and
-// stays open, since ties below the top grade do not count towards EqualValues.
-TEST(CampaignGradesTest, CohortsTiedBelowTheTopWidenTheSpreadOnlyToTheBox) {
-  constexpr int kN = 5;
+// Five reals on [-5, 5] graded on three grades (λ = 8).
+Campaign ThreeGradeCampaign(uint64_t seed) {
   search::OutcomeOrder order;
   order.graded = true;
   order.grade_count = 3;
   CampaignOptions options;
-  options.seed = 3;
-  Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), order, {}, options);
+  options.seed = seed;
+  return MakeCampaign(RealSpace(5, -5, 5), order, {}, options);
+}
+
+// Every outcome on the worst of three grades: each cohort is tied below the top, so after each
+// update σ is widened by φ = exp(0.2 + c_σ/d_σ) (flat fitness), about 1.6 for n = 5, λ = 8
+// (c_σ = 0.365, d_σ = 1.365, see below). Sixty such generations would take σ to about 10¹² times its
+// start; the campaign holds the spread σ√λmax(C) at
+// the width of the box instead (kMaxStepSpread, internal units), keeps sampling the whole box and
+// stays open, since ties below the top grade do not count towards EqualValues.
+TEST(CampaignGradesTest, CohortsTiedBelowTheTopWidenTheSpreadOnlyToTheBox) {
+  constexpr int kN = 5;
+  Campaign campaign = ThreeGradeCampaign(3);
   double widest = 0.0;
   for (int g = 0; g < 60; ++g) {
     RunSequential(
         campaign, [](const Trial&) { return search::Outcome::Grade(0); },
         campaign.distribution().population_size(), [](const search::Outcome&) { return false; }, false);
-    const search::GaussianState& s = campaign.distribution().gaussian()->state();
-    const double spread = s.sigma * std::sqrt(s.eigenvalues.maxCoeff());
+    const double spread = campaign.distribution().gaussian()->LargestSpread();
     EXPECT_LE(spread, Campaign::kMaxStepSpread * (1 + 1e-12)) << "generation " << campaign.engine().generation;
     widest = std::max(widest, spread);
   }
@@ -187,16 +192,10 @@ TEST(CampaignGradesTest, CohortsTiedBelowTheTopWidenTheSpreadOnlyToTheBox) {
 // sampled narrows the step (the better region was within reach and the samples now miss it), where
 // one tied on the best level with no mixed cohort nearby widens it (a plateau). Here trial 1 is the
 // only one on the middle grade: the first cohort is mixed, every later one is tied on the worst
-// grade, below the epoch's best. Each such update divides σ by φ = exp(0.2 + c_σ/d_σ) ≈ 1.47 (n = 5,
+// grade, below the epoch's best. Each such update divides σ by φ = exp(0.2 + c_σ/d_σ) ≈ 1.6 (n = 5,
 // λ = 8) besides its own adaptation, so ten of them shrink σ by more than 10; widening would grow it.
 TEST(CampaignGradesTest, CohortsTiedBelowTheEpochsBestNarrowTheStep) {
-  constexpr int kN = 5;
-  search::OutcomeOrder order;
-  order.graded = true;
-  order.grade_count = 3;
-  CampaignOptions options;
-  options.seed = 4;
-  Campaign campaign = MakeCampaign(RealSpace(kN, -5, 5), order, {}, options);
+  Campaign campaign = ThreeGradeCampaign(4);
   const int lambda = campaign.distribution().population_size();
   auto grade = [](const Trial& t) { return search::Outcome::Grade(t.number == 1 ? 1 : 0); };
   RunSequential(campaign, grade, lambda, [](const search::Outcome&) { return false; }, false);

@@ -6,6 +6,7 @@
 // fires before the others (the reasoning is beside each).
 #include <cmath>
 #include <cstdint>
+#include <functional>
 #include <utility>
 #include <string>
 #include <vector>
@@ -50,6 +51,16 @@ int GeometricGrade(double v, double c1, int levels) {
 
 bool Never(const search::Outcome&) { return false; }
 
+// Drives `campaign` with `outcome` until it ends by itself (within 2·10⁵ evaluations) and checks that
+// it converged with a message naming `rule`.
+void ExpectEndedBy(Campaign& campaign, const std::function<search::Outcome(const Trial&)>& outcome,
+                   const std::string& rule) {
+  const test_util::RunResult r = RunSequential(campaign, outcome, 200000, Never, false);
+  EXPECT_TRUE(r.done) << "still open after " << r.evaluations << " evaluations";
+  EXPECT_EQ(campaign.engine().reason, DoneReason::kConverged);
+  EXPECT_THAT(campaign.engine().phase_message, HasSubstr(rule));
+}
+
 // Tied cohorts: every outcome on the top grade, or every score equal. Both are plateaus of the
 // objective, so 10 + ⌈30 n/λ⌉ such updates in a row end the campaign (EqualValues), on exactly that
 // update.
@@ -84,10 +95,7 @@ TEST(TerminationReachTest, TolXEndsAGradedSphere) {
   const auto outcome = [&](const Trial& t) {
     return search::Outcome::Grade(GeometricGrade((UserPoint(campaign.space(), t.x) - x_star).squaredNorm(), 100.0, 60));
   };
-  const test_util::RunResult r = RunSequential(campaign, outcome, 200000, Never, false);
-  EXPECT_TRUE(r.done) << r.evaluations;
-  EXPECT_EQ(campaign.engine().reason, DoneReason::kConverged);
-  EXPECT_THAT(campaign.engine().phase_message, HasSubstr("(TolX)"));
+  ExpectEndedBy(campaign, outcome, "(TolX)");
 }
 
 // An ellipsoid with axis weights 1 and 10¹⁸, seen through 80 grades ten times apart: C must learn a
@@ -102,10 +110,7 @@ TEST(TerminationReachTest, ConditionCovEndsAGradedIllConditionedEllipsoid) {
     const double v = (x[0] - 1) * (x[0] - 1) + 1e18 * (x[1] + 1) * (x[1] + 1);
     return search::Outcome::Grade(GeometricGrade(v, 1e19, 80));
   };
-  const test_util::RunResult r = RunSequential(campaign, outcome, 200000, Never, false);
-  EXPECT_TRUE(r.done) << r.evaluations;
-  EXPECT_EQ(campaign.engine().reason, DoneReason::kConverged);
-  EXPECT_THAT(campaign.engine().phase_message, HasSubstr("condition number of C"));
+  ExpectEndedBy(campaign, outcome, "condition number of C");
 }
 
 // An ellipsoid whose first axis weighs 10⁸ times the others, seen through 80 grades ten times apart,
@@ -123,10 +128,7 @@ TEST(TerminationReachTest, NoEffectCoordEndsAGradedEllipsoidWithTheDiagonalModel
     const double v = 1e8 * (x[0] - 1.3) * (x[0] - 1.3) + (x[1] + 0.7) * (x[1] + 0.7) + (x[2] - 2.1) * (x[2] - 2.1);
     return search::Outcome::Grade(GeometricGrade(v, 1e10, 80));
   };
-  const test_util::RunResult r = RunSequential(campaign, outcome, 200000, Never, false);
-  EXPECT_TRUE(r.done) << r.evaluations;
-  EXPECT_EQ(campaign.engine().reason, DoneReason::kConverged);
-  EXPECT_THAT(campaign.engine().phase_message, HasSubstr("(NoEffectCoord)"));
+  ExpectEndedBy(campaign, outcome, "(NoEffectCoord)");
 }
 
 // The same weights in two dimensions, rotated by 45°: the thin direction is no coordinate, so every
@@ -142,10 +144,7 @@ TEST(TerminationReachTest, NoEffectAxisEndsAGradedRotatedEllipsoid) {
     const double w = (x[0] - 1.3 - x[1] - 0.7) / std::sqrt(2.0);
     return search::Outcome::Grade(GeometricGrade(1e8 * u * u + w * w, 1e10, 80));
   };
-  const test_util::RunResult r = RunSequential(campaign, outcome, 200000, Never, false);
-  EXPECT_TRUE(r.done) << r.evaluations;
-  EXPECT_EQ(campaign.engine().reason, DoneReason::kConverged);
-  EXPECT_THAT(campaign.engine().phase_message, HasSubstr("(NoEffectAxis)"));
+  ExpectEndedBy(campaign, outcome, "(NoEffectAxis)");
 }
 
 // Ten flags and a categorical of four options, graded by how many flags are set and whether the
@@ -166,10 +165,7 @@ TEST(TerminationReachTest, CollapseEndsAGradedDiscreteCampaign) {
     for (int j = 0; j < 10; ++j) grade += t.x[j] >= 0.5;
     return search::Outcome::Grade(grade + (t.x[10] == 2 ? 1 : 0));
   };
-  const test_util::RunResult r = RunSequential(campaign, outcome, 100000, Never, false);
-  EXPECT_TRUE(r.done) << r.evaluations;
-  EXPECT_EQ(campaign.engine().reason, DoneReason::kConverged);
-  EXPECT_THAT(campaign.engine().phase_message, HasSubstr("collapsed onto one value"));
+  ExpectEndedBy(campaign, outcome, "collapsed onto one value");
 }
 
 }  // namespace

@@ -291,6 +291,10 @@ void GaussianFamily::SetPopulationSize(int lambda) {
   UpdateMargin();
 }
 
+double GaussianFamily::LargestSpread() const {
+  return state_.sigma * std::sqrt(state_.eigenvalues.maxCoeff());
+}
+
 GaussianSummary GaussianFamily::Summary() const {
   const GaussianState& st = state_;
   GaussianSummary summary;

@@ -107,6 +107,10 @@ class GaussianFamily {
   // c_y = √n + 2n/(n + 2): the clipping radius for external steps.
   double ClipRadius() const;
 
+  // σ √(max eigenvalue of C): the standard deviation of samples along the longest principal axis,
+  // with the eigendecomposition sampling uses (internal units, where a range is 1 wide).
+  double LargestSpread() const;
+
   GaussianSummary Summary() const;
 
  private:

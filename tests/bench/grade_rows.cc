@@ -66,7 +66,7 @@ RunResult RunCampaign(const testing::Problem& problem, const Scale& scale, bool 
     const campaign::Report report{t.number, graded ? search::Outcome::Grade(grade) : search::Outcome::Score(gap), ""};
     (void)c.Tell({&report, 1}, now);
     if (const auto& g = c.distribution().gaussian(); g.has_value()) {
-      result.max_spread = std::max(result.max_spread, g->state().sigma * std::sqrt(g->state().eigenvalues.maxCoeff()));
+      result.max_spread = std::max(result.max_spread, g->LargestSpread());
     }
     if (grade == scale.top()) {
       result.evaluations = k;

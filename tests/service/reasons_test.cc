@@ -22,11 +22,10 @@
 #include "gtest/gtest.h"
 #include "ogive/v1/service.grpc.pb.h"
 #include "tests/support/ogived_process.h"
+#include "tests/support/ogived_test_main.h"
 
 namespace ogive {
 namespace {
-
-std::string g_ogived;  // the ogived binary, from the command line
 
 v1::CampaignDesign Design(const std::string& name, int64_t budget = 0) {
   v1::CampaignDesign design;
@@ -55,7 +54,7 @@ class ReasonsTest : public ::testing::Test {
  protected:
   void SetUp() override {
     testing::OgivedOptions options;
-    options.binary = g_ogived;
+    options.binary = testing::OgivedBinary();
     options.db = absl::StrCat(::testing::TempDir(), "reasons_test_", getpid(), ".db");
     options.log_path = options.db + ".log";
     server_ = std::make_unique<testing::OgivedProcess>(options);
@@ -270,13 +269,3 @@ TEST_F(ReasonsTest, PageTokensAreBoundToTheirListingCampaignAndFilter) {
 
 }  // namespace
 }  // namespace ogive
-
-int main(int argc, char** argv) {
-  ::testing::InitGoogleTest(&argc, argv);
-  if (argc != 2) {
-    std::fprintf(stderr, "usage: reasons_test PATH/TO/ogived\n");
-    return 2;
-  }
-  ogive::g_ogived = argv[1];
-  return RUN_ALL_TESTS();
-}

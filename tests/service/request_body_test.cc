@@ -25,13 +25,12 @@
 #include "gtest/gtest.h"
 #include "ogive/v1/service.grpc.pb.h"
 #include "tests/support/ogived_process.h"
+#include "tests/support/ogived_test_main.h"
 
 namespace ogive {
 namespace {
 
 using ::testing::HasSubstr;
-
-std::string g_ogived;  // the ogived binary, from the command line
 
 constexpr int kLimitBytes = 16 << 10;  // --max-message-bytes in these tests
 
@@ -83,7 +82,7 @@ class RequestBodyTest : public ::testing::Test {
  protected:
   void SetUp() override {
     testing::OgivedOptions options;
-    options.binary = g_ogived;
+    options.binary = testing::OgivedBinary();
     options.db = absl::StrCat(::testing::TempDir(), "request_body_test_", getpid(), ".db");
     options.log_path = options.db + ".log";
     options.extra_flags = {"--max-message-bytes", absl::StrCat(kLimitBytes)};
@@ -193,13 +192,3 @@ TEST_F(RequestBodyTest, AnOversizedBodyNamesMaxMessageBytesAndOneTwiceAsLargeIsC
 
 }  // namespace
 }  // namespace ogive
-
-int main(int argc, char** argv) {
-  ::testing::InitGoogleTest(&argc, argv);
-  if (argc != 2) {
-    std::fprintf(stderr, "usage: request_body_test PATH/TO/ogived\n");
-    return 2;
-  }
-  ogive::g_ogived = argv[1];
-  return RUN_ALL_TESTS();
-}
