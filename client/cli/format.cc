@@ -44,6 +44,8 @@ absl::string_view OutcomeUseName(v1::OutcomeUse use) {
       return "consumed";
     case v1::OUTCOME_USE_TOO_STALE:
       return "too_stale";
+    case v1::OUTCOME_USE_AWAITING_REPLICATES:
+      return "awaiting_replicates";
     default:
       return "";
   }

@@ -3,6 +3,7 @@
 #include <algorithm>
 
 #include "absl/strings/str_cat.h"
+#include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
 #include "client/cli/format.h"
 
@@ -151,7 +152,14 @@ std::string CampaignSummary(const v1::CampaignView& view) {
   absl::StrAppend(&out, "trials        leased ", s.leased(), ", reported ", s.reported(),
                   ", lapsed ", s.lapsed(), ", voided ", s.voided(), ", late ", s.late(), "\n");
   absl::StrAppend(&out, "outcomes      pending ", s.pending(), ", consumed ", s.consumed(),
-                  ", too stale ", s.too_stale(), "\n");
+                  ", too stale ", s.too_stale(),
+                  s.awaiting_replicates() > 0 ? absl::StrCat(", awaiting replicates ", s.awaiting_replicates()) : "",
+                  "\n");
+  if (s.noise_rank_change() != 0) {
+    absl::StrAppend(&out, "noise         rank change ", absl::StrFormat("%.3g", s.noise_rank_change()),
+                    s.noise_rank_change() > 0 ? " (> 0: the noise reorders the ranking; the population grows)\n"
+                                              : " (<= 0: the ranking holds under repeats)\n");
+  }
   absl::StrAppend(&out, "best          ", BestText(s), "\n");
   if (s.has_best() && s.best().outcome().kind_case() != v1::Outcome::KIND_NOT_SET) {
     const v1::Candidate& best = s.best().candidate();

@@ -13,6 +13,7 @@
 #include "server/base/check.h"
 #include "server/base/reason.h"
 #include "server/campaign/termination.h"
+#include "server/search/rank_change.h"
 
 namespace ogive::campaign {
 namespace {
@@ -84,6 +85,8 @@ const char* UseName(Use use) {
       return "consumed";
     case Use::kTooStale:
       return "too_stale";
+    case Use::kAwaitingReplicates:
+      return "awaiting_replicates";
   }
   return "unknown";
 }
@@ -182,13 +185,24 @@ class Campaign::Planner {
     search::RandomStream random = search::RandomStream::FromState(engine_.random);
     std::vector<int64_t> numbers;
     for (int k = 0; k < count; ++k) {
-      const search::Draw draw = engine_.distribution->Sample(random);
       Trial t;
       t.number = engine_.next_trial++;
-      t.generation = engine_.generation;
-      t.epoch = engine_.epoch;
-      t.x = draw.x;
-      t.repaired = draw.repaired;
+      if (const int64_t source = NextToReplicate(); source != 0) {
+        // A repeated measurement is handed out before any new candidate: its original waits for it.
+        const Trial& original = *Get(source);
+        t.generation = original.generation;
+        t.epoch = original.epoch;
+        t.x = original.x;
+        t.repaired = original.repaired;
+        t.replicate_of = source;
+        added_replicates_.emplace(source, t.number);
+      } else {
+        const search::Draw draw = engine_.distribution->Sample(random);
+        t.generation = engine_.generation;
+        t.epoch = engine_.epoch;
+        t.x = draw.x;
+        t.repaired = draw.repaired;
+      }
       t.state = TrialState::kLeased;
       t.worker = worker;
       t.leased_at = now_;
@@ -249,11 +263,20 @@ class Campaign::Planner {
     }
     t.state = TrialState::kReported;
     ++engine_.informative;
-    if (TooStale(t)) {
+    if (t.replicate_of != 0) {
+      StoreReplicate(t);
+    } else if (TooStale(t)) {
       t.use = Use::kTooStale;
+    } else if (const int wanted = ReplicatesWanted(); wanted > 0) {
+      t.use = Use::kAwaitingReplicates;
+      t.replicates_wanted = wanted;
+      added_awaiting_.push_back(t.number);
     } else {
       t.use = Use::kPending;
-      added_pending_.push_back(t.number);  // its report_sequence is above every earlier one
+      AddPending(t.number);
+    }
+    if (campaign_.options_.target.has_value() && campaign_.options_.noise.confirms_target()) {
+      CheckConfirmation(t.replicate_of != 0 ? t.replicate_of : t.number, *t.outcome);
     }
     const Trial* best = Get(engine_.best_trial);
     if (best == nullptr || search::CompareOutcomes(*t.outcome, *best->outcome, campaign_.order_) < 0) {
@@ -320,12 +343,27 @@ class Campaign::Planner {
   // plan's. `visit(number)` returns whether to go on.
   template <typename Visit>
   void ForEachPending(Visit visit) const {
-    for (const auto& [sequence, number] : campaign_.pending_) {
+    // Both lists are in report order; an original that waited for replicates joins this plan's list
+    // with its own, older, report sequence, so the two are merged.
+    auto it = campaign_.pending_.begin();
+    size_t k = 0;
+    while (it != campaign_.pending_.end() || k < added_pending_.size()) {
+      int64_t number;
+      if (k == added_pending_.size() ||
+          (it != campaign_.pending_.end() && it->first < Get(added_pending_[k])->report_sequence)) {
+        number = (it++)->second;
+      } else {
+        number = added_pending_[k++];
+      }
       if (Get(number)->use == Use::kPending && !visit(number)) return;
     }
-    for (int64_t number : added_pending_) {
-      if (Get(number)->use == Use::kPending && !visit(number)) return;
-    }
+  }
+  // Adds an outcome to this plan's pending list, in report order.
+  void AddPending(int64_t number) {
+    const int64_t sequence = Get(number)->report_sequence;
+    auto at = std::upper_bound(added_pending_.begin(), added_pending_.end(), sequence,
+                               [&](int64_t s, int64_t n) { return s < Get(n)->report_sequence; });
+    added_pending_.insert(at, number);
   }
   int PendingCount() const {
     return static_cast<int>(campaign_.pending_.size() + added_pending_.size()) - pending_removed_;
@@ -344,7 +382,24 @@ class Campaign::Planner {
       if (TooStale(*Get(number))) stale.push_back(number);
       return true;
     });
-    for (int64_t number : stale) Unpend(number, Use::kTooStale);
+    for (int64_t number : stale) {
+      Unpend(number, Use::kTooStale);
+      DropWaitingReplicates(number);
+    }
+    std::vector<int64_t> stale_awaiting;
+    ForEachAwaiting([&](int64_t number) {
+      if (TooStale(*Get(number))) stale_awaiting.push_back(number);
+    });
+    for (int64_t number : stale_awaiting) {
+      Mutable(number).use = Use::kTooStale;
+      DropWaitingReplicates(number);
+    }
+  }
+  // The replicates of a candidate that went stale: kept, never used.
+  void DropWaitingReplicates(int64_t original) {
+    for (int64_t member : Group(original)) {
+      if (member != original && Get(member)->use == Use::kAwaitingReplicates) Mutable(member).use = Use::kTooStale;
+    }
   }
 
   void Consume(const std::vector<int64_t>& cohort) {
@@ -353,16 +408,18 @@ class Campaign::Planner {
     GenerationRecord record;
     double staleness_sum = 0;
     std::vector<double> durations;
+    std::vector<std::vector<search::Outcome>> measured;  // each member's measurements, first one first
     for (int64_t number : cohort) {
       const Trial& t = *Get(number);
       durations.push_back(std::max(0.0, absl::ToDoubleSeconds(t.reported_at - t.leased_at)));
       const int staleness = static_cast<int>(engine_.generation - t.generation);
       members.push_back({t.x, t.repaired || staleness > 0});
       outcomes.push_back(*t.outcome);
+      measured.push_back(Repeats(number));
       staleness_sum += staleness;
       record.max_staleness = std::max(record.max_staleness, staleness);
     }
-    absl::StatusOr<std::vector<search::TieSpan>> spans = search::RankCohort(outcomes, campaign_.order_);
+    absl::StatusOr<std::vector<search::TieSpan>> spans = RankMeasured(measured);
     OGIVE_CHECK(spans.ok());  // every pending outcome passed CheckOutcome when it was stored
     // EqualValues counts tied cohorts of scores (a plateau of the objective) and of the top grade
     // (nothing better exists). A cohort tied below the top grade, or all infeasible, only says that
@@ -382,6 +439,12 @@ class Campaign::Planner {
     for (int64_t number : cohort) {
       Unpend(number, Use::kConsumed);
       Mutable(number).consumed_by = engine_.generation + 1;
+      for (int64_t member : Group(number)) {
+        if (member == number || Get(member)->use != Use::kAwaitingReplicates) continue;
+        Trial& r = Mutable(member);
+        r.use = Use::kConsumed;
+        r.consumed_by = engine_.generation + 1;
+      }
     }
     ++engine_.generation;
     engine_.flat_generations = flat ? engine_.flat_generations + 1 : 0;
@@ -400,9 +463,11 @@ class Campaign::Planner {
       if (all_tied && uninformative_level && next.gaussian()) {
         next.ScaleStepSize(TiedCohortStepFactor(level, next.gaussian()->parameters()));
       }
+      MeasureNoise(outcomes, measured, next);
       HoldSpreadWithinTheBox(next);
       AdaptPopulation(next);
       converged = ConvergenceReason(next, engine_.flat_generations, engine_.sigma0);
+      if (!converged.has_value()) converged = Stagnation(cohort, outcomes, next);
       engine_.distribution = std::make_shared<const search::SearchDistribution>(std::move(next));
     } else {
       // A degenerate update (FAILED_PRECONDITION) leaves the distribution as it was; the search there
@@ -442,7 +507,7 @@ class Campaign::Planner {
   // that were out at once since the last update (so a cohort is never mostly older than one
   // generation), at most the configured cap.
   void AdaptPopulation(search::SearchDistribution& next) {
-    int lambda = engine_.base_population;
+    int lambda = std::max(engine_.base_population, engine_.noise_population);
     if (campaign_.options_.adapt_population) lambda = std::max(lambda, engine_.peak_outstanding);
     lambda = std::clamp(lambda, 2, std::max(2, campaign_.options_.max_population_size));
     if (lambda != next.population_size()) next.SetPopulationSize(lambda);
@@ -472,6 +537,10 @@ class Campaign::Planner {
     engine_.flat_generations = 0;
     engine_.epoch_best_trial = 0;
     engine_.last_mixed_generation = 0;
+    engine_.noise_population = 0;  // the new epoch measures its noise afresh
+    engine_.noise_rank_change = 0;
+    engine_.stagnation_trial = 0;
+    engine_.stagnation_generation = 0;
     engine_.phase_message = absl::StrCat("restart ", engine_.epoch, " with population ", engine_.base_population,
                                          " after: ", why);
     // Outcomes waiting for the old distribution are kept but cannot inform the new one.
@@ -480,6 +549,10 @@ class Campaign::Planner {
 
   void CheckTarget() {
     if (engine_.phase == Phase::kDone) return;
+    if (campaign_.options_.noise.confirms_target()) {
+      if (confirmed_.has_value()) SetPhase(Phase::kDone, DoneReason::kTarget, *confirmed_);
+      return;
+    }
     const Trial* best = Get(engine_.best_trial);
     if (campaign_.options_.target.has_value() && best != nullptr &&
         search::CompareOutcomes(*best->outcome, *campaign_.options_.target, campaign_.order_) <= 0) {
@@ -498,12 +571,224 @@ class Campaign::Planner {
     }
   }
 
+  // ---- Noise handling (docs/math.md, "Noisy measurements") ----
+
+  // UH's smoothing of the measure, c_s (from memory of the paper's default).
+  static constexpr double kNoiseSmoothing = 0.3;
+
+  // The trials measuring `original`'s candidate: itself first, then its replicates in trial order.
+  std::vector<int64_t> Group(int64_t original) const {
+    std::vector<int64_t> group{original};
+    auto [begin, end] = campaign_.replicates_.equal_range(original);
+    for (auto it = begin; it != end; ++it) group.push_back(it->second);
+    auto [added_begin, added_end] = added_replicates_.equal_range(original);
+    for (auto it = added_begin; it != added_end; ++it) group.push_back(it->second);
+    return group;
+  }
+  // The informative measurements of `original`'s candidate that this ranking may use: the original's
+  // own, then its replicates' that wait for it (a replicate reported after its original was used is
+  // not among them).
+  std::vector<search::Outcome> Repeats(int64_t original) const {
+    std::vector<search::Outcome> out;
+    for (int64_t member : Group(original)) {
+      const Trial& t = *Get(member);
+      if (member == original || t.use == Use::kAwaitingReplicates) out.push_back(*t.outcome);
+    }
+    return out;
+  }
+  struct GroupTally {
+    int informative = 0;  // measurements in
+    int leased = 0;       // replicates out
+  };
+  GroupTally Tally(int64_t original) const {
+    GroupTally tally;
+    for (int64_t member : Group(original)) {
+      const Trial& t = *Get(member);
+      if (t.outcome.has_value() && t.outcome->informative()) ++tally.informative;
+      if (t.state == TrialState::kLeased) ++tally.leased;
+    }
+    return tally;
+  }
+
+  // Originals waiting for replicates: the campaign's, then this plan's. `visit(number)`.
+  template <typename Visit>
+  void ForEachAwaiting(Visit visit) const {
+    for (const auto& [sequence, number] : campaign_.awaiting_) {
+      const Trial* t = Get(number);
+      if (t->use == Use::kAwaitingReplicates) visit(number);
+    }
+    for (int64_t number : added_awaiting_) {
+      if (Get(number)->use == Use::kAwaitingReplicates) visit(number);
+    }
+  }
+
+  // The original whose candidate the next trial should measure again, or 0 for a new candidate: first
+  // one that met the target and waits for confirmation, then the oldest original waiting for more
+  // measurements than it has in and out.
+  int64_t NextToReplicate() const {
+    if (engine_.confirm_trial != 0) {
+      const GroupTally tally = Tally(engine_.confirm_trial);
+      if (tally.leased == 0 && tally.informative < NoiseOptions::kMaxMeasurements) return engine_.confirm_trial;
+    }
+    int64_t found = 0;
+    ForEachAwaiting([&](int64_t number) {
+      if (found != 0) return;
+      const GroupTally tally = Tally(number);
+      if (tally.informative + tally.leased < 1 + Get(number)->replicates_wanted) found = number;
+    });
+    return found;
+  }
+
+  // How many repeated measurements a newly reported original waits for.
+  int ReplicatesWanted() {
+    const NoiseOptions& noise = campaign_.options_.noise;
+    switch (noise.mode) {
+      case NoiseMode::kOff:
+        return 0;
+      case NoiseMode::kReplicates:
+        return noise.replicates - 1;
+      case NoiseMode::kAuto: {
+        // UH re-evaluates λ_reev of λ members: a share r_λ = max(0.1, 2/λ) of originals (from memory
+        // of the paper's default; at least two per cohort for small λ), kept as a running credit so
+        // the share holds exactly over many cohorts without drawing from the random stream.
+        const double lambda = engine_.distribution->population_size();
+        engine_.replicate_credit += std::max(0.1, 2.0 / lambda);
+        if (engine_.replicate_credit < 1.0) return 0;
+        engine_.replicate_credit -= 1.0;
+        return 1;
+      }
+    }
+    return 0;
+  }
+
+  // A replicate's outcome joins its original's ranking while that one waits for a cohort; arrived
+  // after the original was used (or dropped), it is kept and unused. Its original becomes pending
+  // once all the measurements it waits for are in.
+  void StoreReplicate(Trial& t) {
+    const Trial& original = *Get(t.replicate_of);
+    if (original.use == Use::kPending) {
+      t.use = Use::kAwaitingReplicates;
+      return;
+    }
+    if (original.use != Use::kAwaitingReplicates) {
+      t.use = Use::kTooStale;
+      return;
+    }
+    t.use = Use::kAwaitingReplicates;
+    const int64_t number = original.number;
+    if (Tally(number).informative >= 1 + original.replicates_wanted) {
+      Mutable(number).use = Use::kPending;
+      AddPending(number);
+    }
+  }
+
+  // Target confirmation: the target counts as reached once at least two measurements of one candidate
+  // are in and their median, the worse middle one for an even count, reaches it. A single
+  // measurement that reaches it asks for one more; a repeat that misses it withdraws the request.
+  void CheckConfirmation(int64_t original, const search::Outcome& latest) {
+    const search::Outcome& target = *campaign_.options_.target;
+    std::vector<search::Outcome> in;
+    for (int64_t member : Group(original)) {
+      const Trial& t = *Get(member);
+      if (t.outcome.has_value() && t.outcome->informative()) in.push_back(*t.outcome);
+    }
+    std::sort(in.begin(), in.end(), [&](const search::Outcome& a, const search::Outcome& b) {
+      return search::CompareOutcomes(a, b, campaign_.order_) < 0;
+    });
+    const auto meets = [&](const search::Outcome& o) { return search::CompareOutcomes(o, target, campaign_.order_) <= 0; };
+    if (in.size() >= 2 && meets(in[in.size() / 2])) {
+      if (!confirmed_.has_value()) {
+        confirmed_ = absl::StrCat("trial ", original, " reached the target, confirmed by ", in.size(),
+                                  " measurements of its candidate");
+      }
+      if (engine_.confirm_trial == original) engine_.confirm_trial = 0;
+      return;
+    }
+    if (meets(latest)) {
+      engine_.confirm_trial = original;
+    } else if (engine_.confirm_trial == original) {
+      engine_.confirm_trial = 0;
+    }
+  }
+
+  // Tie spans of the cohort. Members measured more than once are ranked by the median of the ranks
+  // their measurements take among all measurements of the cohort (only the order is used).
+  absl::StatusOr<std::vector<search::TieSpan>> RankMeasured(const std::vector<std::vector<search::Outcome>>& measured) const {
+    std::vector<search::Outcome> firsts, all;
+    bool repeated = false;
+    for (const auto& m : measured) {
+      firsts.push_back(m.front());
+      all.insert(all.end(), m.begin(), m.end());
+      repeated = repeated || m.size() > 1;
+    }
+    if (!repeated) return search::RankCohort(firsts, campaign_.order_);
+    const std::vector<double> rank = search::JointRanks(all, campaign_.order_);
+    std::vector<search::Outcome> by_median;
+    size_t at = 0;
+    for (const auto& m : measured) {
+      std::vector<double> own(rank.begin() + at, rank.begin() + at + m.size());
+      at += m.size();
+      std::sort(own.begin(), own.end());
+      const size_t half = own.size() / 2;
+      by_median.push_back(search::Outcome::Score(own.size() % 2 ? own[half] : (own[half - 1] + own[half]) / 2));
+    }
+    return search::RankCohort(by_median, {false, search::Direction::kLowerIsBetter, 0});
+  }
+
+  // UH's noise measure on the members measured more than once (Hansen et al., IEEE TEC 2009), and
+  // under noise: auto our treatment: while s̄ > 0 the population grows, λ + max(1, λ/100) per
+  // update (docs/math.md, "Noisy measurements": a larger population averages the noise out through
+  // recombination; UH's own treatments, a larger σ or longer evaluations, did worse in our rows).
+  void MeasureNoise(const std::vector<search::Outcome>& firsts,
+                    const std::vector<std::vector<search::Outcome>>& measured, const search::SearchDistribution& next) {
+    std::vector<search::Remeasurement> repeats;
+    for (size_t i = 0; i < measured.size(); ++i) {
+      if (measured[i].size() > 1) repeats.push_back({static_cast<int>(i), measured[i][1]});
+    }
+    if (repeats.empty()) return;
+    const double s = search::RankChangeMeasure(firsts, repeats, campaign_.order_);
+    engine_.noise_rank_change = (1 - kNoiseSmoothing) * engine_.noise_rank_change + kNoiseSmoothing * s;
+    if (campaign_.options_.noise.mode != NoiseMode::kAuto || engine_.noise_rank_change <= 0) return;
+    const int lambda = next.population_size();
+    engine_.noise_population = std::min(campaign_.options_.max_population_size, lambda + std::max(1, lambda / 100));
+  }
+
+  // Under noise: auto a growing population keeps σ from collapsing where the noise has taken over,
+  // so the usual rules may never fire there. The tutorial's TolStagnation in a form ranks allow
+  // (Hansen, arXiv:1604.00772, Appendix B, from memory, compares medians of recent and older
+  // values): every W = 120 + 30n/λ updates the cohort's median outcome must be better than the one
+  // W updates before, else the epoch ends (a restart when restarts are on). The median of a cohort
+  // is robust to the noise where its best outcome is not: a lucky record keeps coming as λ grows.
+  std::optional<std::string> Stagnation(const std::vector<int64_t>& cohort, const std::vector<search::Outcome>& firsts,
+                                        const search::SearchDistribution& next) {
+    if (campaign_.options_.noise.mode != NoiseMode::kAuto || !next.gaussian()) return std::nullopt;
+    std::vector<size_t> order(cohort.size());
+    for (size_t i = 0; i < order.size(); ++i) order[i] = i;
+    std::nth_element(order.begin(), order.begin() + order.size() / 2, order.end(), [&](size_t a, size_t b) {
+      return search::CompareOutcomes(firsts[a], firsts[b], campaign_.order_) < 0;
+    });
+    const size_t median = order[order.size() / 2];
+    const Trial* reference = Get(engine_.stagnation_trial);
+    const double window = 120.0 + 30.0 * next.gaussian()->dimension() / next.population_size();
+    if (reference != nullptr && engine_.generation - engine_.stagnation_generation < window) return std::nullopt;
+    if (reference != nullptr && search::CompareOutcomes(firsts[median], *reference->outcome, campaign_.order_) >= 0) {
+      return absl::StrCat("the cohort's median outcome did not improve in ", engine_.generation - engine_.stagnation_generation,
+                          " updates (noise handling)");
+    }
+    engine_.stagnation_trial = cohort[median];
+    engine_.stagnation_generation = engine_.generation;
+    return std::nullopt;
+  }
+
   const Campaign& campaign_;
   const absl::Time now_;
   EngineState engine_;
+  std::vector<int64_t> added_awaiting_;  // originals this plan made wait for replicates
+  std::multimap<int64_t, int64_t> added_replicates_;  // original -> replicates asked in this plan
+  std::optional<std::string> confirmed_;  // a confirmed target, for CheckTarget
   std::map<int64_t, Trial> overlay_;
   int64_t leased_delta_ = 0;            // leased trials now, less the campaign's
-  std::vector<int64_t> added_pending_;  // outcomes this plan made pending, in report order
+  std::vector<int64_t> added_pending_;  // outcomes this plan made pending, in report order (AddPending)
   int pending_removed_ = 0;             // pending outcomes this plan consumed or dropped
   std::vector<GenerationRecord> generations_;
   bool distribution_changed_ = false;
@@ -553,8 +838,12 @@ absl::StatusOr<Campaign> Campaign::Restore(search::Space space, search::OutcomeO
     if (t.number != static_cast<int64_t>(k) + 1 || t.x.size() != campaign.space_.size()) {
       return absl::DataLossError(absl::StrCat("snapshot: trial record ", k + 1, " is inconsistent"));
     }
+    if (t.replicate_of < 0 || t.replicate_of >= t.number) {
+      return absl::DataLossError(absl::StrCat("snapshot: trial record ", k + 1, " repeats trial ", t.replicate_of));
+    }
     campaign.Count(t, +1);
     campaign.Index(t);
+    if (t.replicate_of != 0) campaign.replicates_.emplace(t.replicate_of, t.number);
   }
   return campaign;
 }
@@ -684,6 +973,7 @@ void Campaign::Apply(Change change) {
     if (t.number == static_cast<int64_t>(trials_.size()) + 1) {
       Count(t, +1);
       Index(t);
+      if (t.replicate_of != 0) replicates_.emplace(t.replicate_of, t.number);
       trials_.push_back(std::move(t));
       continue;
     }
@@ -770,6 +1060,9 @@ void Campaign::Count(const Trial& t, int sign) {
     case Use::kTooStale:
       counts_.too_stale += sign;
       break;
+    case Use::kAwaitingReplicates:
+      counts_.awaiting_replicates += sign;
+      break;
     case Use::kNone:
       break;
   }
@@ -778,11 +1071,13 @@ void Campaign::Count(const Trial& t, int sign) {
 void Campaign::Index(const Trial& t) {
   if (t.state == TrialState::kLeased) leases_.insert({t.lease_deadline, t.number});
   if (t.use == Use::kPending) pending_.insert({t.report_sequence, t.number});
+  if (t.use == Use::kAwaitingReplicates && t.replicate_of == 0) awaiting_.insert({t.report_sequence, t.number});
 }
 
 void Campaign::Unindex(const Trial& t) {
   if (t.state == TrialState::kLeased) leases_.erase({t.lease_deadline, t.number});
   if (t.use == Use::kPending) pending_.erase({t.report_sequence, t.number});
+  if (t.use == Use::kAwaitingReplicates && t.replicate_of == 0) awaiting_.erase({t.report_sequence, t.number});
 }
 
 }  // namespace ogive::campaign

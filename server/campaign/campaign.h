@@ -16,6 +16,7 @@
 
 #include <cstdint>
 #include <deque>
+#include <map>
 #include <memory>
 #include <optional>
 #include <set>
@@ -62,6 +63,13 @@ struct EngineState {
   int64_t last_mixed_generation = 0;  // last update of this epoch whose cohort was not all tied, 0 = none
   int64_t best_trial = 0;        // best informative outcome so far, 0 = none
   double sigma0 = 0.0;           // initial step size (internal units)
+  // Noise handling (docs/math.md, "Noisy measurements").
+  double noise_rank_change = 0;  // s̄: the smoothed rank-change measure
+  int noise_population = 0;      // λ floor raised by noise: auto while s̄ > 0 (0: none; reset at a restart)
+  double replicate_credit = 0;   // accumulated share of originals to measure twice for s
+  int64_t confirm_trial = 0;     // met the target once; waits for a confirming measurement (0: none)
+  int64_t stagnation_trial = 0;       // noise: auto: the cohort median the next must beat (0: none yet)
+  int64_t stagnation_generation = 0;  // the update that cohort median came from
 };
 
 // One update, for history and plots.
@@ -102,7 +110,7 @@ struct TellPlan {
 struct TrialCounts {
   int64_t leased = 0, reported = 0, lapsed = 0, voided = 0;
   int64_t late = 0;     // reported after their lease lapsed (within `reported` or `voided`)
-  int64_t pending = 0, consumed = 0, too_stale = 0;
+  int64_t pending = 0, consumed = 0, too_stale = 0, awaiting_replicates = 0;
   int64_t total() const { return leased + reported + lapsed + voided; }
 };
 
@@ -206,6 +214,9 @@ class Campaign {
   TrialCounts counts_;
   std::set<std::pair<int64_t, int64_t>> pending_;  // (report_sequence, number) of pending outcomes
   std::set<std::pair<absl::Time, int64_t>> leases_;  // (lease_deadline, number) of leased trials, soonest first
+  // (report_sequence, number) of originals waiting for replicates, and each original's replicates.
+  std::set<std::pair<int64_t, int64_t>> awaiting_;
+  std::multimap<int64_t, int64_t> replicates_;
 };
 
 }  // namespace ogive::campaign

@@ -22,6 +22,11 @@ absl::Status CampaignOptions::Validate() const {
   if (target.has_value() && !target->informative()) {
     return absl::InvalidArgumentError("target: must be a score or a grade");
   }
+  if (noise.mode == NoiseMode::kReplicates &&
+      (noise.replicates < 2 || noise.replicates > NoiseOptions::kMaxMeasurements)) {
+    return absl::InvalidArgumentError(absl::StrCat("noise: replicates must be in 2..",
+                                                   NoiseOptions::kMaxMeasurements, ", got ", noise.replicates));
+  }
   return absl::OkStatus();
 }
 

@@ -10,6 +10,7 @@
 
 #include "absl/status/status.h"
 #include "absl/time/time.h"
+#include "server/campaign/noise_options.h"
 #include "server/search/ranking.h"
 
 namespace ogive::campaign {
@@ -39,6 +40,7 @@ struct CampaignOptions {
   // For messages only: the grade scale's labels, worst first (empty for scored campaigns), so that a
   // refusal names a grade as the technician wrote it, not by its place on the scale.
   std::vector<std::string> grade_labels;
+  NoiseOptions noise;  // measurement noise handling; off by default
 
   // INVALID_ARGUMENT naming the field when a value is out of range.
   absl::Status Validate() const;

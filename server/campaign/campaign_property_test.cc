@@ -76,6 +76,7 @@ void CheckInvariants(const Campaign& campaign, const EventDriver& driver, Histor
     recount.pending += t.use == Use::kPending;
     recount.consumed += t.use == Use::kConsumed;
     recount.too_stale += t.use == Use::kTooStale;
+    recount.awaiting_replicates += t.use == Use::kAwaitingReplicates;
 
     EXPECT_LE(t.generation, e.generation) << "trial " << k;
     EXPECT_LE(t.epoch, e.epoch) << "trial " << k;
@@ -122,8 +123,9 @@ void CheckInvariants(const Campaign& campaign, const EventDriver& driver, Histor
     }
     ++informative;
     EXPECT_EQ(t.state, TrialState::kReported) << "trial " << k;
-    // Exactly one of pending / consumed / too stale.
-    EXPECT_TRUE(t.use == Use::kPending || t.use == Use::kConsumed || t.use == Use::kTooStale)
+    // Exactly one of pending / consumed / too stale / awaiting replicates.
+    EXPECT_TRUE(t.use == Use::kPending || t.use == Use::kConsumed || t.use == Use::kTooStale ||
+                t.use == Use::kAwaitingReplicates)
         << "trial " << k << " is " << UseName(t.use);
     EXPECT_EQ(t.use == Use::kConsumed, t.consumed_by != -1) << "trial " << k;
     if (t.use == Use::kPending) {
@@ -150,9 +152,28 @@ void CheckInvariants(const Campaign& campaign, const EventDriver& driver, Histor
   EXPECT_EQ(recount.pending, c.pending);
   EXPECT_EQ(recount.consumed, c.consumed);
   EXPECT_EQ(recount.too_stale, c.too_stale);
+  EXPECT_EQ(recount.awaiting_replicates, c.awaiting_replicates);
   EXPECT_EQ(with_outcome, e.report_sequence);
   EXPECT_EQ(informative, e.informative);
-  EXPECT_EQ(c.pending + c.consumed + c.too_stale, e.informative);
+  EXPECT_EQ(c.pending + c.consumed + c.too_stale + c.awaiting_replicates, e.informative);
+  // Replicates measure their original's candidate, and are used by the update that uses it.
+  int64_t consumed_replicates = 0;
+  for (const Trial& t : campaign.trials()) {
+    if (t.replicate_of == 0) continue;
+    const Trial* original = campaign.trial(t.replicate_of);
+    ASSERT_NE(original, nullptr) << "trial " << t.number;
+    EXPECT_EQ(original->replicate_of, 0) << "trial " << t.number;
+    EXPECT_TRUE(original->x == t.x) << "trial " << t.number;
+    EXPECT_EQ(original->generation, t.generation) << "trial " << t.number;
+    if (t.use == Use::kConsumed) {
+      ++consumed_replicates;
+      EXPECT_EQ(original->use, Use::kConsumed) << "trial " << t.number;
+      EXPECT_EQ(original->consumed_by, t.consumed_by) << "trial " << t.number;
+    }
+    if (t.use == Use::kAwaitingReplicates) {
+      EXPECT_TRUE(original->use == Use::kAwaitingReplicates || original->use == Use::kPending) << "trial " << t.number;
+    }
+  }
   // Late marks are never taken back.
   EXPECT_GE(c.late, history.late_seen);
   history.late_seen = c.late;
@@ -197,7 +218,7 @@ void CheckInvariants(const Campaign& campaign, const EventDriver& driver, Histor
     }
     EXPECT_LE(r.max_staleness, limit);
   }
-  EXPECT_EQ(consumed_total, c.consumed);
+  EXPECT_EQ(consumed_total + consumed_replicates, c.consumed);
 }
 
 struct PropertyCase {
@@ -206,6 +227,7 @@ struct PropertyCase {
   int64_t budget = 0;
   bool restarts = false;
   bool flat = false;
+  NoiseOptions noise;
 };
 
 void RunPropertyCase(const PropertyCase& pc) {
@@ -216,6 +238,7 @@ void RunPropertyCase(const PropertyCase& pc) {
   options.trial_budget = pc.budget;
   options.default_lease = absl::Seconds(120);
   options.restarts = pc.restarts;
+  options.noise = pc.noise;
   Campaign campaign = MakeCampaign(MixedSpace(), kMinimize, {}, options);
   EventDriver driver(1000 + static_cast<uint64_t>(pc.seed), {.workers = 2 + pc.seed % 4,
                                                              .use_plan_api = true,
@@ -252,6 +275,20 @@ TEST(CampaignPropertyTest, BookkeepingInvariantsHoldAfterEveryEvent) {
     pc.seed = seed;
     pc.staleness_limit = seed % 3;        // 0, 1, 2: outcomes go stale often
     pc.budget = seed % 4 == 0 ? 500 : 0;  // some runs end on their budget
+    RunPropertyCase(pc);
+    if (HasFailure()) return;
+  }
+}
+
+// The same events with noise handling: replicates lapse, are voided, arrive late or twice, and arrive
+// after their original was used or went stale.
+TEST(CampaignPropertyTest, BookkeepingInvariantsHoldWithReplicates) {
+  for (int seed = 1; seed <= 6; ++seed) {
+    PropertyCase pc;
+    pc.seed = seed;
+    pc.staleness_limit = 1 + seed % 3;
+    pc.noise.mode = seed % 2 ? NoiseMode::kAuto : NoiseMode::kReplicates;
+    pc.noise.replicates = 2 + seed % 3;
     RunPropertyCase(pc);
     if (HasFailure()) return;
   }

@@ -140,6 +140,12 @@ inline void ExpectSameEngine(const EngineState& a, const EngineState& b) {
   EXPECT_EQ(a.last_mixed_generation, b.last_mixed_generation);
   EXPECT_EQ(a.best_trial, b.best_trial);
   EXPECT_EQ(a.sigma0, b.sigma0);
+  EXPECT_EQ(a.noise_rank_change, b.noise_rank_change);
+  EXPECT_EQ(a.noise_population, b.noise_population);
+  EXPECT_EQ(a.replicate_credit, b.replicate_credit);
+  EXPECT_EQ(a.confirm_trial, b.confirm_trial);
+  EXPECT_EQ(a.stagnation_trial, b.stagnation_trial);
+  EXPECT_EQ(a.stagnation_generation, b.stagnation_generation);
   ASSERT_NE(a.distribution, nullptr);
   ASSERT_NE(b.distribution, nullptr);
   ExpectSameDistribution(a.distribution->state(), b.distribution->state());
@@ -168,6 +174,8 @@ inline void ExpectSameTrial(const Trial& a, const Trial& b) {
   EXPECT_EQ(a.late, b.late);
   EXPECT_EQ(a.use, b.use);
   EXPECT_EQ(a.consumed_by, b.consumed_by);
+  EXPECT_EQ(a.replicate_of, b.replicate_of);
+  EXPECT_EQ(a.replicates_wanted, b.replicates_wanted);
 }
 
 inline void ExpectSameCampaign(const Campaign& a, const Campaign& b) {

@@ -8,3 +8,5 @@ ogive_add_test(NAME campaign_restart_test SOURCES campaign_restart_test.cc
                LIBS ogive_campaign ogive_test_support)
 ogive_add_test(NAME termination_reach_test SOURCES termination_reach_test.cc
                LIBS ogive_campaign ogive_test_support)
+ogive_add_test(NAME campaign_noise_test SOURCES campaign_noise_test.cc
+               LIBS ogive_campaign ogive_test_support)

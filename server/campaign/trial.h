@@ -24,6 +24,7 @@ enum class Use {
   kPending,   // waiting for a cohort
   kConsumed,  // entered the update of generation `consumed_by`
   kTooStale,  // older than the staleness limit (or from before a restart): kept, never used
+  kAwaitingReplicates,  // noise handling: waits for repeated measurements of its candidate
 };
 const char* UseName(Use use);
 
@@ -45,6 +46,11 @@ struct Trial {
   bool late = false;            // reported after its lease lapsed
   Use use = Use::kNone;
   int64_t consumed_by = -1;     // generation whose update consumed it, or -1
+  // Noise handling (docs/math.md, "Noisy measurements"). A replicate measures the candidate of trial
+  // `replicate_of` again (same x, generation and epoch); its outcome joins that trial's in the ranking.
+  // An original waits (Use::kAwaitingReplicates) until 1 + replicates_wanted measurements are in.
+  int64_t replicate_of = 0;     // 0: an original
+  int replicates_wanted = 0;    // originals only
 };
 
 // One report from a worker.

@@ -55,6 +55,8 @@ v1::OutcomeUse OutcomeUseToProto(campaign::Use u) {
       return v1::OUTCOME_USE_CONSUMED;
     case campaign::Use::kTooStale:
       return v1::OUTCOME_USE_TOO_STALE;
+    case campaign::Use::kAwaitingReplicates:
+      return v1::OUTCOME_USE_AWAITING_REPLICATES;
   }
   return v1::OUTCOME_USE_UNSPECIFIED;
 }
@@ -69,6 +71,8 @@ campaign::Use UseFromProto(v1::OutcomeUse u) {
       return campaign::Use::kConsumed;
     case v1::OUTCOME_USE_TOO_STALE:
       return campaign::Use::kTooStale;
+    case v1::OUTCOME_USE_AWAITING_REPLICATES:
+      return campaign::Use::kAwaitingReplicates;
     default:
       return campaign::Use::kNone;
   }
@@ -94,6 +98,10 @@ absl::StatusOr<campaign::CampaignOptions> CampaignOptionsFromDesign(const v1::Ca
   }
   if (design.lease_seconds() > 0) options.default_lease = absl::Seconds(design.lease_seconds());
   options.restarts = design.restarts();
+  absl::StatusOr<campaign::NoiseOptions> noise = campaign::ParseNoise(design.noise());
+  if (!noise.ok()) return noise.status();
+  options.noise = *noise;
+  if (design.has_confirm_target()) options.noise.confirm_target = design.confirm_target();
   options.grade_labels.assign(design.objective().grade_scale().labels().begin(),
                               design.objective().grade_scale().labels().end());
   if (design.has_target() && design.has_target_grade()) {
@@ -153,6 +161,8 @@ v1::TrialRecord TrialToProto(const campaign::Trial& t) {
   r.set_late(t.late);
   r.set_use(OutcomeUseToProto(t.use));
   r.set_consumed_by(t.consumed_by);
+  r.set_replicate_of(t.replicate_of);
+  r.set_replicates_wanted(t.replicates_wanted);
   return r;
 }
 
@@ -195,6 +205,11 @@ absl::StatusOr<campaign::Trial> TrialFromProto(const v1::TrialRecord& r) {
   t.late = r.late();
   t.use = UseFromProto(r.use());
   t.consumed_by = r.consumed_by();
+  t.replicate_of = r.replicate_of();
+  t.replicates_wanted = r.replicates_wanted();
+  if (t.replicates_wanted < 0 || t.replicates_wanted >= campaign::NoiseOptions::kMaxMeasurements) {
+    return absl::DataLossError(absl::StrCat("trial record: replicates_wanted out of range: ", t.replicates_wanted));
+  }
   return t;
 }
 
@@ -248,6 +263,12 @@ v1::EngineState EngineStateToProto(const campaign::EngineState& e, bool include_
   p.set_evaluation_seconds(e.evaluation_seconds);
   p.set_epoch_best_trial(e.epoch_best_trial);
   p.set_last_mixed_generation(e.last_mixed_generation);
+  p.set_noise_rank_change(e.noise_rank_change);
+  p.set_noise_population(e.noise_population);
+  p.set_replicate_credit(e.replicate_credit);
+  p.set_confirm_trial(e.confirm_trial);
+  p.set_stagnation_trial(e.stagnation_trial);
+  p.set_stagnation_generation(e.stagnation_generation);
   return p;
 }
 
@@ -303,6 +324,18 @@ absl::StatusOr<campaign::EngineState> EngineStateFromProto(const v1::EngineState
   e.evaluation_seconds = p.evaluation_seconds();
   e.epoch_best_trial = p.epoch_best_trial();
   e.last_mixed_generation = p.last_mixed_generation();
+  e.noise_rank_change = p.noise_rank_change();
+  e.noise_population = p.noise_population();
+  e.replicate_credit = p.replicate_credit();
+  e.confirm_trial = p.confirm_trial();
+  e.stagnation_trial = p.stagnation_trial();
+  e.stagnation_generation = p.stagnation_generation();
+  if (!std::isfinite(e.noise_rank_change) || e.noise_population < 0 ||
+      e.noise_population > campaign::kMaxPopulationSize || !(e.replicate_credit >= 0) ||
+      e.replicate_credit >= 1 || e.confirm_trial < 0 || e.stagnation_trial < 0 ||
+      e.stagnation_generation < 0) {
+    return absl::DataLossError("engine state: a noise-handling field is out of range");
+  }
   if (!(e.evaluation_seconds >= 0) || !std::isfinite(e.evaluation_seconds)) {
     return absl::DataLossError("engine state: evaluation_seconds must be finite and not negative");
   }

@@ -286,6 +286,7 @@ v1::Trial CampaignHost::TrialView(const campaign::Trial& t) const {
   v.set_late(t.late);
   v.set_use(codec::OutcomeUseToProto(t.use));
   v.set_consumed_by(t.consumed_by);
+  v.set_replicate_of(t.replicate_of);
   return v;
 }
 
@@ -316,6 +317,8 @@ v1::CampaignView CampaignHost::ViewLocked(bool brief) const {
   s->set_pending(c.pending);
   s->set_consumed(c.consumed);
   s->set_too_stale(c.too_stale);
+  s->set_awaiting_replicates(c.awaiting_replicates);
+  s->set_noise_rank_change(e.noise_rank_change);
   const absl::Time now = clock_();
   const absl::Time since = now - absl::Hours(1);
   s->set_as_of_unix_ms(UnixMillis(now));

@@ -7,8 +7,9 @@
 // 1000 (diagonal) against one Eigen eigendecomposition of an n×n matrix in the same run.
 //
 // --grades: the graded rows instead (tests/bench/grade_rows.h).
+// --noise: the noisy rows instead (tests/bench/noise_rows.h).
 //
-// Usage: ogive-bench-search [--seeds N] [--quick] [--grades]
+// Usage: ogive-bench-search [--seeds N] [--quick] [--grades | --noise]
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -24,6 +25,7 @@
 #include "server/search/search_distribution.h"
 #include "server/search/space.h"
 #include "tests/bench/grade_rows.h"
+#include "tests/bench/noise_rows.h"
 #include "tests/support/problems.h"
 
 namespace {
@@ -128,6 +130,7 @@ int main(int argc, char** argv) {
   }
   for (int i = 1; i < argc; ++i) {
     if (std::strcmp(argv[i], "--grades") == 0) return ogive::bench::RunGradeRows(seeds, quick);
+    if (std::strcmp(argv[i], "--noise") == 0) return ogive::bench::RunNoiseRows(seeds, quick);
   }
   const std::vector<int> dims = quick ? std::vector<int>{10} : std::vector<int>{10, 20};
   auto wanted = [&only](const std::string& name) { return name.rfind(only, 0) == 0; };

@@ -79,7 +79,8 @@ void RequireCampaignInvariants(const CampaignModel& model, const storage::Stored
                          status.restarts() == engine.epoch(),
                      "memory and store disagree: ", status.ShortDebugString(), " vs ", engine.ShortDebugString());
 
-  int64_t leased = 0, reported = 0, lapsed = 0, voided = 0, late = 0, pending = 0, consumed = 0, too_stale = 0;
+  int64_t leased = 0, reported = 0, lapsed = 0, voided = 0, late = 0, pending = 0, consumed = 0, too_stale = 0,
+          awaiting = 0;
   int64_t max_sequence = 0;
   std::set<int64_t> sequences;
   for (int k = 0; k < trials.size(); ++k) {
@@ -120,7 +121,7 @@ void RequireCampaignInvariants(const CampaignModel& model, const storage::Stored
           OGIVE_FUZZ_REQUIRE(r.grade_index() >= 0 && r.grade_index() < model.order.grade_count, t());
         }
         OGIVE_FUZZ_REQUIRE(r.use() == v1::OUTCOME_USE_PENDING || r.use() == v1::OUTCOME_USE_CONSUMED ||
-                               r.use() == v1::OUTCOME_USE_TOO_STALE,
+                               r.use() == v1::OUTCOME_USE_TOO_STALE || r.use() == v1::OUTCOME_USE_AWAITING_REPLICATES,
                            t());
         ++reported;
         break;
@@ -151,6 +152,9 @@ void RequireCampaignInvariants(const CampaignModel& model, const storage::Stored
       case v1::OUTCOME_USE_TOO_STALE:
         ++too_stale;
         break;
+      case v1::OUTCOME_USE_AWAITING_REPLICATES:
+        ++awaiting;
+        break;
       default:
         break;
     }
@@ -163,10 +167,11 @@ void RequireCampaignInvariants(const CampaignModel& model, const storage::Stored
                      " trials reported");
   OGIVE_FUZZ_REQUIRE(status.leased() == leased && status.reported() == reported && status.lapsed() == lapsed &&
                          status.voided() == voided && status.late() == late && status.pending() == pending &&
-                         status.consumed() == consumed && status.too_stale() == too_stale,
+                         status.consumed() == consumed && status.too_stale() == too_stale &&
+                         status.awaiting_replicates() == awaiting,
                      "counts in memory ", status.ShortDebugString(), " differ from the store: leased ", leased,
                      " reported ", reported, " lapsed ", lapsed, " voided ", voided, " late ", late, " pending ",
-                     pending, " consumed ", consumed, " too_stale ", too_stale);
+                     pending, " consumed ", consumed, " too_stale ", too_stale, " awaiting ", awaiting);
 
   // The best trial is a reported one and none is strictly better.
   if (reported == 0) {

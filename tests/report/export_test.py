@@ -28,7 +28,7 @@ PARAMETERS = [("x", "x (<b>mm</b>)", "real"), ("rate", "rate (1/s)", "real"), ("
 STATES = {"TRIAL_STATE_LEASED": "leased", "TRIAL_STATE_REPORTED": "reported", "TRIAL_STATE_LAPSED": "lapsed",
           "TRIAL_STATE_VOIDED": "voided"}
 USES = {"OUTCOME_USE_UNSPECIFIED": "", "OUTCOME_USE_PENDING": "pending", "OUTCOME_USE_CONSUMED": "consumed",
-        "OUTCOME_USE_TOO_STALE": "too_stale"}
+        "OUTCOME_USE_TOO_STALE": "too_stale", "OUTCOME_USE_AWAITING_REPLICATES": "awaiting_replicates"}
 
 
 def iso_millis(unix_ms):

@@ -1196,6 +1196,29 @@ TEST(ServiceRestartTest, RestartedServerContinuesBitIdentically) {
 
 // ---- Leases ----
 
+// noise: replicates:2 over the wire: after a trial is reported, the next one handed out measures its
+// candidate again (same values, replicate_of set); the original waits (awaiting_replicates) until the
+// repeat is in, and the status counts it.
+TEST_F(ServiceTest, ReplicatesAreHandedOutAsTrialsOfTheirOwn) {
+  v1::CampaignDesign design = ScoredDesign("repeated", {Real("x", 0, 1), Real("y", 0, 1)});
+  design.set_noise("replicates:2");
+  Create(design);
+  const v1::AskResponse first = AskOk("repeated", 1);
+  ASSERT_EQ(first.trials_size(), 1);
+  EXPECT_EQ(first.trials(0).replicate_of(), 0);
+  TellOk("repeated", {ScoreReport(1, 0.5)});
+  EXPECT_EQ(Get("repeated").status().awaiting_replicates(), 1);
+  const v1::AskResponse second = AskOk("repeated", 2);
+  ASSERT_EQ(second.trials_size(), 2);
+  EXPECT_EQ(second.trials(0).replicate_of(), 1);
+  EXPECT_EQ(second.trials(0).candidate().DebugString(), first.trials(0).candidate().DebugString());
+  EXPECT_EQ(second.trials(1).replicate_of(), 0);  // nothing else waits: a new candidate
+  TellOk("repeated", {ScoreReport(2, 0.7)});
+  const v1::StatusSummary status = Get("repeated").status();
+  EXPECT_EQ(status.awaiting_replicates(), 1);  // the replicate, waiting for its original's cohort
+  EXPECT_EQ(status.pending(), 1);              // the original, now with both measurements
+}
+
 TEST_F(ServiceTest, LapsedTrialsTakeLateReports) {
   Create(ScoredDesign("swept", {Real("x", 0, 1)}));
   Create(ScoredDesign("requested", {Real("x", 0, 1)}));
@@ -1415,6 +1438,12 @@ TEST_F(ServiceTest, MalformedDesignsAreRefusedNamingTheField) {
       {"start of the wrong kind",
        [](v1::CampaignDesign& d) { (*d.mutable_start()->mutable_values())["x"].set_flag(true); },
        {"design.start.values['x']", "takes a real value"}},
+      {"noise not one of the modes",
+       [](v1::CampaignDesign& d) { d.set_noise("loud"); },
+       {"design.noise", "must be off, auto or replicates:K with K in 2..16", "'loud'"}},
+      {"too many replicates",
+       [](v1::CampaignDesign& d) { d.set_noise("replicates:17"); },
+       {"design.noise", "replicates:K with K in 2..16"}},
   };
   for (const BadDesignCase& c : cases) {
     SCOPED_TRACE(c.what);

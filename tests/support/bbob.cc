@@ -97,7 +97,8 @@ Eigen::MatrixXd RandomRotation(int n, std::mt19937_64& rng) {
 
 BbobFunction BbobFunction::Create(int function_id, int n, uint64_t instance_seed) {
   OGIVE_CHECK(function_id == 1 || function_id == 2 || function_id == 8 || function_id == 10 ||
-              function_id == 11 || function_id == 15);
+              function_id == 11 || function_id == 15 || function_id == 101 || function_id == 104 ||
+              function_id == 116);
   OGIVE_CHECK(n >= 1);
   std::mt19937_64 rng(instance_seed);
   BbobFunction f;
@@ -110,7 +111,7 @@ BbobFunction BbobFunction::Create(int function_id, int n, uint64_t instance_seed
   // a Cauchy distribution, rounded and clipped to [-1000, 1000] (from memory).
   f.f_opt_ = std::round(Uniform(rng, -100.0, 100.0) * 100.0) / 100.0;
 
-  if (function_id == 10 || function_id == 11 || function_id == 15) f.r_ = RandomRotation(n, rng);
+  if (function_id == 10 || function_id == 11 || function_id == 15 || function_id == 116) f.r_ = RandomRotation(n, rng);
   if (function_id == 15) f.q_ = RandomRotation(n, rng);
 
   if (function_id == 2 || function_id == 10) {
@@ -118,12 +119,18 @@ BbobFunction BbobFunction::Create(int function_id, int n, uint64_t instance_seed
     f.weights_.resize(n);
     for (int i = 0; i < n; ++i) f.weights_(i) = std::pow(10.0, 6.0 * AxisRatio(i, n));
   }
+  if (function_id == 116) {
+    // The noisy suite's ellipsoid, RR-6869 f116-f118 (from memory): weights 10^(4 (i - 1)/(n - 1)),
+    // condition 10^4, z = T_osz(R (x - x_opt)).
+    f.weights_.resize(n);
+    for (int i = 0; i < n; ++i) f.weights_(i) = std::pow(10.0, 4.0 * AxisRatio(i, n));
+  }
   if (function_id == 11) {
     // Discus weights: 10^6 on the first axis, 1 on the others, RR-6829 f11 (from memory).
     f.weights_ = Eigen::VectorXd::Ones(n);
     f.weights_(0) = 1e6;
   }
-  if (function_id == 8) {
+  if (function_id == 8 || function_id == 104) {
     // max(1, sqrt(n) / 8), RR-6829 f8 (from memory).
     f.rosenbrock_scale_ = std::max(1.0, std::sqrt(static_cast<double>(n)) / 8.0);
   }
@@ -137,6 +144,7 @@ double BbobFunction::operator()(const Eigen::VectorXd& x) const {
   OGIVE_CHECK(x.size() == n_);
   const Eigen::VectorXd d = x - x_opt_;
   switch (id_) {
+    case 101:  // the noise-free part of f101 (sphere, moderate Gaussian noise), RR-6869 (from memory)
     case 1:
       // f1 sphere, RR-6829 (from memory): ||z||^2 + f_opt, z = x - x_opt.
       return d.squaredNorm() + f_opt_;
@@ -144,6 +152,7 @@ double BbobFunction::operator()(const Eigen::VectorXd& x) const {
       // f2 separable ellipsoid, RR-6829 (from memory): sum_i 10^(6 (i-1)/(n-1)) z_i^2 + f_opt,
       // z = T_osz(x - x_opt).
       return weights_.dot(Tosz(d).cwiseAbs2()) + f_opt_;
+    case 104:  // the noise-free part of f104 (Rosenbrock, moderate Gaussian noise), RR-6869 (from memory)
     case 8: {
       // f8 Rosenbrock, RR-6829 (from memory):
       //   sum_{i<n} 100 (z_i^2 - z_{i+1})^2 + (z_i - 1)^2 + f_opt,
@@ -159,6 +168,7 @@ double BbobFunction::operator()(const Eigen::VectorXd& x) const {
       }
       return sum + f_opt_;
     }
+    case 116:  // the noise-free part of f116 (weights set in Create)
     case 10:
       // f10 rotated ellipsoid, RR-6829 (from memory): f2's weighted sum, z = T_osz(R (x - x_opt)).
       return weights_.dot(Tosz(r_ * d).cwiseAbs2()) + f_opt_;

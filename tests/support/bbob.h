@@ -10,6 +10,7 @@
 #ifndef OGIVE_TESTS_SUPPORT_BBOB_H_
 #define OGIVE_TESTS_SUPPORT_BBOB_H_
 
+#include <cmath>
 #include <cstdint>
 #include <random>
 
@@ -44,9 +45,19 @@ Eigen::MatrixXd RandomRotation(int n, std::mt19937_64& rng);
 
 // One instance of one BBOB function in dimension n. Cheap to copy for the unrotated functions; the
 // rotated ones carry two or three n x n matrices.
+// The Gaussian noise model of the noisy BBOB suite (Hansen, Auger, Finck, Ros, INRIA RR-6869, from
+// memory): f_GN(f, β) = f · exp(β N(0, 1)), applied to f − f_opt, plus 1.01·10⁻⁸, and only where
+// f − f_opt ≥ 10⁻⁸ (below it the value is exact). β = 0.01 is the suite's moderate noise (f101,
+// f104), β = 1 its severe noise (f116). `normal` is one N(0, 1) deviate.
+inline double NoisyGap(double gap, double beta, double normal) {
+  if (gap < 1e-8) return gap;
+  return gap * std::exp(beta * normal) + 1.01e-8;
+}
+
 class BbobFunction {
  public:
-  // function_id must be 1, 2, 8, 10, 11 or 15 and n >= 1 (checked; aborts otherwise). The instance is
+  // function_id must be 1, 2, 8, 10, 11, 15, or 101, 104, 116 (the noise-free part of those noisy
+  // functions, RR-6869; the noise is the caller's: NoisyGap) and n >= 1 (checked; aborts otherwise). The instance is
   // drawn from std::mt19937_64 seeded with instance_seed, in this order: x_opt (uniform in
   // [-4, 4]^n), f_opt, then R and Q when the function uses them. Same arguments, same instance.
   static BbobFunction Create(int function_id, int n, uint64_t instance_seed);

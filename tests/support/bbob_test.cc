@@ -283,6 +283,27 @@ TEST(RotatedEllipsoidTest, ConditioningAlongRotatedAxes) {
   }
 }
 
+TEST(NoisySuiteTest, NoiseFreePartsAndTheGaussianNoiseModel) {
+  // f116's noise-free part: f10's form with condition 10^4 (RR-6869, from memory); f101 and f104 are
+  // f1 and f8 before the noise.
+  for (int n : kDims) {
+    if (n < 2) continue;
+    const BbobFunction f = BbobFunction::Create(116, n, 5);
+    const Eigen::MatrixXd rt = f.r().transpose();
+    EXPECT_NEAR(f(f.x_opt() + rt * Unit(n, 0)) - f.f_opt(), 1.0, 1e-9) << "n=" << n;
+    EXPECT_NEAR(f(f.x_opt() + rt * Unit(n, n - 1)) - f.f_opt(), 1e4, 1e-8) << "n=" << n;
+    const BbobFunction sphere = BbobFunction::Create(101, n, 5), plain = BbobFunction::Create(1, n, 5);
+    const Eigen::VectorXd x = Eigen::VectorXd::Constant(n, 0.5);
+    EXPECT_EQ(sphere(x), plain(x));
+    const BbobFunction rosenbrock = BbobFunction::Create(104, n, 5), plain8 = BbobFunction::Create(8, n, 5);
+    EXPECT_EQ(rosenbrock(x), plain8(x));
+  }
+  // f_GN(f, β) = f exp(β N) + 1.01e-8 above 1e-8, exact below (RR-6869, from memory).
+  EXPECT_DOUBLE_EQ(ogive::testing::NoisyGap(2.0, 1.0, 0.5), 2.0 * std::exp(0.5) + 1.01e-8);
+  EXPECT_DOUBLE_EQ(ogive::testing::NoisyGap(2.0, 0.01, -1.0), 2.0 * std::exp(-0.01) + 1.01e-8);
+  EXPECT_EQ(ogive::testing::NoisyGap(5e-9, 1.0, 3.0), 5e-9);
+}
+
 TEST(RotatedDiscusTest, OneSensitiveRotatedAxis) {
   // f11 = 10^6 z_1^2 + sum_{i>=2} z_i^2 + f_opt, z = T_osz(R (x - x_opt)) (RR-6829, from memory).
   // At x = x_opt + t R^T e_i, z = T_osz(t e_i): 10^6 T_osz(t)^2 for i = 1, T_osz(t)^2 otherwise;
