@@ -377,7 +377,7 @@ std::vector<v1::Trial> ExportTrials() {
   (*trials[0].mutable_candidate()->mutable_values())["reduce"].set_flag(true);
   trials[1] = Parse<v1::Trial>(R"pb(
     number: 2 state: TRIAL_STATE_LEASED generation: 3 worker: "w2" lease_deadline_unix_ms: 1767225700000
-    consumed_by: -1
+    consumed_by: -1 replicate_of: 1
   )pb");
   return trials;
 }
@@ -386,10 +386,10 @@ TEST(TrialsExportCsv, FollowsRfc4180) {
   const std::string csv = TrialsExportCsv(ExportDesign(), ExportTrials());
   const std::string expected =
       "trial,state,outcome,score,grade,note,\"peak (deg, C)\",hold,glaze,reduce,generation,consumed_by,use,late,"
-      "worker,reported_by,reported_at,lease_deadline\r\n"
+      "worker,reported_by,reported_at,lease_deadline,replicate_of\r\n"
       "1,reported,grade,,good,\"line one\nline \"\"two\"\", end\",0.1,7,\"a,b\",true,2,3,consumed,true,"
-      "\"w \"\"1\"\"\",bench-3,2026-01-01T00:00:01.005Z,2026-01-01T00:00:00.250Z\r\n"
-      "2,leased,,,,,,,,,3,,,false,w2,,,2026-01-01T00:01:40.000Z\r\n";
+      "\"w \"\"1\"\"\",bench-3,2026-01-01T00:00:01.005Z,2026-01-01T00:00:00.250Z,\r\n"
+      "2,leased,,,,,,,,,3,,,false,w2,,,2026-01-01T00:01:40.000Z,1\r\n";
   EXPECT_EQ(csv, expected);
 }
 
@@ -401,10 +401,11 @@ TEST(TrialsExportJson, IsAnArrayOfObjectsWithNullsForWhatIsMissing) {
                               "\"generation\":2,\"consumed_by\":3,\"use\":\"consumed\",\"late\":true,"
                               "\"worker\":\"w \\\"1\\\"\",\"reported_by\":\"bench-3\","
                               "\"reported_at\":\"2026-01-01T00:00:01.005Z\","
-                              "\"lease_deadline\":\"2026-01-01T00:00:00.250Z\"}"));
+                              "\"lease_deadline\":\"2026-01-01T00:00:00.250Z\",\"replicate_of\":null}"));
   EXPECT_THAT(json, HasSubstr("{\"trial\":2,\"state\":\"leased\",\"outcome\":null,\"score\":null,\"grade\":null,"
                               "\"note\":\"\",\"values\":{},\"generation\":3,\"consumed_by\":null,\"use\":null,"
                               "\"late\":false,\"worker\":\"w2\",\"reported_by\":\"\",\"reported_at\":null,"));
+  EXPECT_THAT(json, HasSubstr("\"replicate_of\":1}"));
   EXPECT_EQ(json.front(), '[');
   EXPECT_EQ(json.substr(json.size() - 4), "}\n]\n");
   EXPECT_EQ(TrialsExportJson(ExportDesign(), {}), "[]\n");

@@ -87,7 +87,7 @@ std::vector<std::string> ExportHeader(const v1::CampaignDesign& design) {
   std::vector<std::string> header = {"trial", "state", "outcome", "score", "grade", "note"};
   for (const v1::Parameter& p : design.parameters()) header.push_back(ExportColumnName(p));
   for (const char* column : {"generation", "consumed_by", "use", "late", "worker", "reported_by", "reported_at",
-                             "lease_deadline"}) {
+                             "lease_deadline", "replicate_of"}) {
     header.emplace_back(column);
   }
   return header;
@@ -115,6 +115,7 @@ std::string TrialsExportCsv(const v1::CampaignDesign& design, const std::vector<
     row.push_back(t.reported_by());
     row.push_back(IsoUtcMillis(t.reported_at_unix_ms()));
     row.push_back(IsoUtcMillis(t.lease_deadline_unix_ms()));
+    row.push_back(t.replicate_of() > 0 ? StrCat(t.replicate_of()) : "");
     out += CsvRecord(row);
   }
   return out;
@@ -144,7 +145,8 @@ std::string TrialsExportJson(const v1::CampaignDesign& design, const std::vector
               ",\"use\":", or_null(std::string(OutcomeUseName(t.use()))), ",\"late\":", t.late() ? "true" : "false",
               ",\"worker\":", JsonString(t.worker()), ",\"reported_by\":", JsonString(t.reported_by()),
               ",\"reported_at\":", or_null(IsoUtcMillis(t.reported_at_unix_ms())),
-              ",\"lease_deadline\":", or_null(IsoUtcMillis(t.lease_deadline_unix_ms())), "}");
+              ",\"lease_deadline\":", or_null(IsoUtcMillis(t.lease_deadline_unix_ms())),
+              ",\"replicate_of\":", t.replicate_of() > 0 ? StrCat(t.replicate_of()) : "null", "}");
   }
   out += trials.empty() ? "]\n" : "\n]\n";
   return out;

@@ -58,6 +58,7 @@ def expected_record(trial):
         "late": trial["late"], "worker": trial["worker"], "reported_by": trial["reportedBy"],
         "reported_at": iso_millis(int(trial["reportedAtUnixMs"])),
         "lease_deadline": iso_millis(int(trial["leaseDeadlineUnixMs"])),
+        "replicate_of": int(trial.get("replicateOf", 0)) or None,
     }
 
 
@@ -68,7 +69,8 @@ def check_csv(raw, expected):
     rows = list(csv.reader(io.StringIO(text, newline=""), strict=True))
     header = rows[0]
     want = ["trial", "state", "outcome", "score", "grade", "note"] + [h for _, h, _ in PARAMETERS] + [
-        "generation", "consumed_by", "use", "late", "worker", "reported_by", "reported_at", "lease_deadline"]
+        "generation", "consumed_by", "use", "late", "worker", "reported_by", "reported_at", "lease_deadline",
+        "replicate_of"]
     fx.check(header == want, "CSV header %r, expected %r" % (header, want))
     fx.check(all(len(r) == len(header) for r in rows), "CSV records of different lengths")
     # Outside quoted fields, line breaks are exactly the CRLFs that end records.
@@ -98,6 +100,8 @@ def check_csv(raw, expected):
         fx.check(int(r["generation"]) == e["generation"], "%s: generation" % where)
         fx.check((int(r["consumed_by"]) if r["consumed_by"] else None) == e["consumed_by"], "%s: consumed_by" % where)
         fx.check(r["late"] == ("true" if e["late"] else "false"), "%s: late %r" % (where, r["late"]))
+        fx.check((int(r["replicate_of"]) if r["replicate_of"] else None) == e["replicate_of"],
+                 "%s: replicate_of %r" % (where, r["replicate_of"]))
         for name, column, kind in PARAMETERS:
             value = {"real": float, "integer": int, "categorical": str,
                      "flag": lambda s: {"true": True, "false": False}[s]}[kind](r[column])
