@@ -415,7 +415,7 @@ class Campaign::Planner {
       const int staleness = static_cast<int>(engine_.generation - t.generation);
       members.push_back({t.x, t.repaired || staleness > 0});
       outcomes.push_back(*t.outcome);
-      measured.push_back(Repeats(number));
+      measured.push_back(UsableMeasurements(number));
       staleness_sum += staleness;
       record.max_staleness = std::max(record.max_staleness, staleness);
     }
@@ -585,15 +585,26 @@ class Campaign::Planner {
     for (auto it = added_begin; it != added_end; ++it) group.push_back(it->second);
     return group;
   }
-  // The informative measurements of `original`'s candidate that this ranking may use: the original's
-  // own, then its replicates' that wait for it (a replicate reported after its original was used is
-  // not among them).
-  std::vector<search::Outcome> Repeats(int64_t original) const {
+  // The measurements of `original`'s candidate that a ranking may use: the original's own, then its
+  // replicates' that wait for it (one reported after its original was used is not among them).
+  std::vector<search::Outcome> UsableMeasurements(int64_t original) const {
     std::vector<search::Outcome> out;
     for (int64_t member : Group(original)) {
       const Trial& t = *Get(member);
       if (member == original || t.use == Use::kAwaitingReplicates) out.push_back(*t.outcome);
     }
+    return out;
+  }
+  // Every informative measurement of `original`'s candidate, best first.
+  std::vector<search::Outcome> AllMeasurementsBestFirst(int64_t original) const {
+    std::vector<search::Outcome> out;
+    for (int64_t member : Group(original)) {
+      const Trial& t = *Get(member);
+      if (t.outcome.has_value() && t.outcome->informative()) out.push_back(*t.outcome);
+    }
+    std::sort(out.begin(), out.end(), [&](const search::Outcome& a, const search::Outcome& b) {
+      return search::CompareOutcomes(a, b, campaign_.order_) < 0;
+    });
     return out;
   }
   struct GroupTally {
@@ -687,14 +698,7 @@ class Campaign::Planner {
   // measurement that reaches it asks for one more; a repeat that misses it withdraws the request.
   void CheckConfirmation(int64_t original, const search::Outcome& latest) {
     const search::Outcome& target = *campaign_.options_.target;
-    std::vector<search::Outcome> in;
-    for (int64_t member : Group(original)) {
-      const Trial& t = *Get(member);
-      if (t.outcome.has_value() && t.outcome->informative()) in.push_back(*t.outcome);
-    }
-    std::sort(in.begin(), in.end(), [&](const search::Outcome& a, const search::Outcome& b) {
-      return search::CompareOutcomes(a, b, campaign_.order_) < 0;
-    });
+    const std::vector<search::Outcome> in = AllMeasurementsBestFirst(original);
     const auto meets = [&](const search::Outcome& o) { return search::CompareOutcomes(o, target, campaign_.order_) <= 0; };
     if (in.size() >= 2 && meets(in[in.size() / 2])) {
       if (!confirmed_.has_value()) {

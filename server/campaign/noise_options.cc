@@ -1,6 +1,5 @@
 #include "server/campaign/noise_options.h"
 
-#include "absl/status/status.h"
 #include "absl/strings/ascii.h"
 #include "absl/strings/match.h"
 #include "absl/strings/numbers.h"
@@ -8,19 +7,7 @@
 
 namespace ogive::campaign {
 
-std::string NoiseOptions::ToText() const {
-  switch (mode) {
-    case NoiseMode::kOff:
-      return "off";
-    case NoiseMode::kAuto:
-      return "auto";
-    case NoiseMode::kReplicates:
-      return absl::StrCat("replicates:", replicates);
-  }
-  return "off";
-}
-
-absl::StatusOr<NoiseOptions> ParseNoise(absl::string_view text, absl::string_view field) {
+std::optional<NoiseOptions> ParseNoise(absl::string_view text) {
   const absl::string_view trimmed = absl::StripAsciiWhitespace(text);
   NoiseOptions options;
   if (trimmed.empty() || trimmed == "off") return options;
@@ -36,8 +23,12 @@ absl::StatusOr<NoiseOptions> ParseNoise(absl::string_view text, absl::string_vie
     options.replicates = k;
     return options;
   }
-  return absl::InvalidArgumentError(absl::StrCat(field, ": must be off, auto or replicates:K with K in 2..",
-                                                 NoiseOptions::kMaxMeasurements, ", got '", text, "'"));
+  return std::nullopt;
+}
+
+std::string NoiseRule(absl::string_view text) {
+  return absl::StrCat("must be off, auto or replicates:K with K in 2..", NoiseOptions::kMaxMeasurements, ", got '",
+                      text, "'");
 }
 
 }  // namespace ogive::campaign

@@ -6,7 +6,6 @@
 #include <optional>
 #include <string>
 
-#include "absl/status/statusor.h"
 #include "absl/strings/string_view.h"
 
 namespace ogive::campaign {
@@ -27,13 +26,13 @@ struct NoiseOptions {
 
   bool on() const { return mode != NoiseMode::kOff; }
   bool confirms_target() const { return confirm_target.value_or(on()); }
-  // "off", "auto", "replicates:3".
-  std::string ToText() const;
 };
 
-// Parses "off" (also ""), "auto" or "replicates:K" with K in 2..16. INVALID_ARGUMENT naming `field`
-// and the allowed values otherwise.
-absl::StatusOr<NoiseOptions> ParseNoise(absl::string_view text, absl::string_view field = "noise");
+// Parses "off" (also ""), "auto" or "replicates:K" with K in 2..16; nullopt for anything else.
+std::optional<NoiseOptions> ParseNoise(absl::string_view text);
+// The rule ParseNoise applies, for a refusal of `text`: "must be off, auto or replicates:K with K in
+// 2..16, got '<text>'". Callers prefix the field's path.
+std::string NoiseRule(absl::string_view text);
 
 }  // namespace ogive::campaign
 

@@ -2,6 +2,7 @@
 
 #include <cmath>
 #include <memory>
+#include <optional>
 
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
@@ -98,8 +99,8 @@ absl::StatusOr<campaign::CampaignOptions> CampaignOptionsFromDesign(const v1::Ca
   }
   if (design.lease_seconds() > 0) options.default_lease = absl::Seconds(design.lease_seconds());
   options.restarts = design.restarts();
-  absl::StatusOr<campaign::NoiseOptions> noise = campaign::ParseNoise(design.noise());
-  if (!noise.ok()) return noise.status();
+  const std::optional<campaign::NoiseOptions> noise = campaign::ParseNoise(design.noise());
+  if (!noise.has_value()) return absl::InvalidArgumentError(absl::StrCat("noise: ", campaign::NoiseRule(design.noise())));
   options.noise = *noise;
   if (design.has_confirm_target()) options.noise.confirm_target = design.confirm_target();
   options.grade_labels.assign(design.objective().grade_scale().labels().begin(),

@@ -205,7 +205,9 @@ TEST(StateCodec, InconsistentSizesAreRefused) {
 }
 
 // Drives a campaign with three workers on the kiln design: asks, out-of-order reports, a void, a lapse.
-void Drive(campaign::Campaign& s, absl::Time& now, int steps) {
+// With `noisy`, each measurement carries a scatter far above the spread of the objective, so repeated
+// measurements of one candidate reorder the ranking.
+void Drive(campaign::Campaign& s, absl::Time& now, int steps, bool noisy = false) {
   for (int k = 0; k < steps; ++k) {
     now += absl::Minutes(7);
     absl::StatusOr<std::vector<campaign::Trial>> asked = s.Ask(3, "node-" + std::to_string(k % 3), absl::Minutes(30), now);
@@ -214,7 +216,8 @@ void Drive(campaign::Campaign& s, absl::Time& now, int steps) {
     for (size_t i = 0; i < asked->size(); ++i) {
       const campaign::Trial& t = (*asked)[asked->size() - 1 - i];
       if ((t.number % 11) == 0) continue;  // never reported: lapses later
-      const double f = (t.x.head(3).array() - 0.4).square().sum() + t.x[3];
+      const double f = (t.x.head(3).array() - 0.4).square().sum() + t.x[3] +
+                       (noisy ? 10 * std::sin(12.9898 * static_cast<double>(t.number)) : 0.0);
       reports.push_back({t.number, (t.number % 7) == 0 ? search::Outcome::Void() : search::Outcome::Score(f), "n"});
     }
     if (!reports.empty()) {
@@ -251,6 +254,56 @@ TEST(CampaignCodec, SnapshotThroughTheWireContinuesBitIdentically) {
             SnapshotToProto(restored->Snapshot()).SerializeAsString());
 }
 
+// The same through the wire with noise handling: replicates, originals waiting for them, the noise
+// measure, the grown population, the stagnation reference and a target waiting for confirmation are
+// all in the stored records, so the restored campaign continues bit-identically.
+TEST(CampaignCodec, SnapshotWithNoiseHandlingThroughTheWireContinuesBitIdentically) {
+  for (const char* noise : {"auto", "replicates:3"}) {
+    SCOPED_TRACE(noise);
+    v1::CampaignDesign design = ParseDesign(kMixedDesign);
+    design.set_noise(noise);
+    design.set_target(-9.5);
+    const search::Space space = *SpaceFromDesign(design);
+    const search::OutcomeOrder order = *OrderFromObjective(design.objective());
+    const search::DistributionOptions options = *DistributionOptionsFromDesign(design, space);
+    campaign::CampaignOptions campaign_options = *CampaignOptionsFromDesign(design);
+    campaign_options.seed = 5;
+    campaign::Campaign original = *campaign::Campaign::Create(space, order, options, campaign_options);
+    absl::Time now = absl::FromUnixSeconds(1700000000);
+    Drive(original, now, 80, /*noisy=*/true);
+    ASSERT_EQ(original.engine().phase, campaign::Phase::kOpen);
+    ASSERT_GT(original.engine().generation, 3);
+    int replicates = 0, wanted = 0;
+    for (const campaign::Trial& t : original.trials()) {
+      replicates += t.replicate_of != 0;
+      wanted += t.replicates_wanted;
+    }
+    EXPECT_GT(replicates, 0);
+    EXPECT_GT(wanted, 0);
+    EXPECT_NE(original.engine().noise_rank_change, 0);
+    if (std::strcmp(noise, "auto") == 0) {  // the stagnation reference and the growth are auto's
+      EXPECT_GT(original.engine().stagnation_trial, 0);
+      EXPECT_GT(original.engine().stagnation_generation, 0);
+      EXPECT_GT(original.engine().noise_population, 0);
+    }
+
+    v1::CampaignSnapshot parsed;
+    ASSERT_TRUE(parsed.ParseFromString(SnapshotToProto(original.Snapshot()).SerializeAsString()));
+    absl::StatusOr<campaign::CampaignSnapshot> snapshot = SnapshotFromProto(parsed, space);
+    ASSERT_TRUE(snapshot.ok()) << snapshot.status();
+    absl::StatusOr<campaign::Campaign> restored =
+        campaign::Campaign::Restore(space, order, options, campaign_options, *snapshot);
+    ASSERT_TRUE(restored.ok()) << restored.status();
+    EXPECT_EQ(restored->counts().awaiting_replicates, original.counts().awaiting_replicates);
+
+    absl::Time now_copy = now;
+    Drive(original, now, 25, /*noisy=*/true);
+    Drive(*restored, now_copy, 25, /*noisy=*/true);
+    EXPECT_EQ(SnapshotToProto(original.Snapshot()).SerializeAsString(),
+              SnapshotToProto(restored->Snapshot()).SerializeAsString());
+  }
+}
+
 TEST(CampaignCodec, TheReporterOfATrialRoundTrips) {
   campaign::Trial t;
   t.number = 4;
@@ -283,6 +336,18 @@ TEST(CampaignCodec, DesignEngineSettings) {
   design.clear_target_grade();
   design.set_staleness_limit(-1);
   EXPECT_THAT(std::string(CampaignOptionsFromDesign(design).status().message()), HasSubstr("staleness_limit"));
+  design.set_staleness_limit(0);
+  design.set_noise("replicates:4");
+  options = CampaignOptionsFromDesign(design);
+  ASSERT_TRUE(options.ok()) << options.status();
+  EXPECT_EQ(options->noise.mode, campaign::NoiseMode::kReplicates);
+  EXPECT_EQ(options->noise.replicates, 4);
+  EXPECT_TRUE(options->noise.confirms_target());  // unset: on with noise handling
+  design.set_confirm_target(false);
+  EXPECT_FALSE(CampaignOptionsFromDesign(design)->noise.confirms_target());
+  design.set_noise("loud");
+  EXPECT_THAT(std::string(CampaignOptionsFromDesign(design).status().message()),
+              HasSubstr("noise: must be off, auto or replicates:K with K in 2..16, got 'loud'"));
 }
 
 }  // namespace

@@ -335,8 +335,8 @@ absl::Status ValidateDesignShape(const v1::CampaignDesign& design, const Service
   if (design.staleness_limit() < 0) {
     return InvalidField("design.staleness_limit", StrCat("must be >= 0 (0 = the default), got ", design.staleness_limit()));
   }
-  if (absl::StatusOr<campaign::NoiseOptions> noise = campaign::ParseNoise(design.noise(), "design.noise"); !noise.ok()) {
-    return InvalidField("design.noise", std::string(noise.status().message().substr(std::string("design.noise: ").size())));
+  if (!campaign::ParseNoise(design.noise()).has_value()) {
+    return InvalidField("design.noise", campaign::NoiseRule(design.noise()));
   }
   if (design.trial_budget() < 0) {
     return InvalidField("design.trial_budget", StrCat("must be >= 0 (0 = no budget), got ", design.trial_budget()));
