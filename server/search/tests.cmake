@@ -8,3 +8,4 @@ ogive_add_test(NAME bernoulli_family_test SOURCES bernoulli_family_test.cc LIBS 
 ogive_add_test(NAME categorical_family_test SOURCES categorical_family_test.cc LIBS ogive_search)
 ogive_add_test(NAME search_distribution_test SOURCES search_distribution_test.cc LIBS ogive_search)
 ogive_add_test(NAME rank_change_test SOURCES rank_change_test.cc LIBS ogive_search)
+ogive_add_test(NAME ordinal_model_test SOURCES ordinal_model_test.cc LIBS ogive_search)
