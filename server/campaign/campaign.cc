@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <iterator>
+#include <limits>
 #include <map>
 #include <string>
 #include <utility>
@@ -12,6 +13,7 @@
 #include "absl/strings/str_cat.h"
 #include "server/base/check.h"
 #include "server/base/reason.h"
+#include "server/campaign/surrogate_step.h"
 #include "server/campaign/termination.h"
 #include "server/search/rank_change.h"
 
@@ -57,6 +59,39 @@ void HoldSpreadWithinTheBox(search::SearchDistribution& d) {
   if (!d.gaussian()) return;
   const double spread = d.gaussian()->LargestSpread();
   if (spread > Campaign::kMaxStepSpread) d.ScaleStepSize(Campaign::kMaxStepSpread / spread);
+}
+
+
+// The model covers campaigns whose parameters are all real or integer (surrogate_step.h).
+bool ModelApplies(const search::Space& space, const CampaignOptions& options) {
+  return options.surrogate && !space.gaussian_indices().empty() &&
+         space.gaussian_indices().size() == static_cast<size_t>(space.size());
+}
+
+// The real and integer coordinates of an internal sample: what the model takes.
+Eigen::VectorXd ModelCoordinates(const search::Space& space, const Eigen::VectorXd& x) {
+  const std::vector<int>& coordinates = space.gaussian_indices();
+  Eigen::VectorXd y(coordinates.size());
+  for (size_t k = 0; k < coordinates.size(); ++k) y[k] = x[coordinates[k]];
+  return y;
+}
+
+// The model's window: the most recent originals of the distribution's epoch that an update consumed,
+// newest first, ModelWindow() of them at most. Trials are numbered in the order they were leased and
+// epochs only grow, so the scan stops at the first trial of an older epoch. The same records give the
+// same window, in memory and after a restore.
+template <typename GetTrial>
+std::vector<ModelPoint> ModelWindowPoints(const search::Space& space, GetTrial get, int64_t last_trial, int64_t epoch,
+                                          const search::SearchDistribution& d) {
+  const int size = ModelWindow(static_cast<int>(space.gaussian_indices().size()), d.population_size());
+  std::vector<ModelPoint> window;
+  for (int64_t number = last_trial; number >= 1 && static_cast<int>(window.size()) < size; --number) {
+    const Trial& t = *get(number);
+    if (t.epoch < epoch) break;
+    if (t.use != Use::kConsumed || t.replicate_of != 0 || !t.outcome.has_value()) continue;
+    window.push_back({ModelCoordinates(space, t.x), *t.outcome});
+  }
+  return window;
 }
 
 }  // namespace
@@ -181,6 +216,21 @@ class Campaign::Planner {
     }
   }
 
+  // The model's pick among `draws` samples of the distribution: the one the model ranks best.
+  search::Draw Screen(int draws, search::RandomStream& random) {
+    std::optional<search::Draw> best;
+    double best_value = 0;
+    for (int k = 0; k < draws; ++k) {
+      search::Draw draw = engine_.distribution->Sample(random);
+      const double value = engine_.model->Predict(ModelCoordinates(campaign_.space_, draw.x));
+      if (!best.has_value() || value < best_value) {
+        best = std::move(draw);
+        best_value = value;
+      }
+    }
+    return *std::move(best);
+  }
+
   std::vector<int64_t> AddTrials(int count, const std::string& worker, absl::Duration lease) {
     search::RandomStream random = search::RandomStream::FromState(engine_.random);
     std::vector<int64_t> numbers;
@@ -197,11 +247,19 @@ class Campaign::Planner {
         t.replicate_of = source;
         added_replicates_.emplace(source, t.number);
       } else {
-        const search::Draw draw = engine_.distribution->Sample(random);
+        // The first candidate of each generation is the model's pick (surrogate_step.h).
+        const Trial* previous = Get(t.number - 1);
+        const bool first_of_generation = previous == nullptr || previous->generation != engine_.generation ||
+                                         previous->epoch != engine_.epoch;
+        const int draws = engine_.model != nullptr && first_of_generation
+                              ? ScreeningDraws(engine_.model_agreement, engine_.distribution->population_size())
+                              : 1;
+        const search::Draw draw = draws > 1 ? Screen(draws, random) : engine_.distribution->Sample(random);
         t.generation = engine_.generation;
         t.epoch = engine_.epoch;
         t.x = draw.x;
         t.repaired = draw.repaired;
+        t.screened_from = draws > 1 ? draws : 0;
       }
       t.state = TrialState::kLeased;
       t.worker = worker;
@@ -413,7 +471,7 @@ class Campaign::Planner {
       const Trial& t = *Get(number);
       durations.push_back(std::max(0.0, absl::ToDoubleSeconds(t.reported_at - t.leased_at)));
       const int staleness = static_cast<int>(engine_.generation - t.generation);
-      members.push_back({t.x, t.repaired || staleness > 0});
+      members.push_back({t.x, t.repaired || staleness > 0 || t.screened_from > 1});
       outcomes.push_back(*t.outcome);
       measured.push_back(UsableMeasurements(number));
       staleness_sum += staleness;
@@ -466,6 +524,7 @@ class Campaign::Planner {
       MeasureNoise(outcomes, measured, next);
       HoldSpreadWithinTheBox(next);
       AdaptPopulation(next);
+      ModelStep(cohort, next);
       converged = ConvergenceReason(next, engine_.flat_generations, engine_.sigma0);
       if (!converged.has_value()) converged = Stagnation(cohort, outcomes, next);
       engine_.distribution = std::make_shared<const search::SearchDistribution>(std::move(next));
@@ -479,6 +538,34 @@ class Campaign::Planner {
     record.best_trial = engine_.best_trial;
     generations_.push_back(std::move(record));
     if (converged.has_value()) RestartOrStop(*converged);
+  }
+
+  // The surrogate's part of an update (surrogate_step.h): τ_b of the model on this cohort, a refit,
+  // model-ranked updates as far as τ_b allows, and a refit in the coordinates the update ends with.
+  void ModelStep(const std::vector<int64_t>& cohort, search::SearchDistribution& next) {
+    if (!ModelApplies(campaign_.space_, campaign_.options_) || !next.gaussian().has_value()) return;
+    const auto get = [this](int64_t number) { return Get(number); };
+    const std::vector<ModelPoint> window =
+        ModelWindowPoints(campaign_.space_, get, engine_.next_trial - 1, engine_.epoch, next);
+    double tau = std::numeric_limits<double>::quiet_NaN();
+    if (engine_.model != nullptr) {
+      std::vector<ModelPoint> members;
+      for (int64_t number : cohort) {
+        const Trial& t = *Get(number);
+        members.push_back({ModelCoordinates(campaign_.space_, t.x), *t.outcome});
+      }
+      tau = ModelAgreement(*engine_.model, members, campaign_.order_);
+    }
+    if (!std::isnan(tau)) engine_.model_agreement = tau;
+    engine_.model = FitModel(*next.gaussian(), window, campaign_.order_);
+    const int updates = ModelRankedUpdates(engine_.model_agreement, next.population_size());
+    if (engine_.model == nullptr || updates == 0) return;
+    search::RandomStream random = search::RandomStream::FromState(engine_.random);
+    const int made = AdvanceByModel(next, *engine_.model, updates, random);
+    engine_.random = random.state();
+    if (made == 0) return;
+    HoldSpreadWithinTheBox(next);
+    engine_.model = FitModel(*next.gaussian(), window, campaign_.order_);
   }
 
   // A cohort tied below the top of the scale (one grade that is not the best, or all infeasible)
@@ -534,6 +621,8 @@ class Campaign::Planner {
     engine_.random = random.state();
     engine_.distribution = std::make_shared<const search::SearchDistribution>(*std::move(fresh));
     ++engine_.epoch;
+    engine_.model = nullptr;  // the new epoch learns its own
+    engine_.model_agreement = 0;
     engine_.flat_generations = 0;
     engine_.epoch_best_trial = 0;
     engine_.last_mixed_generation = 0;
@@ -848,6 +937,15 @@ absl::StatusOr<Campaign> Campaign::Restore(search::Space space, search::OutcomeO
     campaign.Count(t, +1);
     campaign.Index(t);
     if (t.replicate_of != 0) campaign.replicates_.emplace(t.replicate_of, t.number);
+  }
+  // The model is not stored: it is a function of the records and the distribution (surrogate_step.h).
+  const search::SearchDistribution& d = *campaign.engine_.distribution;
+  if (ModelApplies(campaign.space_, campaign.options_) && d.gaussian().has_value()) {
+    const auto get = [&campaign](int64_t number) { return campaign.trial(number); };
+    campaign.engine_.model = FitModel(
+        *d.gaussian(),
+        ModelWindowPoints(campaign.space_, get, campaign.engine_.next_trial - 1, campaign.engine_.epoch, d),
+        campaign.order_);
   }
   return campaign;
 }

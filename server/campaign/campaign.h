@@ -29,6 +29,7 @@
 #include "absl/strings/string_view.h"
 #include "absl/time/time.h"
 #include "absl/types/span.h"
+#include "server/search/ordinal_model.h"
 #include "server/search/random_stream.h"
 #include "server/search/search_distribution.h"
 #include "server/campaign/campaign_options.h"
@@ -70,6 +71,10 @@ struct EngineState {
   int64_t confirm_trial = 0;     // met the target once; waits for a confirming measurement (0: none)
   int64_t stagnation_trial = 0;       // noise: auto: the cohort median the next must beat (0: none yet)
   int64_t stagnation_generation = 0;  // the update that cohort median came from
+  // The surrogate (surrogate_step.h) fitted at the last update, nullptr for none. Not stored: a
+  // function of the trial records and the distribution, rebuilt by Restore().
+  std::shared_ptr<const search::OrdinalModel> model;
+  double model_agreement = 0;  // τ_b of the model on the last cohort where it was defined (0: none)
 };
 
 // One update, for history and plots.

@@ -30,4 +30,11 @@ absl::Status CampaignOptions::Validate() const {
   return absl::OkStatus();
 }
 
+std::optional<bool> ParseModel(const std::string& value, int real_and_integer_parameters, bool graded) {
+  if (value.empty() || value == "auto") return !graded && real_and_integer_parameters <= kAutoModelDimension;
+  if (value == "on") return true;
+  if (value == "off") return false;
+  return std::nullopt;
+}
+
 }  // namespace ogive::campaign

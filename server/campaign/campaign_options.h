@@ -25,6 +25,15 @@ inline constexpr absl::Duration kDefaultLease = absl::Hours(1);
 // design may not ask for more (the service's validation takes this constant).
 inline constexpr int kMaxPopulationSize = 4096;
 
+// The design's `model` values: "auto" (or empty) uses the model for scored campaigns whose real and
+// integer block has at most kAutoModelDimension parameters (a refit there costs a few milliseconds;
+// beyond, tens), "on" for any campaign, "off" never. Graded campaigns use it only with "on": on the
+// graded rows of ogive-bench-search it moved successes between rows without adding any
+// (docs/benchmarks.md). Returns nullopt for any other value.
+inline constexpr int kAutoModelDimension = 10;
+std::optional<bool> ParseModel(const std::string& value, int real_and_integer_parameters, bool graded);
+inline constexpr const char* kModelRule = "must be one of \"auto\" (or empty), \"on\", \"off\"";
+
 struct CampaignOptions {
   uint64_t seed = 0;
   int staleness_limit = kDefaultStalenessLimit;  // generations; >= 0
@@ -41,6 +50,9 @@ struct CampaignOptions {
   // refusal names a grade as the technician wrote it, not by its place on the scale.
   std::vector<std::string> grade_labels;
   NoiseOptions noise;  // measurement noise handling; off by default
+  // Use an ordinal model of the outcomes between true updates (surrogate_step.h). Only campaigns
+  // whose parameters are all real or integer use it.
+  bool surrogate = false;
 
   // INVALID_ARGUMENT naming the field when a value is out of range.
   absl::Status Validate() const;

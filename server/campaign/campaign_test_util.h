@@ -146,6 +146,7 @@ inline void ExpectSameEngine(const EngineState& a, const EngineState& b) {
   EXPECT_EQ(a.confirm_trial, b.confirm_trial);
   EXPECT_EQ(a.stagnation_trial, b.stagnation_trial);
   EXPECT_EQ(a.stagnation_generation, b.stagnation_generation);
+  EXPECT_EQ(a.model_agreement, b.model_agreement);
   ASSERT_NE(a.distribution, nullptr);
   ASSERT_NE(b.distribution, nullptr);
   ExpectSameDistribution(a.distribution->state(), b.distribution->state());
@@ -176,6 +177,7 @@ inline void ExpectSameTrial(const Trial& a, const Trial& b) {
   EXPECT_EQ(a.consumed_by, b.consumed_by);
   EXPECT_EQ(a.replicate_of, b.replicate_of);
   EXPECT_EQ(a.replicates_wanted, b.replicates_wanted);
+  EXPECT_EQ(a.screened_from, b.screened_from);
 }
 
 inline void ExpectSameCampaign(const Campaign& a, const Campaign& b) {

@@ -10,3 +10,5 @@ ogive_add_test(NAME termination_reach_test SOURCES termination_reach_test.cc
                LIBS ogive_campaign ogive_test_support)
 ogive_add_test(NAME campaign_noise_test SOURCES campaign_noise_test.cc
                LIBS ogive_campaign ogive_test_support)
+ogive_add_test(NAME campaign_surrogate_test SOURCES campaign_surrogate_test.cc
+               LIBS ogive_campaign ogive_test_support)

@@ -51,6 +51,10 @@ struct Trial {
   // An original waits (Use::kAwaitingReplicates) until 1 + replicates_wanted measurements are in.
   int64_t replicate_of = 0;     // 0: an original
   int replicates_wanted = 0;    // originals only
+  // The surrogate (docs/math.md, "A surrogate of the ranking"): the candidate is the model's pick
+  // among this many draws from the distribution (0: drawn plainly). A picked candidate is not a plain
+  // sample of the distribution, so its update treats it as an injected one.
+  int screened_from = 0;
 };
 
 // One report from a worker.

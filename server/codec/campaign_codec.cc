@@ -103,6 +103,17 @@ absl::StatusOr<campaign::CampaignOptions> CampaignOptionsFromDesign(const v1::Ca
   if (!noise.has_value()) return absl::InvalidArgumentError(absl::StrCat("noise: ", campaign::NoiseRule(design.noise())));
   options.noise = *noise;
   if (design.has_confirm_target()) options.noise.confirm_target = design.confirm_target();
+  {
+    int real_and_integer = 0;
+    for (const auto& parameter : design.parameters()) {
+      real_and_integer += parameter.has_real() || parameter.has_integer() ? 1 : 0;
+    }
+    const std::optional<bool> model = campaign::ParseModel(design.model(), real_and_integer, design.objective().has_grade_scale());
+    if (!model.has_value()) {
+      return absl::InvalidArgumentError(absl::StrCat("model: ", campaign::kModelRule, ", got \"", design.model(), "\""));
+    }
+    options.surrogate = *model;
+  }
   options.grade_labels.assign(design.objective().grade_scale().labels().begin(),
                               design.objective().grade_scale().labels().end());
   if (design.has_target() && design.has_target_grade()) {
@@ -164,6 +175,7 @@ v1::TrialRecord TrialToProto(const campaign::Trial& t) {
   r.set_consumed_by(t.consumed_by);
   r.set_replicate_of(t.replicate_of);
   r.set_replicates_wanted(t.replicates_wanted);
+  r.set_screened_from(t.screened_from);
   return r;
 }
 
@@ -208,6 +220,10 @@ absl::StatusOr<campaign::Trial> TrialFromProto(const v1::TrialRecord& r) {
   t.consumed_by = r.consumed_by();
   t.replicate_of = r.replicate_of();
   t.replicates_wanted = r.replicates_wanted();
+  t.screened_from = r.screened_from();
+  if (t.screened_from < 0) {
+    return absl::DataLossError(absl::StrCat("trial record: screened_from is negative: ", t.screened_from));
+  }
   if (t.replicates_wanted < 0 || t.replicates_wanted >= campaign::NoiseOptions::kMaxMeasurements) {
     return absl::DataLossError(absl::StrCat("trial record: replicates_wanted out of range: ", t.replicates_wanted));
   }
@@ -270,6 +286,7 @@ v1::EngineState EngineStateToProto(const campaign::EngineState& e, bool include_
   p.set_confirm_trial(e.confirm_trial);
   p.set_stagnation_trial(e.stagnation_trial);
   p.set_stagnation_generation(e.stagnation_generation);
+  p.set_model_agreement(e.model_agreement);
   return p;
 }
 
@@ -331,6 +348,10 @@ absl::StatusOr<campaign::EngineState> EngineStateFromProto(const v1::EngineState
   e.confirm_trial = p.confirm_trial();
   e.stagnation_trial = p.stagnation_trial();
   e.stagnation_generation = p.stagnation_generation();
+  e.model_agreement = p.model_agreement();
+  if (!(e.model_agreement >= -1 && e.model_agreement <= 1)) {
+    return absl::DataLossError(absl::StrCat("engine state: model_agreement must be in [-1, 1], got ", e.model_agreement));
+  }
   if (!std::isfinite(e.noise_rank_change) || e.noise_population < 0 ||
       e.noise_population > campaign::kMaxPopulationSize || !(e.replicate_credit >= 0) ||
       e.replicate_credit >= 1 || e.confirm_trial < 0 || e.stagnation_trial < 0 ||

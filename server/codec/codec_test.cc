@@ -22,6 +22,16 @@ v1::CampaignDesign ParseDesign(const std::string& text) {
   return design;
 }
 
+// A solver-farm style design: real and integer parameters only, so `model: auto` uses the surrogate.
+constexpr char kSolverDesign[] = R"pb(
+  name: "solver-farm"
+  parameters { name: "relaxation" real { low: 0.1 high: 1.9 } }
+  parameters { name: "tolerance" real { low: 1e-9 high: 1e-3 log: true } }
+  parameters { name: "smoothing_steps" integer { low: 1 high: 8 } }
+  parameters { name: "coarsening" real { low: 0.05 high: 0.6 } }
+  objective { direction: DIRECTION_LOWER_IS_BETTER }
+)pb";
+
 // A kiln-firing style mixed design: every parameter kind.
 constexpr char kMixedDesign[] = R"pb(
   name: "kiln-glaze"
@@ -316,6 +326,66 @@ TEST(CampaignCodec, TheReporterOfATrialRoundTrips) {
   absl::StatusOr<campaign::Trial> back = TrialFromProto(record);
   ASSERT_TRUE(back.ok()) << back.status();
   EXPECT_EQ(back->reported_by, "farm-a");
+}
+
+// The same through the wire with the surrogate: the picked candidates (screened_from) and the model's
+// agreement are stored, the model itself is rebuilt from the records, and the restored campaign
+// continues bit-identically.
+TEST(CampaignCodec, SnapshotWithTheSurrogateThroughTheWireContinuesBitIdentically) {
+  const v1::CampaignDesign design = ParseDesign(kSolverDesign);  // model unset: auto
+  const search::Space space = *SpaceFromDesign(design);
+  const search::OutcomeOrder order = *OrderFromObjective(design.objective());
+  const search::DistributionOptions options = *DistributionOptionsFromDesign(design, space);
+  campaign::CampaignOptions campaign_options = *CampaignOptionsFromDesign(design);
+  ASSERT_TRUE(campaign_options.surrogate);
+  campaign_options.seed = 17;
+  campaign_options.restarts = true;  // the drive's function is linear in one coordinate: C degenerates
+  campaign::Campaign original = *campaign::Campaign::Create(space, order, options, campaign_options);
+  absl::Time now = absl::FromUnixSeconds(1700000000);
+  Drive(original, now, 40);
+  int screened = 0;
+  for (const campaign::Trial& t : original.trials()) screened += t.screened_from > 1;
+  EXPECT_GT(screened, 0);
+  EXPECT_GT(original.engine().model_agreement, 0);
+
+  v1::CampaignSnapshot parsed;
+  ASSERT_TRUE(parsed.ParseFromString(SnapshotToProto(original.Snapshot()).SerializeAsString()));
+  absl::StatusOr<campaign::CampaignSnapshot> snapshot = SnapshotFromProto(parsed, space);
+  ASSERT_TRUE(snapshot.ok()) << snapshot.status();
+  absl::StatusOr<campaign::Campaign> restored =
+      campaign::Campaign::Restore(space, order, options, campaign_options, *snapshot);
+  ASSERT_TRUE(restored.ok()) << restored.status();
+  absl::Time now_copy = now;
+  Drive(original, now, 30);
+  Drive(*restored, now_copy, 30);
+  EXPECT_EQ(SnapshotToProto(original.Snapshot()).SerializeAsString(),
+            SnapshotToProto(restored->Snapshot()).SerializeAsString());
+}
+
+TEST(CampaignCodec, DesignModelSetting) {
+  v1::CampaignDesign solver = ParseDesign(kSolverDesign);
+  EXPECT_TRUE(CampaignOptionsFromDesign(solver)->surrogate);  // auto: 4 real and integer parameters
+  solver.set_model("off");
+  EXPECT_FALSE(CampaignOptionsFromDesign(solver)->surrogate);
+  solver.clear_model();
+  solver.mutable_objective()->mutable_grade_scale()->add_labels("poor");
+  solver.mutable_objective()->mutable_grade_scale()->add_labels("good");
+  EXPECT_FALSE(CampaignOptionsFromDesign(solver)->surrogate);  // auto: graded campaigns only with "on"
+  solver.set_model("on");
+  EXPECT_TRUE(CampaignOptionsFromDesign(solver)->surrogate);
+  v1::CampaignDesign wide = ParseDesign(kSolverDesign);
+  for (int k = 0; k < 8; ++k) {
+    v1::Parameter* p = wide.add_parameters();
+    p->set_name("extra_" + std::to_string(k));
+    p->mutable_real()->set_low(0);
+    p->mutable_real()->set_high(1);
+  }
+  EXPECT_FALSE(CampaignOptionsFromDesign(wide)->surrogate);  // auto stops at 10
+  wide.set_model("on");
+  EXPECT_TRUE(CampaignOptionsFromDesign(wide)->surrogate);
+  wide.set_model("maybe");
+  EXPECT_THAT(std::string(CampaignOptionsFromDesign(wide).status().message()),
+              HasSubstr("model: must be one of \"auto\" (or empty), \"on\", \"off\", got \"maybe\""));
 }
 
 TEST(CampaignCodec, DesignEngineSettings) {

@@ -338,6 +338,9 @@ absl::Status ValidateDesignShape(const v1::CampaignDesign& design, const Service
   if (!campaign::ParseNoise(design.noise()).has_value()) {
     return InvalidField("design.noise", campaign::NoiseRule(design.noise()));
   }
+  if (!campaign::ParseModel(design.model(), 0, false).has_value()) {
+    return InvalidField("design.model", StrCat(campaign::kModelRule, ", got \"", design.model(), "\""));
+  }
   if (design.trial_budget() < 0) {
     return InvalidField("design.trial_budget", StrCat("must be >= 0 (0 = no budget), got ", design.trial_budget()));
   }

@@ -35,6 +35,7 @@ parameters { name: "x" real { low: -5 high: 5 } }
 parameters { name: "y" real { low: -5 high: 5 } }
 objective { direction: DIRECTION_LOWER_IS_BETTER }
 trial_budget: 600
+restarts: true  # the sphere converges well before 600 outcomes; restarts keep the load on to the budget
 seed: 5
 lease_seconds: 60
 DESIGN

@@ -1444,6 +1444,9 @@ TEST_F(ServiceTest, MalformedDesignsAreRefusedNamingTheField) {
       {"too many replicates",
        [](v1::CampaignDesign& d) { d.set_noise("replicates:17"); },
        {"design.noise", "replicates:K with K in 2..16"}},
+      {"model not one of the modes",
+       [](v1::CampaignDesign& d) { d.set_model("yes"); },
+       {"design.model", "must be one of \"auto\" (or empty), \"on\", \"off\"", "\"yes\""}},
   };
   for (const BadDesignCase& c : cases) {
     SCOPED_TRACE(c.what);
