@@ -182,14 +182,31 @@ class Campaign::Planner {
   // so the count reads only the trials leased in that window.
   int64_t live_outstanding() const {
     if (engine_.evaluation_seconds <= 0) return outstanding();
-    const absl::Time since = now_ - absl::Seconds(kLiveEvaluations * engine_.evaluation_seconds);
     int64_t live = 0;
+    ForEachLiveTrialOut([&live](const Trial&) { ++live; });
+    return live;
+  }
+
+  // Calls fn(trial) for every trial live_outstanding() counts: this plan's new trials and the
+  // campaign's leases as the plan sees them.
+  template <typename Fn>
+  void ForEachLiveTrialOut(Fn fn) const {
+    if (engine_.evaluation_seconds <= 0) {
+      for (const auto& [deadline, number] : campaign_.leases_) {
+        if (const Trial* t = Get(number); t->state == TrialState::kLeased) fn(*t);
+      }
+      for (const auto& [number, t] : overlay_) {
+        if (campaign_.trial(number) == nullptr && t.state == TrialState::kLeased) fn(t);
+      }
+      return;
+    }
+    const absl::Time since = now_ - absl::Seconds(kLiveEvaluations * engine_.evaluation_seconds);
     for (int64_t number = engine_.next_trial - 1; number >= 1; --number) {
       const Trial* t = Get(number);
+      if (t == nullptr) continue;  // the trial an Ask is making now
       if (t->leased_at <= since) break;
-      if (t->state == TrialState::kLeased) ++live;
+      if (t->state == TrialState::kLeased) fn(*t);
     }
-    return live;
   }
 
   // Raises the peak to the live trials out now. Live trials are a subset of those out, so the scan
@@ -216,19 +233,37 @@ class Campaign::Planner {
     }
   }
 
-  // The model's pick among `draws` samples of the distribution: the one the model ranks best.
+  // The model's pick among `draws` samples of the distribution: the one the model ranks best among
+  // those at least kPickSeparation σ-units (Mahalanobis, in the current distribution) from every live
+  // trial out. The model has not seen those outcomes yet, so a pick next to one would spend a second
+  // evaluation where the first is about to tell the same; with several workers the previous
+  // generation's pick is often still out (surrogate_step.h). When every draw is that close, the
+  // model's best of all.
   search::Draw Screen(int draws, search::RandomStream& random) {
-    std::optional<search::Draw> best;
-    double best_value = 0;
+    const search::GaussianFamily& g = *engine_.distribution->gaussian();
+    std::vector<Eigen::VectorXd> pending;  // steps of the live trials out, in the distribution's metric
+    ForEachLiveTrialOut([&](const Trial& t) {
+      pending.push_back(g.StepOf(ModelCoordinates(campaign_.space_, t.x), false));
+    });
+    std::optional<search::Draw> best, best_apart;
+    double best_value = 0, best_apart_value = 0;
     for (int k = 0; k < draws; ++k) {
       search::Draw draw = engine_.distribution->Sample(random);
-      const double value = engine_.model->Predict(ModelCoordinates(campaign_.space_, draw.x));
+      const Eigen::VectorXd y = ModelCoordinates(campaign_.space_, draw.x);
+      const double value = engine_.model->Predict(y);
+      const Eigen::VectorXd step = g.StepOf(y, false);
+      bool apart = true;
+      for (const Eigen::VectorXd& p : pending) apart = apart && g.MahalanobisNorm(step - p) >= kPickSeparation;
+      if (apart && (!best_apart.has_value() || value < best_apart_value)) {
+        best_apart = draw;
+        best_apart_value = value;
+      }
       if (!best.has_value() || value < best_value) {
         best = std::move(draw);
         best_value = value;
       }
     }
-    return *std::move(best);
+    return best_apart.has_value() ? *std::move(best_apart) : *std::move(best);
   }
 
   std::vector<int64_t> AddTrials(int count, const std::string& worker, absl::Duration lease) {

@@ -70,6 +70,13 @@ int ModelRankedUpdates(double tau, int lambda);
 inline constexpr int kScreeningDrawsPerMember = 10;
 int ScreeningDraws(double tau, int lambda);
 
+// Trials still out count in the pick: it is the model's best among the draws at least this far
+// (Mahalanobis distance in σ-units of the current distribution) from every live trial out, whose
+// outcomes the model has not seen. Two independent samples lie about √(2n) apart; within one unit of
+// a given sample fall under 4% of the draws in n = 5 (χ²₅ at 1), so the rule removes only the draws
+// that would repeat a pending evaluation (our choice; a kriging believer or a penalty would serve too).
+inline constexpr double kPickSeparation = 1.0;
+
 // Makes up to `updates` model-ranked updates of the Gaussian block of `d`: each draws λ samples from
 // `random`, ranks them by `model` and updates. Stops early when the mean would leave the ellipsoid of
 // Mahalanobis radius c_y = √n + 2n/(n + 2) around the mean the updates started from (in the starting
