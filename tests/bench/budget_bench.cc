@@ -15,6 +15,11 @@
 //   uniform    uniform random points in the box.
 // Rows give the median and quartiles over seeds (log10) and off/model as a ratio of medians. A second
 // table gives the evaluations to f − f_opt ≤ 10⁻⁸ on f1, f2, f10 (n = 10) with and without the model.
+// A third ("graded") runs the sphere and Rosenbrock seen only through a scale of 7 grades whose cut
+// points are geometric, a decade apart, from the gap at the start point down (c_j = f_0 10^(1−j),
+// j = 1..6; the grade is the number of cuts the gap is below): one trial at a time, without the model
+// (as `model: auto` runs a graded design) and with it (`model: on`), against the same campaign given
+// exact scores with the model; each reports the best true gap among the evaluated points.
 //
 // Usage: ogive-bench-budget [--seeds N] [--quick] [--only PREFIX]
 #include <algorithm>
@@ -44,15 +49,45 @@ using ogive::testing::Problem;
 
 constexpr double kFloor = 1e-8;
 
-// Best gaps after each informative outcome (index k: the best of the first k + 1).
-std::vector<double> Run(const Problem& problem, bool surrogate, int workers, long budget, uint64_t seed) {
+// The graded rows' scale: grade = how many of the cut points c_1 > ... > c_{L−1} the gap is below.
+struct GradeScale {
+  std::vector<double> cuts;
+  int Grade(double gap) const {
+    int g = 0;
+    for (double c : cuts) g += gap < c;
+    return g;
+  }
+  int levels() const { return static_cast<int>(cuts.size()) + 1; }
+};
+
+// Seven grades, cut points a decade apart from f_0 = the gap at the start point down.
+GradeScale ScaleFor(const Problem& problem) {
+  Eigen::VectorXd start = problem.space.Center();
+  for (size_t i = 0; i < problem.options.start.size(); ++i) {
+    if (problem.options.start[i].has_value()) start[static_cast<Eigen::Index>(i)] = *problem.options.start[i];
+  }
+  const double f0 = problem.gap(problem.space.Decode(start));
+  GradeScale scale;
+  for (int j = 1; j <= 6; ++j) scale.cuts.push_back(f0 * std::pow(10.0, 1 - j));
+  return scale;
+}
+
+// Best gaps after each informative outcome (index k: the best of the first k + 1). Reports grades on
+// `graded` when given, else the gap as a score.
+std::vector<double> Run(const Problem& problem, bool surrogate, int workers, long budget, uint64_t seed,
+                        const GradeScale* graded = nullptr) {
   CampaignOptions options;
   options.seed = seed;
   options.restarts = true;
   options.surrogate = surrogate;
   ogive::search::DistributionOptions distribution = problem.options;
   distribution.expected_workers = workers;
-  Campaign c = *Campaign::Create(problem.space, ogive::search::OutcomeOrder{}, distribution, options);
+  ogive::search::OutcomeOrder order;
+  if (graded != nullptr) {
+    order.graded = true;
+    order.grade_count = graded->levels();
+  }
+  Campaign c = *Campaign::Create(problem.space, order, distribution, options);
   std::vector<double> best;
   RandomStream times(seed ^ 0x5851f42d4c957f2du);
   struct Pending {
@@ -78,7 +113,7 @@ std::vector<double> Run(const Problem& problem, bool surrogate, int workers, lon
     clock = p.done;
     const double gap = problem.gap(problem.space.Decode(p.trial.x));
     best.push_back(std::max(kFloor, best.empty() ? gap : std::min(best.back(), gap)));
-    const Report report{p.trial.number, Outcome::Score(gap), ""};
+    const Report report{p.trial.number, graded != nullptr ? Outcome::Grade(graded->Grade(gap)) : Outcome::Score(gap), ""};
     (void)c.Tell({&report, 1}, absl::FromUnixSeconds(0) + absl::Seconds(clock));
     ask();
   }
@@ -203,6 +238,38 @@ int main(int argc, char** argv) {
       std::printf("\"off_over_model\": %.3g, \"off_over_model_w8\": %.3g}",
                   std::pow(10, Quantile(at_off, 0.5) - Quantile(at_model, 0.5)),
                   std::pow(10, Quantile(at_off, 0.5) - Quantile(at_async, 0.5)));
+      std::fflush(stdout);
+    }
+  }
+  std::printf("\n  ],\n  \"graded\": [");
+  first = true;
+  for (const Case& c : cases) {
+    if (std::strcmp(c.problem, "f1") != 0 && std::strcmp(c.problem, "f8") != 0) continue;
+    if (only == "none" || std::string(c.problem).rfind(only, 0) != 0) continue;
+    const std::vector<long> budgets = c.n == 10 ? std::vector<long>{100, 200} : std::vector<long>{50, 100};
+    const long longest = budgets.back();
+    std::vector<std::vector<double>> off(seeds), model(seeds), exact(seeds);
+    for (int s = 0; s < seeds; ++s) {
+      const Problem problem = ogive::testing::MakeProblem(c.problem, c.n, 1000 + s);
+      const GradeScale scale = ScaleFor(problem);
+      off[s] = Run(problem, false, 1, longest, 7000 + s, &scale);
+      model[s] = Run(problem, true, 1, longest, 7000 + s, &scale);
+      exact[s] = Run(problem, true, 1, longest, 7000 + s);
+    }
+    for (const long budget : budgets) {
+      std::vector<double> at_off, at_model, at_exact;
+      for (int s = 0; s < seeds; ++s) {
+        at_off.push_back(off[s][budget - 1]);
+        at_model.push_back(model[s][budget - 1]);
+        at_exact.push_back(exact[s][budget - 1]);
+      }
+      std::printf("%s\n    {\"problem\": \"%s\", \"n\": %d, \"budget\": %ld, \"grades\": 7, ", first ? "" : ",",
+                  c.problem, c.n, budget);
+      first = false;
+      PrintStats("graded_off", at_off, false);
+      PrintStats("graded_model", at_model, false);
+      PrintStats("exact_model", at_exact, false);
+      std::printf("\"off_over_model\": %.3g}", std::pow(10, Quantile(at_off, 0.5) - Quantile(at_model, 0.5)));
       std::fflush(stdout);
     }
   }
