@@ -17,7 +17,16 @@
 // and this harness used during the ask+tell phase, per pair; steadier than rates on a shared machine.
 // The server's is 0 with --server (another machine's process).
 //
+// The campaign has `--dimension` reals in [-5, 5] (4 by default) and the default design otherwise (so the
+// ranking model is on in n <= 10). Clients report uniform random scores by default, which keep the
+// campaign searching however long the run but never let the model earn trust; `--objective ellipsoid`
+// reports a separable ellipsoid of the values (condition 10^3), on which the model soon orders cohorts
+// well and the engine does all its model work (refits, model-ranked updates, screened picks).
+// `--prefill K` first stores K ask+tell pairs from one client, unmeasured (the issue's "Ask with 2000
+// stored trials").
+//
 // Usage: ogive-bench-load --ogived PATH [--seconds T] [--warmup W] [--clients 1,16,64,256] [--no-baseline]
+//                         [--dimension N] [--objective random|ellipsoid] [--prefill K] [--model auto|off]
 // (--no-baseline skips the health Check phase, for profiling the server's ask+tell path alone; it
 // prints baseline_calls_per_s and ratio as 0.)
 #include <arpa/inet.h>
@@ -146,10 +155,29 @@ struct Schedule {
   }
 };
 
-// Each client: Ask(1), Tell(score) until the end; latency per pair begun after the warm-up. CPU times
-// of `server` (0 when not ours) and of this process are taken over the measured part.
+// What the clients report for a trial.
+enum class Objective { kRandom, kEllipsoid };
+
+// The separable ellipsoid sum_j 10^(3 j / (n - 1)) (x_j - 1)^2 of the trial's reals (BBOB f2's shape at
+// a milder condition, so that a campaign of a few thousand trials is still moving).
+double Ellipsoid(const ogive::v1::Candidate& candidate) {
+  std::vector<std::pair<std::string, double>> reals;
+  for (const auto& [name, value] : candidate.values()) reals.emplace_back(name, value.real());
+  std::sort(reals.begin(), reals.end());
+  const int n = static_cast<int>(reals.size());
+  double f = 0;
+  for (int j = 0; j < n; ++j) {
+    const double d = reals[j].second - 1;
+    f += std::pow(10.0, n > 1 ? 3.0 * j / (n - 1) : 0.0) * d * d;
+  }
+  return f;
+}
+
+// Each client: Ask(1), Tell(score) until the end, or until it has made `pairs_per_client` pairs when
+// that is positive; latency per pair begun after the warm-up. CPU times of `server` (0 when not ours)
+// and of this process are taken over the measured part.
 Measurement RunAskTell(const std::string& target, const std::string& campaign, int clients, double warmup,
-                       double seconds, pid_t server) {
+                       double seconds, pid_t server, Objective objective, long pairs_per_client = 0) {
   std::vector<std::vector<double>> latencies(clients), ask_latencies(clients), tell_latencies(clients);
   std::vector<long> errors(clients, 0);
   std::atomic<bool> go{false};
@@ -161,7 +189,8 @@ Measurement RunAskTell(const std::string& target, const std::string& campaign, i
       while (!go) std::this_thread::yield();
       const std::string worker = absl::StrCat("bench-", c);
       std::mt19937_64 rng(c + 1);
-      while (Clock::now() < schedule.end) {
+      long made = 0;
+      while (Clock::now() < schedule.end && (pairs_per_client <= 0 || made < pairs_per_client)) {
         const auto start = Clock::now();
         ogive::v1::AskRequest ask;
         ask.set_campaign(campaign);
@@ -182,8 +211,10 @@ Measurement RunAskTell(const std::string& target, const std::string& campaign, i
         tell.set_worker(worker);
         ogive::v1::Report& report = *tell.add_reports();
         report.set_trial(asked.trials(0).number());
-        // Random scores: the campaign keeps searching (it never converges and ends) however long the run.
-        report.mutable_outcome()->set_score(static_cast<double>(rng() >> 11) * 0x1.0p-53);
+        // Random scores keep the campaign searching (it never converges and ends) however long the run.
+        report.mutable_outcome()->set_score(objective == Objective::kEllipsoid
+                                                ? Ellipsoid(asked.trials(0).candidate())
+                                                : static_cast<double>(rng() >> 11) * 0x1.0p-53);
         ogive::v1::TellResponse told;
         const grpc::Status tell_status = CallAndWait(
             [&](grpc::ClientContext* context, auto done) { stub->async()->Tell(context, &tell, &told, std::move(done)); });
@@ -195,6 +226,7 @@ Measurement RunAskTell(const std::string& target, const std::string& campaign, i
           continue;
         }
         const auto told_at = Clock::now();
+        ++made;
         if (start < schedule.measured_from) continue;  // warm-up
         latencies[c].push_back(std::chrono::duration<double, std::milli>(told_at - start).count());
         ask_latencies[c].push_back(std::chrono::duration<double, std::milli>(asked_at - start).count());
@@ -274,6 +306,11 @@ int main(int argc, char** argv) {
   double warmup = 1;
   std::vector<int> client_counts = {1, 16, 64, 256};
   bool baseline_phase = true;
+  int dimension = 4;
+  Objective objective = Objective::kRandom;
+  long prefill = 0;
+  std::string model = "auto";
+  bool usage_error = false;
   for (int i = 1; i < argc; ++i) {
     const std::string arg = argv[i];
     if (arg == "--no-baseline") baseline_phase = false;
@@ -281,6 +318,14 @@ int main(int argc, char** argv) {
     if (arg == "--server" && i + 1 < argc) existing = argv[++i];  // a running server (for profiling)
     if (arg == "--seconds" && i + 1 < argc) seconds = std::atof(argv[++i]);
     if (arg == "--warmup" && i + 1 < argc) warmup = std::max(0.0, std::atof(argv[++i]));
+    if (arg == "--dimension" && i + 1 < argc) usage_error |= !absl::SimpleAtoi(argv[++i], &dimension) || dimension < 1;
+    if (arg == "--prefill" && i + 1 < argc) usage_error |= !absl::SimpleAtoi(argv[++i], &prefill) || prefill < 0;
+    if (arg == "--model" && i + 1 < argc) model = argv[++i];
+    if (arg == "--objective" && i + 1 < argc) {
+      const std::string name = argv[++i];
+      usage_error |= name != "random" && name != "ellipsoid";
+      objective = name == "ellipsoid" ? Objective::kEllipsoid : Objective::kRandom;
+    }
     if (arg == "--clients" && i + 1 < argc) {
       client_counts.clear();
       for (absl::string_view s : absl::StrSplit(argv[++i], ',')) {
@@ -289,11 +334,11 @@ int main(int argc, char** argv) {
       }
     }
   }
-  if (ogived.empty() == existing.empty()) {
+  if (ogived.empty() == existing.empty() || usage_error || (model != "auto" && model != "off")) {
     std::fprintf(stderr,
                  "usage: ogive-bench-load (--ogived PATH | --server HOST:PORT) [--seconds T] [--warmup W] "
-                 "[--clients 1,16,64,256] "
-                 "[--no-baseline]\n");
+                 "[--clients 1,16,64,256] [--no-baseline] [--dimension N >= 1] [--objective random|ellipsoid] "
+                 "[--prefill K >= 0] [--model auto|off]\n");
     return 2;
   }
   char dir_template[] = "/tmp/ogive-bench-load.XXXXXX";
@@ -312,7 +357,7 @@ int main(int argc, char** argv) {
   auto client = ogive::client::Client::Connect(target);
   ogive::v1::CampaignDesign design;
   design.set_name("load");
-  for (int j = 0; j < 4; ++j) {
+  for (int j = 0; j < dimension; ++j) {
     ogive::v1::Parameter* p = design.add_parameters();
     p->set_name(absl::StrCat("x", j));
     p->mutable_real()->set_low(-5);
@@ -321,6 +366,7 @@ int main(int argc, char** argv) {
   design.mutable_objective()->set_direction(ogive::v1::DIRECTION_LOWER_IS_BETTER);
   design.set_seed(1);
   design.set_restarts(true);
+  design.set_model(model);
   bool created = false;
   for (int attempt = 0; attempt < 100 && !created; ++attempt) {
     created = client->CreateCampaign(design).ok();
@@ -332,12 +378,19 @@ int main(int argc, char** argv) {
     if (server > 0) kill(server, SIGTERM);
     return 1;
   }
+  if (prefill > 0) {
+    // One client stores the trials the measured phases start from; its timings are not kept.
+    const Measurement filled = RunAskTell(target, "load", 1, 0, 1e9, server, objective, prefill);
+    if (filled.errors > 0) std::fprintf(stderr, "ogive-bench-load: %ld errors while prefilling\n", filled.errors);
+  }
   std::printf("{\n  \"benchmark\": \"ogive-bench-load\",\n  \"seconds\": %g,\n  \"warmup_seconds\": %g,\n"
-              "  \"synchronous\": \"FULL\",\n  \"results\": [",
-              seconds, warmup);
+              "  \"synchronous\": \"FULL\",\n  \"dimension\": %d,\n  \"objective\": \"%s\",\n"
+              "  \"model\": \"%s\",\n  \"prefilled_trials\": %ld,\n  \"results\": [",
+              seconds, warmup, dimension, objective == Objective::kEllipsoid ? "ellipsoid" : "random", model.c_str(),
+              prefill);
   for (size_t k = 0; k < client_counts.size(); ++k) {
     const int n = client_counts[k];
-    const Measurement m = RunAskTell(target, "load", n, warmup, seconds, server);
+    const Measurement m = RunAskTell(target, "load", n, warmup, seconds, server, objective);
     const double pairs = static_cast<double>(m.pairs);
     const double server_us_per_pair = pairs > 0 ? m.server_cpu_s / pairs * 1e6 : 0;
     const double client_us_per_pair = pairs > 0 ? m.client_cpu_s / pairs * 1e6 : 0;
