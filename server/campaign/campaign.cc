@@ -77,9 +77,11 @@ Eigen::VectorXd ModelCoordinates(const search::Space& space, const Eigen::Vector
 }
 
 // The model's window: the most recent originals of the distribution's epoch that an update consumed,
-// newest first, ModelWindow() of them at most. Trials are numbered in the order they were leased and
-// epochs only grow, so the scan stops at the first trial of an older epoch. The same records give the
-// same window, in memory and after a restore.
+// newest first, ModelWindow() of them at most. Originals are numbered in the order they were leased
+// and their epochs only grow, so the scan stops at the first original of an older epoch; a replicate
+// carries its original's epoch and may be leased long after it (a confirming measurement), so
+// replicates are passed over before that test. The same records give the same window, in memory and
+// after a restore.
 template <typename GetTrial>
 std::vector<ModelPoint> ModelWindowPoints(const search::Space& space, GetTrial get, int64_t last_trial, int64_t epoch,
                                           const search::SearchDistribution& d) {
@@ -87,8 +89,9 @@ std::vector<ModelPoint> ModelWindowPoints(const search::Space& space, GetTrial g
   std::vector<ModelPoint> window;
   for (int64_t number = last_trial; number >= 1 && static_cast<int>(window.size()) < size; --number) {
     const Trial& t = *get(number);
+    if (t.replicate_of != 0) continue;
     if (t.epoch < epoch) break;
-    if (t.use != Use::kConsumed || t.replicate_of != 0 || !t.outcome.has_value()) continue;
+    if (t.use != Use::kConsumed || !t.outcome.has_value()) continue;
     window.push_back({ModelCoordinates(space, t.x), *t.outcome});
   }
   return window;
@@ -241,19 +244,21 @@ class Campaign::Planner {
   // model's best of all.
   search::Draw Screen(int draws, search::RandomStream& random) {
     const search::GaussianFamily& g = *engine_.distribution->gaussian();
-    std::vector<Eigen::VectorXd> pending;  // steps of the live trials out, in the distribution's metric
-    ForEachLiveTrialOut([&](const Trial& t) {
-      pending.push_back(g.StepOf(ModelCoordinates(campaign_.space_, t.x), false));
-    });
+    // Mahalanobis distances as Euclidean ones between whitened steps C^{-1/2} A⁻¹ (x − m)/σ: O(n) per
+    // pair once each point is whitened.
+    const auto whitened = [&](const Eigen::VectorXd& x) {
+      return g.InverseSqrtTimes(g.StepOf(ModelCoordinates(campaign_.space_, x), false));
+    };
+    std::vector<Eigen::VectorXd> pending;
+    ForEachLiveTrialOut([&](const Trial& t) { pending.push_back(whitened(t.x)); });
     std::optional<search::Draw> best, best_apart;
     double best_value = 0, best_apart_value = 0;
     for (int k = 0; k < draws; ++k) {
       search::Draw draw = engine_.distribution->Sample(random);
-      const Eigen::VectorXd y = ModelCoordinates(campaign_.space_, draw.x);
-      const double value = engine_.model->Predict(y);
-      const Eigen::VectorXd step = g.StepOf(y, false);
+      const double value = engine_.model->Predict(ModelCoordinates(campaign_.space_, draw.x));
+      const Eigen::VectorXd u = whitened(draw.x);
       bool apart = true;
-      for (const Eigen::VectorXd& p : pending) apart = apart && g.MahalanobisNorm(step - p) >= kPickSeparation;
+      for (const Eigen::VectorXd& p : pending) apart = apart && (u - p).norm() >= kPickSeparation;
       if (apart && (!best_apart.has_value() || value < best_apart_value)) {
         best_apart = draw;
         best_apart_value = value;
@@ -282,8 +287,10 @@ class Campaign::Planner {
         t.replicate_of = source;
         added_replicates_.emplace(source, t.number);
       } else {
-        // The first candidate of each generation is the model's pick (surrogate_step.h).
+        // The first candidate of each generation is the model's pick (surrogate_step.h). Replicates
+        // carry their original's generation, so the previous original decides.
         const Trial* previous = Get(t.number - 1);
+        while (previous != nullptr && previous->replicate_of != 0) previous = Get(previous->number - 1);
         const bool first_of_generation = previous == nullptr || previous->generation != engine_.generation ||
                                          previous->epoch != engine_.epoch;
         const int draws = engine_.model != nullptr && first_of_generation
@@ -591,7 +598,11 @@ class Campaign::Planner {
       }
       tau = ModelAgreement(*engine_.model, members, campaign_.order_);
     }
-    if (!std::isnan(tau)) engine_.model_agreement = tau;
+    if (!std::isnan(tau)) {
+      engine_.model_agreement = tau;
+    } else if (engine_.model == nullptr) {
+      engine_.model_agreement = 0;  // the model about to be fitted has not been tested on anything
+    }
     engine_.model = FitModel(*next.gaussian(), window, campaign_.order_);
     const int updates = ModelRankedUpdates(engine_.model_agreement, next.population_size());
     if (engine_.model == nullptr || updates == 0) return;

@@ -27,7 +27,8 @@ inline constexpr int kMaxPopulationSize = 4096;
 
 // The design's `model` values: "auto" (or empty) uses the model for scored campaigns whose real and
 // integer block has at most kAutoModelDimension parameters (a refit there costs a few milliseconds;
-// beyond, tens), "on" for any campaign, "off" never. Graded campaigns use it only with "on": on the
+// beyond, tens), "on" for any campaign whose parameters are all real or integer (the service refuses it
+// with flags or options), "off" never. Graded campaigns use it only with "on": on the
 // graded rows of ogive-bench-search it moved successes between rows without adding any
 // (docs/benchmarks.md). Returns nullopt for any other value.
 inline constexpr int kAutoModelDimension = 10;

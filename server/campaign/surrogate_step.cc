@@ -45,7 +45,9 @@ int ModelRankedUpdates(double tau, int lambda) {
   return static_cast<int>(std::floor(share * std::min(lambda - 1, kMaxModelRankedUpdates)));
 }
 
-int ScreeningDraws(double tau, int lambda) { return tau >= kModelTrustFull ? kScreeningDrawsPerMember * lambda : 1; }
+int ScreeningDraws(double tau, int lambda) {
+  return tau >= kModelTrustFull ? std::min(kScreeningDrawsPerMember * lambda, kMaxScreeningDraws) : 1;
+}
 
 int AdvanceByModel(search::SearchDistribution& d, const search::OrdinalModel& model, int updates,
                    search::RandomStream& random) {

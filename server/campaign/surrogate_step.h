@@ -7,7 +7,7 @@
 // high enough, advances the distribution by a few further updates whose cohorts are drawn from it and
 // ranked by the model alone (model-ranked updates, after lq-CMA-ES, Hansen, GECCO 2019, which updates
 // from model-ranked populations while the model's τ on truly evaluated points stays high), never
-// leaving the region the last true cohort was drawn from; (4) refits once more in the coordinates of the
+// leaving the ellipsoid of radius c_y around the mean the true update gave; (4) refits once more in the coordinates of the
 // distribution it ends with, which is the model kept (and rebuilt the same way when a campaign is
 // restored). While τ_b is high, the first trial an Ask hands out in each generation is the model's
 // best of many draws (lq-CMA-ES evaluates its model's best candidates first). Only the real and
@@ -64,10 +64,13 @@ inline constexpr double kModelTrustFull = 0.85;
 int ModelRankedUpdates(double tau, int lambda);
 
 // The first trial of each generation is the model's pick among this many draws from the
-// distribution: 10λ from kModelTrustFull on, else 1 (no pick). The other trials of the generation are
+// distribution: 10λ, at most kMaxScreeningDraws, from kModelTrustFull on, else 1 (no pick). The cap
+// bounds the Ask that makes the pick when the population has grown large (restarts, noise, many
+// workers): each draw is predicted and compared with every live trial out. The other trials of the generation are
 // plain samples, so the cohort stays a sample of the distribution but for one injected member, and a
 // batch for several workers is as diverse as the distribution.
 inline constexpr int kScreeningDrawsPerMember = 10;
+inline constexpr int kMaxScreeningDraws = 400;
 int ScreeningDraws(double tau, int lambda);
 
 // Trials still out count in the pick: it is the model's best among the draws at least this far

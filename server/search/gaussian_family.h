@@ -103,6 +103,8 @@ class GaussianFamily {
 
   // ‖C^{-1/2} v‖ with the current eigendecomposition.
   double MahalanobisNorm(const Eigen::VectorXd& v) const;
+  // C^{-1/2} v: Mahalanobis distances between many steps are Euclidean distances between these.
+  Eigen::VectorXd InverseSqrtTimes(const Eigen::VectorXd& v) const;
 
   // c_y = √n + 2n/(n + 2): the clipping radius for external steps.
   double ClipRadius() const;
@@ -117,7 +119,6 @@ class GaussianFamily {
   GaussianFamily(GaussianState state, CmaParameters params);
   void Decompose();
   void UpdateMargin();
-  Eigen::VectorXd InverseSqrtTimes(const Eigen::VectorXd& v) const;  // C^{-1/2} v
 
   GaussianState state_;
   CmaParameters params_;

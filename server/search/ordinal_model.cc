@@ -80,6 +80,9 @@ absl::StatusOr<OrdinalModel> OrdinalModel::Fit(const GaussianFamily& metric, abs
       return absl::InvalidArgumentError(absl::StrCat("ordinal model: a point is not a finite vector of ", n));
     }
   }
+  for (const double r : rank) {
+    if (!std::isfinite(r)) return absl::InvalidArgumentError("ordinal model: a rank is not a finite number");
+  }
   absl::StatusOr<ModelShape> shape = ShapeFor(n, count);
   if (!shape.ok()) return shape.status();
 
@@ -110,14 +113,14 @@ absl::StatusOr<OrdinalModel> OrdinalModel::Fit(const GaussianFamily& metric, abs
     phi.col(j) /= model.scale_[j];
   }
 
-  // The comparisons to honour: every member of a class against every member of the next worse class
+  // The comparisons to honour: every member of a class against every member of every worse class
   // (ties compare with nothing: the primary treatment), thinned by a stride when there are too many.
   std::vector<int> by_class(count);
   std::iota(by_class.begin(), by_class.end(), 0);
   std::stable_sort(by_class.begin(), by_class.end(), [&](int a, int b) { return rank[a] < rank[b]; });
   std::vector<std::pair<int, int>> blocks;  // [begin, end) in by_class
   for (int start = 0; start < count;) {
-    int end = start;
+    int end = start + 1;
     while (end < count && rank[by_class[end]] == rank[by_class[start]]) ++end;
     blocks.emplace_back(start, end);
     start = end;

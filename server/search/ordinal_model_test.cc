@@ -114,7 +114,7 @@ TEST(OrdinalModelTest, FullQuadraticOrdersAQuadraticFunctionExactly) {
       truth.push_back(f(y));
     }
     EXPECT_GT(KendallTauB(predicted, truth), 0.95) << "n = " << n;
-    absl::StatusOr<OrdinalModel> from_log = OrdinalModel::Fit(metric, x, Classes(log_fx));
+    absl::StatusOr<OrdinalModel> from_log = OrdinalModel::Fit(metric, x, log_fx);
     ASSERT_TRUE(from_log.ok());
     EXPECT_EQ(from_log->Predict(x[0]), model->Predict(x[0]));
   }
@@ -169,6 +169,10 @@ TEST(OrdinalModelTest, RefusesAllTiedAndMismatchedInput) {
   EXPECT_EQ(OrdinalModel::Fit(metric, x, std::vector<double>(10, 0)).status().code(),
             absl::StatusCode::kFailedPrecondition);
   EXPECT_EQ(OrdinalModel::Fit(metric, x, std::vector<double>(9, 0)).status().code(), absl::StatusCode::kInvalidArgument);
+  std::vector<double> with_nan(10);
+  std::iota(with_nan.begin(), with_nan.end(), 0);
+  with_nan[4] = std::nan("");
+  EXPECT_EQ(OrdinalModel::Fit(metric, x, with_nan).status().code(), absl::StatusCode::kInvalidArgument);
   std::vector<double> classes(10);
   std::iota(classes.begin(), classes.end(), 0);
   EXPECT_EQ(OrdinalModel::Fit(metric, std::vector<Eigen::VectorXd>(x.begin(), x.begin() + 3),

@@ -341,6 +341,19 @@ absl::Status ValidateDesignShape(const v1::CampaignDesign& design, const Service
   if (!campaign::ParseModel(design.model(), 0, false).has_value()) {
     return InvalidField("design.model", StrCat(campaign::kModelRule, ", got \"", design.model(), "\""));
   }
+  if (design.model() == "on") {
+    // The model covers the real and integer block only; a design with flags or options runs without it,
+    // so "on" there would be a promise the campaign does not keep.
+    for (const v1::Parameter& p : design.parameters()) {
+      if (p.kind_case() == v1::Parameter::kFlag || p.kind_case() == v1::Parameter::kCategorical) {
+        return InvalidField("design.model",
+                            StrCat("\"on\" needs every parameter real or integer (the model covers only those); "
+                                   "parameter '", p.name(), "' is a ",
+                                   p.kind_case() == v1::Parameter::kFlag ? "flag" : "categorical",
+                                   ": use \"auto\" or \"off\""));
+      }
+    }
+  }
   if (design.trial_budget() < 0) {
     return InvalidField("design.trial_budget", StrCat("must be >= 0 (0 = no budget), got ", design.trial_budget()));
   }

@@ -190,7 +190,11 @@ Measurement RunAskTell(const std::string& target, const std::string& campaign, i
       const std::string worker = absl::StrCat("bench-", c);
       std::mt19937_64 rng(c + 1);
       long made = 0;
-      while (Clock::now() < schedule.end && (pairs_per_client <= 0 || made < pairs_per_client)) {
+      // A client stops after kMaxErrors failed calls (the server is gone, or refuses everything):
+      // a prefill has no deadline of its own.
+      constexpr long kMaxErrors = 100;
+      while (Clock::now() < schedule.end && (pairs_per_client <= 0 || made < pairs_per_client) &&
+             errors[c] < kMaxErrors) {
         const auto start = Clock::now();
         ogive::v1::AskRequest ask;
         ask.set_campaign(campaign);

@@ -1447,6 +1447,14 @@ TEST_F(ServiceTest, MalformedDesignsAreRefusedNamingTheField) {
       {"model not one of the modes",
        [](v1::CampaignDesign& d) { d.set_model("yes"); },
        {"design.model", "must be one of \"auto\" (or empty), \"on\", \"off\"", "\"yes\""}},
+      {"model on with a flag",
+       [](v1::CampaignDesign& d) {
+         d.set_model("on");
+         v1::Parameter* p = d.add_parameters();
+         p->set_name("glaze");
+         p->mutable_flag();
+       },
+       {"design.model", "every parameter real or integer", "'glaze' is a flag", "\"auto\" or \"off\""}},
   };
   for (const BadDesignCase& c : cases) {
     SCOPED_TRACE(c.what);
