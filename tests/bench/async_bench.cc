@@ -91,13 +91,14 @@ struct Event {
 };
 
 Result RunEngine(const Problem& problem, int workers, int expected_workers, Durations durations, uint64_t seed,
-                 const Faults& faults = {}) {
+                 const Faults& faults = {}, bool surrogate = false) {
   ogive::search::DistributionOptions options = problem.options;
   options.expected_workers = expected_workers;
   ogive::campaign::CampaignOptions campaign_options;
   campaign_options.seed = seed;
   campaign_options.default_lease = absl::Seconds(faults.lease);
   campaign_options.restarts = true;  // part of the engine: a run caught in a local minimum restarts (IPOP)
+  campaign_options.surrogate = surrogate;
   ogive::campaign::Campaign campaign =
       *ogive::campaign::Campaign::Create(problem.space, ogive::search::OutcomeOrder{}, options, campaign_options);
   WorkerModel model{durations, RandomStream(seed * 7919 + 1)};
@@ -236,12 +237,19 @@ Row Summarize(const std::string& problem, int n, int workers, const std::string&
 // 20 median evaluation times, W = 8 and W = 4 λ_default, on f1, f10 and f11 (n = 10). Each row's
 // evaluations are compared with the same row without vanishing, and its time with the barrier's on
 // the same faults. Prints one JSON object.
+//
+// The engine runs without the ordinal model (`model: off`, as when these rows were first measured),
+// and again as a design's default runs it in n = 10 (`model: auto`, the model on; the barrier is the
+// plain core either way). throughput_bound_ratio is the least time ratio any schedule could reach
+// with the engine's evaluations: W workers finish at most W evaluations per mean evaluation time
+// (e^(1/2) medians for the lognormal), so time ≥ evaluations · e^(1/2) / W.
 int RunFaultRows(int seeds, bool quick) {
   struct FaultRow {
     std::string problem;
     int workers;
     double lease, vanish;
     double success_rate, median_evals, evals_ratio_to_no_vanish, time_ratio_to_barrier, barrier_success_rate;
+    double throughput_bound_ratio, model_success_rate, model_median_evals, model_time_ratio_to_barrier;
   };
   std::vector<FaultRow> rows;
   const std::vector<std::string> problems = quick ? std::vector<std::string>{"f1"}
@@ -259,17 +267,22 @@ int RunFaultRows(int seeds, bool quick) {
           faults.void_probability = 0;
           faults.duplicate = 0;
           faults.lease = lease;
-          std::vector<Result> engine, barrier;
+          std::vector<Result> engine, barrier, with_model;
           for (int s = 0; s < seeds; ++s) {
             const Problem problem = ogive::testing::MakeProblem(name, kN, 1000 + s);
             engine.push_back(RunEngine(problem, workers, workers, Durations::kLognormal, 7000 + s, faults));
             barrier.push_back(RunBarrier(problem, workers, Durations::kLognormal, 7000 + s, faults));
+            with_model.push_back(RunEngine(problem, workers, workers, Durations::kLognormal, 7000 + s, faults, true));
           }
           const Row e = Summarize(name, kN, workers, "engine", "lognormal", engine);
           const Row b = Summarize(name, kN, workers, "barrier", "lognormal", barrier);
+          const Row m = Summarize(name, kN, workers, "engine-model", "lognormal", with_model);
           if (vanish == 0) no_vanish_evals = e.median_evals;
+          const double mean_duration = std::exp(0.5);  // lognormal, σ = 1, median 1
           rows.push_back({name, workers, lease, vanish, e.success_rate, e.median_evals,
-                          e.median_evals / no_vanish_evals, e.median_time / b.median_time, b.success_rate});
+                          e.median_evals / no_vanish_evals, e.median_time / b.median_time, b.success_rate,
+                          e.median_evals * mean_duration / workers / b.median_time, m.success_rate, m.median_evals,
+                          m.median_time / b.median_time});
         }
       }
     }
@@ -281,9 +294,11 @@ int RunFaultRows(int seeds, bool quick) {
     const FaultRow& r = rows[k];
     std::printf("%s\n    {\"problem\": \"%s\", \"n\": %d, \"workers\": %d, \"lease\": %g, \"vanish\": %g, "
                 "\"success_rate\": %.3f, \"median_evals\": %.1f, \"evals_ratio_to_no_vanish\": %.3f, "
-                "\"time_ratio_to_barrier\": %.3f, \"barrier_success_rate\": %.3f}",
+                "\"time_ratio_to_barrier\": %.3f, \"barrier_success_rate\": %.3f, \"throughput_bound_ratio\": %.3f, "
+                "\"model_success_rate\": %.3f, \"model_median_evals\": %.1f, \"model_time_ratio_to_barrier\": %.3f}",
                 k ? "," : "", r.problem.c_str(), kN, r.workers, r.lease, r.vanish, r.success_rate, r.median_evals,
-                r.evals_ratio_to_no_vanish, r.time_ratio_to_barrier, r.barrier_success_rate);
+                r.evals_ratio_to_no_vanish, r.time_ratio_to_barrier, r.barrier_success_rate, r.throughput_bound_ratio,
+                r.model_success_rate, r.model_median_evals, r.model_time_ratio_to_barrier);
   }
   std::printf("\n  ]\n}\n");
   return 0;
